@@ -1,0 +1,603 @@
+"""Bench files (TOML) -> a validated, typed, frozen model. The one place for units and conventions.
+
+Units and conventions of a bench file:
+
+* Angles in degrees; an element angle is measured from H towards V looking into the beam.
+* A mount's element angle is ``sense * (reading_deg - offset_deg)``.
+* Wavelengths in nm, rates in counts (or photons) per second, dead time in ns; pointer width and
+  coupling strength in the bench's ``coupling.units``.
+* Retardance in waves (1 wave = 360 deg of phase).
+
+Loading keeps the parsed tomlkit document so that :func:`write_values` can store new readings,
+offsets or fitted values back into the file with its comments and layout preserved.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import tomlkit
+import tomlkit.exceptions
+
+from .errors import BenchFileError
+
+__all__ = [
+    "DEMO_BENCH",
+    "Analyzer",
+    "Bench",
+    "Coupling",
+    "Detector",
+    "Element",
+    "Mount",
+    "Plate",
+    "Simulation",
+    "Source",
+    "load_bench",
+    "resolve_bench_path",
+    "write_values",
+]
+
+#: The bundled demo bench (an invented scenario) used by the quick start.
+DEMO_BENCH = Path(__file__).parent / "data" / "demo-bench.toml"
+
+ELEMENT_TYPES = ("hwp", "qwp", "retarder", "polarizer", "rotator")
+NOMINAL_WAVES = {"hwp": 0.5, "qwp": 0.25}
+READOUTS = ("position", "momentum", "phase")
+DETECTOR_MODES = ("cw", "pulsed")
+INF = math.inf
+
+
+@dataclass(frozen=True)
+class Plate:
+    """How a waveplate was made, to compute its retardance at the working wavelength."""
+
+    material: str
+    kind: str
+    design_nm: float
+    order: int = 0
+    thickness_um: float | None = None
+
+
+@dataclass(frozen=True)
+class Element:
+    """One optical element in the pre- or post-selection arm.
+
+    ``angle_deg`` is the fixed element angle when ``mount`` is None. For a rotator the "angle"
+    is its rotation (deg). ``retardance_waves`` is already resolved at the bench wavelength.
+    """
+
+    type: str
+    key: str
+    mount: str | None = None
+    angle_deg: float = 0.0
+    retardance_waves: float = 0.0
+    retardance_tol_waves: float = 0.0
+    plate: Plate | None = None
+    extinction_ratio: float = INF
+    transmission: float = 1.0
+
+
+@dataclass(frozen=True)
+class Source:
+    """The source polarizer and the photon rate leaving it (photons/s)."""
+
+    photon_rate: float
+    angle_deg: float = 0.0
+    mount: str | None = None
+    extinction_ratio: float = INF
+
+
+@dataclass(frozen=True)
+class Coupling:
+    """The weak interaction ``exp(-i g A p)`` and its pointer.
+
+    ``observable`` is a name (HV, DA, RL, H, V, D, A, R, L) or ``"axis"`` with ``axis``
+    (a Stokes direction) and ``eigenvalues``. ``pointer_sigma`` is the rms width of the pointer
+    intensity, ``strength`` the shift per unit eigenvalue (both in ``units``). For the
+    ``phase`` readout the pointer is a coherent probe of ``probe_photons`` photons whose phase
+    spread is ``1/(2 sqrt(N))`` rad, and ``strength`` is in rad. ``jitter_rms`` is technical
+    pointer noise (not amplified) in ``units``.
+    """
+
+    observable: str
+    readout: str
+    pointer_sigma: float
+    strength: float
+    units: str
+    axis: tuple[float, float, float] | None = None
+    eigenvalues: tuple[float, float] = (1.0, -1.0)
+    jitter_rms: float = 0.0
+    probe_photons: float | None = None
+
+
+@dataclass(frozen=True)
+class Analyzer:
+    """The final polarizer before the detector."""
+
+    angle_deg: float = 0.0
+    mount: str | None = None
+    extinction_ratio: float = INF
+    transmission: float = 1.0
+
+
+@dataclass(frozen=True)
+class Detector:
+    """Single-photon detector. Rates in counts/s, dead time in ns, efficiency in (0, 1]."""
+
+    efficiency: float = 1.0
+    dark_rate: float = 0.0
+    dead_time_ns: float = 0.0
+    safe_rate: float = INF
+    mode: str = "cw"
+    rep_rate_hz: float | None = None
+    gate_dark_probability: float = 0.0
+    saturation_rate: float | None = None
+
+
+@dataclass(frozen=True)
+class Mount:
+    """A rotation mount: how its reading maps to the element angle, and what it can do."""
+
+    name: str
+    driver: str = "sim"
+    reading_deg: float = 0.0
+    offset_deg: float = 0.0
+    sense: int = 1
+    resolution_deg: float = 0.001
+    backlash_deg: float = 0.0
+    travel_deg: tuple[float, float] = (-360.0, 360.0)
+    repeatability_deg: float = 0.0
+    offset_err_deg: float = 0.0
+    speed_deg_s: float = 20.0
+    profile: str | None = None
+
+    def element_angle_deg(self, reading_deg: Any) -> Any:
+        """Element angle (deg) at a mount reading (deg); broadcasts over arrays."""
+        return self.sense * (reading_deg - self.offset_deg)
+
+    def reading_for_angle_deg(self, angle_deg: Any) -> Any:
+        """Mount reading (deg) that puts the element at ``angle_deg``."""
+        return angle_deg * self.sense + self.offset_deg
+
+
+@dataclass(frozen=True)
+class Simulation:
+    """What the simulated bench does differently from the file (the "truth" to be found).
+
+    ``offset_error_deg``: true offset minus file offset per mount; ``extinction_scale``:
+    true/file extinction of analyzer and source; ``retardance_error_waves``: added to every
+    plate; ``seed`` for the random draws.
+    """
+
+    seed: int = 2026
+    offset_error_deg: Mapping[str, float] = field(default_factory=dict)
+    extinction_scale: float = 1.0
+    retardance_error_waves: float = 0.0
+
+
+@dataclass(frozen=True)
+class Bench:
+    """A whole interferometer: source, pre-selection optics, coupling, post-selection, analyzer,
+    detector and mounts."""
+
+    path: Path | None
+    wavelength_nm: float
+    imbalance_mount: str
+    source: Source
+    pre: tuple[Element, ...]
+    coupling: Coupling
+    post: tuple[Element, ...]
+    analyzer: Analyzer
+    detector: Detector
+    mounts: Mapping[str, Mount]
+    phase_mount: str | None = None
+    simulation: Simulation = field(default_factory=Simulation)
+    name: str = ""
+
+    def readings(self) -> dict[str, float]:
+        """Current reading (deg) of every mount, as stored in the file."""
+        return {name: m.reading_deg for name, m in self.mounts.items()}
+
+    def with_mounts(self, **changes: Mount) -> Bench:
+        """A copy with some mounts replaced (used by fits and the tolerance budget)."""
+        from dataclasses import replace
+
+        return replace(self, mounts={**self.mounts, **changes})
+
+
+# --------------------------------------------------------------------------------------------
+# Validation
+
+
+class _Reader:
+    """Reads one table of the document, remembering which keys were used."""
+
+    def __init__(self, path: str, prefix: str, table: Mapping[str, Any], allowed: tuple[str, ...]):
+        self.path, self.prefix, self.table = path, prefix, table
+        for key in table:
+            if key not in allowed:
+                close = difflib.get_close_matches(key, allowed, n=1)
+                hint = f"; did you mean {close[0]!r}?" if close else ""
+                raise self.error(key, f"unknown key (allowed: {', '.join(allowed)}){hint}")
+
+    def key(self, name: str) -> str:
+        return f"{self.prefix}.{name}" if self.prefix else name
+
+    def error(self, name: str, problem: str) -> BenchFileError:
+        return BenchFileError(self.path, self.key(name), problem)
+
+    def has(self, name: str) -> bool:
+        return name in self.table
+
+    def number(
+        self,
+        name: str,
+        default: float | None = None,
+        *,
+        minimum: float | None = None,
+        above: float | None = None,
+        maximum: float | None = None,
+        allow_inf: bool = False,
+    ) -> float:
+        if name not in self.table:
+            if default is None:
+                raise self.error(name, "is required (a number)")
+            return default
+        value = self.table[name]
+        if isinstance(value, bool) or not isinstance(value, int | float):
+            raise self.error(name, f"must be a number, got {value!r}")
+        value = float(value)
+        if math.isnan(value) or (math.isinf(value) and not allow_inf):
+            raise self.error(name, f"must be a finite number, got {value}")
+        if minimum is not None and value < minimum:
+            raise self.error(name, f"must be at least {minimum:g}, got {value:g}")
+        if above is not None and value <= above:
+            raise self.error(name, f"must be greater than {above:g}, got {value:g}")
+        if maximum is not None and value > maximum:
+            raise self.error(name, f"must be at most {maximum:g}, got {value:g}")
+        return value
+
+    def text(self, name: str, default: str | None = None, choices: tuple[str, ...] = ()) -> str:
+        if name not in self.table:
+            if default is None:
+                raise self.error(name, "is required (a string)")
+            return default
+        value = self.table[name]
+        if not isinstance(value, str):
+            raise self.error(name, f"must be a string, got {value!r}")
+        value = str(value)
+        if choices and value not in choices:
+            close = difflib.get_close_matches(value, choices, n=1)
+            hint = f"; did you mean {close[0]!r}?" if close else ""
+            raise self.error(name, f"must be one of {', '.join(choices)}, got {value!r}{hint}")
+        return value
+
+    def table_of(self, name: str) -> Mapping[str, Any]:
+        value = self.table.get(name, {})
+        if not isinstance(value, Mapping):
+            raise self.error(name, "must be a table")
+        return value
+
+    def numbers(self, name: str, length: int) -> tuple[float, ...]:
+        value = self.table[name]
+        if not isinstance(value, list) or len(value) != length:
+            raise self.error(name, f"must be a list of {length} numbers, got {value!r}")
+        out = []
+        for item in value:
+            if isinstance(item, bool) or not isinstance(item, int | float) or not math.isfinite(item):
+                raise self.error(name, f"must be a list of {length} finite numbers, got {value!r}")
+            out.append(float(item))
+        return tuple(out)
+
+
+def _extinction(r: _Reader) -> float:
+    er = r.number("extinction_ratio", INF, allow_inf=True)
+    if er < 1:
+        raise r.error("extinction_ratio", f"must be at least 1 (1e5 for a good prism), got {er:g}")
+    return er
+
+
+def _angle_or_mount(r: _Reader, mounts: Mapping[str, Any]) -> tuple[float, str | None]:
+    if r.has("mount"):
+        if r.has("angle_deg"):
+            raise r.error("angle_deg", "give either angle_deg or mount, not both")
+        name = r.text("mount")
+        if name not in mounts:
+            close = difflib.get_close_matches(name, list(mounts), n=1)
+            hint = f"; did you mean {close[0]!r}?" if close else ""
+            known = ", ".join(mounts) or "none"
+            raise r.error("mount", f"unknown mount {name!r} (mounts defined: {known}){hint}")
+        return 0.0, name
+    return r.number("angle_deg", 0.0), None
+
+
+def _plate(r: _Reader, element_type: str, wavelength_nm: float) -> tuple[float, Plate | None]:
+    from .physics.materials import MATERIALS, PLATE_KINDS, plate_retardance_waves
+
+    if r.has("retardance_waves"):
+        if r.has("plate"):
+            raise r.error("plate", "give either retardance_waves or plate, not both")
+        return r.number("retardance_waves", minimum=0.0), None
+    if element_type == "retarder":
+        raise r.error("retardance_waves", "is required for a retarder (in waves)")
+    nominal = NOMINAL_WAVES[element_type]
+    if not r.has("plate"):
+        return nominal, None
+    pr = _Reader(r.path, r.key("plate"), r.table_of("plate"),
+                 ("material", "kind", "design_nm", "order", "thickness_um"))
+    material = pr.text("material", "quartz", tuple(MATERIALS))
+    kind = pr.text("kind", "zero-order", PLATE_KINDS)
+    design = pr.number("design_nm", wavelength_nm, above=0.0)
+    order = int(pr.number("order", 0, minimum=0))
+    thickness = pr.number("thickness_um", above=0.0) if pr.has("thickness_um") else None
+    for name, lam in (("design_nm", design), ("wavelength_nm", wavelength_nm)):
+        lo, hi = MATERIALS[material][0].valid_um
+        if not lo * 1000 <= lam <= hi * 1000:
+            raise pr.error(name, f"{lam:g} nm is outside the {material} dispersion fit "
+                                 f"({lo * 1000:g}-{hi * 1000:g} nm)")
+    plate = Plate(material, kind, design, order, thickness)
+    waves = float(plate_retardance_waves(nominal, material, kind, design, wavelength_nm,
+                                         order=order, thickness_um=thickness))
+    return waves, plate
+
+
+def _element(path: str, key: str, table: Any, mounts: Mapping[str, Any],
+             wavelength_nm: float) -> Element:
+    if not isinstance(table, Mapping):
+        raise BenchFileError(path, key, "must be a table with a 'type' key")
+    allowed = ("type", "mount", "angle_deg", "retardance_waves", "retardance_tol_waves", "plate",
+               "extinction_ratio", "transmission", "label")
+    r = _Reader(path, key, table, allowed)
+    kind = r.text("type", choices=ELEMENT_TYPES)
+    angle, mount = _angle_or_mount(r, mounts)
+    waves, plate, tol, er, t = 0.0, None, 0.0, INF, 1.0
+    if kind in ("hwp", "qwp", "retarder"):
+        waves, plate = _plate(r, kind, wavelength_nm)
+        tol = r.number("retardance_tol_waves", 0.0, minimum=0.0)
+    if kind == "polarizer":
+        er = _extinction(r)
+        t = r.number("transmission", 1.0, above=0.0, maximum=1.0)
+    for name in ("retardance_waves", "plate", "retardance_tol_waves"):
+        if kind in ("polarizer", "rotator") and r.has(name):
+            raise r.error(name, f"does not apply to a {kind}")
+    for name in ("extinction_ratio", "transmission"):
+        if kind != "polarizer" and r.has(name):
+            raise r.error(name, f"applies only to a polarizer, not a {kind}")
+    return Element(kind, key, mount, angle, waves, tol, plate, er, t)
+
+
+def _mount(path: str, name: str, table: Any) -> Mount:
+    key = f"mounts.{name}"
+    if not isinstance(table, Mapping):
+        raise BenchFileError(path, key, "must be a table")
+    allowed = ("driver", "reading_deg", "offset_deg", "sense", "resolution_deg", "backlash_deg",
+               "travel_deg", "repeatability_deg", "offset_err_deg", "speed_deg_s", "profile")
+    r = _Reader(path, key, table, allowed)
+    sense = r.number("sense", 1.0)
+    if sense not in (1.0, -1.0):
+        raise r.error("sense", f"must be +1 or -1, got {sense:g}")
+    travel = r.numbers("travel_deg", 2) if r.has("travel_deg") else (-360.0, 360.0)
+    if travel[0] >= travel[1]:
+        raise r.error("travel_deg", f"must be [low, high] with low < high, got {list(travel)}")
+    reading = r.number("reading_deg", 0.0)
+    if not travel[0] <= reading <= travel[1]:
+        raise r.error("reading_deg", f"{reading:g} is outside travel_deg {list(travel)}")
+    return Mount(
+        name=name,
+        driver=r.text("driver", "sim"),
+        reading_deg=reading,
+        offset_deg=r.number("offset_deg", 0.0),
+        sense=int(sense),
+        resolution_deg=r.number("resolution_deg", 0.001, above=0.0),
+        backlash_deg=r.number("backlash_deg", 0.0, minimum=0.0),
+        travel_deg=(travel[0], travel[1]),
+        repeatability_deg=r.number("repeatability_deg", 0.0, minimum=0.0),
+        offset_err_deg=r.number("offset_err_deg", 0.0, minimum=0.0),
+        speed_deg_s=r.number("speed_deg_s", 20.0, above=0.0),
+        profile=r.text("profile") if r.has("profile") else None,
+    )
+
+
+def _coupling(path: str, table: Mapping[str, Any]) -> Coupling:
+    from .physics.weak import OBSERVABLE_NAMES
+
+    allowed = ("observable", "axis", "eigenvalues", "readout", "pointer_sigma", "strength",
+               "units", "jitter_rms", "probe_photons")
+    r = _Reader(path, "coupling", table, allowed)
+    observable = r.text("observable", "HV", (*OBSERVABLE_NAMES, "axis"))
+    axis = None
+    eigenvalues = (1.0, 0.0) if observable in OBSERVABLE_NAMES[3:] else (1.0, -1.0)
+    if observable == "axis":
+        if not r.has("axis"):
+            raise r.error("axis", "is required when observable = 'axis' (a Stokes direction "
+                                  "[S1, S2, S3])")
+        axis = r.numbers("axis", 3)
+        if not any(axis):
+            raise r.error("axis", "must not be [0, 0, 0]")
+        eigenvalues = r.numbers("eigenvalues", 2) if r.has("eigenvalues") else (1.0, -1.0)
+        if eigenvalues[0] == eigenvalues[1]:
+            raise r.error("eigenvalues", "must differ (equal eigenvalues couple nothing)")
+    elif r.has("axis") or r.has("eigenvalues"):
+        raise r.error("axis" if r.has("axis") else "eigenvalues",
+                      "applies only when observable = 'axis'")
+    readout = r.text("readout", "position", READOUTS)
+    probe = None
+    if readout == "phase":
+        probe = r.number("probe_photons", above=0.0)
+        sigma = 1.0 / (2.0 * math.sqrt(probe))
+        if r.has("pointer_sigma"):
+            raise r.error("pointer_sigma", "is set by probe_photons for the phase readout "
+                                           "(spread 1/(2 sqrt N)); remove it")
+        units = r.text("units", "rad")
+    else:
+        sigma = r.number("pointer_sigma", above=0.0)
+        units = r.text("units", "um")
+    return Coupling(
+        observable=observable,
+        readout=readout,
+        pointer_sigma=sigma,
+        strength=r.number("strength", above=0.0),
+        units=units,
+        axis=(axis[0], axis[1], axis[2]) if axis else None,
+        eigenvalues=(eigenvalues[0], eigenvalues[1]),
+        jitter_rms=r.number("jitter_rms", 0.0, minimum=0.0),
+        probe_photons=probe,
+    )
+
+
+def _detector(path: str, table: Mapping[str, Any]) -> Detector:
+    allowed = ("efficiency", "dark_rate", "dead_time_ns", "safe_rate", "mode", "rep_rate_hz",
+               "gate_dark_probability", "saturation_rate")
+    r = _Reader(path, "detector", table, allowed)
+    mode = r.text("mode", "cw", DETECTOR_MODES)
+    rep = r.number("rep_rate_hz", above=0.0) if (mode == "pulsed" or r.has("rep_rate_hz")) else None
+    return Detector(
+        efficiency=r.number("efficiency", 1.0, above=0.0, maximum=1.0),
+        dark_rate=r.number("dark_rate", 0.0, minimum=0.0),
+        dead_time_ns=r.number("dead_time_ns", 0.0, minimum=0.0),
+        safe_rate=r.number("safe_rate", INF, above=0.0, allow_inf=True),
+        mode=mode,
+        rep_rate_hz=rep,
+        gate_dark_probability=r.number("gate_dark_probability", 0.0, minimum=0.0, maximum=1.0),
+        saturation_rate=r.number("saturation_rate", above=0.0) if r.has("saturation_rate") else None,
+    )
+
+
+def _simulation(path: str, table: Mapping[str, Any], mounts: Mapping[str, Any]) -> Simulation:
+    r = _Reader(path, "simulation", table,
+                ("seed", "offset_error_deg", "extinction_scale", "retardance_error_waves"))
+    offsets = r.table_of("offset_error_deg")
+    errors = {}
+    for name in offsets:
+        if name not in mounts:
+            raise BenchFileError(path, f"simulation.offset_error_deg.{name}",
+                                 f"unknown mount (mounts defined: {', '.join(mounts)})")
+        errors[name] = _Reader(path, "simulation.offset_error_deg", offsets, tuple(offsets)).number(name)
+    return Simulation(
+        seed=int(r.number("seed", 2026, minimum=0)),
+        offset_error_deg=errors,
+        extinction_scale=r.number("extinction_scale", 1.0, above=0.0),
+        retardance_error_waves=r.number("retardance_error_waves", 0.0),
+    )
+
+
+_TOP_KEYS = ("name", "wavelength_nm", "imbalance_mount", "phase_mount", "source", "pre",
+             "coupling", "post", "analyzer", "detector", "mounts", "simulation")
+
+
+def parse_bench(doc: Mapping[str, Any], path: str = "<bench>") -> Bench:
+    """Validate a parsed bench document; every error names ``path`` and the key."""
+    top = _Reader(path, "", doc, _TOP_KEYS)
+    mounts_table = top.table_of("mounts")
+    mounts = {name: _mount(path, name, t) for name, t in mounts_table.items()}
+    wavelength = top.number("wavelength_nm", above=0.0)
+    for table_name in ("source", "coupling", "analyzer", "detector"):
+        if table_name not in doc:
+            raise BenchFileError(path, f"[{table_name}]", "table is required")
+
+    def mount_name(key: str, required: bool) -> str | None:
+        if not top.has(key):
+            if required:
+                raise top.error(key, "is required (the name of a mount under [mounts])")
+            return None
+        name = top.text(key)
+        if name not in mounts:
+            close = difflib.get_close_matches(name, list(mounts), n=1)
+            hint = f"; did you mean {close[0]!r}?" if close else ""
+            raise top.error(key, f"unknown mount {name!r} (mounts defined: "
+                                 f"{', '.join(mounts) or 'none'}){hint}")
+        return name
+
+    sr = _Reader(path, "source", top.table_of("source"),
+                 ("angle_deg", "mount", "extinction_ratio", "photon_rate"))
+    s_angle, s_mount = _angle_or_mount(sr, mounts)
+    source = Source(sr.number("photon_rate", above=0.0), s_angle, s_mount, _extinction(sr))
+
+    ar = _Reader(path, "analyzer", top.table_of("analyzer"),
+                 ("angle_deg", "mount", "extinction_ratio", "transmission"))
+    a_angle, a_mount = _angle_or_mount(ar, mounts)
+    analyzer = Analyzer(a_angle, a_mount, _extinction(ar),
+                        ar.number("transmission", 1.0, above=0.0, maximum=1.0))
+
+    def chain(name: str) -> tuple[Element, ...]:
+        items = doc.get(name, [])
+        if not isinstance(items, list):
+            raise top.error(name, "must be an array of tables ([[pre]] / [[post]])")
+        return tuple(_element(path, f"{name}[{i}]", t, mounts, wavelength)
+                     for i, t in enumerate(items))
+
+    bench = Bench(
+        path=None if path == "<bench>" else Path(path),
+        wavelength_nm=wavelength,
+        imbalance_mount=mount_name("imbalance_mount", True) or "",
+        phase_mount=mount_name("phase_mount", False),
+        source=source,
+        pre=chain("pre"),
+        coupling=_coupling(path, top.table_of("coupling")),
+        post=chain("post"),
+        analyzer=analyzer,
+        detector=_detector(path, top.table_of("detector")),
+        mounts=mounts,
+        simulation=_simulation(path, top.table_of("simulation"), mounts),
+        name=top.text("name", ""),
+    )
+    used = {e.mount for e in (*bench.pre, *bench.post)} | {source.mount, analyzer.mount}
+    for key in ("imbalance_mount", "phase_mount"):
+        name = getattr(bench, key)
+        if name and name not in used:
+            raise top.error(key, f"mount {name!r} holds no element (give it to the source, an "
+                                 "element or the analyzer with mount = ...)")
+    return bench
+
+
+def resolve_bench_path(path: str | Path) -> Path:
+    """``demo`` (when no such file exists) names the bundled demo bench."""
+    p = Path(path)
+    if str(path) == "demo" and not p.exists():
+        return DEMO_BENCH
+    return p
+
+
+def _read_document(path: Path) -> tomlkit.TOMLDocument:
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise BenchFileError(str(path), None, "file not found (give the path of a bench .toml "
+                                              "file, or 'demo' for the bundled demo bench)") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise BenchFileError(str(path), None, f"cannot be read ({exc})") from None
+    try:
+        return tomlkit.parse(text)
+    except tomlkit.exceptions.ParseError as exc:
+        raise BenchFileError(str(path), None, f"is not valid TOML ({exc})") from None
+
+
+def load_bench(path: str | Path) -> Bench:
+    """Read and validate a bench file (``demo`` = the bundled demo bench)."""
+    p = resolve_bench_path(path)
+    return parse_bench(_read_document(p).unwrap(), str(p))
+
+
+def write_values(path: str | Path, updates: Mapping[str, float | int | str]) -> None:
+    """Store values into a bench file by dotted key (``mounts.analyzer.offset_deg``), keeping
+    comments and layout. The result is validated before the file is replaced, so a bad update
+    never leaves a broken file behind."""
+    p = resolve_bench_path(path)
+    doc = _read_document(p)
+    for dotted, value in updates.items():
+        *tables, leaf = dotted.split(".")
+        node: Any = doc
+        for name in tables:
+            if name not in node:
+                node[name] = tomlkit.table()
+            node = node[name]
+        node[leaf] = value
+    parse_bench(doc.unwrap(), str(p))
+    tmp = p.with_suffix(p.suffix + ".tmp")
+    tmp.write_text(tomlkit.dumps(doc), encoding="utf-8")
+    tmp.replace(p)

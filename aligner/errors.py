@@ -1,0 +1,110 @@
+"""The project's one error tree.
+
+Every error a user can cause or meet carries a plain one-sentence message that says what is
+wrong and what to do; the CLI prints it to stderr and exits with ``exit_code``.
+
+::
+
+    AlignerError                    (exit 2)
+    ├── InputError                  bad input: an argument, a bench file, a recipe, a data file
+    │   ├── BenchFileError          names the file and the key (with its table)
+    │   ├── RecipeError
+    │   └── DataFileError           CSV and run-log input
+    ├── InfeasibleTarget            a planner target the bench cannot reach (says the limit)
+    └── DeviceError                 (exit 3) raised only by drivers/, converted at the boundary
+        ├── DeviceTimeout
+        ├── BadReply
+        ├── DeviceRefused           the controller answered with an error reply
+        ├── Disconnected
+        └── GuardTrip               the detector guard stopped a move or a count
+
+Drivers convert pyserial and OS errors into ``DeviceError`` subclasses; nothing above the
+driver layer catches ``serial.SerialException`` or ``OSError`` from a device.
+"""
+
+from __future__ import annotations
+
+__all__ = [
+    "AlignerError",
+    "BadReply",
+    "BenchFileError",
+    "DataFileError",
+    "DeviceError",
+    "DeviceRefused",
+    "DeviceTimeout",
+    "Disconnected",
+    "GuardTrip",
+    "InfeasibleTarget",
+    "InputError",
+    "RecipeError",
+]
+
+
+class AlignerError(Exception):
+    """Base of every error the tool raises on purpose."""
+
+    exit_code = 2
+
+
+class InputError(AlignerError):
+    """Bad input from the user: an argument, a file, a value out of range."""
+
+
+class BenchFileError(InputError):
+    """A bench file that cannot be read or does not validate.
+
+    ``path`` is the file, ``key`` the dotted key (``mounts.analyzer.sense``, ``pre[1].type``).
+    """
+
+    def __init__(self, path: str, key: str | None, problem: str) -> None:
+        self.path = path
+        self.key = key
+        self.problem = problem
+        where = f"{path}: {key}" if key else str(path)
+        super().__init__(f"{where}: {problem}")
+
+
+class RecipeError(InputError):
+    """A recipe file that cannot be read, does not validate, or a step that cannot run."""
+
+
+class DataFileError(InputError):
+    """A data file (CSV, run log) that is empty, short, malformed or out of range."""
+
+
+class InfeasibleTarget(AlignerError):
+    """A planner target beyond what the bench can reach.
+
+    ``limit`` names the limiting mechanism, ``achievable`` the best value the bench reaches.
+    """
+
+    def __init__(self, message: str, limit: str, achievable: float | None = None) -> None:
+        self.limit = limit
+        self.achievable = achievable
+        super().__init__(message)
+
+
+class DeviceError(AlignerError):
+    """A device fault: the hardware (or its emulator) did not do what was asked."""
+
+    exit_code = 3
+
+
+class DeviceTimeout(DeviceError):
+    """A device did not answer within its timeout."""
+
+
+class BadReply(DeviceError):
+    """A device answered with something that does not match the profile's reply pattern."""
+
+
+class DeviceRefused(DeviceError):
+    """A device answered with an error reply."""
+
+
+class Disconnected(DeviceError):
+    """The port vanished or could not be opened."""
+
+
+class GuardTrip(DeviceError):
+    """The detector guard refused a move or stopped a count to protect the detector."""
