@@ -27,10 +27,17 @@ from .physics.channels import (
     push_forward_state,
     source_state,
 )
-from .physics.jones import matmul2, retarder, rotator
+from .physics.jones import matmul2, retarder, rotator, stokes_from_density
 from .physics.weak import observable_from_axis, observable_matrix
 
-__all__ = ["Forward", "coupling_observable", "element_angles_deg", "forward", "full_readings"]
+__all__ = [
+    "Forward",
+    "coupling_observable",
+    "element_angles_deg",
+    "forward",
+    "full_readings",
+    "imbalance_deg",
+]
 
 Complex = NDArray[np.complex128]
 
@@ -112,3 +119,37 @@ def coupling_observable(bench: Bench) -> Complex:
     if c.observable == "axis":
         return observable_from_axis(c.axis, c.eigenvalues)
     return observable_matrix(c.observable)
+
+
+def _antiparallel_gap(fwd: Forward) -> NDArray[np.float64]:
+    """``|<f|i>|`` of the pure parts of rho and E: ``|n_f + n_i| / 2`` with unit Stokes
+    directions ``n`` (free of the cancellation in ``1 + n_f . n_i`` near the null)."""
+    s_i = stokes_from_density(fwd.rho)[..., 1:]
+    s_f = stokes_from_density(fwd.effect)[..., 1:]
+    n_i = s_i / np.linalg.norm(s_i, axis=-1, keepdims=True)
+    n_f = s_f / np.linalg.norm(s_f, axis=-1, keepdims=True)
+    return np.linalg.norm(n_i + n_f, axis=-1) / 2
+
+
+def imbalance_deg(bench: Bench, readings: Mapping[str, ArrayLike] | None = None,
+                  step_deg: float = 1e-3) -> NDArray[np.float64]:
+    """Signed imbalance (deg): the angle between the post-selected state and the state orthogonal
+    to the pre-selected one.
+
+    Magnitude ``arcsin |<f|i>|`` with ``|i>``, ``|f>`` the pure parts (dominant eigenvectors) of
+    ``rho`` and ``E`` at the coupling plane; for linear states it is the physical rotation away
+    from crossed. Sign: positive when turning the bench's ``imbalance_mount`` to a higher reading
+    increases the overlap, i.e. on the high-reading side of the null ("the same sense as the
+    mount"). A mixed state's pure part is the direction of its Stokes vector. Raises
+    :class:`InputError` for a state with no polarized part.
+    """
+    r = full_readings(bench, readings)
+    name = bench.imbalance_mount
+    gap = _antiparallel_gap(forward(bench, r))
+    if not np.all(np.isfinite(gap)):
+        raise InputError("the pre- or post-selection is unpolarized at these readings, so the "
+                         "imbalance is undefined; check the source and analyzer settings")
+    up = _antiparallel_gap(forward(bench, {**r, name: r[name] + step_deg}))
+    down = _antiparallel_gap(forward(bench, {**r, name: r[name] - step_deg}))
+    sign = np.sign(up - down)
+    return np.rad2deg(np.arcsin(np.clip(gap, 0.0, 1.0))) * sign
