@@ -85,12 +85,12 @@ import re
 import string
 import threading
 import tomllib
-from collections.abc import Iterator, Mapping
-from contextlib import contextmanager
+from collections.abc import Callable, Iterator, Mapping
+from contextlib import contextmanager, suppress
 from dataclasses import dataclass
 from pathlib import Path
 from types import MappingProxyType
-from typing import Any, NoReturn, Protocol
+from typing import Any, NoReturn, Protocol, TypeVar
 
 import serial
 
@@ -103,6 +103,8 @@ __all__ = [
     "SerialLike",
     "load_profile",
 ]
+
+T = TypeVar("T")
 
 #: Folder of the example profiles shipped with the package.
 PROFILE_DIR = Path(__file__).with_name("profiles")
@@ -159,7 +161,9 @@ class _ProfileReader:
         self.data = data
         unknown = set(data) - set(_TABLE_KEYS)
         if unknown:
-            self.fail(sorted(unknown)[0], f"unknown table; allowed: {_allowed(frozenset(_TABLE_KEYS))}")
+            self.fail(
+                sorted(unknown)[0], f"unknown table; allowed: {_allowed(frozenset(_TABLE_KEYS))}"
+            )
         for table, keys in _TABLE_KEYS.items():
             section = data.get(table, {})
             if not isinstance(section, Mapping):
@@ -391,7 +395,9 @@ class LineChannel:
     this class: they become ``Disconnected`` or ``DeviceTimeout``.
     """
 
-    def __init__(self, port: SerialLike, profile: DeviceProfile, *, name: str | None = None) -> None:
+    def __init__(
+        self, port: SerialLike, profile: DeviceProfile, *, name: str | None = None
+    ) -> None:
         self.port = port
         self.profile = profile
         self.name = name or profile.name
@@ -419,7 +425,9 @@ class LineChannel:
                 "and the power, that the port still exists, and that no other program uses it"
             ) from exc
 
-    def transact(self, command: str, *, timeout_s: float | None = None, **fields: Any) -> dict[str, str]:
+    def transact(
+        self, command: str, *, timeout_s: float | None = None, **fields: Any
+    ) -> dict[str, str]:
         """Send profile command ``command`` with template ``fields``; return the reply's groups.
 
         ``timeout_s`` (s) replaces the profile's ``reply_timeout_s`` for this exchange.
@@ -434,7 +442,9 @@ class LineChannel:
         failures: list[tuple[str, bytes]] = []
         with self._lock, self._port_errors(text):
             if self._closed:
-                raise Disconnected(f"{self._where()}: the channel was closed; open the device again")
+                raise Disconnected(
+                    f"{self._where()}: the channel was closed; open the device again"
+                )
             for _ in range(p.retries + 1):
                 self.port.reset_input_buffer()
                 self.port.timeout = timeout
@@ -453,6 +463,35 @@ class LineChannel:
                     kind = "garbage"
                 failures.append((kind, raw))
         raise self._give_up(command, text, timeout, failures)
+
+    def transact_gated(self, command: str, dwell_s: float) -> dict[str, str]:
+        """``transact`` for a gated command: fills {dwell_ms}/{dwell_s} and waits the gate too."""
+        dwell_ms = round(dwell_s * 1000.0)
+        if dwell_ms < 1 and "{dwell_ms" in self.profile.commands[command]:
+            raise InputError(
+                f"dwell_s = {dwell_s:g} s is below the 1 ms step of commands.{command} in "
+                f"{self.profile.source}; use at least 0.001 s"
+            )
+        return self.transact(
+            command,
+            timeout_s=dwell_s + self.profile.reply_timeout_s,
+            dwell_ms=dwell_ms,
+            dwell_s=dwell_s,
+        )
+
+    def group(
+        self, groups: Mapping[str, str], command: str, key: str, convert: Callable[[str], T]
+    ) -> T:
+        """Convert the named group ``key`` of a ``command`` reply, or raise ``BadReply``."""
+        value = groups.get(key)
+        try:
+            return convert(value)  # type: ignore[arg-type]
+        except (TypeError, ValueError):
+            raise BadReply(
+                f"{self._where()}: group {key!r} of the {command!r} reply is {value!r}, not "
+                f"a {getattr(convert, '__name__', 'value')}; check replies.{command} in "
+                f"{self.profile.source}"
+            ) from None
 
     def _classify(self, raw: bytes) -> tuple[str, str]:
         if not raw:
@@ -492,7 +531,6 @@ class LineChannel:
         """Close the port; a port already gone is not an error here."""
         with self._lock:
             self._closed = True
-            try:
+            # the device is gone either way; closing must not raise
+            with suppress(serial.SerialException, OSError):
                 self.port.close()
-            except (serial.SerialException, OSError):
-                pass  # the device is gone either way; closing must not raise

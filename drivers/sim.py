@@ -251,9 +251,7 @@ class FunctionCounter(_Closable):
         except TypeError:
             raise BadReply(f"{self.name}: expected whole counts, got {raw!r}") from None
         if len(counts) != self.channels or min(counts) < 0:
-            raise BadReply(
-                f"{self.name}: expected {self.channels} whole counts >= 0, got {raw!r}"
-            )
+            raise BadReply(f"{self.name}: expected {self.channels} whole counts >= 0, got {raw!r}")
         return counts
 
 
