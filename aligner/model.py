@@ -20,14 +20,15 @@ from .bench import Bench, Element
 from .errors import InputError
 from .physics.channels import (
     Channel,
-    PolarizerChannel,
-    UnitaryChannel,
-    analyzer_effect,
-    pull_back_effect,
-    push_forward_state,
-    source_state,
+    Polarizer,
+    Retarder,
+    Rotator,
+    analyzer_stokes,
+    pull_back_stokes,
+    push_forward_stokes,
+    source_stokes,
 )
-from .physics.jones import matmul2, retarder, rotator, stokes_from_density
+from .physics.jones import density_from_stokes
 from .physics.weak import observable_from_axis, observable_matrix
 
 __all__ = [
@@ -35,6 +36,7 @@ __all__ = [
     "coupling_observable",
     "element_angles_deg",
     "forward",
+    "forward_stokes",
     "full_readings",
     "imbalance_deg",
 ]
@@ -80,37 +82,33 @@ def _angle_rad(angle_deg: float, mount: str | None, angles: Mapping[str, np.ndar
 def _channel(element: Element, angles: Mapping[str, np.ndarray]) -> Channel:
     theta = _angle_rad(element.angle_deg, element.mount, angles)
     if element.type == "polarizer":
-        return PolarizerChannel(theta, np.asarray(element.extinction_ratio),
-                                np.asarray(element.transmission))
+        return Polarizer(theta, element.extinction_ratio, element.transmission)
     if element.type == "rotator":
-        return UnitaryChannel(rotator(theta))
-    return UnitaryChannel(retarder(theta, 2 * np.pi * element.retardance_waves))
+        return Rotator(theta)
+    return Retarder(theta, 2 * np.pi * element.retardance_waves)
 
 
-def _compose(chain: list[Channel]) -> list[Channel]:
-    """Merge neighbouring unitaries into one matrix: fewer products on large stacks."""
-    out: list[Channel] = []
-    for element in chain:
-        if out and isinstance(element, UnitaryChannel) and isinstance(out[-1], UnitaryChannel):
-            out[-1] = UnitaryChannel(matmul2(element.matrix, out[-1].matrix))
-        else:
-            out.append(element)
-    return out
+def forward_stokes(bench: Bench, readings: Mapping[str, ArrayLike] | None = None,
+                   ) -> tuple[NDArray[np.float64], NDArray[np.float64], dict[str, np.ndarray]]:
+    """Stokes vectors of the state and of the effect at the coupling plane, and the element
+    angles (deg); the fast path under :func:`forward`."""
+    angles = element_angles_deg(bench, readings)
+    src = bench.source
+    s = source_stokes(_angle_rad(src.angle_deg, src.mount, angles), src.extinction_ratio)
+    s = push_forward_stokes(s, [_channel(e, angles) for e in bench.pre])
+    an = bench.analyzer
+    e = analyzer_stokes(_angle_rad(an.angle_deg, an.mount, angles), an.extinction_ratio,
+                        an.transmission)
+    e = pull_back_stokes(e, [_channel(el, angles) for el in bench.post])
+    return s, e, angles
 
 
 def forward(bench: Bench, readings: Mapping[str, ArrayLike] | None = None) -> Forward:
     """Evaluate the bench at mount ``readings`` (deg; floats or arrays broadcast together)."""
-    angles = element_angles_deg(bench, readings)
-    src = bench.source
-    rho = source_state(_angle_rad(src.angle_deg, src.mount, angles), src.extinction_ratio)
-    rho = push_forward_state(rho, _compose([_channel(e, angles) for e in bench.pre]))
-    an = bench.analyzer
-    effect = analyzer_effect(_angle_rad(an.angle_deg, an.mount, angles), an.extinction_ratio,
-                             an.transmission)
-    effect = pull_back_effect(effect, _compose([_channel(e, angles) for e in bench.post]))
-    rho, effect = np.broadcast_arrays(rho, effect)
-    probability = np.real(np.einsum("...ij,...ji->...", effect, rho))
-    return Forward(rho, effect, probability, angles)
+    s, e, angles = forward_stokes(bench, readings)
+    probability = 0.5 * np.einsum("...i,...i->...", s, e)
+    s, e = np.broadcast_arrays(s, e)
+    return Forward(density_from_stokes(s), density_from_stokes(e), probability, angles)
 
 
 def coupling_observable(bench: Bench) -> Complex:
@@ -121,11 +119,11 @@ def coupling_observable(bench: Bench) -> Complex:
     return observable_matrix(c.observable)
 
 
-def _antiparallel_gap(fwd: Forward) -> NDArray[np.float64]:
+def _antiparallel_gap(bench: Bench, readings: Mapping[str, ArrayLike]) -> NDArray[np.float64]:
     """``|<f|i>|`` of the pure parts of rho and E: ``|n_f + n_i| / 2`` with unit Stokes
     directions ``n`` (free of the cancellation in ``1 + n_f . n_i`` near the null)."""
-    s_i = stokes_from_density(fwd.rho)[..., 1:]
-    s_f = stokes_from_density(fwd.effect)[..., 1:]
+    s, e, _ = forward_stokes(bench, readings)
+    s_i, s_f = s[..., 1:], e[..., 1:]
     n_i = s_i / np.linalg.norm(s_i, axis=-1, keepdims=True)
     n_f = s_f / np.linalg.norm(s_f, axis=-1, keepdims=True)
     return np.linalg.norm(n_i + n_f, axis=-1) / 2
@@ -145,11 +143,11 @@ def imbalance_deg(bench: Bench, readings: Mapping[str, ArrayLike] | None = None,
     """
     r = full_readings(bench, readings)
     name = bench.imbalance_mount
-    gap = _antiparallel_gap(forward(bench, r))
+    gap = _antiparallel_gap(bench, r)
     if not np.all(np.isfinite(gap)):
         raise InputError("the pre- or post-selection is unpolarized at these readings, so the "
                          "imbalance is undefined; check the source and analyzer settings")
-    up = _antiparallel_gap(forward(bench, {**r, name: r[name] + step_deg}))
-    down = _antiparallel_gap(forward(bench, {**r, name: r[name] - step_deg}))
+    up = _antiparallel_gap(bench, {**r, name: r[name] + step_deg})
+    down = _antiparallel_gap(bench, {**r, name: r[name] - step_deg})
     sign = np.sign(up - down)
     return np.rad2deg(np.arcsin(np.clip(gap, 0.0, 1.0))) * sign
