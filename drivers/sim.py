@@ -288,5 +288,7 @@ class SimPointer(_Closable):
         except (TypeError, ValueError):
             raise BadReply(f"{self.name}: expected (mean, standard error), got {raw!r}") from None
         if not (math.isfinite(mean) and math.isfinite(sem) and sem >= 0.0):
-            raise BadReply(f"{self.name}: expected a finite mean and error >= 0, got {raw!r}")
+            raise BadReply(
+                f"{self.name}: expected a finite mean and a standard error >= 0, got {raw!r}"
+            )
         return mean, sem

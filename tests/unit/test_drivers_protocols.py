@@ -1,0 +1,115 @@
+"""Every driver satisfies its protocol, by isinstance and by signature; exports are sorted."""
+
+from __future__ import annotations
+
+import inspect
+import subprocess
+import sys
+
+import pytest
+
+import drivers
+from drivers import (
+    Counter,
+    DeviceProfile,
+    FunctionCounter,
+    LineChannel,
+    LineCounter,
+    LineMount,
+    LinePointer,
+    LineShutter,
+    ManualCounter,
+    ManualPointer,
+    PointerReader,
+    RotationMount,
+    Shutter,
+    SimMount,
+    SimPointer,
+    SimShutter,
+    load_profile,
+)
+
+
+class SilentPort:
+    timeout = None
+
+    def write(self, data: bytes) -> int:
+        return len(data)
+
+    def read_until(self, expected: bytes = b"\n", size: int | None = None) -> bytes:
+        return b"BEAM OFF\r\n"
+
+    def reset_input_buffer(self) -> None: ...
+
+    def close(self) -> None: ...
+
+
+def channel(profile: str) -> LineChannel:
+    return LineChannel(SilentPort(), load_profile(profile))
+
+
+def implementations() -> list[tuple[type, object]]:
+    pointer_profile = DeviceProfile.from_mapping(
+        {
+            "link": {"terminator": "\n"},
+            "commands": {"pointer_read": "P? {dwell_s}"},
+            "replies": {"pointer_read": r"P (?P<mean>\S+) (?P<sem>\S+)"},
+        }
+    )
+    return [
+        (RotationMount, SimMount()),
+        (RotationMount, LineMount(channel("example-mount"))),
+        (Counter, FunctionCounter(lambda d: (1,))),
+        (Counter, LineCounter(channel("example-counter"))),
+        (Counter, ManualCounter()),
+        (Shutter, SimShutter()),
+        (Shutter, LineShutter(channel("example-counter"))),
+        (PointerReader, SimPointer(lambda d: (0.0, 0.0))),
+        (PointerReader, LinePointer(LineChannel(SilentPort(), pointer_profile))),
+        (PointerReader, ManualPointer()),
+    ]
+
+
+@pytest.mark.parametrize(("protocol", "device"), implementations(), ids=lambda v: type(v).__name__)
+def test_device_satisfies_its_protocol(protocol, device):
+    assert isinstance(device, protocol)
+    for name, member in vars(protocol).items():
+        if name.startswith("_") or not callable(member):
+            continue
+        wanted = list(inspect.signature(member).parameters)
+        got = ["self", *inspect.signature(getattr(device, name)).parameters]
+        assert got == wanted, f"{type(device).__name__}.{name}{got} != {wanted}"
+    if protocol is RotationMount:
+        assert device.capabilities <= drivers.MOUNT_CAPABILITIES
+        assert isinstance(device.name, str)
+    if protocol is Counter:
+        assert device.channels in (1, 2)
+
+
+def test_a_counter_is_not_a_mount():
+    assert not isinstance(FunctionCounter(lambda d: (1,)), RotationMount)
+    assert not isinstance(SimMount(), Counter)
+
+
+def test_all_is_sorted_and_complete():
+    def ruff_order(name: str) -> tuple[int, str]:  # constants, then classes, then functions
+        return (0 if name.isupper() else 1 if name[0].isupper() else 2, name)
+
+    assert drivers.__all__ == sorted(drivers.__all__, key=ruff_order)
+    assert len(set(drivers.__all__)) == len(drivers.__all__)
+    for name in drivers.__all__:
+        assert getattr(drivers, name) is not None
+    public = {n for n in vars(drivers) if not n.startswith("_")} - {"annotations"}
+    modules = {n for n in public if inspect.ismodule(getattr(drivers, n))}
+    assert public - modules == set(drivers.__all__)
+
+
+def test_drivers_import_no_other_aligner_module_and_no_ui():
+    code = (
+        "import sys, drivers, drivers.emulator; "
+        "bad = sorted(m for m in sys.modules if (m.startswith('aligner') and m not in "
+        "('aligner', 'aligner.errors')) or m.split('.')[0] in ('textual', 'sympy', 'scipy'));"
+        "print(bad)"
+    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "[]"
