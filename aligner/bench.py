@@ -289,7 +289,8 @@ class _Reader:
             raise self.error(name, f"must be a list of {length} numbers, got {value!r}")
         out = []
         for item in value:
-            if isinstance(item, bool) or not isinstance(item, int | float) or not math.isfinite(item):
+            bad = isinstance(item, bool) or not isinstance(item, int | float)
+            if bad or not math.isfinite(item):
                 raise self.error(name, f"must be a list of {length} finite numbers, got {value!r}")
             out.append(float(item))
         return tuple(out)
@@ -464,7 +465,8 @@ def _detector(path: str, table: Mapping[str, Any]) -> Detector:
         mode=mode,
         rep_rate_hz=rep,
         gate_dark_probability=r.number("gate_dark_probability", 0.0, minimum=0.0, maximum=1.0),
-        saturation_rate=r.number("saturation_rate", above=0.0) if r.has("saturation_rate") else None,
+        saturation_rate=(r.number("saturation_rate", above=0.0)
+                         if r.has("saturation_rate") else None),
     )
 
 
@@ -473,11 +475,12 @@ def _simulation(path: str, table: Mapping[str, Any], mounts: Mapping[str, Any]) 
                 ("seed", "offset_error_deg", "extinction_scale", "retardance_error_waves"))
     offsets = r.table_of("offset_error_deg")
     errors = {}
+    offset_reader = _Reader(path, "simulation.offset_error_deg", offsets, tuple(offsets))
     for name in offsets:
         if name not in mounts:
             raise BenchFileError(path, f"simulation.offset_error_deg.{name}",
                                  f"unknown mount (mounts defined: {', '.join(mounts)})")
-        errors[name] = _Reader(path, "simulation.offset_error_deg", offsets, tuple(offsets)).number(name)
+        errors[name] = offset_reader.number(name)
     return Simulation(
         seed=int(r.number("seed", 2026, minimum=0)),
         offset_error_deg=errors,
@@ -568,7 +571,7 @@ def _read_document(path: Path) -> tomlkit.TOMLDocument:
         text = path.read_text(encoding="utf-8")
     except FileNotFoundError:
         raise BenchFileError(str(path), None, "file not found (give the path of a bench .toml "
-                                              "file, or 'demo' for the bundled demo bench)") from None
+                             "file, or 'demo' for the bundled demo bench)") from None
     except (OSError, UnicodeDecodeError) as exc:
         raise BenchFileError(str(path), None, f"cannot be read ({exc})") from None
     try:

@@ -57,7 +57,7 @@ def _rotate(s: Real, c: Real, t: Real, cos_phi: Real, sin_phi: Real) -> Real:
     """
     s0, s1, s2, s3 = s[..., 0], s[..., 1], s[..., 2], s[..., 3]
     along = (c * s1 + t * s2) * (1 - cos_phi)
-    out = np.empty(np.broadcast_shapes(s.shape, np.shape(c) + (4,), np.shape(cos_phi) + (4,)))
+    out = np.empty(np.broadcast_shapes(s.shape, (*np.shape(c), 4), (*np.shape(cos_phi), 4)))
     out[..., 0] = s0
     out[..., 1] = s1 * cos_phi + t * s3 * sin_phi + c * along
     out[..., 2] = s2 * cos_phi - c * s3 * sin_phi + t * along
@@ -95,7 +95,7 @@ class Rotator:
     def _turn(self, s: Real, sign: float) -> Real:
         c, t = _axis(self.rotation)
         t = sign * t
-        out = np.empty(np.broadcast_shapes(s.shape, np.shape(c) + (4,)))
+        out = np.empty(np.broadcast_shapes(s.shape, (*np.shape(c), 4)))
         out[..., 0] = s[..., 0]
         out[..., 1] = c * s[..., 1] - t * s[..., 2]
         out[..., 2] = t * s[..., 1] + c * s[..., 2]
@@ -125,7 +125,7 @@ class Polarizer:
         along = c * s[..., 1] + t * s[..., 2]
         passed = 0.5 * (s[..., 0] + along)
         blocked = 0.5 * (s[..., 0] - along) * leak
-        out = np.empty(np.broadcast_shapes(s.shape, np.shape(c) + (4,), np.shape(leak) + (4,)))
+        out = np.empty(np.broadcast_shapes(s.shape, (*np.shape(c), 4), (*np.shape(leak), 4)))
         out[..., 0] = trans * (passed + blocked)
         polarized = trans * (passed - blocked)
         out[..., 1] = polarized * c
@@ -170,7 +170,7 @@ def analyzer_stokes(
     c, t = _axis(angle)
     leak = 1.0 / np.asarray(extinction_ratio, float)
     trans = np.asarray(transmission, float)
-    out = np.empty(np.broadcast_shapes(np.shape(c), np.shape(leak), np.shape(trans)) + (4,))
+    out = np.empty((*np.broadcast_shapes(np.shape(c), np.shape(leak), np.shape(trans)), 4))
     out[..., 0] = trans * (1 + leak)
     out[..., 1] = trans * (1 - leak) * c
     out[..., 2] = trans * (1 - leak) * t

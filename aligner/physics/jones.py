@@ -87,7 +87,7 @@ def retarder(theta: ArrayLike, delta: ArrayLike) -> Complex:
     fast, slow = half, np.conj(half)  # exp(-i delta/2), exp(+i delta/2)
     c2, s2 = np.cos(2 * theta), np.sin(2 * theta)
     mean, diff = 0.5 * (fast + slow), 0.5 * (fast - slow)
-    out = np.empty(np.broadcast_shapes(theta.shape, delta.shape) + (2, 2), dtype=complex)
+    out = np.empty((*np.broadcast_shapes(theta.shape, delta.shape), 2, 2), dtype=complex)
     out[..., 0, 0] = mean + diff * c2
     out[..., 1, 1] = mean - diff * c2
     out[..., 0, 1] = diff * s2
@@ -100,7 +100,7 @@ def rotator(rotation: ArrayLike) -> Complex:
     (rad) from H towards V."""
     rotation = np.asarray(rotation, float)
     c, s = np.cos(rotation), np.sin(rotation)
-    out = np.empty(rotation.shape + (2, 2), dtype=complex)
+    out = np.empty((*rotation.shape, 2, 2), dtype=complex)
     out[..., 0, 0] = c
     out[..., 0, 1] = -s
     out[..., 1, 0] = s
@@ -143,7 +143,7 @@ def linear_projector(angle: ArrayLike) -> Complex:
     """``|p><p|`` for linear polarization at ``angle`` (rad); fast path of :func:`projector`."""
     angle = np.asarray(angle, float)
     c2, s2 = np.cos(2 * angle), np.sin(2 * angle)
-    out = np.empty(angle.shape + (2, 2), dtype=complex)
+    out = np.empty((*angle.shape, 2, 2), dtype=complex)
     out[..., 0, 0] = 0.5 * (1 + c2)
     out[..., 1, 1] = 0.5 * (1 - c2)
     out[..., 0, 1] = 0.5 * s2
@@ -177,11 +177,16 @@ def stokes_from_density(rho: ArrayLike) -> Real:
 def density_from_stokes(stokes: ArrayLike) -> Complex:
     """Coherency (density) matrix of a Stokes vector ``(..., 4)``; trace = S0."""
     s = np.asarray(stokes, float)
-    out = np.empty(s.shape[:-1] + (2, 2), dtype=complex)
-    out[..., 0, 0] = (s[..., 0] + s[..., 1]) / 2
-    out[..., 1, 1] = (s[..., 0] - s[..., 1]) / 2
-    out[..., 0, 1] = (s[..., 2] - 1j * s[..., 3]) / 2
-    out[..., 1, 0] = (s[..., 2] + 1j * s[..., 3]) / 2
+    out = np.empty((*s.shape[:-1], 2, 2), dtype=complex)
+    parts = out.view(float).reshape((*s.shape[:-1], 8))  # re, im of 00, 01, 10, 11
+    parts[..., 0] = 0.5 * (s[..., 0] + s[..., 1])
+    parts[..., 1] = 0.0
+    parts[..., 2] = 0.5 * s[..., 2]
+    parts[..., 3] = -0.5 * s[..., 3]
+    parts[..., 4] = parts[..., 2]
+    parts[..., 5] = 0.5 * s[..., 3]
+    parts[..., 6] = 0.5 * (s[..., 0] - s[..., 1])
+    parts[..., 7] = 0.0
     return out
 
 
