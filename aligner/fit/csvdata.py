@@ -1,0 +1,146 @@
+"""CSV input for the fits: a header row, then one row per point.
+
+Count scans: columns ``reading_deg,counts`` and optionally ``dwell_s`` (s) and ``reference``
+(counts of a reference port or monitor over the same gate). Pointer scans: ``reading_deg,
+pointer,pointer_err`` (pointer units of the bench). Other columns are ignored. Every problem is
+a :class:`~aligner.errors.DataFileError` naming the file, the row (1 = header) and the column.
+"""
+
+from __future__ import annotations
+
+import csv
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+from numpy.typing import NDArray
+
+from ..errors import DataFileError
+
+__all__ = ["CountScan", "PointerScan", "load_count_scan", "load_pointer_scan", "read_columns"]
+
+Real = NDArray[np.float64]
+
+
+@dataclass(frozen=True)
+class Column:
+    """What a column may hold."""
+
+    required: bool = True
+    minimum: float | None = None
+    positive: bool = False
+    whole: bool = False
+
+    def allowed(self) -> str:
+        if self.whole:
+            return "whole numbers >= 0"
+        if self.positive:
+            return "numbers > 0"
+        if self.minimum is not None:
+            return f"numbers >= {self.minimum:g}"
+        return "finite numbers"
+
+
+COUNT_COLUMNS = {
+    "reading_deg": Column(),
+    "counts": Column(whole=True),
+    "dwell_s": Column(required=False, positive=True),
+    "reference": Column(required=False, minimum=0.0),
+}
+POINTER_COLUMNS = {
+    "reading_deg": Column(),
+    "pointer": Column(),
+    "pointer_err": Column(positive=True),
+}
+
+
+def _check(path: str, row: int, name: str, text: str, spec: Column) -> float:
+    where = f"{path}: row {row}, column {name!r}"
+    try:
+        value = float(text)
+    except ValueError:
+        raise DataFileError(f"{where}: {text.strip()!r} is not a number "
+                            f"(allowed: {spec.allowed()})") from None
+    bad = (not math.isfinite(value)
+           or (spec.whole and (value < 0 or value != int(value)))
+           or (spec.positive and value <= 0)
+           or (spec.minimum is not None and value < spec.minimum))
+    if bad:
+        raise DataFileError(f"{where}: {text.strip()} is not allowed (allowed: {spec.allowed()})")
+    return value
+
+
+def read_columns(path: str | Path, columns: Mapping[str, Column],
+                 min_rows: int) -> dict[str, Real]:
+    """Read the named columns of a CSV file as float arrays (absent optional ones left out)."""
+    name = str(path)
+    try:
+        with open(path, newline="", encoding="utf-8") as handle:
+            rows = [r for r in csv.reader(handle) if any(cell.strip() for cell in r)]
+    except FileNotFoundError:
+        raise DataFileError(f"{name}: file not found (give the path of a CSV file)") from None
+    except (OSError, UnicodeDecodeError, csv.Error) as exc:
+        raise DataFileError(f"{name}: cannot be read as CSV ({exc})") from None
+    wanted = ", ".join(k for k, c in columns.items() if c.required)
+    if not rows:
+        raise DataFileError(f"{name}: the file is empty; expected a header row ({wanted}) "
+                            "and data rows")
+    header = [cell.strip() for cell in rows[0]]
+    missing = [k for k, c in columns.items() if c.required and k not in header]
+    if missing:
+        raise DataFileError(f"{name}: row 1 (header) lacks column(s) {', '.join(missing)}; "
+                            f"the header must name at least: {wanted}")
+    data = rows[1:]
+    if len(data) < min_rows:
+        raise DataFileError(f"{name}: {len(data)} data row(s); this fit needs at least "
+                            f"{min_rows}")
+    out: dict[str, Real] = {}
+    for key, spec in columns.items():
+        if key not in header:
+            continue
+        index = header.index(key)
+        values = []
+        for number, row in enumerate(data, start=2):
+            if index >= len(row) or not row[index].strip():
+                raise DataFileError(f"{name}: row {number}, column {key!r}: the value is "
+                                    f"missing (allowed: {spec.allowed()})")
+            values.append(_check(name, number, key, row[index], spec))
+        out[key] = np.array(values)
+    return out
+
+
+@dataclass(frozen=True)
+class CountScan:
+    """Counts against a mount reading. ``dwell_s`` and ``reference`` per point (None when the
+    file has no such column)."""
+
+    reading_deg: Real
+    counts: Real
+    dwell_s: Real | None
+    reference: Real | None
+    path: str
+
+
+@dataclass(frozen=True)
+class PointerScan:
+    """Pointer readings (mean and standard error, bench units) against a mount reading."""
+
+    reading_deg: Real
+    pointer: Real
+    pointer_err: Real
+    path: str
+
+
+def load_count_scan(path: str | Path, min_rows: int = 4) -> CountScan:
+    """Read a count scan CSV (see the module docstring)."""
+    cols = read_columns(path, COUNT_COLUMNS, min_rows)
+    return CountScan(cols["reading_deg"], cols["counts"], cols.get("dwell_s"),
+                     cols.get("reference"), str(path))
+
+
+def load_pointer_scan(path: str | Path, min_rows: int = 2) -> PointerScan:
+    """Read a pointer scan CSV (see the module docstring)."""
+    cols = read_columns(path, POINTER_COLUMNS, min_rows)
+    return PointerScan(cols["reading_deg"], cols["pointer"], cols["pointer_err"], str(path))
