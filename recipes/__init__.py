@@ -1,0 +1,1 @@
+"""Bundled alignment recipes (TOML files in this folder); see aligner.recipes for the format."""
