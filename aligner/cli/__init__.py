@@ -18,7 +18,7 @@ from collections.abc import Sequence
 __all__ = ["build_parser", "main"]
 
 #: Command modules in the order ``aligner --help`` lists them.
-COMMANDS = ("predict", "plan", "derive", "leak", "fit", "null", "sweep", "log")
+COMMANDS = ("predict", "plan", "derive", "leak", "fit", "null", "sweep", "log", "recipe", "desk")
 
 
 def build_parser() -> argparse.ArgumentParser:
