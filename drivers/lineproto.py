@@ -106,6 +106,14 @@ __all__ = [
 
 T = TypeVar("T")
 
+#: what a failing port raises (pyserial lets termios errors through, e.g. on a hung-up tty)
+try:
+    from termios import error as _TermiosError
+
+    PORT_ERRORS: tuple[type[Exception], ...] = (serial.SerialException, OSError, _TermiosError)
+except ImportError:  # not a POSIX system
+    PORT_ERRORS = (serial.SerialException, OSError)
+
 #: Folder of the example profiles shipped with the package.
 PROFILE_DIR = Path(__file__).with_name("profiles")
 
@@ -419,7 +427,7 @@ class LineChannel:
                 f"{self._where()}: sending {command!r} timed out ({exc}); "
                 "check the cable and the flow-control settings"
             ) from exc
-        except (serial.SerialException, OSError) as exc:
+        except PORT_ERRORS as exc:
             raise Disconnected(
                 f"{self._where()}: the port failed during {command!r} ({exc}); check the cable "
                 "and the power, that the port still exists, and that no other program uses it"
@@ -532,5 +540,5 @@ class LineChannel:
         with self._lock:
             self._closed = True
             # the device is gone either way; closing must not raise
-            with suppress(serial.SerialException, OSError):
+            with suppress(*PORT_ERRORS):
                 self.port.close()

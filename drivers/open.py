@@ -38,7 +38,7 @@ import serial
 
 from aligner.errors import Disconnected, InputError
 
-from .lineproto import DeviceProfile, LineChannel, load_profile
+from .lineproto import PORT_ERRORS, DeviceProfile, LineChannel, load_profile
 from .manual import ManualCounter, ManualPointer
 from .protocols import Counter, PointerReader, RotationMount, Shutter
 from .serial_counter import LineCounter
@@ -205,7 +205,7 @@ def _open_channel(
         port = serial.serial_for_url(
             spec, baudrate=loaded.baud, timeout=loaded.reply_timeout_s, write_timeout=2.0
         )
-    except (serial.SerialException, OSError, ValueError) as exc:
+    except (*PORT_ERRORS, ValueError) as exc:
         raise Disconnected(
             f"cannot open {spec} ({exc}); check that the device is plugged in and powered, the "
             "port name, and that you may use the port (on Linux: the dialout group)"
