@@ -1,0 +1,197 @@
+"""The detector guard: no move and no count may expose the detector above its safe rate.
+
+Before a mount moves with the detector exposed, the guard predicts the count rate (true rate,
+before dead-time losses, dark counts included; :func:`aligner.predict.predict` on the bench
+file) at readings sampled every ``step_deg`` along the whole path the mount will turn through,
+backlash approach included -- a polarizer turned far from the null passes through full
+transmission on the way, so checking the end point is not enough. The move is then:
+
+1. made with the shutter open when the whole path stays below ``headroom * safe_rate``;
+2. otherwise made with the shutter shut, when there is a shutter;
+3. otherwise made to an optically equivalent reading (every polarization element repeats
+   every 180 deg) whose path stays dark, if one lies within travel;
+4. otherwise refused with :class:`~aligner.errors.GuardTrip`.
+
+Counting is allowed only where the prediction at the read-back readings is below the limit,
+and every gate's measured rate (corrected for dead time) is checked: above ``safe_rate`` the
+shutter is shut and the sweep stops with ``GuardTrip``. ``headroom`` (default 0.5) covers the
+bench file's offset and extinction errors (common practice, no source).
+
+Approach: every move ends turning towards higher readings by at least ``overshoot_deg``
+(default ``max(2 backlash, 10 resolution)``), so the mechanical play is always taken up on
+the same side.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from ..bench import Bench
+from ..errors import GuardTrip, InputError
+
+__all__ = ["ELEMENT_PERIOD_DEG", "DetectorGuard", "MovePlan"]
+
+#: Every element a mount can hold (polarizer, waveplate, rotator up to a global phase) looks
+#: the same after half a turn.
+ELEMENT_PERIOD_DEG = 180.0
+
+
+@dataclass(frozen=True)
+class MovePlan:
+    """How to move one mount: the readings (deg) to visit in order (the last is the target),
+    whether the shutter must be shut for the move, and the highest predicted rate (counts/s)
+    along the path with the detector exposed."""
+
+    mount: str
+    waypoints: tuple[float, ...]
+    shut_for_move: bool
+    peak_rate: float
+    note: str = ""
+
+    @property
+    def target(self) -> float:
+        """The reading the move ends at (deg)."""
+        return self.waypoints[-1]
+
+
+class DetectorGuard:
+    """Plans safe moves and checks count rates for one bench (see the module docstring)."""
+
+    def __init__(self, bench: Bench, *, has_shutter: bool, headroom: float = 0.5,
+                 step_deg: float = 0.1, overshoot_deg: float | None = None) -> None:
+        if not 0 < headroom <= 1:
+            raise InputError(f"guard headroom must be in (0, 1], got {headroom:g}")
+        if not step_deg > 0:
+            raise InputError(f"guard step_deg must be > 0 deg, got {step_deg:g}")
+        self.bench = bench
+        self.has_shutter = has_shutter
+        self.safe_rate = bench.detector.safe_rate
+        self.limit = headroom * self.safe_rate
+        self.step_deg = step_deg
+        self._overshoot = overshoot_deg
+        # readings the mount was last approached from below at (None: unknown)
+        self._approached: dict[str, float | None] = dict.fromkeys(bench.mounts)
+
+    # -- prediction ---------------------------------------------------------------------------
+
+    def rates(self, readings: Mapping[str, float | NDArray[np.float64]]) -> NDArray[np.float64]:
+        """Predicted true detector rate (counts/s) at ``readings`` (arrays broadcast)."""
+        from ..predict import predict
+
+        return np.asarray(predict(self.bench, readings).detector_rate, float)
+
+    def sample_path(self, waypoints: tuple[float, ...]) -> NDArray[np.float64]:
+        """Readings every ``step_deg`` or closer along the segments between ``waypoints``."""
+        pieces = []
+        for a, b in itertools.pairwise(waypoints):
+            n = max(2, math.ceil(abs(b - a) / self.step_deg) + 1)
+            pieces.append(np.linspace(a, b, n))
+        return np.concatenate(pieces) if pieces else np.asarray(waypoints, float)
+
+    def path_peak(self, readings: Mapping[str, float], mount: str,
+                  waypoints: tuple[float, ...]) -> float:
+        """Highest predicted rate (counts/s) along the path of ``mount`` with the others fixed."""
+        return float(np.max(self.rates({**readings, mount: self.sample_path(waypoints)})))
+
+    # -- moves --------------------------------------------------------------------------------
+
+    def overshoot_deg(self, mount: str) -> float:
+        """How far below a target a downward move turns before approaching it (deg)."""
+        if self._overshoot is not None:
+            return self._overshoot
+        m = self.bench.mounts[mount]
+        return max(2 * m.backlash_deg, 10 * m.resolution_deg)
+
+    def route(self, mount: str, start: float, target: float) -> tuple[float, ...]:
+        """Waypoints from ``start`` to ``target`` (deg) that end turning upwards; just
+        ``(start,)`` when the mount already sits there, approached from below."""
+        m = self.bench.mounts[mount]
+        low, high = m.travel_deg
+        if not low <= target <= high:
+            raise InputError(f"mount {mount!r}: reading {target:g} deg is outside travel_deg "
+                             f"[{low:g}, {high:g}] of the bench file")
+        approached = self._approached[mount]
+        if approached is not None and math.isclose(approached, start, abs_tol=1e-9):
+            if abs(target - start) <= m.resolution_deg / 2:
+                return (start,)
+            if target > start:
+                return (start, target)
+        below = target - self.overshoot_deg(mount)
+        if below < low:
+            raise InputError(f"mount {mount!r}: cannot approach {target:g} deg from below "
+                             f"(travel_deg starts at {low:g}); plan readings at least "
+                             f"{self.overshoot_deg(mount):g} deg inside the travel")
+        return (start, below, target)
+
+    def plan_move(self, readings: Mapping[str, float], mount: str, target: float, *,
+                  shutter_open: bool = True) -> MovePlan:
+        """A safe way to bring ``mount`` from ``readings[mount]`` to ``target`` (deg).
+
+        ``readings`` are the current readings of every mount. Raises ``GuardTrip`` when no
+        safe way exists.
+        """
+        start = float(readings[mount])
+        direct = self.route(mount, start, target)
+        peak = self.path_peak(readings, mount, direct)
+        if peak <= self.limit or not shutter_open:
+            return MovePlan(mount, direct, shut_for_move=False, peak_rate=peak)
+        if self.has_shutter:
+            return MovePlan(mount, direct, shut_for_move=True, peak_rate=peak,
+                            note=f"shutter shut for the move of {mount}: the path passes "
+                                 f"{peak:.3g} counts/s")
+        m = self.bench.mounts[mount]
+        k_low = math.ceil((m.travel_deg[0] - target) / ELEMENT_PERIOD_DEG)
+        k_high = math.floor((m.travel_deg[1] - target) / ELEMENT_PERIOD_DEG)
+        shifts = sorted((k for k in range(k_low, k_high + 1) if k), key=abs)
+        for k in shifts:
+            alt = target + k * ELEMENT_PERIOD_DEG
+            try:
+                path = self.route(mount, start, alt)
+            except InputError:
+                continue
+            alt_peak = self.path_peak(readings, mount, path)
+            if alt_peak <= self.limit:
+                return MovePlan(mount, path, shut_for_move=False, peak_rate=alt_peak,
+                                note=f"{mount} moved to {alt:g} deg instead of {target:g} deg "
+                                     "(the same element angle) to keep the detector dark")
+        raise GuardTrip(
+            f"detector guard: moving {mount} from {start:g} to {target:g} deg would expose the "
+            f"detector to about {peak:.3g} counts/s (limit {self.limit:.3g}, half of safe_rate "
+            f"{self.safe_rate:.3g}) and there is no shutter and no dark way round; block the "
+            "beam and move by hand, or add a shutter")
+
+    def moved(self, mount: str, reached: float) -> None:
+        """Record that a planned move (ending upwards) was made and ``mount`` reads ``reached``
+        (deg): a further move up from there needs no new approach."""
+        self._approached[mount] = reached
+
+    def forget(self) -> None:
+        """After a fault: approach every mount from below again."""
+        self._approached = dict.fromkeys(self.bench.mounts)
+
+    # -- counting -----------------------------------------------------------------------------
+
+    def check_point(self, predicted_rate: float, readings: Mapping[str, float]) -> None:
+        """Refuse to expose the detector where the prediction exceeds the limit."""
+        if predicted_rate > self.limit:
+            where = ", ".join(f"{k} {v:.4g} deg" for k, v in readings.items())
+            raise GuardTrip(f"detector guard: at {where} the predicted rate is "
+                            f"{predicted_rate:.3g} counts/s, above the limit {self.limit:.3g} "
+                            f"(half of safe_rate {self.safe_rate:.3g}); the point is refused")
+
+    def check_counts(self, counts: int, dwell_s: float) -> float:
+        """The true rate (counts/s) behind a gate's ``counts``; ``GuardTrip`` above safe_rate."""
+        from ..physics.detection import true_rate
+
+        rate = float(true_rate(counts / dwell_s, self.bench.detector.dead_time_ns * 1e-9))
+        if rate > self.safe_rate:
+            raise GuardTrip(f"detector guard: measured {rate:.3g} counts/s, above safe_rate "
+                            f"{self.safe_rate:.3g}; shutter shut and sweep stopped. Check the "
+                            "beam path and the analyzer before resuming")
+        return rate
