@@ -61,6 +61,14 @@ Write regular expressions in TOML *literal* strings ('...') so that backslashes 
 are. Every command needs a reply pattern of the same name and every pattern (but ``error``) a
 command.
 
+Opening a device with a profile
+===============================
+
+``open_mount("/dev/ttyUSB0", profile="my-rotator.toml")`` (also ``COM3``, ``rfc2217://host:port``,
+``socket://host:port``); a shipped profile can be named without its path
+(``profile="example-mount"``); ``timeout=``, ``retries=`` and ``baud=`` override the file.
+``open_counter``, ``open_shutter`` and ``open_pointer`` work the same way.
+
 How the drivers use it
 ======================
 
@@ -292,6 +300,10 @@ class DeviceProfile:
                     f"unknown field {{{sorted(fields - allowed)[0]}}}; "
                     f"allowed: {_allowed(allowed) or 'none'}",
                 )
+            try:
+                template.format(steps=0, dwell_ms=1, dwell_s=0.001)
+            except (ValueError, KeyError, IndexError) as exc:
+                r.fail(f"commands.{key}", f"bad template {template!r} ({exc})")
             if key == "move" and "steps" not in fields:
                 r.fail("commands.move", "must contain {steps}")
             commands[key] = template

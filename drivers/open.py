@@ -11,6 +11,9 @@ Serial specs need ``profile=`` (a profile file, or a shipped profile by name suc
 ``"example-mount"``). Keyword options override options from the query string; an unknown
 option or spec raises ``InputError`` that lists what is allowed.
 
+Caution: opening a real mount or shutter and moving it can send light onto a detector or out
+of the bench; follow your local laser-safety rules and your laser safety officer.
+
 Options (query keys and keyword names are the same):
 
 - serial, all kinds: ``name``, ``baud``, ``timeout`` (reply timeout, s), ``retries``;

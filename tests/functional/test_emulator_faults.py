@@ -11,7 +11,14 @@ from collections.abc import Callable, Iterator
 
 import pytest
 
-from aligner.errors import BadReply, DeviceError, DeviceRefused, DeviceTimeout, Disconnected
+from aligner.errors import (
+    BadReply,
+    DeviceError,
+    DeviceRefused,
+    DeviceTimeout,
+    Disconnected,
+    InputError,
+)
 from drivers import LineCounter, LineMount, load_profile, open_counter, open_mount
 from drivers.emulator import Emulator, Faults
 
@@ -158,3 +165,10 @@ def test_emulator_and_drivers_leak_no_threads_or_fds():
             mount.close()
     assert threading.active_count() == threads
     assert open_fds() == fds
+
+
+def test_fault_plans_are_checked():
+    with pytest.raises(InputError, match="unknown fault 'smoke'"):
+        Faults(script=("smoke",))
+    with pytest.raises(InputError, match="add up to <= 1"):
+        Faults(garbage=0.7, stall=0.7)

@@ -76,6 +76,8 @@ def test_shipped_profiles_load_by_name_and_path():
         ({"commands": {"move": "GO {angle}"}}, "commands.move", "allowed: steps"),
         ({"commands": {"move": "GO"}}, "commands.move", "must contain {steps}"),
         ({"commands": {"move": "GO {steps"}}, "commands.move", "bad template"),
+        ({"commands": {"move": "GO {steps:q}"}}, "commands.move", "bad template"),
+        ({"commands": {"move": "GO {steps} {}"}}, "commands.move", "unknown field {}"),
         ({"commands": {"jog": "J"}}, "commands.jog", "unknown key; allowed: count, home"),
         ({"replies": {"query": "AT (\\d+)"}}, "replies.query", "named group(s) steps"),
         ({"replies": {"query": "AT (?P<steps>"}}, "replies.query", "not a valid regular"),
