@@ -1,0 +1,187 @@
+"""Closed-loop null search with a real or simulated mount and counter.
+
+1. A coarse scan around the bench file's null (counts through the drivers' ``Counter``, moves
+   through the ``RotationMount``, both planned and checked by the detector guard);
+2. a Poisson fit of every point taken so far (:func:`aligner.fit.null.fit_null`);
+3. a move to the fitted null (the guard makes every move end turning upwards, so backlash is
+   always taken up on the same side);
+4. a finer scan around it, and again, until the step is below the mount resolution or the
+   statistical error of the null, or ``max_rounds`` is reached.
+
+The guard predicts the count rate along every move and at every point and checks every gate;
+a trip stops the search with :class:`~aligner.errors.GuardTrip` (points already taken are kept
+in the exception's ``points`` attribute when it is raised from here).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass, replace
+from typing import Any, Protocol
+
+import numpy as np
+
+from drivers.protocols import Counter, RotationMount, Shutter
+
+from ..bench import Bench
+from ..errors import GuardTrip, InputError
+from .csvdata import CountScan
+from .null import NullFit, fit_null
+from .scanmodel import null_reading_deg, require_mount
+
+__all__ = ["Guard", "NullSearchResult", "search_null"]
+
+
+class Guard(Protocol):
+    """What the search needs of :class:`aligner.run.guard.DetectorGuard`."""
+
+    limit: float
+
+    def rates(self, readings: Mapping[str, Any]) -> Any: ...
+
+    def plan_move(self, readings: Mapping[str, float], mount: str, target: float, *,
+                  shutter_open: bool = True) -> Any: ...
+
+    def moved(self, mount: str, reached: float) -> None: ...
+
+    def check_point(self, predicted_rate: float, readings: Mapping[str, float]) -> None: ...
+
+    def check_counts(self, counts: int, dwell_s: float) -> float: ...
+
+
+@dataclass(frozen=True)
+class NullSearchResult:
+    """Outcome of :func:`search_null`: the fitted null reading (deg) and its error, the last fit,
+    how many rounds and counter reads it took, each round's step (deg), and whether it
+    converged (``message`` says why it stopped)."""
+
+    mount: str
+    null_reading_deg: float
+    null_reading_err_deg: float
+    final_reading_deg: float
+    rounds: int
+    counter_reads: int
+    steps_deg: tuple[float, ...]
+    converged: bool
+    message: str
+    last_fit: NullFit
+
+    def to_json(self) -> dict[str, Any]:
+        """The JSON document of ``aligner null --json``."""
+        return {
+            "mount": self.mount, "null_reading_deg": self.null_reading_deg,
+            "null_reading_err_deg": self.null_reading_err_deg,
+            "final_reading_deg": self.final_reading_deg,
+            "extinction_ratio": self.last_fit.extinction_ratio,
+            "extinction_ratio_err": self.last_fit.extinction_ratio_err,
+            "rounds": self.rounds, "counter_reads": self.counter_reads,
+            "steps_deg": list(self.steps_deg), "converged": self.converged,
+            "message": self.message,
+        }
+
+
+def _safe_span(guard: Guard, readings: Mapping[str, float], name: str, centre: float,
+               largest: float) -> float:
+    """Half-width (deg) around ``centre`` where the predicted rate stays below half the
+    guard's limit, at most ``largest``."""
+    offsets = np.linspace(0.0, largest, 201)
+    up = guard.rates({**readings, name: centre + offsets})
+    down = guard.rates({**readings, name: centre - offsets})
+    ok = (np.asarray(up) <= guard.limit / 2) & (np.asarray(down) <= guard.limit / 2)
+    bad = np.flatnonzero(~ok)
+    if not bad.size:
+        return largest
+    return float(offsets[bad[0] - 1]) if bad[0] > 0 else 0.0
+
+
+def search_null(
+    bench: Bench,
+    mount: RotationMount,
+    counter: Counter,
+    guard: Guard,
+    *,
+    mount_name: str | None = None,
+    shutter: Shutter | None = None,
+    readings: Mapping[str, float] | None = None,
+    dwell_s: float = 0.2,
+    span_deg: float = 2.0,
+    points: int = 21,
+    max_rounds: int = 8,
+) -> NullSearchResult:
+    """Find the crossed reading of ``mount`` (see the module docstring).
+
+    ``readings`` are the other mounts' readings (default: the bench file's); ``span_deg`` the
+    half-width of the coarse scan (narrowed to where the guard's prediction stays dark).
+    """
+    name = require_mount(bench, mount_name, bench.analyzer.mount, "null search")
+    if points < 5 or max_rounds < 1 or not dwell_s > 0 or not span_deg > 0:
+        raise InputError("null search needs points >= 5, max_rounds >= 1, dwell_s > 0 and "
+                         "span_deg > 0")
+    current = {**bench.readings(), **(readings or {})}
+    current[name] = float(mount.position())
+    here = bench.with_mounts(**{k: replace(m, reading_deg=current[k])
+                                for k, m in bench.mounts.items()})
+    resolution = bench.mounts[name].resolution_deg
+    centre = null_reading_deg(here, name, bench.mounts[name].reading_deg, span_deg=10.0)
+    span = _safe_span(guard, current, name, centre, span_deg)
+    if span < 10 * resolution:
+        raise GuardTrip(f"null search: the predicted rate near the null of {name} is above "
+                        "the guard's limit; lower the source power before searching")
+    taken: list[tuple[float, int]] = []
+    if shutter is not None and not shutter.is_open():
+        guard.check_point(float(np.asarray(guard.rates(current))), current)
+        shutter.open()
+
+    def go(target: float) -> float:
+        plan = guard.plan_move(current, name, target)
+        if plan.shut_for_move and shutter is not None:
+            shutter.shut()
+        for waypoint in plan.waypoints[1:]:
+            mount.move_to(waypoint)
+        reached = float(mount.position())
+        guard.moved(name, reached)
+        current[name] = reached
+        if plan.shut_for_move and shutter is not None:
+            shutter.open()
+        return reached
+
+    def measure(target: float) -> None:
+        reached = go(target)
+        guard.check_point(float(np.asarray(guard.rates(current))), current)
+        counts = counter.count(dwell_s)[0]
+        guard.check_counts(counts, dwell_s)
+        taken.append((reached, counts))
+
+    steps: list[float] = []
+    fit: NullFit | None = None
+    message = f"stopped after {max_rounds} rounds without converging"
+    converged = False
+    for _ in range(max_rounds):
+        for target in np.linspace(centre - span, centre + span, points):
+            try:
+                measure(float(target))
+            except GuardTrip as trip:
+                trip.points = list(taken)  # type: ignore[attr-defined]
+                raise
+        data = np.array(taken, float)
+        scan = CountScan(data[:, 0], data[:, 1], None, None, f"null search of {name}")
+        fit = fit_null(here, scan, name, dwell_s=dwell_s)
+        if not fit.fit.success:
+            steps.append(math.nan)
+            message = f"the last fit failed: {fit.fit.message}"
+            continue
+        step = abs(fit.null_reading_deg - centre)
+        steps.append(step)
+        centre = fit.null_reading_deg
+        error = fit.null_reading_err_deg
+        if step <= max(resolution, error if math.isfinite(error) else 0.0):
+            converged = True
+            message = (f"converged: last step {step:.4f} deg is below the mount resolution "
+                       f"{resolution:g} deg or the statistical error {error:.4f} deg")
+            break
+        span = max(4 * error if math.isfinite(error) else span / 4, 5 * resolution, span / 4)
+    assert fit is not None
+    final = go(centre)
+    return NullSearchResult(name, fit.null_reading_deg, fit.null_reading_err_deg, final,
+                            len(steps), len(taken), tuple(steps), converged, message, fit)
