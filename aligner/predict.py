@@ -205,8 +205,9 @@ class Prediction:
     ``weak_value`` (complex), ``leak_rate`` (per source photon), ``amplification_linear`` and
     ``amplification_exact`` (along ``axis``), ``pointer_shift`` (``units``), ``detector_rate``
     (true count rate incl. dark, counts/s), ``measured_rate`` (after dead time), ``saturated``,
-    ``over_safe_rate``, ``imbalance_deg``, ``snr_per_sqrt_s``; ``angles_deg`` maps each mount to
-    its element angle (deg).
+    ``over_safe_rate``, ``imbalance_deg``, ``snr_per_sqrt_s``, ``signal_fraction`` (share of the
+    counts holding a signal photon; dark counts dilute the pointer shift by it); ``angles_deg``
+    maps each mount to its element angle (deg).
     """
 
     weak_value: NDArray[np.complex128]
@@ -220,6 +221,7 @@ class Prediction:
     over_safe_rate: NDArray[np.bool_]
     imbalance_deg: Real
     snr_per_sqrt_s: Real
+    signal_fraction: Real
     angles_deg: Mapping[str, Real]
     axis: str
     units: str
@@ -256,6 +258,7 @@ def predict(bench: Bench, readings: Readings | None = None) -> Prediction:
         over_safe_rate=np.broadcast_to(over, shape),
         imbalance_deg=np.broadcast_to(imbalance_deg(bench, r), shape),
         snr_per_sqrt_s=snr_per_sqrt_s(bench, fwd, rates, axis),
+        signal_fraction=np.broadcast_to(rates.signal_fraction, shape),
         angles_deg=MappingProxyType({k: np.broadcast_to(v, shape)
                                      for k, v in fwd.angles_deg.items()}),
         axis=axis,

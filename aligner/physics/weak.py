@@ -45,7 +45,8 @@ def observable_matrix(name: str) -> Complex:
     raise ValueError(f"unknown observable {name!r}; allowed: {', '.join(OBSERVABLE_NAMES)}")
 
 
-def observable_from_axis(axis: ArrayLike, eigenvalues: tuple[float, float] = (1.0, -1.0)) -> Complex:
+def observable_from_axis(axis: ArrayLike,
+                         eigenvalues: tuple[float, float] = (1.0, -1.0)) -> Complex:
     """Observable with eigenvalue ``eigenvalues[0]`` on the state whose Stokes direction is
     ``axis`` (S1, S2, S3; any length) and ``eigenvalues[1]`` on the orthogonal state."""
     n = np.asarray(axis, float)
@@ -92,7 +93,8 @@ def pointer_response(
 
     In the eigenbasis of ``A`` (eigenvalues ``a_j``), with ``c_j = g a_j``,
     ``M_jk = rho_jk E_kj`` and the pointer overlaps ``O_jk = exp(-(c_j - c_k)^2 / (8 sigma^2))``:
-    ``P = sum M O``, ``<q> P = sum M O (c_j + c_k)/2``, ``<p> P = sum M O i (c_k - c_j)/(4 sigma^2)``.
+    ``P = sum M O``, ``<q> P = sum M O (c_j + c_k)/2``,
+    ``<p> P = sum M O i (c_k - c_j)/(4 sigma^2)``.
     """
     values, vectors = np.linalg.eigh(np.asarray(observable, complex))
     rho_e = matmul2(matmul2(adjoint(vectors), np.asarray(rho, complex)), vectors)
