@@ -1,0 +1,134 @@
+"""Run reports: CSV export and a Markdown summary with a plot for the lab notebook.
+
+The plot (measured leak rate with its interval against the prediction at the read-back
+readings, versus the imbalance mount's reading) needs matplotlib, an optional extra:
+``pip install "aligner[report]"``. Without it the Markdown is still written and says so.
+"""
+
+from __future__ import annotations
+
+import csv
+from collections.abc import Sequence
+from dataclasses import dataclass
+from pathlib import Path
+
+from ..errors import InputError
+from .log import Event, LoggedPoint, RunRecord
+
+__all__ = ["CSV_COLUMNS", "Report", "export_csv", "write_report"]
+
+CSV_COLUMNS = ("run", "index", "reading_deg", "counts", "reference", "leak", "leak_lo",
+               "leak_hi", "predicted_leak", "dwell_s", "imbalance_deg", "predicted_rate",
+               "pointer", "pointer_err")
+INSTALL_HINT = 'the plot needs matplotlib: pip install "aligner[report]"'
+
+
+@dataclass(frozen=True)
+class Report:
+    """What :func:`write_report` wrote: the Markdown file, the plot (None without matplotlib)
+    and a note when the plot is missing."""
+
+    markdown: Path
+    plot: Path | None
+    note: str = ""
+
+
+def export_csv(record: RunRecord, points: Sequence[LoggedPoint], path: str | Path) -> int:
+    """Write a run's points as CSV (header row, :data:`CSV_COLUMNS`); return the row count.
+    Empty cells stand for a missing reference or pointer reading."""
+    try:
+        with open(path, "w", newline="", encoding="utf-8") as handle:
+            writer = csv.writer(handle)
+            writer.writerow(CSV_COLUMNS)
+            for p in points:
+                writer.writerow([record.id, p.idx, f"{p.reading_deg:.6f}", p.counts,
+                                 "" if p.reference is None else p.reference, repr(p.leak),
+                                 repr(p.leak_lo), repr(p.leak_hi), repr(p.predicted_leak),
+                                 repr(p.dwell_s), f"{p.imbalance_deg:.6f}",
+                                 repr(p.predicted_rate),
+                                 "" if p.pointer is None else repr(p.pointer),
+                                 "" if p.pointer_err is None else repr(p.pointer_err)])
+    except OSError as exc:
+        raise InputError(f"--csv {path}: cannot be written ({exc})") from None
+    return len(points)
+
+
+def _plot(record: RunRecord, points: Sequence[LoggedPoint], path: Path) -> None:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    import numpy as np
+
+    x = np.array([p.reading_deg for p in points])
+    leak = np.array([p.leak for p in points])
+    err = np.array([[p.leak - p.leak_lo for p in points], [p.leak_hi - p.leak for p in points]])
+    order = np.argsort(x)
+    fig, ax = plt.subplots(figsize=(6.4, 4.2))
+    ax.errorbar(x, leak, yerr=err, fmt="o", ms=4, capsize=2, label="measured (68 % interval)")
+    ax.plot(x[order], np.array([p.predicted_leak for p in points])[order], "-",
+            label="predicted at read-back")
+    ax.set_xlabel(f"{record.imbalance_mount} reading (deg)")
+    ax.set_ylabel("leak rate (per incident photon)")
+    ax.set_yscale("log")
+    ax.set_title(f"run {record.id}: {record.schedule}")
+    ax.legend()
+    fig.tight_layout()
+    fig.savefig(path)
+    plt.close(fig)
+
+
+def _markdown(record: RunRecord, points: Sequence[LoggedPoint], events: Sequence[Event],
+              plot: Path | None, note: str) -> str:
+    lines = [f"# Run {record.id}: {record.bench_name or 'bench'}", "",
+             f"- status: {record.status} ({len(points)} of {record.planned} points)"
+             + (f" -- {record.message}" if record.message else ""),
+             f"- schedule: `{record.schedule}`, {record.repeats} pass(es), dwell "
+             f"{record.dwell_s:g} s, settle {record.settle_s:g} s",
+             f"- bench file: {record.bench_path} (snapshot kept in the run log)",
+             f"- started {record.started_utc}, ended {record.ended_utc or '-'} (UTC)",
+             f"- software: aligner {record.software_version}", ""]
+    if plot is not None:
+        lines += [f"![measured and predicted leak rate]({plot.name})", ""]
+    elif note:
+        lines += [f"_No plot: {note}._", ""]
+    if points:
+        lines += ["| # | reading (deg) | imbalance (deg) | counts | leak | 68 % interval "
+                  "| predicted | measured/predicted |",
+                  "|---|---|---|---|---|---|---|---|"]
+        for p in points:
+            ratio = f"{p.leak / p.predicted_leak:.3g}" if p.predicted_leak > 0 else "-"
+            lines.append(f"| {p.idx} | {p.reading_deg:.4f} | {p.imbalance_deg:+.3f} | "
+                         f"{p.counts} | {p.leak:.3e} | {p.leak_lo:.3e} - {p.leak_hi:.3e} | "
+                         f"{p.predicted_leak:.3e} | {ratio} |")
+        lines.append("")
+    if events:
+        lines += ["## Events", ""]
+        lines += [f"- {e.t_utc} {e.kind}" + (f" (point {e.idx})" if e.idx is not None else "")
+                  + f": {e.message}" for e in events]
+        lines.append("")
+    lines += ["Laser safety: follow your local laser-safety rules and your laser safety "
+              "officer.", ""]
+    return "\n".join(lines)
+
+
+def write_report(record: RunRecord, points: Sequence[LoggedPoint], events: Sequence[Event],
+                 out_dir: str | Path) -> Report:
+    """Write ``run-<id>.md`` and ``run-<id>-leak.svg`` into ``out_dir`` (created)."""
+    out = Path(out_dir)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise InputError(f"--out {out}: cannot create the folder ({exc})") from None
+    plot: Path | None = out / f"run-{record.id}-leak.svg"
+    note = ""
+    if not points:
+        plot, note = None, "the run has no points yet"
+    else:
+        try:
+            _plot(record, points, plot)  # type: ignore[arg-type]
+        except ImportError:
+            plot, note = None, INSTALL_HINT
+    markdown = out / f"run-{record.id}.md"
+    markdown.write_text(_markdown(record, points, events, plot, note), encoding="utf-8")
+    return Report(markdown, plot, note)
