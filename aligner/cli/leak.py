@@ -1,0 +1,106 @@
+"""``aligner leak``: post-selected counts -> leak rate with an exact confidence interval, and a
+verdict against the bench's prediction.
+
+Garwood interval for counted rates, Clopper-Pearson for count ratios and for clicks per pulse
+in pulsed mode; dead time and dark counts are corrected bound by bound.
+"""
+
+from __future__ import annotations
+
+import argparse
+
+from .common import add_json_flag, add_set_argument
+from .fit import SAFETY
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    """Add the ``leak`` command."""
+    p = sub.add_parser("leak", help="leak rate from counts, with an exact interval",
+                       description=__doc__, epilog=SAFETY)
+    p.add_argument("--counts", type=float, required=True, metavar="N",
+                   help="post-selected counts (clicks in pulsed mode)")
+    p.add_argument("--dwell", type=float, required=True, metavar="S", help="gate time (s)")
+    ref = p.add_mutually_exclusive_group()
+    ref.add_argument("--reference", type=float, metavar="N2", help="reference counts")
+    ref.add_argument("--reference-rate", type=float, metavar="R",
+                     help="full-transmission count rate (counts/s, same detector)")
+    p.add_argument("--reference-dwell", type=float, metavar="S",
+                   help="gate of the reference counts (default: --dwell)")
+    p.add_argument("--reference-kind", choices=("bright", "port"), default="bright",
+                   help="bright: analyzer turned to transmission (leak = S/B); port: other "
+                        "port of a polarizing beam splitter (leak = S/(S+B))")
+    p.add_argument("--relative-efficiency", type=float, default=1.0, metavar="X",
+                   help="efficiency of the post-selected detector over the reference one")
+    p.add_argument("--dark", type=float, metavar="N3", help="dark counts, shutter closed")
+    p.add_argument("--dark-dwell", type=float, metavar="S",
+                   help="gate of the dark counts (default: --dwell)")
+    p.add_argument("--dead-time-ns", type=float, metavar="NS",
+                   help="dead time (ns; default: the bench detector's, else 0)")
+    p.add_argument("--rep-rate", type=float, metavar="HZ",
+                   help="pulsed mode: repetition rate (default: the bench's in pulsed mode)")
+    p.add_argument("--level", type=float, default=0.683,
+                   help="confidence level of the interval (default 0.683)")
+    p.add_argument("--bench", metavar="BENCH",
+                   help="bench file or 'demo': dark rate, dead time, efficiency, prediction")
+    add_set_argument(p)
+    add_json_flag(p)
+    p.set_defaults(handler=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    """Compute and print the leak."""
+    from ..fit.counts import measure_leak
+    from .common import emit_json, parse_settings
+    from .fit import print_table
+
+    options: dict = {}
+    predicted = None
+    if args.bench:
+        from ..bench import load_bench
+        from ..predict import predict
+
+        bench = load_bench(args.bench)
+        d = bench.detector
+        p = predict(bench, parse_settings(args.set))
+        signal = float(p.leak_rate) * bench.source.photon_rate * d.efficiency
+        predicted = signal
+        options = {"dark_rate": d.dark_rate, "dead_time_s": d.dead_time_ns * 1e-9,
+                   "efficiency": d.efficiency, "dark_probability": d.gate_dark_probability,
+                   "rep_rate_hz": d.rep_rate_hz if d.mode == "pulsed" else None}
+        if args.reference is None and args.reference_rate is None:
+            options["reference_rate"] = bench.source.photon_rate * d.efficiency
+    elif args.set:
+        from ..errors import InputError
+
+        raise InputError("--set needs --bench (the readings are a bench's mount readings)")
+    if args.dead_time_ns is not None:
+        options["dead_time_s"] = args.dead_time_ns * 1e-9
+    if args.rep_rate is not None:
+        options["rep_rate_hz"] = args.rep_rate
+    if args.reference_rate is not None:
+        options["reference_rate"] = args.reference_rate
+    m = measure_leak(args.counts, args.dwell, reference=args.reference,
+                     reference_dwell_s=args.reference_dwell, reference_kind=args.reference_kind,
+                     dark=args.dark, dark_dwell_s=args.dark_dwell,
+                     relative_efficiency=args.relative_efficiency, level=args.level,
+                     predicted_rate=predicted, **options)
+    doc = m.to_json()
+    if args.json:
+        emit_json(doc)
+        return 0
+    pct = f"{m.level:.1%}"
+    rows = [("signal rate", f"{m.signal_rate:.4g} counts/s"),
+            (f"{pct} interval", f"{m.signal_rate_low:.4g} to {m.signal_rate_high:.4g} counts/s"),
+            ("dark rate used", f"{m.dark_rate:.4g} counts/s"), ("method", m.method)]
+    if m.leak is not None:
+        rows += [("leak", f"{m.leak:.4g}"),
+                 (f"leak {pct} interval", f"{m.leak_low:.4g} to {m.leak_high:.4g}"),
+                 ("reference", str(m.reference))]
+    if m.mean_photons_per_pulse is not None:
+        rows += [("photons per pulse", f"{m.mean_photons_per_pulse:.4g}"),
+                 ("photons per pulse given a click", f"{m.mean_photons_given_click:.4g}")]
+    if m.predicted_rate is not None:
+        rows.append(("predicted signal rate", f"{m.predicted_rate:.4g} counts/s"))
+    notes = [*m.notes, *([f"verdict: {m.verdict.text}"] if m.verdict else [])]
+    print_table("leak from counts", rows, notes)
+    return 0

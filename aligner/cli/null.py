@@ -1,0 +1,76 @@
+"""``aligner null``: find the crossed reading of a mount in closed loop (coarse scan, Poisson
+fit, backlash-aware move, finer scans) with the bench's mounts and counter, under the detector
+guard. Mounts with ``driver = "sim"`` and ``--counter sim`` use the simulated bench.
+"""
+
+from __future__ import annotations
+
+import argparse
+
+from .common import add_bench_argument, add_json_flag
+from .fit import SAFETY
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    """Add the ``null`` command."""
+    p = sub.add_parser("null", help="find the null of a mount in closed loop",
+                       description=__doc__, epilog=SAFETY)
+    add_bench_argument(p)
+    p.add_argument("--mount", metavar="M", help="mount to null (default: the analyzer's)")
+    p.add_argument("--counter", default="sim", metavar="SPEC",
+                   help="counter spec (default: sim, the simulated bench)")
+    p.add_argument("--counter-profile", metavar="NAME", help="line-protocol profile")
+    p.add_argument("--shutter", default="sim", metavar="SPEC",
+                   help="shutter spec, or 'none' (default: sim)")
+    p.add_argument("--dwell", type=float, default=0.2, metavar="S", help="gate per point (s)")
+    p.add_argument("--span", type=float, default=2.0, metavar="DEG",
+                   help="half-width of the coarse scan (deg; narrowed to keep the detector dark)")
+    p.add_argument("--points", type=int, default=21, help="points per scan (default 21)")
+    p.add_argument("--rounds", type=int, default=8, help="most scan-and-fit rounds (default 8)")
+    p.add_argument("--seed", type=int, help="seed of the simulated bench")
+    p.add_argument("--write", action="store_true",
+                   help="store the found offset in the bench file (comments kept)")
+    add_json_flag(p)
+    p.set_defaults(handler=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    """Run the search and report."""
+    from ..bench import DEMO_BENCH, load_bench, write_values
+    from ..errors import InputError
+    from ..fit.nullsearch import search_null
+    from ..run.guard import DetectorGuard
+    from ..run.simbench import open_devices
+    from .common import emit_json
+    from .fit import print_table
+
+    bench = load_bench(args.bench)
+    if args.write and bench.path == DEMO_BENCH:
+        raise InputError("--write: the bundled demo bench is not written to; copy it first")
+    name = args.mount or bench.analyzer.mount
+    if name not in bench.mounts:
+        raise InputError(f"--mount {name!r}: no such mount; the bench has: "
+                         f"{', '.join(bench.mounts)}")
+    devices = open_devices(bench, counter=args.counter, counter_profile=args.counter_profile,
+                           shutter=args.shutter, pointer="none", seed=args.seed)
+    try:
+        guard = DetectorGuard(bench, has_shutter=devices.shutter is not None)
+        result = search_null(bench, devices.mounts[name], devices.counter, guard,
+                             mount_name=name, shutter=devices.shutter, dwell_s=args.dwell,
+                             span_deg=args.span, points=args.points, max_rounds=args.rounds)
+    finally:
+        devices.close()
+    updates = result.last_fit.bench_updates()
+    if args.write and result.converged:
+        write_values(bench.path, updates)
+    doc = {**result.to_json(), "written": updates if args.write and result.converged else {}}
+    if args.json:
+        emit_json(doc)
+        return 0 if result.converged else 1
+    rows = [("null reading", f"{result.null_reading_deg:.4f} +/- "
+                             f"{result.null_reading_err_deg:.4f} deg"),
+            ("mount now at", f"{result.final_reading_deg:.4f} deg"),
+            ("extinction ratio", f"{result.last_fit.extinction_ratio:.3g}"),
+            ("rounds", str(result.rounds)), ("counter reads", str(result.counter_reads))]
+    print_table(f"null search of {name}", rows, [result.message])
+    return 0 if result.converged else 1
