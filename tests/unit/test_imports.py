@@ -1,0 +1,77 @@
+"""Import contract (foundation issue): ``import aligner`` and ``aligner --help`` stay light.
+
+Each check runs in a fresh interpreter and inspects ``sys.modules`` there.
+"""
+
+from __future__ import annotations
+
+import importlib.util
+import json
+import shutil
+import subprocess
+import sys
+
+import pytest
+
+from aligner.cli import COMMANDS
+
+HEAVY = ("textual", "sympy", "scipy")
+PROBE = ("numpy", *HEAVY)
+COMMANDS_PRESENT = [c for c in COMMANDS if importlib.util.find_spec(f"aligner.cli.{c}")]
+
+_REPORT = f"""
+import json, sys
+print(json.dumps(sorted({{m.split('.')[0] for m in sys.modules}} & set({PROBE!r}))))
+"""
+
+_HELP = """
+import contextlib, io, sys
+from aligner.cli import main
+with contextlib.redirect_stdout(io.StringIO()):
+    try:
+        main(sys.argv[1:])
+    except SystemExit:
+        pass
+""" + _REPORT
+
+
+def _loaded(code: str, *args: str) -> set[str]:
+    done = subprocess.run([sys.executable, "-c", code, *args], capture_output=True, text=True,
+                          timeout=60, check=True)
+    return set(json.loads(done.stdout.strip().splitlines()[-1]))
+
+
+def test_import_aligner_is_light():
+    # Contract of aligner/__init__.py: no numpy, scipy, sympy or textual until a function is used.
+    loaded = _loaded("import aligner\n" + _REPORT)
+    assert not loaded & set(HEAVY)
+    assert "numpy" not in loaded
+
+
+def test_help_is_light():
+    # Contract of aligner/cli/__init__.py: heavy imports happen inside run(), not for --help.
+    loaded = _loaded(_HELP, "--help")
+    assert not loaded & set(HEAVY)
+    assert "numpy" not in loaded
+
+
+@pytest.mark.parametrize("command", COMMANDS_PRESENT)
+def test_command_help_does_not_import_heavy_modules(command):
+    assert not _loaded(_HELP, command, "--help") & set(HEAVY)
+
+
+def test_lazy_attributes_resolve():
+    import aligner
+
+    assert aligner.load_bench("demo").imbalance_mount
+    with pytest.raises(AttributeError, match="nosuch"):
+        aligner.nosuch  # noqa: B018
+
+
+@pytest.mark.skipif(shutil.which("aligner") is None, reason="console script not installed")
+def test_console_script_lists_every_command():
+    done = subprocess.run(["aligner", "--help"], capture_output=True, text=True, timeout=60)
+    assert done.returncode == 0 and not done.stderr
+    for command in COMMANDS_PRESENT:
+        assert f"\n    {command} " in done.stdout
+    assert "laser safety officer" in " ".join(done.stdout.split())
