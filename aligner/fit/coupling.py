@@ -90,9 +90,13 @@ def fit_coupling(bench: Bench, scan: PointerScan, mount: str | None = None) -> C
                          "readings say nothing about the coupling")
     g_lin = float(np.sum(w * x * scan.pointer)) / info
     g_lin_err = 1 / math.sqrt(info)
-    start = g_lin if g_lin != 0 else c.strength
-    step = 1e-6 * max(abs(start), c.strength)
-    fit = maximize_likelihood(model, Gaussian(scan.pointer, scan.pointer_err), [start],
+    family = Gaussian(scan.pointer, scan.pointer_err)
+    # the exact response saturates, so start from the best of a wide grid, not the linear g
+    centre = abs(g_lin) if g_lin != 0 else c.strength
+    grid = np.sign(g_lin or 1.0) * centre * np.geomspace(0.05, 50.0, 121)[:, None]
+    start = grid[int(np.argmin(np.sum(family.residuals(model(grid)) ** 2, axis=-1)))]
+    step = 1e-6 * max(abs(float(start[0])), c.strength)
+    fit = maximize_likelihood(model, family, start,
                               ("strength",), [step])
     g, g_err = fit.value("strength"), fit.error("strength")
     bias = g_lin / g - 1 if g else math.nan
