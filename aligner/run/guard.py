@@ -2,9 +2,10 @@
 
 Before a mount moves with the detector exposed, the guard predicts the count rate (true rate,
 before dead-time losses, dark counts included; :func:`aligner.predict.predict` on the bench
-file) at readings sampled every ``step_deg`` along the whole path the mount will turn through,
-backlash approach included -- a polarizer turned far from the null passes through full
-transmission on the way, so checking the end point is not enough. The move is then:
+file) at readings every ``step_deg`` along the whole path the mount will turn through,
+backlash approach included (one vectorized prediction over the mount's travel per setting of
+the other mounts, then a look-up per move) -- a polarizer turned far from the null passes
+through full transmission on the way, so checking the end point is not enough. The move is then:
 
 1. made with the shutter open when the whole path stays below ``headroom * safe_rate``;
 2. otherwise made with the shutter shut, when there is a shutter;
@@ -24,10 +25,10 @@ the same side.
 
 from __future__ import annotations
 
-import itertools
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -75,6 +76,7 @@ class DetectorGuard:
         self.limit = headroom * self.safe_rate
         self.step_deg = step_deg
         self._overshoot = overshoot_deg
+        self._tables: dict[tuple[Any, ...], tuple[NDArray[np.float64], NDArray[np.float64]]] = {}
         # readings the mount was last approached from below at (None: unknown)
         self._approached: dict[str, float | None] = dict.fromkeys(bench.mounts)
 
@@ -86,18 +88,31 @@ class DetectorGuard:
 
         return np.asarray(predict(self.bench, readings).detector_rate, float)
 
-    def sample_path(self, waypoints: tuple[float, ...]) -> NDArray[np.float64]:
-        """Readings every ``step_deg`` or closer along the segments between ``waypoints``."""
-        pieces = []
-        for a, b in itertools.pairwise(waypoints):
-            n = max(2, math.ceil(abs(b - a) / self.step_deg) + 1)
-            pieces.append(np.linspace(a, b, n))
-        return np.concatenate(pieces) if pieces else np.asarray(waypoints, float)
+    def _table(self, readings: Mapping[str, float], mount: str,
+               ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+        """Predicted rate at every ``step_deg`` over the whole travel of ``mount``, the other
+        mounts at ``readings`` (computed once per setting of the others)."""
+        key = (mount, tuple(sorted((k, round(float(v), 9)) for k, v in readings.items()
+                                   if k != mount)))
+        table = self._tables.get(key)
+        if table is None:
+            low, high = self.bench.mounts[mount].travel_deg
+            grid = np.linspace(low, high, math.ceil((high - low) / self.step_deg) + 1)
+            table = (grid, self.rates({**readings, mount: grid}))
+            if len(self._tables) >= 64:
+                self._tables.clear()
+            self._tables[key] = table
+        return table
 
     def path_peak(self, readings: Mapping[str, float], mount: str,
                   waypoints: tuple[float, ...]) -> float:
-        """Highest predicted rate (counts/s) along the path of ``mount`` with the others fixed."""
-        return float(np.max(self.rates({**readings, mount: self.sample_path(waypoints)})))
+        """Highest predicted rate (counts/s) along the path of ``mount`` through ``waypoints``
+        with the others fixed: the rate at every ``step_deg`` the path covers and at its
+        waypoints (interpolated)."""
+        grid, rates = self._table(readings, mount)
+        a, b = np.searchsorted(grid, [min(waypoints), max(waypoints)])
+        ends = np.interp(waypoints, grid, rates)
+        return float(max(np.max(ends), np.max(rates[a:b], initial=0.0)))
 
     # -- moves --------------------------------------------------------------------------------
 

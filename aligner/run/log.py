@@ -10,7 +10,8 @@ Tables:
     ``software_version``, ``started_utc``, ``ended_utc``, ``message``.
 ``points``
     one row per measured point, key (``run_id``, ``idx``) so a resumed run cannot duplicate a
-    point: ``target``, ``commanded_json`` / ``readback_json`` (mount -> reading, deg),
+    point: ``target``, ``commanded_json`` (the readings actually commanded, deg: the plan's,
+    or a guard's equivalent reading) / ``readback_json`` (mount -> reading, deg),
     ``reading_deg`` (read-back of the imbalance mount, deg), ``counts`` (post-selected),
     ``reference`` (reference port, NULL with one channel), ``dwell_s``, ``leak`` / ``leak_lo`` /
     ``leak_hi`` (measured leak rate per incident photon and its interval), ``predicted_leak``,

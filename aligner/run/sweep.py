@@ -154,6 +154,7 @@ class _Sweep:
                                    headroom=options.headroom, step_deg=options.step_deg)
         self.pending: list[Event] = []
         self.positions: dict[str, float | None] = dict.fromkeys(devices.mounts)
+        self.commanded: dict[str, float] = {}
         self.done = 0
 
     # -- device operations with bounded retries ----------------------------------------------
@@ -198,6 +199,7 @@ class _Sweep:
         if plan.shut_for_move:
             self.set_shutter(False, idx)
         mount = self.devices.mounts[name]
+        self.commanded[name] = plan.target
         self.positions[name] = None
         for waypoint in plan.waypoints[1:]:
             mount.move_to(waypoint)
@@ -220,6 +222,7 @@ class _Sweep:
         from ..predict import predict
 
         started = utc_now()
+        self.commanded = dict(p.readings)
         for name, target in p.readings.items():
             self.attempt(f"point {p.index}: moving {name} to {target:.4f} deg", p.index,
                          lambda n=name, t=target: self.move(n, t, p.index))
@@ -240,7 +243,7 @@ class _Sweep:
                                                 p.index, lambda: reader.read(self.dwell_s))
         leak = measured_leak(self.bench, post, self.dwell_s)
         return LoggedPoint(
-            idx=p.index, target=p.target, commanded=dict(p.readings), readback=readback,
+            idx=p.index, target=p.target, commanded=dict(self.commanded), readback=readback,
             reading_deg=readback[self.bench.imbalance_mount], counts=post, reference=ref,
             dwell_s=self.dwell_s, leak=leak.leak, leak_lo=leak.low, leak_hi=leak.high,
             predicted_leak=float(pred.leak_rate), predicted_rate=float(pred.measured_rate),
@@ -300,7 +303,11 @@ class _Sweep:
         finished = self.log.done_indices(self.run_id)
         todo = [p for p in self.plan if p.index not in finished]
         self.done = len(self.plan) - len(todo)
-        self.check_plan(todo)
+        try:
+            self.check_plan(todo)
+        except (InputError, GuardTrip) as exc:
+            self.log.set_status(self.run_id, "interrupted", f"refused before any move: {exc}")
+            raise
         if finished:
             self.log.add_events(self.run_id, [Event("resume", f"resumed with {len(todo)} of "
                                                               f"{len(self.plan)} points left")])

@@ -1,0 +1,128 @@
+"""The detector guard: whole-path prediction, shutter / dark route / refusal, count checks."""
+
+import dataclasses
+
+import numpy as np
+import pytest
+
+from aligner.bench import load_bench
+from aligner.errors import GuardTrip, InputError
+from aligner.predict import predict
+from aligner.run.guard import DetectorGuard
+
+
+@pytest.fixture(scope="module")
+def bench():
+    return load_bench("demo")
+
+
+def _samples(waypoints, step):
+    return np.concatenate([np.linspace(a, b, max(2, int(abs(b - a) / step) + 2))
+                           for a, b in zip(waypoints[:-1], waypoints[1:], strict=True)])
+
+
+def _dense_peak(bench, readings, mount, waypoints, step=0.01):
+    """Independent check: the prediction on a 10x finer sampling of the executed path."""
+    rates = predict(bench, {**readings, mount: _samples(waypoints, step)}).detector_rate
+    return float(np.max(rates))
+
+
+def test_far_move_is_bright_on_the_way_not_at_the_end(bench):
+    guard = DetectorGuard(bench, has_shutter=True)
+    readings = bench.readings()
+    # from one null (135) to the same element angle half a turn on (315): both ends dark,
+    # the analyzer passes full transmission at 225 on the way
+    ends = predict(bench, {"analyzer": np.array([135.5, 315.5])}).detector_rate
+    assert np.all(ends < guard.limit)
+    plan = guard.plan_move({**readings, "analyzer": 135.5}, "analyzer", 315.5)
+    assert plan.shut_for_move and plan.peak_rate > bench.detector.safe_rate
+
+
+def test_without_shutter_takes_the_dark_equivalent_or_refuses(bench):
+    guard = DetectorGuard(bench, has_shutter=False)
+    readings = {**bench.readings(), "analyzer": 135.5}
+    plan = guard.plan_move(readings, "analyzer", 315.5)
+    assert not plan.shut_for_move and plan.target == pytest.approx(135.5)
+    assert "instead of" in plan.note
+    assert _dense_peak(bench, readings, "analyzer", plan.waypoints) <= bench.detector.safe_rate
+    # a bright target has no dark equivalent: refused with a message that says what to do
+    with pytest.raises(GuardTrip, match="no shutter"):
+        guard.plan_move(readings, "analyzer", 180.0)
+
+
+def test_approach_always_ends_upwards(bench):
+    guard = DetectorGuard(bench, has_shutter=True)
+    readings = bench.readings()
+    down = guard.route("analyzer", 136.0, 135.0)
+    assert down[1] < 135.0 and down[-1] == 135.0  # overshoot below, then up
+    guard.moved("analyzer", 135.0)
+    assert guard.route("analyzer", 135.0, 135.2) == (135.0, 135.2)
+    assert guard.route("analyzer", 135.0, 135.0) == (135.0,)
+    guard.forget()
+    assert len(guard.route("analyzer", 135.0, 135.2)) == 3
+    with pytest.raises(InputError, match="travel"):
+        guard.plan_move(readings, "analyzer", 400.0)
+
+
+def test_count_check_uses_the_dead_time_corrected_rate(bench):
+    guard = DetectorGuard(bench, has_shutter=True)
+    tau = bench.detector.dead_time_ns * 1e-9
+    safe = bench.detector.safe_rate
+    # measured m = n / (1 + n tau) for n = 1.01 safe_rate: Knoll, Radiation Detection and
+    # Measurement (4th ed.), non-paralyzable dead time
+    measured = 1.01 * safe / (1 + 1.01 * safe * tau)
+    assert measured < safe  # the raw count rate alone would pass
+    with pytest.raises(GuardTrip, match="safe_rate"):
+        guard.check_counts(int(measured * 0.1), 0.1)
+    assert guard.check_counts(int(0.5 * safe * 0.1), 0.1) == pytest.approx(
+        0.5 * safe / (1 - 0.5 * safe * tau), rel=1e-4)
+
+
+def test_no_planned_path_exposes_the_detector(bench):
+    """Property: over 10^4 random moves (random starts, targets, settings of the other mounts,
+    with and without a shutter), the detector is never exposed above safe_rate on the path that
+    would be executed, checked on a 5x finer sampling than the guard's."""
+    rng = np.random.default_rng(11)
+    low, high = bench.mounts["analyzer"].travel_deg
+    exposed_checked = refused = shut = 0
+    for setting in range(40):
+        others = {"pre_hwp": 22.5 + rng.normal(0, 2), "pre_qwp": 45 + rng.normal(0, 5)}
+        guard = DetectorGuard(bench, has_shutter=bool(setting % 2))
+        paths = []
+        for _ in range(250):
+            # half the moves near a null (dark paths), half anywhere in travel
+            near = rng.random() < 0.5
+            start, target = (rng.normal(rng.choice([135.0, 315.0]), 3, 2).clip(low + 1, high)
+                             if near else rng.uniform(low + 1, high, 2))
+            readings = {**bench.readings(), **others, "analyzer": float(start)}
+            try:
+                plan = guard.plan_move(readings, "analyzer", float(target))
+            except GuardTrip:
+                refused += 1
+                continue
+            if plan.shut_for_move:
+                shut += 1
+                continue
+            paths.append((readings, plan.waypoints))
+        if not paths:
+            continue
+        # one vectorized prediction over every exposed path of this setting, 0.02 deg apart
+        samples = [_samples(w, 0.02) for _, w in paths]
+        rates = predict(bench, {**paths[0][0], "analyzer": np.concatenate(samples)}).detector_rate
+        bounds = np.cumsum([0] + [len(x) for x in samples])
+        for (_, waypoints), a, b in zip(paths, bounds[:-1], bounds[1:], strict=True):
+            peak = float(rates[a:b].max())
+            assert peak <= bench.detector.safe_rate, (others, waypoints, peak)
+            exposed_checked += 1
+    assert exposed_checked + refused + shut == 10_000
+    assert exposed_checked > 1000 and shut > 1000 and refused > 100  # every branch exercised
+
+
+def test_headroom_and_step_are_checked(bench):
+    with pytest.raises(InputError, match="headroom"):
+        DetectorGuard(bench, has_shutter=True, headroom=0)
+    bright = dataclasses.replace(bench, detector=dataclasses.replace(bench.detector,
+                                                                     safe_rate=10.0))
+    guard = DetectorGuard(bright, has_shutter=True)
+    with pytest.raises(GuardTrip, match="refused"):
+        guard.check_point(100.0, {"analyzer": 136.0})

@@ -1,0 +1,143 @@
+"""The sweep loop: pauses on guard trips, device faults and Ctrl-C; bounded retries; resume."""
+
+import dataclasses
+
+import pytest
+
+from aligner.bench import load_bench
+from aligner.errors import DeviceTimeout, Disconnected, GuardTrip
+from aligner.run.log import RunLog
+from aligner.run.schedule import PlannedPoint, parse_schedule, plan_points
+from aligner.run.simbench import open_devices
+from aligner.run.sweep import SweepOptions, run_sweep, start_run
+from drivers.sim import FunctionCounter
+
+
+@pytest.fixture(scope="module")
+def bench():
+    return load_bench("demo")
+
+
+@pytest.fixture(scope="module")
+def plan(bench):
+    return plan_points(bench, parse_schedule("linear:0.3:1.5:6", dwell_s=0.5))
+
+
+def _start(tmp_path, bench, plan):
+    log = RunLog(tmp_path / "runs.sqlite")
+    return log, start_run(log, bench, parse_schedule("linear:0.3:1.5:6", dwell_s=0.5), plan)
+
+
+class Flaky:
+    """Wraps a device method: raises ``error`` for the calls numbered in ``fail_on``."""
+
+    def __init__(self, fn, fail_on, error):
+        self.fn, self.fail_on, self.error, self.calls = fn, set(fail_on), error, 0
+
+    def __call__(self, *args):
+        self.calls += 1
+        if self.calls in self.fail_on:
+            raise self.error
+        return self.fn(*args)
+
+
+def test_complete_run_logs_every_point(tmp_path, bench, plan):
+    log, run = _start(tmp_path, bench, plan)
+    devices = open_devices(bench)
+    seen = []
+    result = run_sweep(bench, devices, log, run, plan, dwell_s=0.5,
+                       on_point=lambda p, done, total: seen.append((p.idx, done, total)))
+    assert result.status == "complete" and result.points_done == 6
+    assert seen == [(i, i + 1, 6) for i in range(6)]
+    points = log.points(run)
+    assert [p.idx for p in points] == list(range(6))
+    assert all(p.reference is not None and p.pointer is not None for p in points)
+    assert all(p.leak_lo <= p.leak <= p.leak_hi for p in points)
+    assert not devices.shutter.is_open()  # left shut
+    assert log.run(run).status == "complete"
+
+
+def test_bright_count_trips_the_guard_then_resumes(tmp_path, bench, plan):
+    log, run = _start(tmp_path, bench, plan)
+    devices = open_devices(bench)
+    real = devices.counter
+    calls = []
+
+    def count(dwell):
+        calls.append(dwell)
+        return (10**7, 0) if len(calls) == 3 else real.count(dwell)
+
+    devices.counter = FunctionCounter(count, channels=2)
+    result = run_sweep(bench, devices, log, run, plan, dwell_s=0.5)
+    assert (result.status, result.reason, result.points_done) == ("interrupted", "guard", 2)
+    assert not devices.shutter.is_open()
+    assert "safe_rate" in log.run(run).message
+    assert [e.kind for e in log.events(run)][-1] == "guard"
+    devices.counter = real
+    again = run_sweep(bench, devices, log, run, plan, dwell_s=0.5)
+    assert again.status == "complete"
+    assert [p.idx for p in log.points(run)] == list(range(6))
+    assert any(e.kind == "resume" for e in log.events(run))
+
+
+def test_timeouts_are_retried_then_pause(tmp_path, bench, plan):
+    log, run = _start(tmp_path, bench, plan)
+    devices = open_devices(bench)
+    mount = devices.mounts["analyzer"]
+    mount.move_to = Flaky(mount.move_to, {2, 3}, DeviceTimeout("analyzer: no reply"))
+    result = run_sweep(bench, devices, log, run, plan, dwell_s=0.5,
+                       options=SweepOptions(retries=2))
+    assert result.status == "complete"
+    faults = [e for e in log.events(run) if e.kind == "fault"]
+    assert len(faults) == 2 and "no reply" in faults[0].message and faults[0].idx is not None
+
+    log2, run2 = _start(tmp_path / "b", bench, plan)
+    devices = open_devices(bench)
+    mount = devices.mounts["analyzer"]
+    mount.move_to = Flaky(mount.move_to, set(range(5, 100)), DeviceTimeout("analyzer: silent"))
+    result = run_sweep(bench, devices, log2, run2, plan, dwell_s=0.5,
+                       options=SweepOptions(retries=1))
+    assert (result.status, result.reason) == ("interrupted", "device")
+    assert "silent" in result.message and not devices.shutter.is_open()
+    assert len([e for e in log2.events(run2) if e.kind == "fault"]) == 2  # 1 try + 1 retry
+
+
+def test_disconnect_pauses_at_once_and_ctrl_c_pauses(tmp_path, bench, plan):
+    log, run = _start(tmp_path, bench, plan)
+    devices = open_devices(bench)
+    devices.counter.count = Flaky(devices.counter.count, {2}, Disconnected("counter gone"))
+    result = run_sweep(bench, devices, log, run, plan, dwell_s=0.5)
+    assert (result.reason, result.points_done) == ("device", 1)
+    devices = open_devices(bench)
+    devices.counter.count = Flaky(devices.counter.count, {1}, KeyboardInterrupt())
+    result = run_sweep(bench, devices, log, run, plan, dwell_s=0.5)
+    assert (result.reason, result.points_done) == ("interrupt", 1)
+    assert log.run(run).status == "interrupted" and "Ctrl-C" in log.run(run).message
+    assert run_sweep(bench, open_devices(bench), log, run, plan, dwell_s=0.5).status == "complete"
+    assert len(log.points(run)) == 6
+
+
+def test_a_bright_point_is_refused_before_anything_moves(tmp_path, bench, plan):
+    log, run = _start(tmp_path, bench, plan)
+    bad = (*plan, PlannedPoint(6, 0, 45.0, {**plan[0].readings, "analyzer": 180.0}))
+    devices = open_devices(bench)
+    with pytest.raises(GuardTrip, match="point 6"):
+        run_sweep(bench, devices, log, run, bad, dwell_s=0.5)
+    assert devices.mounts["analyzer"].move_log == []
+    assert log.run(run).status == "interrupted"
+
+
+def test_without_shutter_the_guard_keeps_far_moves_dark(tmp_path, bench):
+    # start the simulated analyzer half a turn away: without a shutter the guard must route
+    # the move to the equivalent reading or refuse; the counter never sees a bright gate
+    far = dataclasses.replace(bench, mounts={**bench.mounts, "analyzer": dataclasses.replace(
+        bench.mounts["analyzer"], reading_deg=316.0)})
+    plan = plan_points(bench, parse_schedule("list:0.5", dwell_s=0.5))
+    log, run = _start(tmp_path, bench, plan)
+    devices = open_devices(far, shutter="none")
+    result = run_sweep(bench, devices, log, run, plan, dwell_s=0.5)
+    assert result.status == "complete"
+    point = log.points(run)[0]
+    assert point.reading_deg == pytest.approx(plan[0].readings["analyzer"] + 180.0, abs=0.01)
+    assert point.commanded["analyzer"] == pytest.approx(plan[0].readings["analyzer"] + 180.0)
+    assert any("instead of" in e.message for e in log.events(run))
