@@ -1,6 +1,7 @@
 """The detector guard: whole-path prediction, shutter / dark route / refusal, count checks."""
 
 import dataclasses
+import itertools
 
 import numpy as np
 import pytest
@@ -18,7 +19,7 @@ def bench():
 
 def _samples(waypoints, step):
     return np.concatenate([np.linspace(a, b, max(2, int(abs(b - a) / step) + 2))
-                           for a, b in zip(waypoints[:-1], waypoints[1:], strict=True)])
+                           for a, b in itertools.pairwise(waypoints)])
 
 
 def _dense_peak(bench, readings, mount, waypoints, step=0.01):

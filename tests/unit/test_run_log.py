@@ -55,7 +55,7 @@ def test_duplicate_point_is_refused_and_rolled_back(tmp_path):
 def test_errors_name_the_file(tmp_path):
     bad = tmp_path / "not-a-db.sqlite"
     bad.write_bytes(b"this is not sqlite" * 100)
-    with pytest.raises(DataFileError, match="not-a-db.sqlite"):
+    with pytest.raises(DataFileError, match=r"not-a-db\.sqlite"):
         RunLog(bad)
     with RunLog(tmp_path / "r.sqlite") as log:
         with pytest.raises(DataFileError, match="no run 7"):
