@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import difflib
 import math
+import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -320,15 +321,16 @@ def _angle_or_mount(r: _Reader, mounts: Mapping[str, Any]) -> tuple[float, str |
 def _plate(r: _Reader, element_type: str, wavelength_nm: float) -> tuple[float, Plate | None]:
     from .physics.materials import MATERIALS, PLATE_KINDS, plate_retardance_waves
 
-    if r.has("retardance_waves"):
-        if r.has("plate"):
-            raise r.error("plate", "give either retardance_waves or plate, not both")
-        return r.number("retardance_waves", minimum=0.0), None
+    override = r.number("retardance_waves", minimum=0.0) if r.has("retardance_waves") else None
     if element_type == "retarder":
-        raise r.error("retardance_waves", "is required for a retarder (in waves)")
+        if override is None:
+            raise r.error("retardance_waves", "is required for a retarder (in waves)")
+        if r.has("plate"):
+            raise r.error("plate", "applies to hwp and qwp only; give a retarder retardance_waves")
+        return override, None
     nominal = NOMINAL_WAVES[element_type]
     if not r.has("plate"):
-        return nominal, None
+        return (nominal if override is None else override), None
     pr = _Reader(r.path, r.key("plate"), r.table_of("plate"),
                  ("material", "kind", "design_nm", "order", "thickness_um"))
     material = pr.text("material", "quartz", tuple(MATERIALS))
@@ -342,6 +344,8 @@ def _plate(r: _Reader, element_type: str, wavelength_nm: float) -> tuple[float, 
             raise pr.error(name, f"{lam:g} nm is outside the {material} dispersion fit "
                                  f"({lo * 1000:g}-{hi * 1000:g} nm)")
     plate = Plate(material, kind, design, order, thickness)
+    if override is not None:  # a measured value (e.g. from a waveplate fit) beats the dispersion
+        return override, plate
     waves = float(plate_retardance_waves(nominal, material, kind, design, wavelength_nm,
                                          order=order, thickness_um=thickness))
     return waves, plate
@@ -586,16 +590,29 @@ def load_bench(path: str | Path) -> Bench:
     return parse_bench(_read_document(p).unwrap(), str(p))
 
 
+_INDEXED = re.compile(r"^(?P<name>\w+)\[(?P<index>\d+)\]$")
+
+
 def write_values(path: str | Path, updates: Mapping[str, float | int | str]) -> None:
-    """Store values into a bench file by dotted key (``mounts.analyzer.offset_deg``), keeping
-    comments and layout. The result is validated before the file is replaced, so a bad update
-    never leaves a broken file behind."""
+    """Store values into a bench file by dotted key, keeping comments and layout.
+
+    Keys as in error messages: ``mounts.analyzer.offset_deg``, ``pre[1].retardance_waves``.
+    The result is validated before the file is replaced, so a bad update never leaves a broken
+    file behind."""
     p = resolve_bench_path(path)
     doc = _read_document(p)
     for dotted, value in updates.items():
         *tables, leaf = dotted.split(".")
         node: Any = doc
         for name in tables:
+            indexed = _INDEXED.match(name)
+            if indexed:
+                items = node.get(indexed["name"])
+                index = int(indexed["index"])
+                if not isinstance(items, list) or index >= len(items):
+                    raise BenchFileError(str(p), dotted, "no such element in the file")
+                node = items[index]
+                continue
             if name not in node:
                 node[name] = tomlkit.table()
             node = node[name]
