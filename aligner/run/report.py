@@ -78,6 +78,33 @@ def _plot(record: RunRecord, points: Sequence[LoggedPoint], path: Path) -> None:
     plt.close(fig)
 
 
+def fitted_offset(record: RunRecord, points: Sequence[LoggedPoint]) -> str:
+    """One line on the imbalance offset fitted to the run's counts
+    (:func:`aligner.fit.leakcurve.fit_leak_curve`, reference port as intensity monitor)."""
+    import numpy as np
+
+    from ..errors import AlignerError
+    from ..fit.csvdata import CountScan
+    from ..fit.leakcurve import fit_leak_curve
+    from .sweep import resume_plan
+
+    if len(points) < 4:
+        return "not fitted (fewer than 4 points)"
+    has_ref = all(p.reference for p in points)
+    scan = CountScan(np.array([p.reading_deg for p in points]),
+                     np.array([float(p.counts) for p in points]),
+                     np.array([p.dwell_s for p in points]),
+                     np.array([float(p.reference) for p in points]) if has_ref else None,
+                     f"run {record.id}")
+    try:
+        fit = fit_leak_curve(resume_plan(record)[0], scan, record.imbalance_mount)
+    except AlignerError as exc:
+        return f"not fitted ({exc})"
+    return (f"{fit.imbalance_offset_deg:+.4f} +/- {fit.imbalance_offset_err_deg:.4f} deg "
+            f"(leak floor {fit.leak_floor:.3g} +/- {fit.leak_floor_err:.2g}, bench predicts "
+            f"{fit.predicted_floor:.3g}; {fit.verdict.text})")
+
+
 def _markdown(record: RunRecord, points: Sequence[LoggedPoint], events: Sequence[Event],
               plot: Path | None, note: str) -> str:
     lines = [f"# Run {record.id}: {record.bench_name or 'bench'}", "",
@@ -87,7 +114,8 @@ def _markdown(record: RunRecord, points: Sequence[LoggedPoint], events: Sequence
              f"{record.dwell_s:g} s, settle {record.settle_s:g} s",
              f"- bench file: {record.bench_path} (snapshot kept in the run log)",
              f"- started {record.started_utc}, ended {record.ended_utc or '-'} (UTC)",
-             f"- software: aligner {record.software_version}", ""]
+             f"- software: aligner {record.software_version}",
+             f"- fitted imbalance offset: {fitted_offset(record, points)}", ""]
     if plot is not None:
         lines += [f"![measured and predicted leak rate]({plot.name})", ""]
     elif note:

@@ -84,23 +84,19 @@ class MeasuredLeak:
 
 
 def measured_leak(bench: Bench, counts: int, dwell_s: float) -> MeasuredLeak:
-    """Leak rate from ``counts`` of the post-selected port in ``dwell_s`` s.
-
-    TEMPORARY until aligner.fit provides counts -> leak: Garwood interval (68.3 %) on the
-    counts, dead time undone (non-paralyzable), dark rate removed, divided by
-    ``photon_rate * efficiency``; clipped at 0.
-    """
-    import numpy as np
-
-    from ..physics.counting import garwood
-    from ..physics.detection import true_rate
+    """Leak rate per source photon from ``counts`` of the post-selected port in ``dwell_s`` s,
+    with its exact 68.3 % interval (:func:`aligner.fit.counts.measure_leak`: Garwood on the
+    counts, or Clopper-Pearson on clicks per pulse in pulsed mode; dead time undone, the
+    bench's dark rate removed; reference = photon rate times detector efficiency)."""
+    from ..fit.counts import measure_leak
 
     d = bench.detector
-    low, high = garwood(counts)
-    k = np.array([counts, float(low), float(high)]) / dwell_s
-    signal = true_rate(k, d.dead_time_ns * 1e-9) - d.dark_rate
-    leak = np.maximum(signal / (bench.source.photon_rate * d.efficiency), 0.0)
-    return MeasuredLeak(float(leak[0]), float(leak[1]), float(leak[2]))
+    pulsed = d.mode == "pulsed"
+    m = measure_leak(counts, dwell_s, reference_rate=bench.source.photon_rate * d.efficiency,
+                     dark_rate=d.dark_rate, dead_time_s=d.dead_time_ns * 1e-9,
+                     efficiency=d.efficiency, rep_rate_hz=d.rep_rate_hz if pulsed else None,
+                     dark_probability=d.gate_dark_probability)
+    return MeasuredLeak(float(m.leak or 0.0), float(m.leak_low or 0.0), float(m.leak_high or 0.0))
 
 
 def _bench_text(bench: Bench) -> str:
