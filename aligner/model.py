@@ -124,8 +124,9 @@ def _antiparallel_gap(bench: Bench, readings: Mapping[str, ArrayLike]) -> NDArra
     directions ``n`` (free of the cancellation in ``1 + n_f . n_i`` near the null)."""
     s, e, _ = forward_stokes(bench, readings)
     s_i, s_f = s[..., 1:], e[..., 1:]
-    n_i = s_i / np.linalg.norm(s_i, axis=-1, keepdims=True)
-    n_f = s_f / np.linalg.norm(s_f, axis=-1, keepdims=True)
+    with np.errstate(invalid="ignore", divide="ignore"):  # unpolarized -> NaN, caught by caller
+        n_i = s_i / np.linalg.norm(s_i, axis=-1, keepdims=True)
+        n_f = s_f / np.linalg.norm(s_f, axis=-1, keepdims=True)
     return np.linalg.norm(n_i + n_f, axis=-1) / 2
 
 
