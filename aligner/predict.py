@@ -69,7 +69,10 @@ READOUT_AXIS = {"position": "re", "phase": "re", "momentum": "im"}
 MECHANISMS = ("pointer", "extinction", "resolution", "dark counts")
 
 # Imbalance-mount offsets from the null scanned by the limits and SNR searches (reading deg).
-_OFFSETS = np.logspace(-5, np.log10(45.0), 240)
+# Below ~1e-5 deg the plain post-selection probability of near-pure states (~1e-14) is lost in
+# double-precision rounding of Tr(E rho), so no offset is evaluated closer to the null.
+_FLOOR_DEG = 1e-5
+_OFFSETS = np.logspace(np.log10(_FLOOR_DEG), np.log10(45.0), 240)
 _COARSE_STEP_DEG = 0.5  # grid on which the null is first bracketed
 _DERIVATIVE_STEP = 1e-4  # relative step in g for the readout sensitivity d<r>/dg
 
@@ -329,7 +332,9 @@ class Limits:
     real extinction, only imbalances at least one mount step from the null, and dark counts,
     which carry no pointer shift and so dilute it by the signal share of the counts.
     ``smallest_imbalance_deg``: the imbalance one mount step from the null. ``step_error``:
-    change of the exact amplification for one mount step at the given reading.
+    change of the exact amplification for one mount step at the given reading. Mount steps
+    finer than 1e-5 deg are evaluated at 1e-5 deg (the model's double-precision floor near the
+    null), so the resolution limit is then a lower bound.
     """
 
     axis: str
@@ -380,7 +385,9 @@ def _grid(bench: Bench, null: float, min_offset: float) -> Real:
     """Imbalance-mount readings either side of ``null``: log-spaced offsets of at least
     ``min_offset`` (reading deg), inside the mount's travel, in increasing order."""
     low, high = bench.mounts[bench.imbalance_mount].travel_deg
-    offsets = _OFFSETS[min_offset <= _OFFSETS]
+    offsets = _OFFSETS[min_offset < _OFFSETS]
+    if min_offset >= _FLOOR_DEG:
+        offsets = np.concatenate([[min_offset], offsets])
     x = np.concatenate([null - offsets[::-1], null + offsets])
     return x[(x >= low) & (x <= high)]
 
@@ -466,11 +473,12 @@ def limits(bench: Bench, readings: Mapping[str, float] | None = None,
                                         ("dark counts", ideal, ideal_null, False, True)):
         mechanisms[key] = at(b, *_maximize(_amplifier(b, r, axis, exact=exact, dark=dark),
                                            null_b, bench, 0.0, r[name]))
-    one_step = ideal_null + np.array([-step, step])
+    one_step = ideal_null + np.array([-1.0, 1.0]) * max(step, _FLOOR_DEG)
     values = _amplifier(ideal, r, axis, exact=False, dark=False)(one_step)
     j = _pick(one_step, values, ideal_null, r[name])
     mechanisms["resolution"] = at(ideal, float(one_step[j]), float(values[j]))
-    smallest = mechanisms["resolution"].at_imbalance_deg
+    smallest = float(imbalance_deg(ideal, {**r, name: ideal_null + np.sign(one_step[j] -
+                                                                            ideal_null) * step}))
 
     reading, best = _maximize(_amplifier(bench, r, axis, exact=True, dark=True), null, bench,
                               step, r[name])
