@@ -29,6 +29,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
+from functools import cached_property
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -37,7 +38,7 @@ from ..bench import Bench
 from ..errors import InfeasibleTarget, InputError
 from ..model import coupling_observable, forward, full_readings
 from ..physics.jones import stokes_from_density
-from ..physics.weak import pointer_response, weak_value
+from ..physics.weak import PointerResponse, pointer_response, weak_value
 
 __all__ = [
     "Observed",
@@ -59,18 +60,44 @@ SIGN_STEP_DEG = 1e-6
 NULL_TOL_DEG = 1e-7
 
 
-@dataclass(frozen=True)
 class Observed:
-    """What the planner needs from the forward model (arrays of the readings' shape).
+    """What the planner needs from the forward model at some readings (arrays of the readings'
+    shape), each computed on first use.
 
     ``weak_value`` complex; ``exact`` = ``<q>/g + i <p>/(g/(2 sigma^2))``; ``leak_rate`` per
     source photon; ``gap`` = ``|<f|i>|`` of the pure parts (0 at a null).
     """
 
-    weak_value: Cplx
-    exact: Cplx
-    leak_rate: Real
-    gap: Real
+    def __init__(self, bench: Bench, readings: Mapping[str, ArrayLike] | None) -> None:
+        self._bench = bench
+        self._fwd = forward(bench, readings)
+
+    @cached_property
+    def weak_value(self) -> Cplx:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return weak_value(self._fwd.rho, self._fwd.effect, coupling_observable(self._bench))
+
+    @cached_property
+    def _pointer(self) -> PointerResponse:
+        c = self._bench.coupling
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return pointer_response(self._fwd.rho, self._fwd.effect,
+                                    coupling_observable(self._bench), c.strength, c.pointer_sigma)
+
+    @cached_property
+    def exact(self) -> Cplx:
+        c = self._bench.coupling
+        kick = 2 * c.pointer_sigma**2 / c.strength  # <p> per unit Im A_w is g/(2 sigma^2)
+        return self._pointer.position / c.strength + 1j * self._pointer.momentum * kick
+
+    @cached_property
+    def leak_rate(self) -> Real:
+        return np.asarray(self._pointer.probability, float)
+
+    @cached_property
+    def gap(self) -> Real:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return _gap(self._fwd.rho, self._fwd.effect)
 
     def response(self, exact: bool) -> Cplx:
         """The complex amplification: exact pointer response or the weak value."""
@@ -87,15 +114,7 @@ def _gap(rho: Cplx, effect: Cplx) -> Real:
 
 def observe(bench: Bench, readings: Mapping[str, ArrayLike] | None = None) -> Observed:
     """Weak value, exact amplification, leak rate and null gap at ``readings`` (deg)."""
-    fwd = forward(bench, readings)
-    c = bench.coupling
-    a = coupling_observable(bench)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        wv = weak_value(fwd.rho, fwd.effect, a)
-        resp = pointer_response(fwd.rho, fwd.effect, a, c.strength, c.pointer_sigma)
-        kick = 2 * c.pointer_sigma**2 / c.strength  # <p> per unit Im A_w is g/(2 sigma^2)
-        exact = resp.position / c.strength + 1j * resp.momentum * kick
-    return Observed(wv, exact, np.asarray(resp.probability, float), _gap(fwd.rho, fwd.effect))
+    return Observed(bench, readings)
 
 
 def _with(fixed: Mapping[str, float], name: str, values: ArrayLike) -> dict[str, ArrayLike]:
@@ -328,6 +347,7 @@ class Root:
     null: tuple[float, ...]
     inner: bool  # inside the extinction floor (between the null and the response peak)
     residual: float
+    value: complex  # the signed target this root meets (response, or the leak rate)
 
 
 @dataclass(frozen=True)
@@ -422,8 +442,8 @@ def _solve_one_mount(bench: Bench, target: Target, name: str,
                     tolerances={"xatol": 1e-13, "xrtol": 1e-14})
     x = c + d * res.x
     resid = np.abs(along(res.x, c, d, v_arr))
-    roots = tuple(Root((float(x[k]),), (float(c[k]),), bool(meta[k][2]), float(resid[k]))
-                  for k in range(len(meta)) if res.success[k])
+    roots = tuple(Root((float(x[k]),), (float(c[k]),), bool(meta[k][2]), float(resid[k]),
+                       complex(v_arr[k])) for k in range(len(meta)) if res.success[k])
     return Solution((name,), roots, peak, sum(s.null is not None for s in segs))
 
 
@@ -521,11 +541,11 @@ def _polish(bench: Bench, target: Target, names: Sequence[str], fixed: Mapping[s
     x = x0.copy()
     for _ in range(25):
         rr = residuals(x[:, None, :] + steps, values[:, None], scale)  # (k, n+1, 2)
-        f = rr[:, 0]
-        if np.all(np.linalg.norm(f, axis=-1) < 1e-13):
-            break
         jac = np.swapaxes((rr[:, 1:] - rr[:, :1]) / h, 1, 2)  # (k, 2, n)
-        x = x - np.einsum("kij,kj->ki", np.linalg.pinv(jac), f)
+        step = np.einsum("kij,kj->ki", np.linalg.pinv(jac), rr[:, 0])
+        x = x - step
+        if np.all(np.abs(step) < 1e-11):
+            break
     res = np.linalg.norm(residuals(x, values, scale[:, 0]), axis=-1)
     for k in np.nonzero(~(res < 1e-9))[0]:
         fit = least_squares(lambda y, k=k: residuals(y, values[k], scale[k, 0]), x0[k],
@@ -599,7 +619,7 @@ def _solve_many_mounts(bench: Bench, target: Target, names: tuple[str, ...],
         for y in _translations(x[k], names, bench):
             shift = y - x[k]
             roots.append(Root(tuple(float(v) for v in y), tuple(float(v) for v in null + shift),
-                              meta[k][1], float(resid[k])))
+                              meta[k][1], float(resid[k]), complex(v_ray[rays[k]])))
     return Solution(names, tuple(roots), peak, count)
 
 
@@ -608,8 +628,13 @@ def solve(bench: Bench, target: Target, free: Sequence[str] = ()) -> Solution:
     names = unknown_mounts(bench, target, free)
     fixed = {k: v for k, v in bench.readings().items() if k not in names}
     if len(names) == 1:
-        return _solve_one_mount(bench, target, names[0], fixed)
-    return _solve_many_mounts(bench, target, names, fixed)
+        sol = _solve_one_mount(bench, target, names[0], fixed)
+    else:
+        sol = _solve_many_mounts(bench, target, names, fixed)
+    unique: dict[tuple[float, ...], Root] = {}
+    for root in sol.roots:  # a polish may land on a root already found from another null
+        unique.setdefault(tuple(np.round(root.readings, 6)), root)
+    return replace(sol, roots=tuple(unique.values()))
 
 
 def pointer_cap(bench: Bench) -> float:
