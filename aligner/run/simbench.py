@@ -29,7 +29,7 @@ from __future__ import annotations
 import math
 import time
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -164,7 +164,6 @@ class DeviceSet:
     pointer: PointerReader | None = None
     sim: SimBench | None = None
     simulated_time: bool = True
-    _closers: list[Any] = field(default_factory=list)
 
     def wait(self, seconds: float) -> None:
         """Let ``seconds`` pass: really, or on the simulated clock."""
