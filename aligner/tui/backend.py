@@ -1,0 +1,175 @@
+"""What the desk works with: the bench, the engine calls and the devices, in one object.
+
+The app is handed a :class:`DeskBackend`; tests build one with simulated time and a temporary
+run log, the command line with real-time simulated (or real) devices. Every number the desk
+shows comes from one of these calls; nothing here computes optics.
+"""
+
+from __future__ import annotations
+
+import threading
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import replace
+from pathlib import Path
+from typing import Any
+
+from ..bench import Bench
+from ..errors import InputError
+from ..run.log import LoggedPoint, RunLog
+from ..run.simbench import DeviceSet
+
+__all__ = ["DeskBackend", "PointHook", "SweepStopped"]
+
+#: Called from the sweep thread after each committed point: (point, done, total, run log).
+PointHook = Callable[[LoggedPoint, int, int, RunLog], None]
+
+
+class SweepStopped(KeyboardInterrupt):
+    """Raised inside the sweep loop when the operator asks it to pause.
+
+    A ``KeyboardInterrupt`` so the sweep loop pauses exactly as on Ctrl-C: mounts stopped,
+    shutter shut, the run marked interrupted and resumable."""
+
+
+class DeskBackend:
+    """The bench, its run log and its devices, and the engine calls the desk makes.
+
+    ``db_path`` is the SQLite run log (default: the user data folder); ``device_factory``
+    opens the devices for a bench (default :func:`aligner.run.simbench.open_devices` with
+    ``realtime``). Devices are opened at the first sweep and kept until :meth:`close`.
+    """
+
+    def __init__(self, bench: Bench, *, db_path: str | Path | None = None,
+                 device_factory: Callable[[Bench], DeviceSet] | None = None,
+                 realtime: bool = False) -> None:
+        from ..run.log import default_db_path
+
+        self.bench = bench
+        self.db_path = Path(db_path) if db_path is not None else default_db_path()
+        self.realtime = realtime
+        self._device_factory = device_factory
+        self._devices: DeviceSet | None = None
+        self._stop = threading.Event()
+        #: True while :meth:`sweep` runs (in its worker thread).
+        self.sweeping = False
+
+    # -- bench and predictions ---------------------------------------------------------------
+
+    def bench_at(self, readings: Mapping[str, float]) -> Bench:
+        """The bench with its mounts' readings (deg) replaced by ``readings``."""
+        unknown = sorted(set(readings) - set(self.bench.mounts))
+        if unknown:
+            raise InputError(f"unknown mount(s) {', '.join(unknown)}; the bench has "
+                             f"{', '.join(self.bench.mounts)}")
+        return self.bench.with_mounts(**{
+            name: replace(self.bench.mounts[name], reading_deg=float(value))
+            for name, value in readings.items()})
+
+    def predict(self, readings: Mapping[str, float]) -> Any:
+        """:func:`aligner.predict.predict` at ``readings`` (deg)."""
+        from ..predict import predict
+
+        return predict(self.bench, dict(readings))
+
+    def predict_curve(self, readings: Mapping[str, float], imbalance_readings: Any) -> Any:
+        """The prediction along the imbalance mount (an array of its readings, deg), the other
+        mounts at ``readings``."""
+        from ..predict import predict
+
+        return predict(self.bench, {**readings, self.bench.imbalance_mount: imbalance_readings})
+
+    def limits(self, readings: Mapping[str, float]) -> Any:
+        """:func:`aligner.predict.limits` at ``readings`` (deg)."""
+        from ..predict import limits
+
+        return limits(self.bench, dict(readings))
+
+    def find_null(self, readings: Mapping[str, float]) -> float:
+        """Reading (deg) of the imbalance mount at the null nearest its reading."""
+        from ..predict import find_null
+
+        return find_null(self.bench, dict(readings))
+
+    def plan(self, readings: Mapping[str, float], **target: Any) -> Any:
+        """:func:`aligner.plan.plan` for ``target`` on the bench at ``readings`` (deg)."""
+        from ..plan import plan
+
+        return plan(self.bench_at(readings), **target)
+
+    # -- sweeps -------------------------------------------------------------------------------
+
+    def devices(self, readings: Mapping[str, float]) -> DeviceSet:
+        """The bench's devices, opened on first use with the mounts at ``readings``."""
+        if self._devices is None:
+            bench = self.bench_at(readings)
+            if self._device_factory is not None:
+                self._devices = self._device_factory(bench)
+            else:
+                from ..run.simbench import open_devices
+
+                self._devices = open_devices(bench, realtime=self.realtime)
+        return self._devices
+
+    def request_stop(self) -> None:
+        """Ask a running sweep to pause after the point it is taking."""
+        self._stop.set()
+
+    def sweep(self, spec: str, dwell_s: float, readings: Mapping[str, float], *,
+              on_point: PointHook,
+              on_start: Callable[[int, Sequence[Any], RunLog], None] | None = None,
+              resume_run: int | None = None) -> Any:
+        """Plan and run a sweep (or resume run ``resume_run``); blocking, for a worker thread.
+
+        ``spec`` is a one-word schedule (:func:`aligner.run.schedule.parse_schedule`),
+        ``dwell_s`` the count time per point (s); other mounts stay at ``readings`` (deg).
+        ``on_start(run_id, planned_points, run_log)`` is called once the run exists. Returns the engine's
+        ``SweepResult``; a pause asked with :meth:`request_stop` ends it ``interrupted``.
+        """
+        self._stop.clear()
+        self.sweeping = True
+        try:
+            return self._sweep(spec, dwell_s, readings, on_point, on_start, resume_run)
+        finally:
+            self.sweeping = False
+
+    def _sweep(self, spec: str, dwell_s: float, readings: Mapping[str, float],
+               on_point: PointHook,
+               on_start: Callable[[int, Sequence[Any], RunLog], None] | None,
+               resume_run: int | None) -> Any:
+        from ..run.schedule import parse_schedule, plan_points
+        from ..run.sweep import resume_plan, run_sweep, start_run
+
+        with RunLog(self.db_path) as log:
+            if resume_run is None:
+                bench = self.bench_at(readings)
+                schedule = parse_schedule(spec, dwell_s=dwell_s)
+                points = plan_points(bench, schedule)
+                run_id = start_run(log, bench, schedule, points)
+                settle_s = schedule.settle_s
+            else:
+                record = log.run(resume_run)
+                bench, points = resume_plan(record)
+                run_id, dwell_s, settle_s = record.id, record.dwell_s, record.settle_s
+            if on_start is not None:
+                on_start(run_id, points, log)
+            devices = self.devices(readings)
+
+            def hook(point: LoggedPoint, done: int, total: int) -> None:
+                on_point(point, done, total, log)
+                if self._stop.is_set():
+                    raise SweepStopped
+
+            return run_sweep(bench, devices, log, run_id, points, dwell_s=dwell_s,
+                             settle_s=settle_s, on_point=hook)
+
+    # -- the run log --------------------------------------------------------------------------
+
+    def run_log(self) -> RunLog:
+        """A new connection to the run log (one per thread; close it after use)."""
+        return RunLog(self.db_path)
+
+    def close(self) -> None:
+        """Close the devices, if any were opened."""
+        if self._devices is not None:
+            self._devices.close()
+            self._devices = None

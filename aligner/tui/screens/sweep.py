@@ -1,0 +1,194 @@
+"""Sweep screen: schedule and dwell, start / pause / resume, the live plot, points and events."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+from textual import on, work
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical
+from textual.widgets import Input, Label, ProgressBar, Static
+
+from ...errors import AlignerError
+from ..messages import SweepEnded, SweepProgress, SweepStarted
+from ..widgets.event_list import EventList
+from ..widgets.leak_plot import LeakPlot
+from ..widgets.points_table import PointsTable
+from .base import DeskScreen
+
+__all__ = ["SweepScreen"]
+
+DEFAULT_SCHEDULE = "amplification:5:60:8"
+#: Readings of the prediction curve, and the margin (share of the span) added either side.
+CURVE_POINTS, CURVE_MARGIN = 240, 0.1
+
+
+class SweepScreen(DeskScreen):
+    """Run a sweep in a worker thread; the engine moves, counts, guards and logs."""
+
+    MODE = "sweep"
+    BINDINGS = [
+        Binding("ctrl+s", "start", "Start", priority=True),
+        Binding("ctrl+b", "pause", "Pause", priority=True),
+        Binding("ctrl+r", "resume", "Resume", priority=True),
+    ]
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.running = False
+        self.run_id: int | None = None
+        self.paused_run: int | None = None
+        self.curve: tuple[Any, Any] | None = None
+
+    def compose_body(self) -> ComposeResult:
+        with Horizontal(id="sweep-form"):
+            yield Label("schedule", classes="form-label")
+            yield Input(DEFAULT_SCHEDULE, id="schedule", placeholder="linear:-1:1:11")
+            yield Label("dwell (s)", classes="form-label")
+            yield Input("1", id="dwell", type="number")
+            yield ProgressBar(id="progress", show_eta=False)
+        yield Static("idle: Ctrl+S starts a new run (Enter in a field too)", id="sweep-status")
+        with Horizontal(id="sweep-body"):
+            yield LeakPlot(id="sweep-plot")
+            with Vertical(id="sweep-right"):
+                yield PointsTable(id="sweep-points")
+                yield EventList(id="sweep-events")
+
+    # -- actions -------------------------------------------------------------------------------
+
+    def action_start(self) -> None:
+        if self.running:
+            self.status("a sweep is running; Ctrl+B pauses it first", error=True)
+            return
+        spec = self.query_one("#schedule", Input).value.strip()
+        try:
+            dwell = float(self.query_one("#dwell", Input).value)
+        except ValueError:
+            self.status("dwell: give the count time per point in seconds, e.g. 1", error=True)
+            return
+        self.begin(spec, dwell, None)
+
+    def action_resume(self) -> None:
+        if self.running:
+            return
+        if self.paused_run is None:
+            self.status("nothing to resume here: no run was paused on this screen "
+                        "(resume older runs with 'aligner sweep --resume RUN')", error=True)
+            return
+        self.begin("", 0.0, self.paused_run)
+
+    def action_pause(self) -> None:
+        if not self.running:
+            self.status("no sweep is running", error=True)
+            return
+        self.backend.request_stop()
+        self.status("pausing after the point being counted…")
+
+    @on(Input.Submitted)
+    def submitted(self) -> None:
+        self.action_start()
+
+    def begin(self, spec: str, dwell: float, resume_run: int | None) -> None:
+        """Start (or resume) a sweep in a worker thread."""
+        self.running = True
+        self.paused_run = None
+        self.query_one(PointsTable).reset()
+        self.query_one(EventList).show(())
+        self.status("resuming run…" if resume_run else f"planning {spec}…")
+        self.sweep_worker(spec, dwell, dict(self.desk.readings), resume_run)
+
+    @work(thread=True, exclusive=True, group="sweep")
+    def sweep_worker(self, spec: str, dwell: float, readings: dict[str, float],
+                     resume_run: int | None) -> None:
+        points: list[Any] = []
+        started: dict[str, int] = {}
+
+        def on_start(run_id: int, plan: Any, log: Any) -> None:
+            started["run"] = run_id
+            points.extend(log.points(run_id))
+            target = [p.readings[self.backend.bench.imbalance_mount] for p in plan
+                      if self.backend.bench.imbalance_mount in p.readings]
+            self.post_message(SweepStarted(run_id, len(plan), tuple(target), tuple(points)))
+
+        def on_point(point: Any, done: int, total: int, log: Any) -> None:
+            points.append(point)
+            self.post_message(SweepProgress(started["run"], done, total, tuple(points),
+                                            tuple(log.events(started["run"]))))
+
+        try:
+            result = self.backend.sweep(spec, dwell, readings, on_point=on_point,
+                                        on_start=on_start, resume_run=resume_run)
+        except AlignerError as exc:
+            self.post_message(SweepEnded(error=str(exc)))
+            return
+        self.post_message(SweepEnded(result=result))
+
+    # -- messages from the worker ------------------------------------------------------------
+
+    @on(SweepStarted)
+    def sweep_started(self, event: SweepStarted) -> None:
+        self.run_id = event.run_id
+        bar = self.query_one(ProgressBar)
+        bar.update(total=event.total, progress=len(event.points))
+        self.curve = self.prediction_curve(event.imbalance_readings)
+        self.query_one(LeakPlot).show(event.points, self.curve)
+        self.query_one(PointsTable).show(event.points)
+        self.status(f"run {event.run_id}: {len(event.points)} of {event.total} points; "
+                    "Ctrl+B pauses")
+
+    @on(SweepProgress)
+    def sweep_progress(self, event: SweepProgress) -> None:
+        self.query_one(ProgressBar).update(total=event.total, progress=event.done)
+        self.query_one(LeakPlot).show(event.points, self.curve)
+        self.query_one(PointsTable).show(event.points)
+        self.query_one(EventList).show(event.events)
+        last = event.points[-1]
+        self.status(f"run {event.run_id}: point {event.done} of {event.total}, imbalance "
+                    f"{last.imbalance_deg:+.4f}°, {last.counts} counts; Ctrl+B pauses")
+
+    @on(SweepEnded)
+    def sweep_ended(self, event: SweepEnded) -> None:
+        self.running = False
+        if event.error:
+            self.status(f"not started: {event.error}", error=True)
+            self.query_one(EventList).show((), extra=event.error)
+            return
+        r = event.result
+        with self.backend.run_log() as log:
+            events = log.events(r.run_id)
+        self.query_one(EventList).show(events)
+        if r.status == "complete":
+            self.status(f"run {r.run_id} complete: {r.points_done} of {r.points_total} points "
+                        "logged; shutter shut")
+            return
+        self.paused_run = r.run_id
+        why = {"interrupt": "paused at the operator's request", "guard": "STOPPED BY THE "
+               "DETECTOR GUARD", "device": "STOPPED BY A DEVICE FAULT"}.get(r.reason, r.reason)
+        detail = "" if r.reason == "interrupt" else f": {r.message}"
+        self.status(f"run {r.run_id} {why}{detail}. Mounts stopped, shutter shut; "
+                    f"{r.points_done} of {r.points_total} points logged. Ctrl+R resumes.",
+                    error=r.reason != "interrupt")
+
+    # -- helpers -------------------------------------------------------------------------------
+
+    def prediction_curve(self, readings: tuple[float, ...]) -> tuple[Any, Any] | None:
+        """The predicted leak rate along the planned readings of the imbalance mount."""
+        if not readings:
+            return None
+        low, high = min(readings), max(readings)
+        margin = CURVE_MARGIN * (high - low)
+        grid = np.linspace(low - margin, high + margin, CURVE_POINTS)
+        try:
+            p = self.backend.predict_curve(self.desk.readings, grid)
+        except AlignerError:
+            return None
+        order = np.argsort(p.imbalance_deg)
+        return p.imbalance_deg[order].tolist(), p.leak_rate[order].tolist()
+
+    def status(self, text: str, *, error: bool = False) -> None:
+        """Say what the sweep is doing (errors in the warning style)."""
+        line = self.query_one("#sweep-status", Static)
+        line.update(text)
+        line.set_class(error, "problem")

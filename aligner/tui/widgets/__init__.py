@@ -1,0 +1,1 @@
+"""The desk's widgets, one per module."""

@@ -1,0 +1,54 @@
+"""Where the amplification stops growing on this bench, and why, in words."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from rich.console import Group
+from rich.table import Table
+from rich.text import Text
+from textual.widgets import Static
+
+from ..format import num
+
+__all__ = ["LimitsPanel"]
+
+
+class LimitsPanel(Static):
+    """The combined limit (largest amplification, where, what limits it) and each mechanism
+    alone, from :func:`aligner.predict.limits`."""
+
+    def __init__(self, **kwargs: Any) -> None:
+        super().__init__("working out the limits…", **kwargs)
+        self.border_title = "Limits of amplification"
+
+    def pending(self) -> None:
+        """Say that new limits are being worked out."""
+        self.border_subtitle = "updating…"
+
+    def failed(self, message: str) -> None:
+        """Show why the limits could not be worked out."""
+        self.border_subtitle = ""
+        self.update(Text(message, style="bold red"))
+
+    def show(self, lim: Any) -> None:
+        """Show an :class:`aligner.predict.Limits`."""
+        self.border_subtitle = ""
+        head = Table.grid(padding=(0, 2))
+        head.add_column(style="bold", no_wrap=True)
+        head.add_column()
+        head.add_row("largest amplification", f"{num(lim.max_amplification, 4)} "
+                                             f"(axis {lim.axis})")
+        head.add_row("at imbalance", f"{lim.at_imbalance_deg:+.4f}° (reading "
+                                     f"{lim.at_reading_deg:.4f}°, null at "
+                                     f"{lim.null_reading_deg:.4f}°)")
+        head.add_row("limited by", lim.limited_by)
+        alone = Table(box=None, padding=(0, 1), show_edge=False, header_style="bold")
+        alone.add_column("each alone")
+        alone.add_column("max", justify="right")
+        alone.add_column("at imbalance", justify="right")
+        for name, m in lim.mechanisms.items():
+            mark = "▶ " if name == lim.limited_by else "  "
+            alone.add_row(f"{mark}{name}", num(m.max_amplification, 4),
+                          f"{m.at_imbalance_deg:+.4f}°")
+        self.update(Group(head, Text(""), Text(lim.explanation), Text(""), alone))

@@ -1,0 +1,70 @@
+"""The live prediction at the current readings, with the detector rate warned about plainly."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from rich.table import Table
+from textual.app import ComposeResult
+from textual.containers import Vertical
+from textual.widgets import Static
+
+from ...bench import Bench
+from ..format import num, rate, sci
+
+__all__ = ["PredictionPanel"]
+
+_AXIS = {"re": "Re A_w", "im": "Im A_w"}
+
+
+def _grid() -> Table:
+    table = Table.grid(padding=(0, 2))
+    table.add_column(style="bold", no_wrap=True)
+    table.add_column(no_wrap=True)
+    return table
+
+
+class PredictionPanel(Vertical):
+    """Weak value, leak rate, amplification (linear and exact), pointer shift, SNR, and the
+    detector rate against the bench's safe rate (class ``danger`` when over it or saturated)."""
+
+    def __init__(self, bench: Bench, **kwargs: Any) -> None:
+        super().__init__(**kwargs)
+        self.bench = bench
+        self.border_title = "Prediction at these readings"
+
+    def compose(self) -> ComposeResult:
+        yield Static(id="prediction-numbers")
+        yield Static(id="detector-status", classes="detector-status")
+
+    def show(self, p: Any) -> None:
+        """Show a scalar :class:`aligner.predict.Prediction`."""
+        wv = complex(p.weak_value)
+        sign = "+" if wv.imag >= 0 else "−"
+        t = _grid()
+        t.add_row("imbalance", f"{float(p.imbalance_deg):+.4f}° from the null")
+        t.add_row("weak value A_w", f"{wv.real:.5g} {sign} {abs(wv.imag):.4g} i")
+        t.add_row("leak rate", f"{sci(p.leak_rate)} per source photon")
+        t.add_row("amplification", f"linear {num(p.amplification_linear, 5)} · exact "
+                                   f"{num(p.amplification_exact, 5)} ({_AXIS[p.axis]})")
+        t.add_row("pointer shift", f"{num(p.pointer_shift, 4)} {p.units}")
+        t.add_row("SNR", f"{num(p.snr_per_sqrt_s, 4)} per √s of counting")
+        self.query_one("#prediction-numbers", Static).update(t)
+        self._detector(p)
+
+    def _detector(self, p: Any) -> None:
+        d = self.bench.detector
+        over, saturated = bool(p.over_safe_rate), bool(p.saturated)
+        t = _grid()
+        t.add_row("detector", f"{rate(p.detector_rate)} true, {rate(p.measured_rate)} counted")
+        t.add_row("safe rate", rate(d.safe_rate))
+        if over or saturated:
+            why = " and ".join(w for w, on in (("ABOVE THE SAFE RATE", over),
+                                              ("SATURATED", saturated)) if on)
+            t.add_row("⚠ DANGER", f"{why}: keep the shutter shut or the beam blocked "
+                                  "before exposing the detector")
+        else:
+            t.add_row("", "below the safe rate, not saturated")
+        box = self.query_one("#detector-status", Static)
+        box.update(t)
+        box.set_class(over or saturated, "danger")

@@ -1,0 +1,115 @@
+"""Mount readings the operator edits: one input per mount, arrow keys step by the resolution."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical
+from textual.validation import ValidationResult, Validator
+from textual.widgets import Input, Label, Static
+
+from ...bench import Mount
+from ..messages import ReadingsChanged
+
+__all__ = ["ReadingInput", "ReadingsEditor"]
+
+
+def _decimals(step: float) -> int:
+    return max(0, -math.floor(math.log10(step))) if step > 0 else 3
+
+
+class _InTravel(Validator):
+    """A finite number of degrees inside the mount's travel."""
+
+    def __init__(self, mount: Mount) -> None:
+        super().__init__()
+        self.mount = mount
+
+    def validate(self, value: str) -> ValidationResult:
+        try:
+            x = float(value)
+        except ValueError:
+            return self.failure(f"{self.mount.name}: {value!r} is not a number of degrees")
+        low, high = self.mount.travel_deg
+        if not math.isfinite(x):
+            return self.failure(f"{self.mount.name}: the reading must be finite")
+        if not low <= x <= high:
+            return self.failure(f"{self.mount.name}: {x:g} deg is outside its travel "
+                                f"[{low:g}, {high:g}] deg")
+        return self.success()
+
+
+class ReadingInput(Input):
+    """A reading in degrees; ↑/↓ step by the mount's resolution, PgUp/PgDn by 100 steps."""
+
+    BINDINGS = [
+        Binding("up", "step(1)", "+1 step", show=False),
+        Binding("down", "step(-1)", "−1 step", show=False),
+        Binding("pageup", "step(100)", "+100 steps", show=False),
+        Binding("pagedown", "step(-100)", "−100 steps", show=False),
+    ]
+
+    def __init__(self, mount: Mount, reading: float) -> None:
+        self.mount = mount
+        self.decimals = _decimals(mount.resolution_deg)
+        super().__init__(self.format(reading), id=f"reading-{mount.name}",
+                         validators=[_InTravel(mount)], classes="reading-input")
+
+    def format(self, reading: float) -> str:
+        """The reading with as many decimals as the mount resolves."""
+        return f"{reading:.{self.decimals}f}"
+
+    def action_step(self, steps: int) -> None:
+        try:
+            current = float(self.value)
+        except ValueError:
+            return
+        low, high = self.mount.travel_deg
+        target = min(max(current + steps * self.mount.resolution_deg, low), high)
+        self.value = self.format(target)
+        self.cursor_position = len(self.value)
+
+
+class ReadingsEditor(Vertical):
+    """One row per mount: name, reading input, step and travel. Posts ``ReadingsChanged``
+    with every mount's reading whenever a valid reading changes."""
+
+    def __init__(self, mounts: Mapping[str, Mount], readings: Mapping[str, float],
+                 **kwargs: object) -> None:
+        super().__init__(**kwargs)
+        self.mounts = dict(mounts)
+        self.readings = {k: float(v) for k, v in readings.items()}
+
+    def compose(self) -> ComposeResult:
+        for name, mount in self.mounts.items():
+            with Horizontal(classes="reading-row"):
+                yield Label(name, classes="reading-name")
+                yield ReadingInput(mount, self.readings[name])
+                low, high = mount.travel_deg
+                yield Label(f"step {mount.resolution_deg:g}°, travel {low:g}…{high:g}°",
+                            classes="reading-step")
+        yield Static("", id="reading-problem", classes="problem")
+
+    def set_readings(self, readings: Mapping[str, float]) -> None:
+        """Show ``readings`` (deg) in the inputs without posting a change."""
+        for name, value in readings.items():
+            box = self.query_one(f"#reading-{name}", ReadingInput)
+            with box.prevent(Input.Changed):
+                box.value = box.format(float(value))
+            self.readings[name] = float(box.value)
+        self.query_one("#reading-problem", Static).update("")
+
+    def on_input_changed(self, event: Input.Changed) -> None:
+        if not isinstance(event.input, ReadingInput):
+            return
+        event.stop()
+        problem = self.query_one("#reading-problem", Static)
+        if event.validation_result is not None and not event.validation_result.is_valid:
+            problem.update("; ".join(event.validation_result.failure_descriptions))
+            return
+        problem.update("")
+        self.readings[event.input.mount.name] = float(event.value)
+        self.post_message(ReadingsChanged(dict(self.readings)))
