@@ -19,6 +19,7 @@ import numpy as np
 from ..bench import Bench
 from ..errors import InfeasibleTarget, InputError
 from ..model import imbalance_deg
+from ..predict import readout_axis
 from .solve import (
     Root,
     Target,
@@ -287,14 +288,15 @@ def _warnings(bench: Bench, target: Target, branch: Branch,
     return out
 
 
-def plan(bench: Bench, amplification: float | None = None, *, axis: str = "re",
+def plan(bench: Bench, amplification: float | None = None, *, axis: str | None = None,
          exact: bool = False, weak_value: complex | None = None, leak_rate: float | None = None,
          free: Sequence[str] = (), branch: int | None = None, samples: int = 100_000,
          seed: int = 0, predict: bool = True) -> Plan:
     """Plan the mount readings for exactly one target.
 
-    ``amplification`` (size > 0; ``axis`` ``re``/``im``; ``exact`` for the all-orders pointer
-    response), ``weak_value`` (complex) or ``leak_rate`` (per source photon). Unknowns: the
+    ``amplification`` (size > 0; ``axis`` ``re``/``im``, default the readout's: position and
+    phase read ``re``, momentum ``im``; ``exact`` for the all-orders pointer response),
+    ``weak_value`` (complex) or ``leak_rate`` (per source photon). Unknowns: the
     bench's ``imbalance_mount``, its ``phase_mount`` for amplification and weak-value targets,
     and any ``free`` mounts. ``branch`` picks a solution other than the default (weak regime,
     nearest the current readings). ``samples`` = 0 skips the Monte Carlo tolerance budget;
@@ -303,7 +305,8 @@ def plan(bench: Bench, amplification: float | None = None, *, axis: str = "re",
     Raises :class:`InfeasibleTarget` (the limit and the achievable value in the message) and
     :class:`InputError` for bad arguments.
     """
-    target = make_target(amplification, axis=axis, exact=exact, weak_value=weak_value,
+    target = make_target(amplification, axis=axis or readout_axis(bench), exact=exact,
+                         weak_value=weak_value,
                          leak_rate=leak_rate)
     if int(samples) < 0:
         raise InputError(f"samples must be >= 0, got {samples!r}")

@@ -738,18 +738,23 @@ def make_target(amplification: float | None = None, *, axis: str = "re", exact: 
     return Target("leak_rate", complex(p))
 
 
-def readings_for_amplification(bench: Bench, amplification: ArrayLike, *, axis: str = "re",
-                               exact: bool = False) -> dict[str, ArrayLike]:
+def readings_for_amplification(bench: Bench, amplification: ArrayLike, *,
+                               axis: str | None = None, exact: bool = False,
+                               ) -> dict[str, ArrayLike]:
     """Readings (deg) of the planner's unknown mounts (the imbalance mount, plus the phase mount
     when the bench has one, which keeps the weak value on ``axis``) for an amplification of
-    size ``amplification`` (linear ``Re``/``Im A_w``, or exact pointer response).
+    size ``amplification`` (linear ``Re``/``Im A_w``, or exact pointer response). ``axis``
+    defaults to the readout's (position and phase: ``re``; momentum: ``im``).
 
     The root chosen is the plan's default: the weak-regime branch nearest the file readings;
     for an array of targets, each is taken nearest the previous one (a continuous sweep).
     Floats in, floats out; arrays give arrays of the same shape. Raises
     :class:`InfeasibleTarget` (with the limit) for an unreachable target.
     """
+    from ..predict import readout_axis
+
     values = np.asarray(amplification, float)
+    axis = axis or readout_axis(bench)
     near = dict(bench.readings())
     out: dict[str, list[float]] = {}
     for x in values.ravel():
