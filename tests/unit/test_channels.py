@@ -331,3 +331,11 @@ def test_povm_effect_stays_between_zero_and_identity(chain, angle, er, t):
     eig = np.linalg.eigvalsh(effect)
     assert eig.min() >= -1e-12
     assert eig.max() <= 1 + 1e-12
+
+
+@pytest.mark.xfail(strict=True, reason="reported bug: Polarizer.forward leaves the transmission "
+                   "out of its broadcast shape, so an array of transmissions fails")
+def test_polarizer_broadcasts_transmission():
+    t = np.array([0.5, 0.9])
+    out = C.Polarizer(0.0, 1e3, t).forward(np.array([1.0, 0.0, 0.0, 0.0]))
+    np.testing.assert_allclose(out[:, 0], t * (1 + 1e-3) / 2, rtol=1e-12)
