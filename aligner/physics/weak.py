@@ -17,7 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from .jones import PAULI, adjoint, matmul2, named_vector, projector
+from .jones import PAULI, matmul2, named_vector, projector
 
 __all__ = [
     "OBSERVABLE_NAMES",
@@ -86,6 +86,12 @@ class PointerResponse:
     momentum: Real
 
 
+def _in_basis(x: Complex, vectors: Complex, j: int, k: int) -> Complex:
+    """Element ``(j, k)`` of ``V^dagger x V`` (only the elements needed, for large stacks)."""
+    return sum(np.conj(vectors[..., a, j]) * vectors[..., b, k] * x[..., a, b]
+               for a in (0, 1) for b in (0, 1))
+
+
 def pointer_response(
     rho: ArrayLike, effect: ArrayLike, observable: ArrayLike, g: ArrayLike, sigma: ArrayLike
 ) -> PointerResponse:
@@ -97,8 +103,8 @@ def pointer_response(
     ``<p> P = sum M O i (c_k - c_j)/(4 sigma^2)``.
     """
     values, vectors = np.linalg.eigh(np.asarray(observable, complex))
-    rho_e = matmul2(matmul2(adjoint(vectors), np.asarray(rho, complex)), vectors)
-    eff_e = matmul2(matmul2(adjoint(vectors), np.asarray(effect, complex)), vectors)
+    rho = np.asarray(rho, complex)
+    effect = np.asarray(effect, complex)
     g = np.asarray(g, float)
     sigma = np.asarray(sigma, float)
     c = g[..., None] * values  # (..., 2): pointer shift of each eigenstate
@@ -106,9 +112,9 @@ def pointer_response(
     overlap = np.exp(-((c0 - c1) ** 2) / (8 * sigma**2))
     # Diagonal terms (j = k) have unit overlap and no momentum kick; the two off-diagonal terms
     # are complex conjugates, so their sum is twice the real part of one.
-    m00 = np.real(rho_e[..., 0, 0] * eff_e[..., 0, 0])
-    m11 = np.real(rho_e[..., 1, 1] * eff_e[..., 1, 1])
-    m01 = rho_e[..., 0, 1] * eff_e[..., 1, 0]
+    m00 = np.real(_in_basis(rho, vectors, 0, 0) * _in_basis(effect, vectors, 0, 0))
+    m11 = np.real(_in_basis(rho, vectors, 1, 1) * _in_basis(effect, vectors, 1, 1))
+    m01 = _in_basis(rho, vectors, 0, 1) * _in_basis(effect, vectors, 1, 0)
     probability = m00 + m11 + 2 * overlap * np.real(m01)
     q_sum = m00 * c0 + m11 * c1 + overlap * np.real(m01) * (c0 + c1)
     p_sum = -2 * overlap * np.imag(m01) * (c1 - c0) / (4 * sigma**2)
