@@ -122,8 +122,9 @@ class DeskBackend:
 
         ``spec`` is a one-word schedule (:func:`aligner.run.schedule.parse_schedule`),
         ``dwell_s`` the count time per point (s); other mounts stay at ``readings`` (deg).
-        ``on_start(run_id, planned_points, run_log)`` is called once the run exists. Returns the engine's
-        ``SweepResult``; a pause asked with :meth:`request_stop` ends it ``interrupted``.
+        ``on_start(run_id, planned_points, run_log)`` is called once the run exists. Returns
+        the engine's ``SweepResult``; a pause asked with :meth:`request_stop` ends it
+        ``interrupted``.
         """
         self._stop.clear()
         self.sweeping = True

@@ -3,10 +3,11 @@
 from __future__ import annotations
 
 from collections.abc import Mapping
+from typing import ClassVar
 
 from textual import on, work
 from textual.app import ComposeResult
-from textual.binding import Binding
+from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, Vertical
 from textual.worker import get_current_worker
 
@@ -25,7 +26,7 @@ class BenchScreen(DeskScreen):
     """Edit readings and see at once what the bench does there (limits follow in a worker)."""
 
     MODE = "bench"
-    BINDINGS = [
+    BINDINGS: ClassVar[list[BindingType]] = [
         Binding("ctrl+r", "file_readings", "File readings", priority=True),
         Binding("ctrl+l", "null", "Go to null", priority=True),
     ]
@@ -44,6 +45,7 @@ class BenchScreen(DeskScreen):
 
     def on_mount(self) -> None:
         self.refresh_prediction(self.desk.readings)
+        self.query_one(f"#reading-{self.backend.bench.imbalance_mount}").focus()
 
     def on_screen_resume(self) -> None:
         editor = self.query_one(ReadingsEditor)

@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+from typing import ClassVar
+
 from textual import on
 from textual.app import ComposeResult
-from textual.binding import Binding
+from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, Vertical
 from textual.widgets import DataTable, Static
 
@@ -22,7 +24,7 @@ class LogScreen(DeskScreen):
     """Browse the run log (read only; notes, exports and reports are ``aligner log``)."""
 
     MODE = "log"
-    BINDINGS = [Binding("r", "reload", "Reload")]
+    BINDINGS: ClassVar[list[BindingType]] = [Binding("r", "reload", "Reload")]
 
     def compose_body(self) -> ComposeResult:
         yield Static("", id="log-file")

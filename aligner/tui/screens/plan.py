@@ -4,12 +4,13 @@ tolerance budget out; infeasible targets show the planner's own explanation."""
 from __future__ import annotations
 
 import math
-from typing import Any
+from typing import Any, ClassVar
 
 from textual import on, work
 from textual.app import ComposeResult
-from textual.binding import Binding
+from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, VerticalScroll
+from textual.timer import Timer
 from textual.widgets import Checkbox, Input, Label, RadioButton, RadioSet, Static
 from textual.worker import get_current_worker
 
@@ -20,12 +21,15 @@ from .base import DeskScreen
 
 __all__ = ["PlanScreen"]
 
+#: Seconds without a keystroke before the typed target is planned.
+TYPING_PAUSE_S = 0.4
+
 
 class PlanScreen(DeskScreen):
     """Plan on Enter (and after each change); apply the planned readings to the bench screen."""
 
     MODE = "plan"
-    BINDINGS = [
+    BINDINGS: ClassVar[list[BindingType]] = [
         Binding("ctrl+a", "apply", "Apply to bench", priority=True),
         Binding("ctrl+t", "toggle_axis", "Axis re/im", priority=True),
         Binding("ctrl+e", "toggle_exact", "Exact", priority=True),
@@ -34,6 +38,7 @@ class PlanScreen(DeskScreen):
     def __init__(self) -> None:
         super().__init__()
         self.result: Any = None
+        self._debounce: Timer | None = None
 
     def compose_body(self) -> ComposeResult:
         with Horizontal(id="plan-form"):
@@ -70,8 +75,14 @@ class PlanScreen(DeskScreen):
         return {"amplification": value, "axis": axis,
                 "exact": self.query_one("#exact", Checkbox).value}
 
-    @on(Input.Submitted, "#target")
     @on(Input.Changed, "#target")
+    def target_typed(self) -> None:
+        """Plan a moment after the operator stops typing."""
+        if self._debounce is not None:
+            self._debounce.stop()
+        self._debounce = self.set_timer(TYPING_PAUSE_S, self.request_plan)
+
+    @on(Input.Submitted, "#target")
     @on(RadioSet.Changed)
     @on(Checkbox.Changed)
     def request_plan(self) -> None:
@@ -116,7 +127,7 @@ class PlanScreen(DeskScreen):
         if self.result is None:
             self.status("no feasible plan to apply", error=True)
             return
-        settings = {k: float(v) for k, v in self.result.settings.items()}
+        settings = {k: float(v) for k, v in self.result.quantized.settings.items()}
         self.post_message(ApplyReadings(settings, origin="the plan"))
 
     def action_toggle_axis(self) -> None:

@@ -2,12 +2,12 @@
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Any, ClassVar
 
 import numpy as np
 from textual import on, work
 from textual.app import ComposeResult
-from textual.binding import Binding
+from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, Vertical
 from textual.widgets import Input, Label, ProgressBar, Static
 
@@ -29,7 +29,7 @@ class SweepScreen(DeskScreen):
     """Run a sweep in a worker thread; the engine moves, counts, guards and logs."""
 
     MODE = "sweep"
-    BINDINGS = [
+    BINDINGS: ClassVar[list[BindingType]] = [
         Binding("ctrl+s", "start", "Start", priority=True),
         Binding("ctrl+b", "pause", "Pause", priority=True),
         Binding("ctrl+r", "resume", "Resume", priority=True),

@@ -41,6 +41,8 @@ def _detail(element: Any) -> str:
 class BeamPath(DataTable):
     """Elements in beam order: mount, reading (deg) and element angle (deg) at the readings."""
 
+    can_focus = False
+
     def __init__(self, bench: Bench, **kwargs: Any) -> None:
         super().__init__(cursor_type="none", zebra_stripes=True, **kwargs)
         self.bench = bench

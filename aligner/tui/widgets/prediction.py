@@ -19,8 +19,8 @@ _AXIS = {"re": "Re A_w", "im": "Im A_w"}
 
 def _grid() -> Table:
     table = Table.grid(padding=(0, 2))
-    table.add_column(style="bold", no_wrap=True)
-    table.add_column(no_wrap=True)
+    table.add_column(style="bold", no_wrap=True, min_width=14)
+    table.add_column(ratio=1, overflow="fold")
     return table
 
 
@@ -46,10 +46,11 @@ class PredictionPanel(Vertical):
         t.add_row("weak value A_w", f"{wv.real:.5g} {sign} {abs(wv.imag):.4g} i")
         t.add_row("leak rate", f"{sci(p.leak_rate)} per source photon")
         t.add_row("amplification", f"linear {num(p.amplification_linear, 5)} · exact "
-                                   f"{num(p.amplification_exact, 5)} ({_AXIS[p.axis]})")
+                                   f"{num(p.amplification_exact, 5)}")
         t.add_row("pointer shift", f"{num(p.pointer_shift, 4)} {p.units}")
         t.add_row("SNR", f"{num(p.snr_per_sqrt_s, 4)} per √s of counting")
         self.query_one("#prediction-numbers", Static).update(t)
+        self.border_subtitle = f"amplification along {_AXIS[p.axis]}"
         self._detector(p)
 
     def _detector(self, p: Any) -> None:
@@ -61,8 +62,9 @@ class PredictionPanel(Vertical):
         if over or saturated:
             why = " and ".join(w for w, on in (("ABOVE THE SAFE RATE", over),
                                               ("SATURATED", saturated)) if on)
-            t.add_row("⚠ DANGER", f"{why}: keep the shutter shut or the beam blocked "
-                                  "before exposing the detector")
+            t.add_row("⚠ DANGER", why)
+            t.add_row("", "keep the shutter shut or the beam blocked before exposing the "
+                          "detector")
         else:
             t.add_row("", "below the safe rate, not saturated")
         box = self.query_one("#detector-status", Static)

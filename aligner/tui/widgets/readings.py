@@ -4,9 +4,10 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
+from typing import ClassVar
 
 from textual.app import ComposeResult
-from textual.binding import Binding
+from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, Vertical
 from textual.validation import ValidationResult, Validator
 from textual.widgets import Input, Label, Static
@@ -45,7 +46,7 @@ class _InTravel(Validator):
 class ReadingInput(Input):
     """A reading in degrees; ↑/↓ step by the mount's resolution, PgUp/PgDn by 100 steps."""
 
-    BINDINGS = [
+    BINDINGS: ClassVar[list[BindingType]] = [
         Binding("up", "step(1)", "+1 step", show=False),
         Binding("down", "step(-1)", "−1 step", show=False),
         Binding("pageup", "step(100)", "+100 steps", show=False),
