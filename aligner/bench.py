@@ -263,6 +263,12 @@ class _Reader:
             raise self.error(name, f"must be at most {maximum:g}, got {value:g}")
         return value
 
+    def integer(self, name: str, default: int, *, minimum: int = 0) -> int:
+        value = self.number(name, float(default), minimum=minimum)
+        if value != int(value):
+            raise self.error(name, f"must be a whole number, got {value:g}")
+        return int(value)
+
     def text(self, name: str, default: str | None = None, choices: tuple[str, ...] = ()) -> str:
         if name not in self.table:
             if default is None:
@@ -336,7 +342,7 @@ def _plate(r: _Reader, element_type: str, wavelength_nm: float) -> tuple[float, 
     material = pr.text("material", "quartz", tuple(MATERIALS))
     kind = pr.text("kind", "zero-order", PLATE_KINDS)
     design = pr.number("design_nm", wavelength_nm, above=0.0)
-    order = int(pr.number("order", 0, minimum=0))
+    order = pr.integer("order", 0)
     thickness = pr.number("thickness_um", above=0.0) if pr.has("thickness_um") else None
     for name, lam in (("design_nm", design), ("wavelength_nm", wavelength_nm)):
         lo, hi = MATERIALS[material][0].valid_um
@@ -486,7 +492,7 @@ def _simulation(path: str, table: Mapping[str, Any], mounts: Mapping[str, Any]) 
                                  f"unknown mount (mounts defined: {', '.join(mounts)})")
         errors[name] = offset_reader.number(name)
     return Simulation(
-        seed=int(r.number("seed", 2026, minimum=0)),
+        seed=r.integer("seed", 2026),
         offset_error_deg=errors,
         extinction_scale=r.number("extinction_scale", 1.0, above=0.0),
         retardance_error_waves=r.number("retardance_error_waves", 0.0),
@@ -616,7 +622,7 @@ def write_values(path: str | Path, updates: Mapping[str, float | int | str]) -> 
             if name not in node:
                 node[name] = tomlkit.table()
             node = node[name]
-        node[leaf] = value
+        node[leaf] = value.item() if hasattr(value, "item") else value  # numpy scalars
     parse_bench(doc.unwrap(), str(p))
     tmp = p.with_suffix(p.suffix + ".tmp")
     tmp.write_text(tomlkit.dumps(doc), encoding="utf-8")

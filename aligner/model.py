@@ -12,6 +12,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -46,12 +47,28 @@ Complex = NDArray[np.complex128]
 
 @dataclass(frozen=True)
 class Forward:
-    """States at the coupling plane for one or many settings (arrays of the broadcast shape)."""
+    """States at the coupling plane for one or many settings (arrays of the broadcast shape).
 
-    rho: Complex
-    effect: Complex
+    ``state_stokes`` and ``effect_stokes`` are the Stokes 4-vectors (..., 4); ``rho`` and
+    ``effect`` the same as 2x2 matrices, built on first use.
+    """
+
+    state_stokes: NDArray[np.float64]
+    effect_stokes: NDArray[np.float64]
     probability: NDArray[np.float64]
     angles_deg: Mapping[str, NDArray[np.float64]]
+
+    @cached_property
+    def rho(self) -> Complex:
+        """Pre-selected density matrix at the coupling plane (trace = fraction arriving)."""
+        s, _ = np.broadcast_arrays(self.state_stokes, self.effect_stokes)
+        return density_from_stokes(s)
+
+    @cached_property
+    def effect(self) -> Complex:
+        """POVM element of the whole post-selection, carried back to the coupling plane."""
+        e, _ = np.broadcast_arrays(self.effect_stokes, self.state_stokes)
+        return density_from_stokes(e)
 
 
 def full_readings(bench: Bench, readings: Mapping[str, ArrayLike] | None = None,
@@ -107,8 +124,7 @@ def forward(bench: Bench, readings: Mapping[str, ArrayLike] | None = None) -> Fo
     """Evaluate the bench at mount ``readings`` (deg; floats or arrays broadcast together)."""
     s, e, angles = forward_stokes(bench, readings)
     probability = 0.5 * np.einsum("...i,...i->...", s, e)
-    s, e = np.broadcast_arrays(s, e)
-    return Forward(density_from_stokes(s), density_from_stokes(e), probability, angles)
+    return Forward(s, e, probability, angles)
 
 
 def coupling_observable(bench: Bench) -> Complex:

@@ -203,7 +203,9 @@ def jones_from_stokes(stokes: ArrayLike) -> Complex:
     s = np.asarray(stokes, float)
     ip = np.sqrt(np.sum(s[..., 1:] ** 2, axis=-1))
     az, ell = azimuth_ellipticity_from_stokes(s)
-    return vector_from_azimuth_ellipticity(az, ell) * np.sqrt(ip)[..., None]
+    v = vector_from_azimuth_ellipticity(az, ell)
+    phase = np.exp(-1j * np.angle(v[..., :1]))  # make the H component real and >= 0
+    return v * phase * np.sqrt(ip)[..., None]
 
 
 def azimuth_ellipticity_from_stokes(stokes: ArrayLike) -> tuple[Real, Real]:

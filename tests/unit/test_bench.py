@@ -188,8 +188,6 @@ def test_plate_retardance_resolved_at_bench_wavelength(write_bench, bench_text):
     assert element.plate is not None and element.plate.design_nm == 830.0
 
 
-@pytest.mark.xfail(strict=True, reason="reported bug: a fractional plate order is truncated "
-                   "silently (2.5 -> 2) instead of being refused")
 def test_fractional_plate_order_is_refused(write_bench, bench_text):
     text = bench_text.replace(HWP, HWP + '\nplate = { kind = "multi-order", order = 2.5 }')
     with pytest.raises(BenchFileError, match=r"pre\[0\]\.plate\.order"):
@@ -236,8 +234,6 @@ def test_write_values_accepts_numpy_float(bench_file):
     assert load_bench(bench_file).mounts["ana"].offset_deg == 0.5
 
 
-@pytest.mark.xfail(strict=True, reason="reported bug: numpy int64/float32 values raise "
-                   "tomlkit's ConvertError, not an aligner error")
 def test_write_values_numpy_integer(bench_file):
     write_values(bench_file, {"mounts.ana.sense": np.int64(-1)})
     assert load_bench(bench_file).mounts["ana"].sense == -1

@@ -333,8 +333,6 @@ def test_povm_effect_stays_between_zero_and_identity(chain, angle, er, t):
     assert eig.max() <= 1 + 1e-12
 
 
-@pytest.mark.xfail(strict=True, reason="reported bug: Polarizer.forward leaves the transmission "
-                   "out of its broadcast shape, so an array of transmissions fails")
 def test_polarizer_broadcasts_transmission():
     t = np.array([0.5, 0.9])
     out = C.Polarizer(0.0, 1e3, t).forward(np.array([1.0, 0.0, 0.0, 0.0]))

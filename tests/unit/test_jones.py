@@ -142,8 +142,6 @@ def test_partially_polarized_stokes_keeps_polarized_part():
     assert J.degree_of_polarization(s) == pytest.approx(ip / 2.0, abs=1e-15)
 
 
-@pytest.mark.xfail(strict=True, reason="reported bug: jones_from_stokes docstring promises a real "
-                   "H component, the code returns sympy's jones_vector phase")
 def test_jones_from_stokes_phase_convention_as_documented():
     v = J.jones_from_stokes(np.array([1.0, 0.2, 0.5, 0.6]))
     assert abs(v[0].imag) < 1e-12
