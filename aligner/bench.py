@@ -344,11 +344,11 @@ def _plate(r: _Reader, element_type: str, wavelength_nm: float) -> tuple[float, 
     design = pr.number("design_nm", wavelength_nm, above=0.0)
     order = pr.integer("order", 0)
     thickness = pr.number("thickness_um", above=0.0) if pr.has("thickness_um") else None
-    for name, lam in (("design_nm", design), ("wavelength_nm", wavelength_nm)):
-        lo, hi = MATERIALS[material][0].valid_um
-        if not lo * 1000 <= lam <= hi * 1000:
-            raise pr.error(name, f"{lam:g} nm is outside the {material} dispersion fit "
-                                 f"({lo * 1000:g}-{hi * 1000:g} nm)")
+    lo, hi = (1000 * x for x in MATERIALS[material][0].valid_um)
+    for key, lam in ((pr.key("design_nm"), design), ("wavelength_nm", wavelength_nm)):
+        if not lo <= lam <= hi:
+            raise BenchFileError(r.path, key, f"{lam:g} nm is outside the {material} dispersion "
+                                              f"fit ({lo:g}-{hi:g} nm) used by {r.key('plate')}")
     plate = Plate(material, kind, design, order, thickness)
     if override is not None:  # a measured value (e.g. from a waveplate fit) beats the dispersion
         return override, plate
