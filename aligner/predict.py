@@ -34,13 +34,21 @@ from numpy.typing import ArrayLike, NDArray
 
 from .bench import INF, Bench
 from .errors import InputError
-from .model import Forward, coupling_observable, forward, full_readings, imbalance_deg
+from .model import (
+    Forward,
+    _antiparallel_gap,  # the model's cancellation-free |<f|i>| (asked to be made public)
+    coupling_observable,
+    forward,
+    full_readings,
+    imbalance_deg,
+)
 from .physics.detection import SATURATION_LOSS, DetectorRates, expected_rates
 from .physics.weak import pointer_response, weak_value
 
 __all__ = [
     "MECHANISMS",
     "READOUT_AXIS",
+    "SETTING",
     "Limits",
     "MechanismLimit",
     "Prediction",
@@ -67,6 +75,10 @@ READOUT_AXIS = {"position": "re", "phase": "re", "momentum": "im"}
 
 #: Mechanisms that cap the amplification, as named in ``Limits.limited_by``.
 MECHANISMS = ("pointer", "extinction", "resolution", "dark counts")
+
+#: Extra ``limited_by`` key when the imbalance mount cannot reach a null with the other mounts
+#: where they are (e.g. an elliptical pre-selection against a linear analyzer).
+SETTING = "setting"
 
 # Imbalance-mount offsets from the null scanned by the limits and SNR searches (reading deg).
 # Below ~1e-5 deg the plain post-selection probability of near-pure states (~1e-14) is lost in
@@ -283,33 +295,33 @@ def _scalar_readings(bench: Bench, readings: Mapping[str, float] | None) -> dict
     return out
 
 
-def find_null(bench: Bench, readings: Mapping[str, float] | None = None) -> float:
-    """Reading (deg) of the imbalance mount at the null (zero imbalance) nearest its current
-    reading, within the mount's travel; other mounts at ``readings``.
+def _closest_approach_deg(bench: Bench, readings: Mapping[str, ArrayLike]) -> Real:
+    """Unsigned imbalance (deg), ``arcsin |<f|i>|`` of the pure parts (see model.imbalance_deg)."""
+    gap = _antiparallel_gap(bench, readings)
+    return np.rad2deg(np.arcsin(np.clip(np.nan_to_num(gap, nan=1.0), 0.0, 1.0)))
 
-    The leak is first bracketed on a coarse grid over the travel, then the zero crossing of the
-    signed imbalance is found by root finding (minimum of the plain post-selection probability
-    when the imbalance never changes sign).
+
+def find_null(bench: Bench, readings: Mapping[str, float] | None = None) -> float:
+    """Reading (deg) of the imbalance mount at the null (smallest imbalance) nearest its
+    current reading, within the mount's travel; other mounts at ``readings``.
+
+    The unsigned imbalance is scanned on a coarse grid over the travel, and the local minimum
+    nearest the current reading is refined by bounded minimization. When the null cannot be
+    reached (an elliptical state against a linear analyzer) this is the closest approach.
     """
-    from scipy.optimize import brentq, minimize_scalar
+    from scipy.optimize import minimize_scalar
 
     r = _scalar_readings(bench, readings)
     name = bench.imbalance_mount
     low, high = bench.mounts[name].travel_deg
     grid = np.arange(low, high + _COARSE_STEP_DEG / 2, _COARSE_STEP_DEG)
-    p = forward(bench, {**r, name: grid}).probability
-    inner = np.flatnonzero((p[1:-1] <= p[:-2]) & (p[1:-1] <= p[2:])) + 1
-    candidates = inner if inner.size else np.array([int(np.argmin(p))])
+    gap = _closest_approach_deg(bench, {**r, name: grid})
+    inner = np.flatnonzero((gap[1:-1] <= gap[:-2]) & (gap[1:-1] <= gap[2:])) + 1
+    candidates = inner if inner.size else np.array([int(np.argmin(gap))])
     x0 = grid[candidates[np.argmin(np.abs(grid[candidates] - r[name]))]]
-    a, b = max(low, x0 - _COARSE_STEP_DEG), min(high, x0 + _COARSE_STEP_DEG)
-
-    def signed(x: float) -> float:
-        return float(imbalance_deg(bench, {**r, name: x}))
-
-    if signed(a) * signed(b) < 0:
-        return float(brentq(signed, a, b, xtol=1e-12))
-    res = minimize_scalar(lambda x: float(forward(bench, {**r, name: x}).probability),
-                          bounds=(a, b), method="bounded", options={"xatol": 1e-10})
+    bounds = (max(low, x0 - _COARSE_STEP_DEG), min(high, x0 + _COARSE_STEP_DEG))
+    res = minimize_scalar(lambda x: float(_closest_approach_deg(bench, {**r, name: x})),
+                          bounds=bounds, method="bounded", options={"xatol": 1e-11})
     return float(res.x)
 
 
@@ -327,7 +339,10 @@ class Limits:
     """Where the amplification stops growing on a bench.
 
     ``mechanisms`` maps each of :data:`MECHANISMS` to its limit with every other mechanism
-    switched off (ideal optics, linear response, continuous mount, no dark counts). The
+    switched off (ideal optics, linear response, continuous mount, no dark counts; for
+    "resolution": only imbalances at least one mount step from the null); when even
+    the ideal bench cannot reach a null at these settings of the other mounts it also holds
+    :data:`SETTING`, the largest amplification the ideal bench reaches. The
     combined ``max_amplification`` has all of them at once: the exact pointer response, the
     real extinction, only imbalances at least one mount step from the null, and dark counts,
     which carry no pointer shift and so dilute it by the signal share of the counts.
@@ -427,9 +442,15 @@ def _maximize(f: Callable[[ArrayLike], Real], null: float, bench: Bench, min_off
     return float(x[i]), float(values[i])
 
 
-def _explain(bench: Bench, key: str, lim: MechanismLimit, smallest_imbalance: float) -> str:
+def _explain(bench: Bench, key: str, lim: MechanismLimit, smallest_imbalance: float,
+             closest: float) -> str:
     c, d = bench.coupling, bench.detector
     amp = f"{lim.max_amplification:.4g}"
+    if key == SETTING:
+        return (f"the other mounts' settings: with them where they are, the "
+                f"{bench.imbalance_mount} mount cannot reach a null (the closest it gets is an "
+                f"imbalance of {closest:.3g} deg), so even ideal optics reach only {amp}; set "
+                f"the other mounts (e.g. the phase mount) closer to a null")
     if key == "pointer":
         return (f"the pointer: a shift cannot grow much beyond one pointer width "
                 f"({c.pointer_sigma:g} {c.units}), so the amplification peaks at {amp}, near "
@@ -468,24 +489,30 @@ def limits(bench: Bench, readings: Mapping[str, float] | None = None,
         return MechanismLimit(value, float(imbalance_deg(b, {**r, name: reading})), reading)
 
     mechanisms: dict[str, MechanismLimit] = {}
-    for key, b, null_b, exact, dark in (("pointer", ideal, ideal_null, True, False),
-                                        ("extinction", bench, null, False, False),
-                                        ("dark counts", ideal, ideal_null, False, True)):
+    for key, b, null_b, exact, dark, min_offset in (
+            ("pointer", ideal, ideal_null, True, False, 0.0),
+            ("extinction", bench, null, False, False, 0.0),
+            ("resolution", ideal, ideal_null, False, False, step),
+            ("dark counts", ideal, ideal_null, False, True, 0.0)):
         mechanisms[key] = at(b, *_maximize(_amplifier(b, r, axis, exact=exact, dark=dark),
-                                           null_b, bench, 0.0, r[name]))
-    one_step = ideal_null + np.array([-1.0, 1.0]) * max(step, _FLOOR_DEG)
-    values = _amplifier(ideal, r, axis, exact=False, dark=False)(one_step)
-    j = _pick(one_step, values, ideal_null, r[name])
-    mechanisms["resolution"] = at(ideal, float(one_step[j]), float(values[j]))
-    smallest = float(imbalance_deg(ideal, {**r, name: ideal_null + np.sign(one_step[j] -
-                                                                            ideal_null) * step}))
+                                           null_b, bench, min_offset, r[name]))
+    closest = float(_closest_approach_deg(ideal, {**r, name: ideal_null}))
+    if closest > 10 * _FLOOR_DEG:
+        mechanisms[SETTING] = at(ideal, *_maximize(
+            _amplifier(ideal, r, axis, exact=False, dark=False), ideal_null, bench, 0.0, r[name]))
+    side = np.sign(mechanisms["resolution"].at_reading_deg - ideal_null) or 1.0
+    smallest = float(imbalance_deg(ideal, {**r, name: ideal_null + side * step}))
 
     reading, best = _maximize(_amplifier(bench, r, axis, exact=True, dark=True), null, bench,
                               step, r[name])
-    limited_by = min(MECHANISMS, key=lambda k: mechanisms[k].max_amplification)
+    limited_by = min(mechanisms, key=lambda k: mechanisms[k].max_amplification)
+    if SETTING in mechanisms and (mechanisms[limited_by].max_amplification
+                                  >= 0.99 * mechanisms[SETTING].max_amplification):
+        limited_by = SETTING  # no mechanism costs even 1 % below what the settings allow
     here = _amplifier(bench, r, axis, exact=True, dark=False)(r[name] + np.array([-step, 0, step]))
     together = at(bench, reading, best)
-    explanation = (f"Limited by {_explain(bench, limited_by, mechanisms[limited_by], smallest)}. "
+    why = _explain(bench, limited_by, mechanisms[limited_by], smallest, closest)
+    explanation = (f"Limited by {why}. "
                    f"With every mechanism together the largest amplification is {best:.4g}, at "
                    f"an imbalance of {together.at_imbalance_deg:.4g} deg.")
     return Limits(

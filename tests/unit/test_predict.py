@@ -220,6 +220,23 @@ def test_resolution_cap():
     assert lim.at_imbalance_deg == pytest.approx(0.05, rel=1e-6)
 
 
+def test_unreachable_null_is_limited_by_the_setting():
+    # An elliptical pre-selection (quarter-wave plate 0.5 deg off 45 deg after D) against a
+    # linear analyzer: the closest approach is an imbalance chi = 0.5 deg. Derived here, small
+    # angles: A_w ~ 1/(eps + i chi), so Re A_w peaks at 1/(2 chi) = 57.3 where eps = chi, an
+    # imbalance of sqrt(2) chi, whatever the optics.
+    pre = [{"type": "hwp", "mount": "hwp", "retardance_waves": 0.5},
+           {"type": "qwp", "mount": "qwp", "retardance_waves": 0.25}]
+    bench = make_bench(**{"pre": pre, "mounts.qwp": {"reading_deg": 45.5},
+                          "analyzer.extinction_ratio": 1e9})
+    lim = limits(bench)
+    chi = np.deg2rad(0.5)
+    assert lim.limited_by == "setting" and "cannot reach a null" in lim.explanation
+    assert lim.mechanisms["setting"].max_amplification == pytest.approx(1 / (2 * chi), rel=1e-3)
+    assert abs(lim.at_imbalance_deg) == pytest.approx(np.sqrt(2) * 0.5, rel=1e-3)
+    assert "setting" not in limits(make_bench()).mechanisms
+
+
 def test_demo_limits_are_consistent():
     lim = limits(load_bench("demo"))
     assert set(lim.mechanisms) == set(MECHANISMS)
