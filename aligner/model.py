@@ -40,6 +40,7 @@ __all__ = [
     "forward_stokes",
     "full_readings",
     "imbalance_deg",
+    "pure_overlap",
 ]
 
 Complex = NDArray[np.complex128]
@@ -135,7 +136,8 @@ def coupling_observable(bench: Bench) -> Complex:
     return observable_matrix(c.observable)
 
 
-def _antiparallel_gap(bench: Bench, readings: Mapping[str, ArrayLike]) -> NDArray[np.float64]:
+def pure_overlap(bench: Bench, readings: Mapping[str, ArrayLike] | None = None,
+                 ) -> NDArray[np.float64]:
     """``|<f|i>|`` of the pure parts of rho and E: ``|n_f + n_i| / 2`` with unit Stokes
     directions ``n`` (free of the cancellation in ``1 + n_f . n_i`` near the null)."""
     s, e, _ = forward_stokes(bench, readings)
@@ -160,11 +162,11 @@ def imbalance_deg(bench: Bench, readings: Mapping[str, ArrayLike] | None = None,
     """
     r = full_readings(bench, readings)
     name = bench.imbalance_mount
-    gap = _antiparallel_gap(bench, r)
+    gap = pure_overlap(bench, r)
     if not np.all(np.isfinite(gap)):
         raise InputError("the pre- or post-selection is unpolarized at these readings, so the "
                          "imbalance is undefined; check the source and analyzer settings")
-    up = _antiparallel_gap(bench, {**r, name: r[name] + step_deg})
-    down = _antiparallel_gap(bench, {**r, name: r[name] - step_deg})
+    up = pure_overlap(bench, {**r, name: r[name] + step_deg})
+    down = pure_overlap(bench, {**r, name: r[name] - step_deg})
     sign = np.sign(up - down)
     return np.rad2deg(np.arcsin(np.clip(gap, 0.0, 1.0))) * sign

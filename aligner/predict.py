@@ -36,11 +36,11 @@ from .bench import INF, Bench
 from .errors import InputError
 from .model import (
     Forward,
-    _antiparallel_gap,  # the model's cancellation-free |<f|i>| (asked to be made public)
     coupling_observable,
     forward,
     full_readings,
     imbalance_deg,
+    pure_overlap,
 )
 from .physics.detection import SATURATION_LOSS, DetectorRates, expected_rates
 from .physics.weak import pointer_response, weak_value
@@ -297,7 +297,7 @@ def _scalar_readings(bench: Bench, readings: Mapping[str, float] | None) -> dict
 
 def _closest_approach_deg(bench: Bench, readings: Mapping[str, ArrayLike]) -> Real:
     """Unsigned imbalance (deg), ``arcsin |<f|i>|`` of the pure parts (see model.imbalance_deg)."""
-    gap = _antiparallel_gap(bench, readings)
+    gap = pure_overlap(bench, readings)
     return np.rad2deg(np.arcsin(np.clip(np.nan_to_num(gap, nan=1.0), 0.0, 1.0)))
 
 
