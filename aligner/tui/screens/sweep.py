@@ -8,7 +8,7 @@ import numpy as np
 from textual import on, work
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
-from textual.containers import Horizontal, Vertical
+from textual.containers import Horizontal
 from textual.widgets import Input, Label, ProgressBar, Static
 
 from ...errors import AlignerError
@@ -52,9 +52,8 @@ class SweepScreen(DeskScreen):
         yield Static("idle: Ctrl+S starts a new run (Enter in a field too)", id="sweep-status")
         with Horizontal(id="sweep-body"):
             yield LeakPlot(id="sweep-plot")
-            with Vertical(id="sweep-right"):
-                yield PointsTable(id="sweep-points")
-                yield EventList(id="sweep-events")
+            yield EventList(id="sweep-events")
+        yield PointsTable(id="sweep-points")
 
     # -- actions -------------------------------------------------------------------------------
 

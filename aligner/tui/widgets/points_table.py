@@ -26,7 +26,8 @@ class PointsTable(DataTable):
         self.add_column("reading °", key="reading")
         self.add_column("imbal. °", key="imbalance")
         self.add_column("counts", key="counts")
-        self.add_column("leak [68 % interval]", key="leak")
+        self.add_column("leak rate", key="leak")
+        self.add_column("68 % interval", key="interval")
         self.add_column("predicted", key="predicted")
 
     def show(self, points: Sequence[Any]) -> None:
@@ -37,7 +38,7 @@ class PointsTable(DataTable):
         for p in points[self._shown:]:
             self.add_row(str(p.idx), num(p.target, 4), f"{p.reading_deg:.4f}",
                          f"{p.imbalance_deg:+.4f}", str(p.counts),
-                         f"{sci(p.leak)} [{sci(p.leak_lo, 2)}, {sci(p.leak_hi, 2)}]",
+                         sci(p.leak), f"{sci(p.leak_lo)} … {sci(p.leak_hi)}",
                          sci(p.predicted_leak), key=str(p.idx))
         if len(points) > self._shown:
             self.move_cursor(row=len(points) - 1)

@@ -18,17 +18,20 @@ class RunList(DataTable):
         self.border_title = "Runs"
 
     def on_mount(self) -> None:
-        self.add_columns("id", "status", "points", "schedule", "started (UTC)")
+        self.add_columns("id", "status", "points", "schedule", "started UTC")
 
     def show(self, runs: Sequence[Any]) -> None:
-        """Show ``runs``, keeping the cursor on the same run when it is still there."""
+        """Show ``runs``, keeping the cursor on the same run when it is still there (else on
+        the newest)."""
         keep = self.selected_run()
         self.clear()
         for r in runs:
             self.add_row(str(r.id), r.status, f"{r.points}/{r.planned}", r.schedule,
-                         r.started_utc[:19].replace("T", " "), key=str(r.id))
+                         r.started_utc[5:16].replace("T", " "), key=str(r.id))
         if keep is not None and str(keep) in self.rows:
             self.move_cursor(row=self.get_row_index(str(keep)))
+        elif runs:
+            self.move_cursor(row=len(runs) - 1)
 
     def selected_run(self) -> int | None:
         """The id of the run under the cursor, if any."""

@@ -1,0 +1,293 @@
+"""The desk (Textual UI), driven as an operator would with Pilot, on the demo bench with
+simulated devices and a temporary run log.
+
+The desk computes nothing itself: every check compares what a screen shows with the engine
+function the screen calls (aligner.predict, aligner.plan, aligner.run), which have their own
+tests against published results.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+from textual.widgets import Input, ProgressBar, Static
+
+from aligner.bench import load_bench
+from aligner.errors import InfeasibleTarget, InputError
+from aligner.plan import plan
+from aligner.predict import limits, predict
+from aligner.run.log import RunLog
+from aligner.run.schedule import parse_schedule
+from aligner.tui.app import DeskApp
+from aligner.tui.backend import DeskBackend
+from aligner.tui.format import num, rate, sci
+from aligner.tui.widgets.safety import SAFETY_TEXT
+
+SIZE = (120, 36)
+
+
+@pytest.fixture(scope="module")
+def bench():
+    return load_bench("demo")
+
+
+def desk(bench, tmp_path: Path, *, realtime: bool = False) -> DeskApp:
+    return DeskApp(DeskBackend(bench, db_path=tmp_path / "runs.sqlite", realtime=realtime))
+
+
+_BOX = str.maketrans(dict.fromkeys("│╭╮╰╯─▔▁▎▊", " "))
+
+
+def text_of(app: DeskApp, selector: str) -> str:
+    """The words a widget shows on the screen (borders dropped, lines joined by one space)."""
+    widget = app.screen.query_one(selector)
+    lines = widget.render_lines(widget.region.reset_offset)
+    return " ".join(" ".join(strip.text for strip in lines).translate(_BOX).split())
+
+
+async def settle(pilot) -> None:
+    await pilot.app.workers.wait_for_complete()
+    await pilot.pause()
+
+
+# -- every screen ------------------------------------------------------------------------------
+
+
+async def test_every_screen_has_the_safety_line_and_its_own_bar(bench, tmp_path):
+    app = desk(bench, tmp_path)
+    async with app.run_test(size=SIZE) as pilot:
+        for key, mode in (("f1", "bench"), ("f2", "plan"), ("f3", "sweep"), ("f4", "log")):
+            await pilot.press(key)
+            await settle(pilot)
+            assert app.current_mode == mode
+            safety = text_of(app, ".safety-line")
+            assert "laser safety officer" in safety and "detector" in safety
+            assert "Local laser-safety rules" in safety
+            assert " ".join(SAFETY_TEXT.split()) == safety
+            bar = app.screen.query_one(".desk-bar")
+            assert bar.current == mode
+
+
+# -- bench ---------------------------------------------------------------------------------------
+
+
+async def test_bench_shows_the_engine_prediction_and_steps_by_the_mount_resolution(bench,
+                                                                                     tmp_path):
+    app = desk(bench, tmp_path)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        p = predict(bench, bench.readings())
+        shown = text_of(app, "#prediction-numbers")
+        assert sci(p.leak_rate) in shown
+        assert num(p.amplification_exact, 5) in shown
+        assert f"{float(p.imbalance_deg):+.4f}" in shown
+        # the imbalance mount's input has the focus; three steps up
+        await pilot.press("up", "up", "up")
+        await settle(pilot)
+        step = bench.mounts["analyzer"].resolution_deg
+        expected = bench.readings()["analyzer"] + 3 * step
+        assert app.readings["analyzer"] == pytest.approx(expected, abs=1e-9)
+        p2 = predict(bench, app.readings)
+        assert num(p2.amplification_exact, 5) in text_of(app, "#prediction-numbers")
+        assert num(p2.amplification_exact, 5) != num(p.amplification_exact, 5)
+        # the beam path shows the element angle the engine gives for the new reading
+        assert f"{float(p2.angles_deg['analyzer']):.3f}°" in text_of(app, "#beam-path")
+
+
+async def test_bench_limits_arrive_from_the_worker(bench, tmp_path):
+    app = desk(bench, tmp_path)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        lim = limits(bench, bench.readings())
+        shown = text_of(app, "#limits")
+        assert num(lim.max_amplification, 4) in shown
+        assert f"limited by {lim.limited_by}" in shown
+        for mechanism in lim.mechanisms:
+            assert mechanism in shown
+
+
+async def test_bench_warns_plainly_above_the_safe_rate(bench, tmp_path):
+    app = desk(bench, tmp_path)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        status = app.screen.query_one("#detector-status")
+        assert not status.has_class("danger")
+        box = app.screen.query_one("#reading-analyzer", Input)
+        box.value = "50"  # far from the null: nearly full transmission
+        await settle(pilot)
+        p = predict(bench, {**bench.readings(), "analyzer": 50.0})
+        assert bool(p.over_safe_rate)  # the engine agrees the detector would be overexposed
+        assert status.has_class("danger")
+        shown = text_of(app, "#detector-status")
+        assert "ABOVE THE SAFE RATE" in shown and rate(bench.detector.safe_rate) in shown
+        # back to the file readings: the warning goes away
+        await pilot.press("ctrl+r")
+        await settle(pilot)
+        assert not status.has_class("danger")
+        assert app.readings == bench.readings()
+
+
+async def test_bench_refuses_a_reading_outside_travel(bench, tmp_path):
+    app = desk(bench, tmp_path)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        before = dict(app.readings)
+        app.screen.query_one("#reading-pre_hwp", Input).value = "400"
+        await settle(pilot)
+        problem = text_of(app, "#reading-problem")
+        assert "pre_hwp" in problem and "outside its travel" in problem and "170" in problem
+        assert app.readings == before
+        app.screen.query_one("#reading-pre_hwp", Input).value = "abc"
+        await settle(pilot)
+        assert "not a number" in text_of(app, "#reading-problem")
+        assert app.readings == before
+
+
+# -- plan ----------------------------------------------------------------------------------------
+
+
+async def test_plan_shows_the_engine_plan_and_applies_it_to_the_bench(bench, tmp_path):
+    app = desk(bench, tmp_path)
+    async with app.run_test(size=SIZE) as pilot:
+        await pilot.press("f2")
+        await settle(pilot)
+        expected = plan(bench, amplification=40.0, axis="re", exact=False)
+        assert "planned" in text_of(app, "#plan-status")
+        shown = text_of(app, "#plan-result")
+        for name, reading in expected.quantized.settings.items():
+            assert f"{name} {reading:.4f}° {expected.settings[name]:.5f}°" in shown
+        assert f"Branches: {len(expected.branches)}" in shown
+        assert expected.tolerance is not None and expected.tolerance.dominant in shown
+        for s in expected.sensitivity:
+            assert f"{s.mount} {num(s.derivative, 4)} per deg" in shown
+        await pilot.press("ctrl+a")
+        await settle(pilot)
+        assert app.current_mode == "bench"
+        for name, reading in expected.quantized.settings.items():
+            assert app.readings[name] == pytest.approx(reading)
+            assert app.screen.query_one(f"#reading-{name}", Input).value == \
+                f"{reading:.{3}f}"
+
+
+async def test_plan_infeasible_target_shows_the_engine_message(bench, tmp_path):
+    app = desk(bench, tmp_path)
+    async with app.run_test(size=SIZE) as pilot:
+        await pilot.press("f2")
+        await settle(pilot)
+        target = app.screen.query_one("#target", Input)
+        target.value = "500"
+        await pilot.press("enter")
+        await settle(pilot)
+        with pytest.raises(InfeasibleTarget) as info:
+            plan(bench, amplification=500.0, axis="re", samples=0, predict=False)
+        assert "cannot plan" in text_of(app, "#plan-status")
+        assert info.value.limit in text_of(app, "#plan-status")
+        assert " ".join(str(info.value).split())[:60] in text_of(app, "#plan-result")
+        before = dict(app.readings)
+        await pilot.press("ctrl+a")  # nothing to apply
+        assert app.readings == before and app.current_mode == "plan"
+
+
+# -- sweep ---------------------------------------------------------------------------------------
+
+
+async def start_sweep(pilot, schedule: str, dwell: str) -> None:
+    await pilot.press("f3")
+    await pilot.pause()
+    app = pilot.app
+    app.screen.query_one("#schedule", Input).value = schedule
+    app.screen.query_one("#dwell", Input).value = dwell
+    await pilot.press("ctrl+s")
+
+
+async def test_sweep_runs_plots_tables_and_logs_every_point(bench, tmp_path):
+    app = desk(bench, tmp_path)
+    async with app.run_test(size=SIZE) as pilot:
+        await start_sweep(pilot, "linear:0.5:2.0:4", "0.5")
+        await settle(pilot)
+        assert "complete" in text_of(app, "#sweep-status")
+        bar = app.screen.query_one(ProgressBar)
+        assert bar.progress == bar.total == 4
+        table = app.screen.query_one("#sweep-points")
+        assert table.row_count == 4
+        with RunLog(tmp_path / "runs.sqlite") as log:
+            (run,) = log.runs()
+            points = log.points(run.id)
+        assert run.status == "complete" and len(points) == 4
+        assert [table.get_row_at(i)[4] for i in range(4)] == [str(p.counts) for p in points]
+        plot = app.screen.query_one("#sweep-plot")
+        assert len(plot._points) == 4 and plot._curve is not None
+        # the shutter is shut at the end of a sweep
+        assert not app.backend.devices(app.readings).shutter.is_open()
+
+
+async def test_sweep_pause_leaves_the_bench_safe_and_resume_completes(bench, tmp_path):
+    app = desk(bench, tmp_path, realtime=True)
+    async with app.run_test(size=SIZE) as pilot:
+        await start_sweep(pilot, "linear:0.5:1.5:6", "0.2")
+        for _ in range(200):  # wait for the first point
+            await pilot.pause(0.05)
+            if app.screen.query_one("#sweep-points").row_count:
+                break
+        await pilot.press("ctrl+b")
+        await settle(pilot)
+        status = text_of(app, "#sweep-status")
+        assert "paused" in status and "shutter shut" in status
+        devices = app.backend.devices(app.readings)
+        assert not devices.shutter.is_open()
+        assert not any(m.is_moving() for m in devices.mounts.values())
+        with RunLog(tmp_path / "runs.sqlite") as log:
+            (run,) = log.runs()
+        assert run.status == "interrupted" and 0 < run.points < 6
+        await pilot.press("ctrl+r")
+        await settle(pilot)
+        assert "complete" in text_of(app, "#sweep-status")
+        with RunLog(tmp_path / "runs.sqlite") as log:
+            run = log.run(run.id)
+            indices = [p.idx for p in log.points(run.id)]
+        assert run.status == "complete" and indices == list(range(6))
+
+
+async def test_sweep_states_bad_input_and_guard_refusals_plainly(bench, tmp_path):
+    app = desk(bench, tmp_path)
+    async with app.run_test(size=SIZE) as pilot:
+        await start_sweep(pilot, "sideways:1:2:3", "1")
+        await settle(pilot)
+        with pytest.raises(InputError) as bad:
+            parse_schedule("sideways:1:2:3")
+        status = text_of(app, "#sweep-status")
+        assert "not started" in status and "unknown form 'sideways'" in status
+        assert str(bad.value)[:60] in text_of(app, "#sweep-events")
+        # far from the null the detector guard refuses the point before anything moves
+        await start_sweep(pilot, "list:60", "1")
+        await settle(pilot)
+        events = text_of(app, "#sweep-events")
+        assert "detector guard" in events and "safe_rate" in events
+        assert app.screen.query_one("#sweep-status", Static).has_class("problem")
+
+
+# -- log -----------------------------------------------------------------------------------------
+
+
+async def test_log_lists_runs_and_shows_the_points_of_the_selected_one(bench, tmp_path):
+    backend = DeskBackend(bench, db_path=tmp_path / "runs.sqlite")
+    for spec in ("linear:0.5:1.0:2", "linear:0.6:1.2:3"):
+        backend.sweep(spec, 0.2, bench.readings(), on_point=lambda *a: None)
+    backend.close()
+    app = desk(bench, tmp_path)
+    async with app.run_test(size=SIZE) as pilot:
+        await pilot.press("f4")
+        await settle(pilot)
+        runs = app.screen.query_one("#runs")
+        assert runs.row_count == 2
+        assert [runs.get_row_at(i)[2] for i in range(2)] == ["2/2", "3/3"]
+        points = app.screen.query_one("#log-points")
+        assert points.row_count == 3  # the newest run is selected first
+        await pilot.press("up")
+        await settle(pilot)
+        assert points.row_count == 2
+        with RunLog(tmp_path / "runs.sqlite") as log:
+            first = log.points(1)
+        assert [points.get_row_at(i)[5] for i in range(2)] == [sci(p.leak) for p in first]
+        assert "run 1" in str(points.border_title)
