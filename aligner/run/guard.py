@@ -153,6 +153,8 @@ class DetectorGuard:
         """
         start = float(readings[mount])
         direct = self.route(mount, start, target)
+        if len(direct) == 1:  # already there: nothing turns
+            return MovePlan(mount, direct, shut_for_move=False, peak_rate=0.0)
         peak = self.path_peak(readings, mount, direct)
         if peak <= self.limit or not shutter_open:
             return MovePlan(mount, direct, shut_for_move=False, peak_rate=peak)

@@ -185,17 +185,22 @@ class RunRecord:
 class RunLog:
     """A connection to a run-log file; created (with its folder) when missing.
 
-    Use as a context manager or call :meth:`close`. Not shared between threads.
+    ``durable`` (default) syncs every point to disk (``synchronous=FULL``); ``False`` keeps
+    WAL's crash safety without the per-point disk sync (for simulated benches). Use as a
+    context manager or call :meth:`close`. Not shared between threads.
     """
 
-    def __init__(self, path: str | Path | None = None) -> None:
+    def __init__(self, path: str | Path | None = None, *, durable: bool = True) -> None:
         self.path = Path(path) if path is not None else default_db_path()
+        if not isinstance(durable, bool):
+            raise InputError(f"durable must be True or False, got {durable!r}")
         try:
             self.path.parent.mkdir(parents=True, exist_ok=True)
             self._db = sqlite3.connect(self.path, isolation_level=None)
             self._db.execute("PRAGMA journal_mode=WAL")
-            # FULL: a committed point survives a power cut, not only a crash of the program
-            self._db.execute("PRAGMA synchronous=FULL")
+            # FULL syncs every commit to disk, so a point survives a power cut too; NORMAL (WAL)
+            # survives a crash of the program but may lose the last points to a power cut
+            self._db.execute(f"PRAGMA synchronous={'FULL' if durable else 'NORMAL'}")
             self._db.execute("PRAGMA foreign_keys=ON")
             self._db.executescript(_SCHEMA)
         except sqlite3.DatabaseError as exc:
