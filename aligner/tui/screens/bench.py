@@ -9,6 +9,7 @@ from textual import on, work
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, Vertical
+from textual.widgets import Static
 from textual.worker import get_current_worker
 
 from ...errors import AlignerError
@@ -20,6 +21,9 @@ from ..widgets.readings import ReadingsEditor
 from .base import DeskScreen
 
 __all__ = ["BenchScreen"]
+
+WHAT_IF = ("These readings are a what-if for the model: nothing moves from this screen. "
+           "Sweeps start from them (F3); the planner starts from them too (F2).")
 
 
 class BenchScreen(DeskScreen):
@@ -39,9 +43,10 @@ class BenchScreen(DeskScreen):
                 editor = ReadingsEditor(bench.mounts, self.desk.readings, id="readings")
                 editor.border_title = "Readings (deg) · ↑/↓ one step · PgUp/PgDn 100 steps"
                 yield editor
+                yield Static(WHAT_IF, id="what-if")
             with Vertical(id="bench-right"):
                 yield PredictionPanel(bench, id="prediction")
-                yield LimitsPanel(id="limits")
+                yield LimitsPanel(bench.imbalance_mount, id="limits")
 
     def on_mount(self) -> None:
         self.refresh_prediction(self.desk.readings)

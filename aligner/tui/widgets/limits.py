@@ -18,8 +18,9 @@ class LimitsPanel(Static):
     """The combined limit (largest amplification, where, what limits it) and each mechanism
     alone, from :func:`aligner.predict.limits`."""
 
-    def __init__(self, **kwargs: Any) -> None:
+    def __init__(self, mount: str, **kwargs: Any) -> None:
         super().__init__("working out the limits…", **kwargs)
+        self.mount = mount
         self.border_title = "Limits of amplification"
 
     def pending(self) -> None:
@@ -40,8 +41,8 @@ class LimitsPanel(Static):
         head.add_row("largest amplification", f"{num(lim.max_amplification, 4)} "
                                              f"(axis {lim.axis})")
         head.add_row("at imbalance", f"{lim.at_imbalance_deg:+.4f}° (reading "
-                                     f"{lim.at_reading_deg:.4f}°, null at "
-                                     f"{lim.null_reading_deg:.4f}°)")
+                                     f"{lim.at_reading_deg:.4f}°)")
+        head.add_row("null at", f"{lim.null_reading_deg:.4f}° ({self.mount})")
         head.add_row("limited by", lim.limited_by)
         alone = Table(box=None, padding=(0, 1), show_edge=False, header_style="bold")
         alone.add_column("each alone")
@@ -51,4 +52,4 @@ class LimitsPanel(Static):
             mark = "▶ " if name == lim.limited_by else "  "
             alone.add_row(f"{mark}{name}", num(m.max_amplification, 4),
                           f"{m.at_imbalance_deg:+.4f}°")
-        self.update(Group(head, Text(""), Text(lim.explanation), Text(""), alone))
+        self.update(Group(head, Text(lim.explanation, style="italic"), alone))

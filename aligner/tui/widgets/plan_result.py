@@ -54,8 +54,8 @@ class PlanResult(Static):
                              f"{float(plan.settings[name]):.5f}°",
                              f"{self.bench.mounts[name].resolution_deg:g}°")
         reached = Text(f"reached at the rounded readings: {num(q.value, 6)} "
-                       f"({q.relative_error:+.3%} from the exact solution); one step of "
-                       f"{self.bench.imbalance_mount} changes it by {q.step_change:.3%}")
+                       f"({q.relative_error * 100:+.2g} % from the exact solution); one step of "
+                       f"{self.bench.imbalance_mount} changes it by {q.step_change * 100:.2g} %")
         parts: list[Any] = [_heading(f"Set the mounts to (rounded to their steps) for the "
                                      f"{plan.quantity}"), settings, reached, Text("")]
         parts += self._branches(plan) + self._sensitivity(plan) + self._tolerance(plan)
