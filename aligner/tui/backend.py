@@ -110,6 +110,20 @@ class DeskBackend:
                 self._devices = open_devices(bench, realtime=self.realtime)
         return self._devices
 
+    def unmoved_differences(self, readings: Mapping[str, float],
+                            moved: set[str]) -> dict[str, tuple[float, float]]:
+        """Mounts a sweep will not move whose device reads other than ``readings`` by more
+        than one resolution step: ``{mount: (device reading, desk reading)}`` (deg)."""
+        devices = self.devices(readings)
+        out = {}
+        for name, mount in devices.mounts.items():
+            if name in moved:
+                continue
+            here = float(mount.position())
+            if abs(here - readings[name]) > self.bench.mounts[name].resolution_deg:
+                out[name] = (here, float(readings[name]))
+        return out
+
     def request_stop(self) -> None:
         """Ask a running sweep to pause after the point it is taking."""
         self._stop.set()
@@ -140,6 +154,7 @@ class DeskBackend:
         from ..run.schedule import parse_schedule, plan_points
         from ..run.sweep import resume_plan, run_sweep, start_run
 
+        devices = self.devices(readings)  # before the run exists: a device fault logs no run
         with RunLog(self.db_path) as log:
             if resume_run is None:
                 bench = self.bench_at(readings)
@@ -153,7 +168,6 @@ class DeskBackend:
                 run_id, dwell_s, settle_s = record.id, record.dwell_s, record.settle_s
             if on_start is not None:
                 on_start(run_id, points, log)
-            devices = self.devices(readings)
 
             def hook(point: LoggedPoint, done: int, total: int) -> None:
                 on_point(point, done, total, log)

@@ -22,6 +22,7 @@ from aligner.run.schedule import parse_schedule
 from aligner.tui.app import DeskApp
 from aligner.tui.backend import DeskBackend
 from aligner.tui.format import num, rate, sci
+from aligner.tui.messages import SweepEnded, SweepProgress
 from aligner.tui.widgets.safety import SAFETY_TEXT
 
 SIZE = (120, 36)
@@ -291,3 +292,29 @@ async def test_log_lists_runs_and_shows_the_points_of_the_selected_one(bench, tm
             first = log.points(1)
         assert [points.get_row_at(i)[5] for i in range(2)] == [sci(p.leak) for p in first]
         assert "run 1" in str(points.border_title)
+
+
+async def test_quit_during_a_sweep_pauses_it_first(bench, tmp_path):
+    app = desk(bench, tmp_path, realtime=True)
+    async with app.run_test(size=SIZE) as pilot:
+        await start_sweep(pilot, "linear:0.5:1.5:20", "0.2")
+        for _ in range(200):
+            await pilot.pause(0.05)
+            if app.screen.query_one("#sweep-points").row_count:
+                break
+        await pilot.press("ctrl+q")
+        await settle(pilot)
+        await pilot.pause(0.2)
+    assert app.return_code == 0
+    with RunLog(tmp_path / "runs.sqlite") as log:
+        (run,) = log.runs()
+    assert run.status == "interrupted" and 0 < run.points < 20
+
+
+def test_sweep_progress_messages_of_one_run_merge():
+    older = SweepProgress(1, 1, 5, ("p0",))
+    newer = SweepProgress(1, 2, 5, ("p0", "p1"))
+    other = SweepProgress(2, 1, 5, ("q0",))
+    # each message carries every point so far, so a newer one may stand in for an older one
+    assert older.can_replace(newer) and not older.can_replace(other)
+    assert not older.can_replace(SweepEnded(error="x"))

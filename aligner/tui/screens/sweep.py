@@ -110,6 +110,13 @@ class SweepScreen(DeskScreen):
             target = [p.readings[self.backend.bench.imbalance_mount] for p in plan
                       if self.backend.bench.imbalance_mount in p.readings]
             self.post_message(SweepStarted(run_id, len(plan), tuple(target), tuple(points)))
+            moved = {name for p in plan for name in p.readings}
+            for name, (here, wanted) in self.backend.unmoved_differences(readings,
+                                                                         moved).items():
+                self.app.call_from_thread(
+                    self.notify, f"{name} reads {here:.4f}° on the bench but {wanted:.4f}° on "
+                    "the bench screen; this sweep does not move it", severity="warning",
+                    timeout=10)
 
         def on_point(point: Any, done: int, total: int, log: Any) -> None:
             points.append(point)
