@@ -40,6 +40,7 @@ __all__ = [
     "Source",
     "load_bench",
     "resolve_bench_path",
+    "with_values",
     "write_values",
 ]
 
@@ -599,13 +600,8 @@ def load_bench(path: str | Path) -> Bench:
 _INDEXED = re.compile(r"^(?P<name>\w+)\[(?P<index>\d+)\]$")
 
 
-def write_values(path: str | Path, updates: Mapping[str, float | int | str]) -> None:
-    """Store values into a bench file by dotted key, keeping comments and layout.
-
-    Keys as in error messages: ``mounts.analyzer.offset_deg``, ``pre[1].retardance_waves``.
-    The result is validated before the file is replaced, so a bad update never leaves a broken
-    file behind."""
-    p = resolve_bench_path(path)
+def _apply_updates(p: Path, updates: Mapping[str, float | int | str]) -> tomlkit.TOMLDocument:
+    """The document of ``p`` with ``updates`` applied (dotted keys, ``pre[1].key`` indexing)."""
     doc = _read_document(p)
     for dotted, value in updates.items():
         *tables, leaf = dotted.split(".")
@@ -623,6 +619,25 @@ def write_values(path: str | Path, updates: Mapping[str, float | int | str]) -> 
                 node[name] = tomlkit.table()
             node = node[name]
         node[leaf] = value.item() if hasattr(value, "item") else value  # numpy scalars
+    return doc
+
+
+def with_values(bench: Bench, updates: Mapping[str, float | int | str]) -> Bench:
+    """The bench with ``updates`` (keys as in :func:`write_values`) applied in memory only,
+    e.g. a fitted offset for the next steps of a recipe. The file is not touched."""
+    if bench.path is None:
+        raise BenchFileError("<bench>", None, "this bench was not read from a file")
+    return parse_bench(_apply_updates(bench.path, updates).unwrap(), str(bench.path))
+
+
+def write_values(path: str | Path, updates: Mapping[str, float | int | str]) -> None:
+    """Store values into a bench file by dotted key, keeping comments and layout.
+
+    Keys as in error messages: ``mounts.analyzer.offset_deg``, ``pre[1].retardance_waves``.
+    The result is validated before the file is replaced, so a bad update never leaves a broken
+    file behind."""
+    p = resolve_bench_path(path)
+    doc = _apply_updates(p, updates)
     parse_bench(doc.unwrap(), str(p))
     tmp = p.with_suffix(p.suffix + ".tmp")
     tmp.write_text(tomlkit.dumps(doc), encoding="utf-8")
