@@ -55,6 +55,10 @@ class SweepScreen(DeskScreen):
             yield EventList(id="sweep-events")
         yield PointsTable(id="sweep-points")
 
+    def on_mount(self) -> None:
+        self.query_one(ProgressBar).update(total=1, progress=0)
+        self.query_one(EventList).show(())
+
     # -- actions -------------------------------------------------------------------------------
 
     def action_start(self) -> None:
