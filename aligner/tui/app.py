@@ -82,4 +82,5 @@ def make_app(bench: str | Path = "demo", *, db: str | Path | None = None,
     from ..bench import load_bench
 
     backend = DeskBackend(load_bench(bench), db_path=db, realtime=realtime)
+    backend.run_log().close()  # a run log that cannot be opened is refused before the UI starts
     return DeskApp(backend)

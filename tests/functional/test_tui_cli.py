@@ -55,3 +55,12 @@ def test_desk_runs_the_app_built_by_the_factory(monkeypatch, tmp_path):
     assert main(["desk", "demo", "--db", str(tmp_path / "runs.sqlite")]) == 0
     assert seen == {"bench": "demo walk-off readout, 830 nm", "db": tmp_path / "runs.sqlite",
                     "realtime": True}
+
+
+def test_desk_with_an_unusable_run_log_is_refused_before_the_ui_starts(tmp_path, capsys):
+    not_a_db = tmp_path / "notes.txt"
+    not_a_db.write_text("these are not runs\n" * 50, encoding="utf-8")
+    assert main(["desk", "demo", "--db", str(not_a_db)]) == 2
+    err = capsys.readouterr().err
+    assert str(not_a_db) in err and "--db" in err and "Traceback" not in err
+    assert not_a_db.read_text(encoding="utf-8").startswith("these are not runs")  # untouched
