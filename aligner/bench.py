@@ -40,6 +40,7 @@ __all__ = [
     "Source",
     "load_bench",
     "resolve_bench_path",
+    "snapshot_text",
     "with_values",
     "write_values",
 ]
@@ -628,6 +629,21 @@ def with_values(bench: Bench, updates: Mapping[str, float | int | str]) -> Bench
     if bench.path is None:
         raise BenchFileError("<bench>", None, "this bench was not read from a file")
     return parse_bench(_apply_updates(bench.path, updates).unwrap(), str(bench.path))
+
+
+def snapshot_text(bench: Bench) -> str:
+    """The bench file's text with the in-memory mount readings and offsets written in (what a
+    run log keeps, so a resumed run sees the bench as it was, not as the file says)."""
+    if bench.path is None:
+        raise BenchFileError("<bench>", None, "this bench was not read from a file")
+    on_file = load_bench(bench.path)
+    updates: dict[str, float] = {}
+    for name, mount in bench.mounts.items():
+        for key in ("reading_deg", "offset_deg", "offset_err_deg"):
+            value = getattr(mount, key)
+            if name not in on_file.mounts or getattr(on_file.mounts[name], key) != value:
+                updates[f"mounts.{name}.{key}"] = value
+    return tomlkit.dumps(_apply_updates(bench.path, updates))
 
 
 def write_values(path: str | Path, updates: Mapping[str, float | int | str]) -> None:

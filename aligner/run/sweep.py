@@ -22,7 +22,7 @@ from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
-from ..bench import Bench, parse_bench
+from ..bench import Bench, parse_bench, snapshot_text
 from ..errors import (
     BadReply,
     DeviceError,
@@ -64,7 +64,7 @@ class SweepOptions:
 @dataclass(frozen=True)
 class SweepResult:
     """How a sweep ended. ``status`` is ``complete`` or ``interrupted``; ``reason`` is ``""``,
-    ``interrupt`` (Ctrl-C), ``device`` or ``guard``."""
+    ``interrupt`` (Ctrl-C), ``operator`` (asked to stop), ``device`` or ``guard``."""
 
     run_id: int
     status: str
@@ -103,10 +103,7 @@ def _bench_text(bench: Bench) -> str:
     if bench.path is None:
         raise InputError("the bench has no file; a run log keeps the bench file's text, so load "
                          "the bench with load_bench(path)")
-    try:
-        return bench.path.read_text(encoding="utf-8")
-    except OSError as exc:
-        raise InputError(f"{bench.path}: cannot be read for the run log ({exc})") from None
+    return snapshot_text(bench)
 
 
 def start_run(log: RunLog, bench: Bench, schedule: Schedule, plan: Sequence[PlannedPoint],
@@ -142,10 +139,11 @@ class _Sweep:
 
     def __init__(self, bench: Bench, devices: DeviceSet, log: RunLog, run_id: int,
                  plan: Sequence[PlannedPoint], dwell_s: float, settle_s: float,
-                 options: SweepOptions, on_point: PointCallback | None) -> None:
+                 options: SweepOptions, on_point: PointCallback | None,
+                 stop: Callable[[], bool] | None) -> None:
         self.bench, self.devices, self.log, self.run_id = bench, devices, log, run_id
         self.plan, self.dwell_s, self.settle_s = plan, dwell_s, settle_s
-        self.options, self.on_point = options, on_point
+        self.options, self.on_point, self.stop = options, on_point, stop
         self.guard = DetectorGuard(bench, has_shutter=devices.shutter is not None,
                                    headroom=options.headroom, step_deg=options.step_deg)
         self.pending: list[Event] = []
@@ -311,6 +309,8 @@ class _Sweep:
         try:
             self.set_shutter(False, None)
             for p in todo:
+                if self.stop is not None and self.stop():
+                    return self.pause("paused by the operator", "operator")
                 point = self.point(p)
                 self.log.add_point(self.run_id, point, self.pending)
                 self.pending = []
@@ -332,13 +332,15 @@ class _Sweep:
 def run_sweep(bench: Bench, devices: DeviceSet, log: RunLog, run_id: int,
               plan: Sequence[PlannedPoint], *, dwell_s: float, settle_s: float = 0.0,
               options: SweepOptions | None = None,
-              on_point: PointCallback | None = None) -> SweepResult:
+              on_point: PointCallback | None = None,
+              stop: Callable[[], bool] | None = None) -> SweepResult:
     """Measure every planned point of run ``run_id`` not yet in the log (so the same call
     resumes an interrupted run). ``dwell_s`` and ``settle_s`` in s. ``on_point(point, done,
-    total)`` is called after each point is committed. Returns how the sweep ended; a pause
-    leaves the mounts stopped, the shutter shut and the run ``interrupted``."""
+    total)`` is called after each point is committed; ``stop()`` is asked before each point and
+    True pauses the sweep there. Returns how the sweep ended; a pause leaves the mounts
+    stopped, the shutter shut and the run ``interrupted``."""
     sweep = _Sweep(bench, devices, log, run_id, plan, dwell_s, settle_s,
-                   options or SweepOptions(), on_point)
+                   options or SweepOptions(), on_point, stop)
     return sweep.run()
 
 

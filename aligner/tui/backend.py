@@ -18,17 +18,10 @@ from ..errors import InputError
 from ..run.log import LoggedPoint, RunLog
 from ..run.simbench import DeviceSet
 
-__all__ = ["DeskBackend", "PointHook", "SweepStopped"]
+__all__ = ["DeskBackend", "PointHook"]
 
 #: Called from the sweep thread after each committed point: (point, done, total, run log).
 PointHook = Callable[[LoggedPoint, int, int, RunLog], None]
-
-
-class SweepStopped(KeyboardInterrupt):
-    """Raised inside the sweep loop when the operator asks it to pause.
-
-    A ``KeyboardInterrupt`` so the sweep loop pauses exactly as on Ctrl-C: mounts stopped,
-    shutter shut, the run marked interrupted and resumable."""
 
 
 class DeskBackend:
@@ -171,11 +164,9 @@ class DeskBackend:
 
             def hook(point: LoggedPoint, done: int, total: int) -> None:
                 on_point(point, done, total, log)
-                if self._stop.is_set():
-                    raise SweepStopped
 
             return run_sweep(bench, devices, log, run_id, points, dwell_s=dwell_s,
-                             settle_s=settle_s, on_point=hook)
+                             settle_s=settle_s, on_point=hook, stop=self._stop.is_set)
 
     # -- the run log --------------------------------------------------------------------------
 

@@ -141,3 +141,36 @@ def test_without_shutter_the_guard_keeps_far_moves_dark(tmp_path, bench):
     assert point.reading_deg == pytest.approx(plan[0].readings["analyzer"] + 180.0, abs=0.01)
     assert point.commanded["analyzer"] == pytest.approx(plan[0].readings["analyzer"] + 180.0)
     assert any("instead of" in e.message for e in log.events(run))
+
+
+def test_stop_request_pauses_before_the_next_point_and_resumes(tmp_path, bench, plan):
+    log, run = _start(tmp_path, bench, plan)
+    devices = open_devices(bench)
+    asked = []
+
+    def stop():
+        asked.append(True)
+        return len(asked) == 3  # pause before the third point
+
+    result = run_sweep(bench, devices, log, run, plan, dwell_s=0.5, stop=stop)
+    assert result.status == "interrupted" and result.reason == "operator"
+    assert result.points_done == 2
+    assert not devices.shutter.is_open()
+    assert "operator" in log.run(run).message
+    again = run_sweep(bench, devices, log, run, plan, dwell_s=0.5, stop=lambda: False)
+    assert again.status == "complete"
+    assert [p.idx for p in log.points(run)] == list(range(6))
+
+
+def test_run_snapshot_keeps_in_memory_readings(tmp_path, bench, plan):
+    from aligner.bench import with_values
+    from aligner.run.sweep import resume_plan
+
+    moved = with_values(bench, {"mounts.pre_qwp.reading_deg": 45.25,
+                                "mounts.analyzer.offset_deg": 0.04})
+    log = RunLog(tmp_path / "runs.sqlite")
+    run = start_run(log, moved, parse_schedule("linear:0.3:1.5:6", dwell_s=0.5), plan)
+    snapshot, _ = resume_plan(log.run(run))
+    assert snapshot.mounts["pre_qwp"].reading_deg == 45.25
+    assert snapshot.mounts["analyzer"].offset_deg == 0.04
+    assert "# Demo bench" in log.run(run).bench_toml  # comments kept
