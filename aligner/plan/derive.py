@@ -296,7 +296,7 @@ def derive(bench: Bench, free: Sequence[str] = ()) -> Derivation:
     t = sp.Symbol("t", positive=True)
     eta = sp.Symbol("eta", positive=True)
     b.meaning["eta"] = "1 - kappa (pointer decoherence; small)"
-    offsets = {m: sp.Symbol(f"eps_{_safe_name(m)}", real=True) for m in names}
+    offsets = {m: sp.Symbol(f"epsilon_{_safe_name(m)}", real=True) for m in names}
     for m, e in offsets.items():
         b.meaning[str(e)] = f"offset (rad) of {b.angles[m]} from the null at {null_deg[m]:.6g} deg"
     scale = {b.angles[m]: _exact_angle(null_deg[m]) + t * offsets[m] for m in names}

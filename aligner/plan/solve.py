@@ -647,6 +647,14 @@ def pointer_cap(bench: Bench) -> float:
 def infeasible(bench: Bench, target: Target, solution: Solution) -> InfeasibleTarget:
     """The error for a target with no root in travel: what limits it and what to change."""
     names = ", ".join(solution.unknowns)
+    if solution.nulls == 0 and _null_beyond_travel(bench, solution.unknowns):
+        best = _best_in_travel(bench, target, solution.unknowns)
+        return InfeasibleTarget(
+            f"the null (crossed setting) of mounts {names} lies outside their travel, so "
+            f"{target.describe()} cannot be reached"
+            + ("" if best is None else f" (at most {best:.4g} inside the travel)")
+            + "; widen travel_deg in the bench file or re-mount the optic", limit="travel",
+            achievable=best)
     if solution.nulls == 0:
         return InfeasibleTarget(
             f"mounts {names} cannot bring the post-selection orthogonal to the pre-selection "
@@ -661,7 +669,8 @@ def infeasible(bench: Bench, target: Target, solution: Solution) -> InfeasibleTa
             "widen travel_deg in the bench file or re-mount the optic", limit="travel",
             achievable=solution.peak)
     an, src = bench.analyzer.extinction_ratio, bench.source.extinction_ratio
-    ideal_cap = 0.5 * np.sqrt(1.0 / (1.0 / an + 1.0 / src))
+    with np.errstate(divide="ignore"):
+        ideal_cap = 0.5 * np.sqrt(1.0 / np.float64(1.0 / an + 1.0 / src))
     cap = pointer_cap(bench)
     if target.exact and cap < 1.2 * solution.peak:
         return InfeasibleTarget(
@@ -677,6 +686,28 @@ def infeasible(bench: Bench, target: Target, solution: Solution) -> InfeasibleTa
         f"amplification at {solution.peak:.4g} on this bench (about sqrt(ER)/2 = "
         f"{ideal_cap:.4g} for ideal states); use a polarizer with a higher extinction ratio",
         limit="extinction", achievable=solution.peak)
+
+
+def _null_beyond_travel(bench: Bench, names: Sequence[str]) -> bool:
+    """Would the mounts reach a null if their travel were a full turn?"""
+    wide = {n: replace(bench.mounts[n], travel_deg=(bench.mounts[n].reading_deg - 180.0,
+                                                    bench.mounts[n].reading_deg + 180.0))
+            for n in names}
+    fixed = {k: v for k, v in bench.readings().items() if k not in names}
+    free_bench = bench.with_mounts(**wide)
+    if len(names) == 1:
+        return any(s.null is not None for s in segments(free_bench, names[0], fixed))
+    return len(nulls(free_bench, names, fixed)) > 0
+
+
+def _best_in_travel(bench: Bench, target: Target, names: Sequence[str]) -> float | None:
+    """Largest |target quantity| over one mount's travel (None for several mounts)."""
+    if len(names) != 1:
+        return None
+    lo, hi = bench.mounts[names[0]].travel_deg
+    fixed = {k: v for k, v in bench.readings().items() if k != names[0]}
+    grid = np.linspace(lo, hi, 4001)
+    return float(np.nanmax(np.abs(target.figure(observe(bench, _with(fixed, names[0], grid))))))
 
 
 def _leak_infeasible(bench: Bench, target: Target, name: str) -> InfeasibleTarget:

@@ -39,21 +39,22 @@ _STEP_WAVES = 1e-5  # ... and of the retardance (waves)
 
 @dataclass(frozen=True)
 class Spread:
-    """Median and central 68 % / 95 % ranges of a sampled quantity."""
+    """Median, central 68 % / 95 % ranges and standard deviation of a sampled quantity."""
 
     median: float
     low68: float
     high68: float
     low95: float
     high95: float
+    std: float
 
     @classmethod
     def of(cls, values: Real) -> Spread:
         v = values[np.isfinite(values)]
         if v.size == 0:
-            return cls(*(float("nan"),) * 5)
+            return cls(*(float("nan"),) * 6)
         q = np.percentile(v, [50.0, 15.865, 84.135, 2.275, 97.725])
-        return cls(*(float(x) for x in q))
+        return cls(*(float(x) for x in q), float(np.std(v)))
 
     @property
     def half_width68(self) -> float:
@@ -76,7 +77,7 @@ class Tolerance:
     def to_dict(self) -> dict[str, object]:
         def spread(s: Spread) -> dict[str, float]:
             return {"median": s.median, "range68": [s.low68, s.high68],
-                    "range95": [s.low95, s.high95]}
+                    "range95": [s.low95, s.high95], "std": s.std}
 
         return {"samples": self.samples, "amplification": spread(self.figure),
                 "leak_rate": spread(self.leak_rate), "by_source": dict(self.by_source),
