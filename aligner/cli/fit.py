@@ -1,7 +1,7 @@
-"""``aligner fit``: calibration fits of measured scans (null, waveplate, leak curve, coupling).
+"""Calibration fits of measured scans (null, waveplate, leak curve, coupling).
 
 Poisson maximum likelihood on the bench's full forward model for count scans, Gaussian for
-pointer readings; errors from the observed information. ``--write`` stores what a fit found
+pointer readings; errors from the observed information. '--write' stores what a fit found
 into the bench file (comments kept).
 """
 

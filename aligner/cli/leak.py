@@ -1,4 +1,4 @@
-"""``aligner leak``: post-selected counts -> leak rate with an exact confidence interval, and a
+"""Post-selected counts -> leak rate with an exact confidence interval, and a
 verdict against the bench's prediction.
 
 Garwood interval for counted rates, Clopper-Pearson for count ratios and for clicks per pulse

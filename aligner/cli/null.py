@@ -1,6 +1,6 @@
-"""``aligner null``: find the crossed reading of a mount in closed loop (coarse scan, Poisson
+"""Find the crossed reading of a mount in closed loop (coarse scan, Poisson
 fit, backlash-aware move, finer scans) with the bench's mounts and counter, under the detector
-guard. Mounts with ``driver = "sim"`` and ``--counter sim`` use the simulated bench.
+guard. Mounts with 'driver = "sim"' and '--counter sim' use the simulated bench.
 """
 
 from __future__ import annotations
