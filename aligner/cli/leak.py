@@ -8,6 +8,7 @@ in pulsed mode; dead time and dark counts are corrected bound by bound.
 from __future__ import annotations
 
 import argparse
+from typing import Any
 
 from .common import add_json_flag, add_set_argument
 from .fit import SAFETY
@@ -67,8 +68,10 @@ def run(args: argparse.Namespace) -> int:
         options = {"dark_rate": d.dark_rate, "dead_time_s": d.dead_time_ns * 1e-9,
                    "efficiency": d.efficiency, "dark_probability": d.gate_dark_probability,
                    "rep_rate_hz": d.rep_rate_hz if d.mode == "pulsed" else None}
+        options["safe_rate"] = d.safe_rate
         if args.reference is None and args.reference_rate is None:
             options["reference_rate"] = bench.source.photon_rate * d.efficiency
+            options["reference_measured"] = False
     elif args.set:
         from ..errors import InputError
 
@@ -88,19 +91,46 @@ def run(args: argparse.Namespace) -> int:
     if args.json:
         emit_json(doc)
         return 0
+    print_table("leak from counts", _rows(m), [*m.warnings, *m.notes,
+                                               *([f"verdict: {m.verdict.text}"]
+                                                 if m.verdict else [])])
+    return 0
+
+
+def _rows(m: Any) -> list[tuple[str, str]]:
+    """Readable rows of a :class:`~aligner.fit.counts.LeakMeasurement`: the raw rate, each
+    correction in turn, then the signal and the leak (an upper limit when there is no
+    interval)."""
     pct = f"{m.level:.1%}"
-    rows = [("signal rate", f"{m.signal_rate:.4g} counts/s"),
-            (f"{pct} interval", f"{m.signal_rate_low:.4g} to {m.signal_rate_high:.4g} counts/s"),
-            ("dark rate used", f"{m.dark_rate:.4g} counts/s"), ("method", m.method)]
+    pulsed = m.mean_photons_per_pulse is not None
+    rows = [("raw rate (counts / gate)", f"{m.raw_rate:.4g} counts/s"),
+            (f"after dead-time correction ({m.dead_time_s * 1e9:g} ns)",
+             f"{m.dead_time_corrected_rate:.4g} counts/s"),
+            ("dark rate subtracted" if not pulsed else "dark clicks removed (per s)",
+             f"{m.dark_rate:.4g} counts/s"),
+            ("signal rate", f"{m.signal_rate:.4g} counts/s")]
+    if m.upper_limit:
+        rows.append((f"signal rate upper limit ({m.upper_limit_credibility:.2%})",
+                     f"below {m.signal_rate_high:.4g} counts/s"))
+    else:
+        rows.append((f"{pct} interval",
+                     f"{m.signal_rate_low:.4g} to {m.signal_rate_high:.4g} counts/s"))
+    rows.append(("method", m.method))
+    if m.reference_raw_rate is not None:
+        rows += [("reference raw rate", f"{m.reference_raw_rate:.4g} counts/s"),
+                 ("reference after dead-time correction",
+                  f"{m.reference_corrected_rate:.4g} counts/s")]
     if m.leak is not None:
-        rows += [("leak", f"{m.leak:.4g}"),
-                 (f"leak {pct} interval", f"{m.leak_low:.4g} to {m.leak_high:.4g}"),
-                 ("reference", str(m.reference))]
-    if m.mean_photons_per_pulse is not None:
+        if m.upper_limit:
+            rows.append((f"leak upper limit ({m.upper_limit_credibility:.2%})",
+                         f"below {m.leak_high:.4g}"))
+        else:
+            rows += [("leak", f"{m.leak:.4g}"),
+                     (f"leak {pct} interval", f"{m.leak_low:.4g} to {m.leak_high:.4g}")]
+        rows.append(("reference", str(m.reference)))
+    if pulsed:
         rows += [("photons per pulse", f"{m.mean_photons_per_pulse:.4g}"),
                  ("photons per pulse given a click", f"{m.mean_photons_given_click:.4g}")]
     if m.predicted_rate is not None:
         rows.append(("predicted signal rate", f"{m.predicted_rate:.4g} counts/s"))
-    notes = [*m.notes, *([f"verdict: {m.verdict.text}"] if m.verdict else [])]
-    print_table("leak from counts", rows, notes)
-    return 0
+    return rows

@@ -56,8 +56,7 @@ class CouplingFit:
             "linear_strength_err": self.linear_strength_err,
             "linear_bias": self.linear_bias, "linear_bias_sigma": self.linear_bias_sigma,
             "statement": self.statement,
-            "success": self.fit.success, "message": self.fit.message,
-            "goodness_of_fit": self.fit.goodness(), "points": self.fit.n_points,
+            **self.fit.summary(),
         }
 
     def bench_updates(self) -> dict[str, float]:

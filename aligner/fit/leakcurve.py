@@ -60,8 +60,7 @@ class LeakFit:
             "implied_extinction": self.implied_extinction,
             "predicted_floor": self.predicted_floor,
             "residual_sigma": self.verdict.residual_sigma, "verdict": self.verdict.text,
-            "success": self.fit.success, "message": self.fit.message,
-            "goodness_of_fit": self.fit.goodness(), "points": self.fit.n_points,
+            **self.fit.summary(),
         }
 
     def bench_updates(self) -> dict[str, float]:

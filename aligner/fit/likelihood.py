@@ -16,20 +16,21 @@ Uncertainties come from the observed information (the Hessian of ``-ln L`` at th
 (central differences with the given parameter steps). The covariance is ``H^-1``.
 
 Goodness of fit: the deviance (Poisson) or chi-square (Gaussian) with ``n - p`` degrees of
-freedom and its chi-square tail probability (only approximate when counts are small).
+freedom and its chi-square tail probability (only approximate when counts are small). Below
+:data:`GOF_P_MIN` the result carries a plain warning that the model does not describe the data.
 """
 
 from __future__ import annotations
 
 import math
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Protocol
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-__all__ = ["FitResult", "Gaussian", "Poisson", "maximize_likelihood"]
+__all__ = ["GOF_P_MIN", "FitResult", "Gaussian", "Poisson", "maximize_likelihood"]
 
 Real = NDArray[np.float64]
 Model = Callable[[Real], Real]
@@ -49,6 +50,10 @@ class Family(Protocol):
 
 
 _TINY = 1e-300
+
+#: Tail probability of the deviance below which a fit is reported as not describing the data
+#: (a 1 % test; common practice, no source).
+GOF_P_MIN = 0.01
 
 
 @dataclass(frozen=True)
@@ -111,7 +116,9 @@ class FitResult:
     information is not positive definite) and ``covariance`` are in the fit's own parameters,
     named by ``names``. ``deviance`` is ``-2 ln(L / L_saturated)`` (Poisson deviance, or
     chi-square for Gaussian readings) with ``dof`` degrees of freedom and tail probability
-    ``p_value``. ``evaluations`` counts model rows evaluated.
+    ``p_value``. ``evaluations`` counts model rows evaluated. ``message`` says in words how
+    the fit went (with the goodness-of-fit warning, if any); ``optimizer_message`` is the
+    optimizer's own termination line.
     """
 
     names: tuple[str, ...]
@@ -125,6 +132,17 @@ class FitResult:
     p_value: float
     n_points: int
     evaluations: int
+    optimizer_message: str = ""
+
+    @property
+    def warning(self) -> str:
+        """A plain goodness-of-fit warning when ``p_value < GOF_P_MIN``, else ``""``."""
+        if not (self.dof > 0 and self.p_value < GOF_P_MIN):
+            return ""
+        return (f"warning: the model does not describe the data (deviance {self.deviance:.1f} "
+                f"for {self.dof} degrees of freedom, p = {self.p_value:.2g}): the bench file "
+                "or the scan may be wrong (e.g. a drifting source, the wrong mount, a wrong "
+                "dark rate); the values and errors above are not to be trusted")
 
     def value(self, name: str) -> float:
         """Estimate of the parameter ``name``."""
@@ -133,6 +151,13 @@ class FitResult:
     def error(self, name: str) -> float:
         """Standard error of the parameter ``name``."""
         return float(self.stderr[self.names.index(name)])
+
+    def summary(self) -> dict[str, object]:
+        """The keys every fit's JSON shares: ``success``, ``message``, ``optimizer_message``,
+        ``goodness_of_fit`` and ``points``."""
+        return {"success": self.success, "message": self.message,
+                "optimizer_message": self.optimizer_message,
+                "goodness_of_fit": self.goodness(), "points": self.n_points}
 
     def goodness(self) -> dict[str, float | int]:
         """Goodness of fit as plain numbers (for JSON)."""
@@ -218,7 +243,9 @@ def maximize_likelihood(
     d1, d2 = family.nll_derivatives(mu)
     info = jac_mu.T @ (d2[:, None] * jac_mu) + np.einsum("i,ijk->jk", d1, hess_mu)
     success = bool(solution.success)
-    message = str(solution.message)
+    message = ("the fit converged" if success else
+               "the optimizer stopped before converging (too many evaluations); check the "
+               "scan covers the feature and the bench file's start values")
     try:
         np.linalg.cholesky(info)
         covariance = np.linalg.inv(info)
@@ -234,5 +261,9 @@ def maximize_likelihood(
     deviance = float(np.sum(family.residuals(mu) ** 2))
     dof = family.size - p
     p_value = float(chi2.sf(deviance, dof)) if dof > 0 else math.nan
-    return FitResult(tuple(names), theta, np.sqrt(np.diag(covariance)), covariance, success,
-                     message, deviance, dof, p_value, family.size, evaluations)
+    result = FitResult(tuple(names), theta, np.sqrt(np.diag(covariance)), covariance, success,
+                       message, deviance, dof, p_value, family.size, evaluations,
+                       str(solution.message))
+    if result.warning:
+        return replace(result, message=f"{message}; {result.warning}")
+    return result

@@ -67,8 +67,7 @@ class NullFit:
             "log_extinction_err": self.log_extinction_err,
             "rate_scale": self.rate_scale, "rate_scale_err": self.rate_scale_err,
             "dark_rate": self.dark_rate,
-            "success": self.fit.success, "message": self.fit.message,
-            "goodness_of_fit": self.fit.goodness(), "points": self.fit.n_points,
+            **self.fit.summary(),
         }
 
     def bench_updates(self) -> dict[str, float]:

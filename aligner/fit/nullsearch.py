@@ -95,6 +95,27 @@ def _safe_span(guard: Guard, readings: Mapping[str, float], name: str, centre: f
     return float(offsets[bad[0] - 1]) if bad[0] > 0 else 0.0
 
 
+def _check_options(span_deg: float, points: int, max_rounds: int, dwell_s: float) -> None:
+    """One clear error per bad option, in the words of the CLI options of ``aligner null``."""
+    problems = [
+        (not (math.isfinite(span_deg) and span_deg > 0),
+         f"the scan half-width span_deg (--span) must be a number of degrees > 0, got "
+         f"{span_deg!r}"),
+        (not (points >= 5 and points == int(points)),
+         f"the points per scan (points, --points) must be a whole number >= 5 (a null fit has "
+         f"up to 3 parameters), got {points!r}"),
+        (not (max_rounds >= 1 and max_rounds == int(max_rounds)),
+         f"the most scan-and-fit rounds (max_rounds, --rounds) must be a whole number >= 1, "
+         f"got {max_rounds!r}"),
+        (not (math.isfinite(dwell_s) and dwell_s > 0),
+         f"the gate per point dwell_s (--dwell) must be a number of seconds > 0, got "
+         f"{dwell_s!r}"),
+    ]
+    bad = [text for failed, text in problems if failed]
+    if bad:
+        raise InputError("null search: " + "; ".join(bad))
+
+
 def search_null(
     bench: Bench,
     mount: RotationMount,
@@ -115,9 +136,7 @@ def search_null(
     half-width of the coarse scan (narrowed to where the guard's prediction stays dark).
     """
     name = require_mount(bench, mount_name, bench.analyzer.mount, "null search")
-    if points < 5 or max_rounds < 1 or not dwell_s > 0 or not span_deg > 0:
-        raise InputError("null search needs points >= 5, max_rounds >= 1, dwell_s > 0 and "
-                         "span_deg > 0")
+    _check_options(span_deg, points, max_rounds, dwell_s)
     current = {**bench.readings(), **(readings or {})}
     current[name] = float(mount.position())
     here = bench.with_mounts(**{k: replace(m, reading_deg=current[k])

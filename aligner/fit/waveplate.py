@@ -70,8 +70,7 @@ class WaveplateFit:
             "retardance_waves": self.retardance_waves,
             "retardance_err_waves": self.retardance_err_waves,
             "rate_scale": self.rate_scale, "ambiguity": self.ambiguity,
-            "success": self.fit.success, "message": self.fit.message,
-            "goodness_of_fit": self.fit.goodness(), "points": self.fit.n_points,
+            **self.fit.summary(),
         }
 
     def bench_updates(self) -> dict[str, float]:

@@ -6,6 +6,8 @@ Pure functions, vectorized over array arguments. ``level`` is the two-sided conf
 * :func:`clopper_pearson` -- exact interval for a binomial proportion ``k / n`` (clicks per
   pulse; one count channel's share of two).
 * :func:`garwood` -- exact interval for a Poisson mean from ``k`` counts.
+* :func:`poisson_upper_limit` -- upper limit on a Poisson signal mean over a known background
+  (Bayesian, flat prior on the signal: Helene 1983), for counts at or below the background.
 * :func:`poisson_ratio_interval` -- exact conditional interval for the ratio of two Poisson
   means (counts in one port over counts in another), by Clopper-Pearson on ``k1 | k1 + k2``.
 * :func:`photon_conditioning` -- click probability and mean photon number given click / no
@@ -27,6 +29,7 @@ __all__ = [
     "garwood",
     "photon_conditioning",
     "poisson_ratio_interval",
+    "poisson_upper_limit",
 ]
 
 Real = NDArray[np.float64]
@@ -75,6 +78,34 @@ def garwood(k: ArrayLike, level: float = DEFAULT_LEVEL) -> tuple[Real, Real]:
     low = np.where(k > 0, gammaincinv(np.maximum(k, 1e-300), a), 0.0)
     high = gammaincinv(k + 1, 1 - a)
     return low, high
+
+
+def poisson_upper_limit(k: ArrayLike, background: ArrayLike,
+                        credibility: float) -> Real:
+    """Upper limit on the signal mean ``s >= 0`` from ``k`` counts over a known background mean
+    ``b`` (counts): Bayesian with a flat prior on ``s`` (Helene, Nucl. Instrum. Methods 212,
+    319 (1983)), the limit ``s_up`` solving
+
+        Q(k + 1, s_up + b) = (1 - credibility) Q(k + 1, b),
+
+    ``Q`` the regularized upper incomplete gamma function (``Q(k + 1, mu)`` is the Poisson
+    probability of at most ``k`` counts). It never collapses to zero when ``k`` is below
+    ``b``; for ``b = 0`` it is the one-sided Garwood bound. Where ``Q(k + 1, b)`` underflows
+    (``b`` far above ``k``) the limit is its asymptote ``-ln(1 - credibility) / (1 - k/b)``.
+    """
+    from scipy.special import gammaincc, gammainccinv
+
+    if not 0.0 < credibility < 1.0:
+        raise ValueError(f"credibility must be between 0 and 1, got {credibility!r}")
+    k = np.asarray(k, float)
+    b = np.asarray(background, float)
+    if np.any(k < 0) or np.any(b < 0):
+        raise ValueError("counts and background must be >= 0 for an upper limit")
+    q = (1.0 - credibility) * gammaincc(k + 1, b)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        exact = gammainccinv(k + 1, np.where(q > 0, q, 0.5)) - b
+        tail = -np.log1p(-credibility) / (1.0 - k / np.where(b > 0, b, 1.0))
+    return np.maximum(np.where(q > 0, exact, tail), 0.0)
 
 
 def poisson_ratio_interval(k1: ArrayLike, k2: ArrayLike,
