@@ -59,36 +59,77 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.set_defaults(handler=run)
 
 
-def _load_pointer(data: str, db: str | None) -> Any:
-    """A pointer scan from a CSV file, or from logged run number ``data``."""
+def _load_pointer(data: str, db: str | None) -> tuple[Any, str]:
+    """A pointer scan from a CSV file, or from logged run number ``data``, and what to call it
+    in a title."""
     from pathlib import Path
 
     from ..errors import DataFileError
     from ..fit.csvdata import PointerScan, load_pointer_scan
 
     if Path(data).exists() or not data.isdigit():
-        return load_pointer_scan(data)
+        return load_pointer_scan(data), data
     import numpy as np
 
     from ..run.log import read_run
 
-    _, points = read_run(int(data), db)
+    record, points = read_run(int(data), db)
     with_pointer = [p for p in points if p.pointer is not None and p.pointer_err]
     if len(with_pointer) < 2:
         raise DataFileError(f"run {data}: {len(with_pointer)} point(s) carry pointer readings; "
                             "the coupling fit needs at least 2")
     return PointerScan(np.array([p.reading_deg for p in with_pointer]),
                        np.array([p.pointer for p in with_pointer]),
-                       np.array([p.pointer_err for p in with_pointer]), f"run {data}")
+                       np.array([p.pointer_err for p in with_pointer]), f"run {data}",
+                       record.imbalance_mount), f"run {data}"
 
 
-def _rows(doc: dict[str, Any]) -> list[tuple[str, str]]:
-    skip = {"fit", "goodness_of_fit", "ambiguity", "statement", "verdict", "message"}
-    rows = [(k, f"{v:.6g}" if isinstance(v, float) else str(v))
-            for k, v in doc.items() if k not in skip]
+def _pm(doc: dict[str, Any], key: str, err: str | None, unit: str, fmt: str = ".6g") -> str:
+    """``value +/- error unit`` from a fit's JSON document."""
+    text = format(doc[key], fmt)
+    if err is not None:
+        text += f" +/- {format(doc[err], '.2g')}"
+    return f"{text} {unit}".rstrip()
+
+
+#: Readable rows of each fit: (label, value key, error key or None, unit).
+ROWS: dict[str, tuple[tuple[str, str, str | None, str], ...]] = {
+    "null": (("null reading", "null_reading_deg", "null_reading_err_deg", "deg"),
+             ("mount offset for the bench file", "offset_deg", None, "deg"),
+             ("analyzer extinction ratio", "extinction_ratio", "extinction_ratio_err", ""),
+             ("photon rate / bench file's", "rate_scale", "rate_scale_err", ""),
+             ("dark rate used", "dark_rate", None, "counts/s")),
+    "waveplate": (("fast-axis reading", "fast_axis_reading_deg", "fast_axis_err_deg", "deg"),
+                  ("equally good reading (fast/slow swapped)", "fast_axis_alternative_deg",
+                   None, "deg"),
+                  ("retardance", "retardance_waves", "retardance_err_waves", "waves"),
+                  ("photon rate / bench file's", "rate_scale", None, "")),
+    "leak": (("imbalance offset", "imbalance_offset_deg", "imbalance_offset_err_deg", "deg"),
+             ("leak floor (fraction of bright)", "leak_floor", "leak_floor_err", ""),
+             ("implied extinction", "implied_extinction", None, ""),
+             ("bench file's predicted floor", "predicted_floor", None, "")),
+    "coupling": (("coupling strength (exact)", "strength", "strength_err", ""),
+                 ("coupling strength (linear formula)", "linear_strength",
+                  "linear_strength_err", ""),
+                 ("bench file's coupling.strength", "bench_strength", None, "")),
+}
+
+
+def _rows(kind: str, doc: dict[str, Any]) -> list[tuple[str, str]]:
+    """The readable table of a fit: words with units (a coupling in the bench's pointer
+    units), no raw keys."""
+    from ..fit.counts import format_sigma
+
+    rows = [("mount", str(doc["mount"]))]
+    rows += [(label, _pm(doc, key, err, doc["units"] if kind == "coupling" else unit))
+             for label, key, err, unit in ROWS[kind]]
+    if kind == "coupling":
+        rows.append(("fitted - bench file", format_sigma(doc["bench_difference_sigma"])))
     gof = doc["goodness_of_fit"]
-    rows.append(("deviance / dof", f"{gof['deviance']:.1f} / {gof['dof']} "
-                                   f"(p = {gof['p_value']:.3g})"))
+    rows += [("points", str(doc["points"])),
+             ("deviance / degrees of freedom", f"{gof['deviance']:.1f} / {gof['dof']} "
+                                               f"(p = {gof['p_value']:.3g})"),
+             ("fit", "converged" if doc["success"] else "FAILED")]
     return rows
 
 
@@ -97,46 +138,57 @@ def run(args: argparse.Namespace) -> int:
     from ..bench import DEMO_BENCH, load_bench, write_values
     from ..errors import InputError
     from ..fit.csvdata import load_count_scan
+    from ..fit.scanmodel import mount_statement
     from .common import emit_json
 
     bench = load_bench(args.bench)
     options = {"dwell_s": args.dwell, "dark_rate": args.dark_rate}
+    label = args.data
     if args.kind == "coupling":
         from ..fit.coupling import fit_coupling
 
-        result = fit_coupling(bench, _load_pointer(args.data, args.db), args.mount)
-    elif args.kind == "null":
-        from ..fit.null import fit_null
-
-        result = fit_null(bench, load_count_scan(args.data), args.mount, **options)
-    elif args.kind == "waveplate":
-        from ..fit.waveplate import fit_waveplate
-
-        result = fit_waveplate(bench, load_count_scan(args.data), args.mount,
-                               free_scale=args.free_rate, **options)
+        scan, label = _load_pointer(args.data, args.db)
+        result = fit_coupling(bench, scan, args.mount)
     else:
-        from ..fit.leakcurve import fit_leak_curve
+        scan = load_count_scan(args.data)
+        if args.kind == "null":
+            from ..fit.null import fit_null
 
-        result = fit_leak_curve(bench, load_count_scan(args.data), args.mount, **options)
+            result = fit_null(bench, scan, args.mount, **options)
+        elif args.kind == "waveplate":
+            from ..fit.waveplate import fit_waveplate
+
+            result = fit_waveplate(bench, scan, args.mount, free_scale=args.free_rate,
+                                   **options)
+        else:
+            from ..fit.leakcurve import fit_leak_curve
+
+            result = fit_leak_curve(bench, scan, args.mount, **options)
     doc = result.to_json()
+    doc["mount_basis"] = mount_statement(bench, scan, args.mount, result.mount)
     updates = result.bench_updates()
     if args.write and bench.path == DEMO_BENCH:
         raise InputError("--write: the bundled demo bench is not written to; copy it "
                          "(e.g. to my-bench.toml) and fit with --bench my-bench.toml")
-    written = bool(args.write and updates and result.fit.success)
+    sound = result.fit.success and not result.fit.warning
+    written = bool(args.write and updates and sound)
     if written:
         write_values(bench.path or args.bench, updates)
     doc["written"] = dict(updates) if written else {}
     if args.json:
         emit_json(doc)
         return 0 if result.fit.success else 1
-    notes = [doc.get("ambiguity", ""), doc.get("statement", ""), doc.get("verdict", ""),
-             f"optimizer: {doc['message']}"]
+    notes = [result.fit.warning, doc["mount_basis"], doc.get("ambiguity", ""),
+             doc.get("statement", ""), getattr(result, "bench_comparison", ""),
+             f"verdict: {doc['verdict']}" if doc.get("verdict") else "",
+             "" if result.fit.success else f"the fit failed: {result.fit.message}"]
     if written:
         notes.append(f"written to {bench.path}: " + ", ".join(f"{k} = {v}"
                                                              for k, v in updates.items()))
     elif args.write:
-        notes.append("nothing written: " + ("the fit failed" if updates else
-                                            "this fit has no bench values to store"))
-    print_table(f"{args.kind} fit of {args.data}", _rows(doc), [n for n in notes if n])
+        why = ("this fit has no bench values to store" if not updates else
+               "the fit failed" if not result.fit.success else
+               "the model does not describe the data (see the warning)")
+        notes.append(f"nothing written: {why}")
+    print_table(f"{args.kind} fit of {label}", _rows(args.kind, doc), [n for n in notes if n])
     return 0 if result.fit.success else 1

@@ -20,6 +20,7 @@ import numpy as np
 from ..bench import Bench
 from ..model import coupling_observable, forward
 from ..physics.weak import pointer_response, weak_value
+from .counts import format_sigma
 from .csvdata import PointerScan
 from .likelihood import FitResult, Gaussian, maximize_likelihood
 from .scanmodel import require_mount
@@ -34,7 +35,9 @@ BIAS_SIGMA = 1.0
 class CouplingFit:
     """``strength`` (g, bench units per unit eigenvalue) with ``strength_err``; the linear
     estimate ``linear_strength`` (``linear_strength_err``); ``linear_bias`` = linear/exact - 1
-    and ``linear_bias_sigma`` = (linear - exact)/strength_err; ``statement`` in words."""
+    and ``linear_bias_sigma`` = (linear - exact)/strength_err; ``bench_strength`` is the bench
+    file's ``coupling.strength`` and ``bench_difference_sigma`` = (strength -
+    bench_strength)/strength_err; ``statement`` in words."""
 
     mount: str
     units: str
@@ -46,6 +49,21 @@ class CouplingFit:
     linear_bias_sigma: float
     statement: str
     fit: FitResult
+    bench_strength: float = math.nan
+    bench_difference_sigma: float = math.nan
+
+    @property
+    def bench_comparison(self) -> str:
+        """The fitted strength against the bench file's, in words."""
+        if not math.isfinite(self.bench_difference_sigma):
+            return (f"the bench file's coupling.strength is {self.bench_strength:.5g} "
+                    f"{self.units}; no comparison (the error of the fit is unknown)")
+        far = abs(self.bench_difference_sigma) > 2.0
+        return (f"fitted {self.strength:.5g} {self.units} against the bench file's "
+                f"coupling.strength {self.bench_strength:.5g} "
+                f"({format_sigma(self.bench_difference_sigma)}): "
+                + ("they differ; store the fitted value (--write) if the scan is sound"
+                   if far else "consistent"))
 
     def to_json(self) -> dict[str, Any]:
         """The JSON document of ``aligner fit coupling --json``."""
@@ -55,7 +73,8 @@ class CouplingFit:
             "linear_strength": self.linear_strength,
             "linear_strength_err": self.linear_strength_err,
             "linear_bias": self.linear_bias, "linear_bias_sigma": self.linear_bias_sigma,
-            "statement": self.statement,
+            "statement": self.statement, "bench_strength": self.bench_strength,
+            "bench_difference_sigma": self.bench_difference_sigma,
             **self.fit.summary(),
         }
 
@@ -67,7 +86,7 @@ class CouplingFit:
 def fit_coupling(bench: Bench, scan: PointerScan, mount: str | None = None) -> CouplingFit:
     """Fit ``g`` to pointer readings (see the module docstring); ``mount`` defaults to the
     bench's imbalance mount."""
-    name = require_mount(bench, mount, bench.imbalance_mount, "coupling")
+    name = require_mount(bench, mount, bench.imbalance_mount, "coupling", scan)
     c = bench.coupling
     fwd = forward(bench, {name: scan.reading_deg})
     a = coupling_observable(bench)
@@ -102,10 +121,17 @@ def fit_coupling(bench: Bench, scan: PointerScan, mount: str | None = None) -> C
     bias_sigma = (g_lin - g) / g_err if g_err > 0 else math.nan
     if abs(bias_sigma) > BIAS_SIGMA:
         statement = (f"the linear formula is biased here: it gives {g_lin:.5g} {c.units}, "
-                     f"{bias:+.1%} from the exact {g:.5g} ({bias_sigma:+.1f} sigma); the "
+                     f"{_percent(bias)} from the exact {g:.5g} ({format_sigma(bias_sigma)}); the "
                      "shifts are outside the linear regime (|g A_w| is not small against the "
                      "pointer width), so use the exact estimate")
     else:
-        statement = (f"the linear formula agrees within the error ({bias:+.2%}, "
-                     f"{bias_sigma:+.1f} sigma): the points are in the linear regime")
-    return CouplingFit(name, c.units, g, g_err, g_lin, g_lin_err, bias, bias_sigma, statement, fit)
+        statement = (f"the linear formula agrees within the error ({_percent(bias)}, "
+                     f"{format_sigma(bias_sigma)}): the points are in the linear regime")
+    difference = (g - c.strength) / g_err if g_err > 0 else math.nan
+    return CouplingFit(name, c.units, g, g_err, g_lin, g_lin_err, bias, bias_sigma, statement,
+                       fit, float(c.strength), difference)
+
+
+def _percent(value: float) -> str:
+    """A signed percentage without a signed zero (``+1.2%``, ``0.00%``)."""
+    return "0.00%" if abs(value) < 5e-5 else f"{value:+.2%}"

@@ -4,6 +4,12 @@ Count scans: columns ``reading_deg,counts`` and optionally ``dwell_s`` (s) and `
 (counts of a reference port or monitor over the same gate). Pointer scans: ``reading_deg,
 pointer,pointer_err`` (pointer units of the bench). Other columns are ignored. Every problem is
 a :class:`~aligner.errors.DataFileError` naming the file, the row (1 = header) and the column.
+
+Which mount the readings belong to: a ``mount`` column (one mount name on every row, as in
+``aligner log export``) names it; a run export without one (columns ``run``, ``index`` and
+``imbalance_deg``) holds readings of the run's imbalance mount (``run_export`` True). The
+fits check either against the mount they are asked to fit
+(:func:`aligner.fit.scanmodel.require_mount`).
 """
 
 from __future__ import annotations
@@ -20,6 +26,12 @@ from numpy.typing import NDArray
 from ..errors import DataFileError
 
 __all__ = ["CountScan", "PointerScan", "load_count_scan", "load_pointer_scan", "read_columns"]
+
+#: The text column naming the mount the readings were taken with.
+MOUNT_COLUMN = "mount"
+#: Columns that together mark a run export (``aligner log export``): readings of the imbalance
+#: mount of the run.
+RUN_EXPORT_COLUMNS = ("run", "index", "imbalance_deg")
 
 Real = NDArray[np.float64]
 
@@ -72,9 +84,8 @@ def _check(path: str, row: int, name: str, text: str, spec: Column) -> float:
     return value
 
 
-def read_columns(path: str | Path, columns: Mapping[str, Column],
-                 min_rows: int) -> dict[str, Real]:
-    """Read the named columns of a CSV file as float arrays (absent optional ones left out)."""
+def _read_table(path: str | Path) -> tuple[str, list[str], list[list[str]]]:
+    """The file's name, its header row (stripped cells) and its non-empty data rows."""
     name = str(path)
     try:
         with open(path, newline="", encoding="utf-8") as handle:
@@ -83,16 +94,24 @@ def read_columns(path: str | Path, columns: Mapping[str, Column],
         raise DataFileError(f"{name}: file not found (give the path of a CSV file)") from None
     except (OSError, UnicodeDecodeError, csv.Error) as exc:
         raise DataFileError(f"{name}: cannot be read as CSV ({exc})") from None
-    wanted = ", ".join(k for k, c in columns.items() if c.required)
     if not rows:
-        raise DataFileError(f"{name}: the file is empty; expected a header row ({wanted}) "
-                            "and data rows")
-    header = [cell.strip() for cell in rows[0]]
+        raise DataFileError(f"{name}: the file is empty; expected a header row and data rows")
+    return name, [cell.strip() for cell in rows[0]], rows[1:]
+
+
+def read_columns(path: str | Path, columns: Mapping[str, Column],
+                 min_rows: int) -> dict[str, Real]:
+    """Read the named columns of a CSV file as float arrays (absent optional ones left out)."""
+    return _columns(*_read_table(path), columns, min_rows)
+
+
+def _columns(name: str, header: list[str], data: list[list[str]],
+             columns: Mapping[str, Column], min_rows: int) -> dict[str, Real]:
+    wanted = ", ".join(k for k, c in columns.items() if c.required)
     missing = [k for k, c in columns.items() if c.required and k not in header]
     if missing:
         raise DataFileError(f"{name}: row 1 (header) lacks column(s) {', '.join(missing)}; "
                             f"the header must name at least: {wanted}")
-    data = rows[1:]
     if len(data) < min_rows:
         raise DataFileError(f"{name}: {len(data)} data row(s); this fit needs at least "
                             f"{min_rows}")
@@ -111,36 +130,63 @@ def read_columns(path: str | Path, columns: Mapping[str, Column],
     return out
 
 
+def _mount(name: str, header: list[str], data: list[list[str]]) -> tuple[str | None, bool]:
+    """The mount named by the ``mount`` column (None without one) and whether the file is a
+    run export (readings of the run's imbalance mount)."""
+    export = all(c in header for c in RUN_EXPORT_COLUMNS)
+    if MOUNT_COLUMN not in header:
+        return None, export
+    index = header.index(MOUNT_COLUMN)
+    cells = [row[index].strip() if index < len(row) else "" for row in data]
+    first = cells[0] if cells else ""
+    for number, cell in enumerate(cells, start=2):
+        if not cell or cell != first:
+            problem = f"differs from {first!r} in row 2" if cell else "is empty"
+            raise DataFileError(f"{name}: row {number}, column {MOUNT_COLUMN!r}: {cell!r} "
+                                f"{problem}; a scan turns one mount, so every row must name "
+                                "the same mount (split the file by mount)")
+    return (first or None), export
+
+
 @dataclass(frozen=True)
 class CountScan:
     """Counts against a mount reading. ``dwell_s`` and ``reference`` per point (None when the
-    file has no such column)."""
+    file has no such column); ``mount`` is the file's mount column (None without one),
+    ``run_export`` True for a run export (readings of the run's imbalance mount)."""
 
     reading_deg: Real
     counts: Real
     dwell_s: Real | None
     reference: Real | None
     path: str
+    mount: str | None = None
+    run_export: bool = False
 
 
 @dataclass(frozen=True)
 class PointerScan:
-    """Pointer readings (mean and standard error, bench units) against a mount reading."""
+    """Pointer readings (mean and standard error, bench units) against a mount reading;
+    ``mount`` and ``run_export`` as for :class:`CountScan`."""
 
     reading_deg: Real
     pointer: Real
     pointer_err: Real
     path: str
+    mount: str | None = None
+    run_export: bool = False
 
 
 def load_count_scan(path: str | Path, min_rows: int = 4) -> CountScan:
     """Read a count scan CSV (see the module docstring)."""
-    cols = read_columns(path, COUNT_COLUMNS, min_rows)
+    table = _read_table(path)
+    cols = _columns(*table, COUNT_COLUMNS, min_rows)
     return CountScan(cols["reading_deg"], cols["counts"], cols.get("dwell_s"),
-                     cols.get("reference"), str(path))
+                     cols.get("reference"), table[0], *_mount(*table))
 
 
 def load_pointer_scan(path: str | Path, min_rows: int = 2) -> PointerScan:
     """Read a pointer scan CSV (see the module docstring)."""
-    cols = read_columns(path, POINTER_COLUMNS, min_rows)
-    return PointerScan(cols["reading_deg"], cols["pointer"], cols["pointer_err"], str(path))
+    table = _read_table(path)
+    cols = _columns(*table, POINTER_COLUMNS, min_rows)
+    return PointerScan(cols["reading_deg"], cols["pointer"], cols["pointer_err"], table[0],
+                       *_mount(*table))

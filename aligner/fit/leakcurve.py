@@ -79,7 +79,7 @@ def fit_leak_curve(bench: Bench, scan: CountScan, mount: str | None = None, *,
                    dwell_s: float | None = None, dark_rate: float | None = None) -> LeakFit:
     """Fit leak against imbalance (see the module docstring); ``mount`` defaults to the
     bench's ``imbalance_mount``."""
-    name = require_mount(bench, mount, bench.imbalance_mount, "leak")
+    name = require_mount(bench, mount, bench.imbalance_mount, "leak", scan)
     dwell = dwell_per_point(scan, dwell_s)
     weights = reference_weights(scan)
     eps = np.deg2rad(imbalance_deg(bench, {name: scan.reading_deg}))

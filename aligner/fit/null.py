@@ -87,7 +87,7 @@ def fit_null(bench: Bench, scan: CountScan, mount: str | None = None, *,
     ``mount`` defaults to the analyzer's mount; ``dwell_s`` is used when the scan has no
     ``dwell_s`` column; ``dark_rate`` (counts/s) overrides the bench detector's dark rate.
     """
-    name = require_mount(bench, mount, bench.analyzer.mount, "null")
+    name = require_mount(bench, mount, bench.analyzer.mount, "null", scan)
     dwell = dwell_per_point(scan, dwell_s)
     weights = reference_weights(scan)
     readings = scan.reading_deg

@@ -20,11 +20,12 @@ from ..errors import InputError
 from ..model import coupling_observable, forward
 from ..physics.detection import expected_rates
 from ..physics.weak import pointer_response
-from .csvdata import CountScan
+from .csvdata import CountScan, PointerScan
 
 __all__ = [
     "detected_rate",
     "dwell_per_point",
+    "mount_statement",
     "null_reading_deg",
     "plate_element",
     "post_probability",
@@ -38,16 +39,50 @@ __all__ = [
 Real = NDArray[np.float64]
 
 
-def require_mount(bench: Bench, mount: str | None, default: str | None, what: str) -> str:
-    """The mount a scan was taken with (``--mount``, else ``default``), checked."""
-    name = mount or default
+def _file_mount(bench: Bench, scan: CountScan | PointerScan | None) -> tuple[str | None, str]:
+    """The mount a scan file says its readings are of, and why (``""`` when it says nothing)."""
+    if scan is None:
+        return None, ""
+    if scan.mount:
+        return scan.mount, "the file's mount column"
+    if scan.run_export:
+        return bench.imbalance_mount, ("a run export without a mount column: readings of the "
+                                       "run's imbalance mount, taken to be this bench's "
+                                       "imbalance_mount")
+    return None, ""
+
+
+def require_mount(bench: Bench, mount: str | None, default: str | None, what: str,
+                  scan: CountScan | PointerScan | None = None) -> str:
+    """The mount a scan was taken with (``--mount``, else ``default``), checked against the
+    bench and against the mount the scan file names (a mismatch is refused)."""
+    file_mount, why = _file_mount(bench, scan)
+    name = mount or default or file_mount
     if name is None:
         raise InputError(f"say which mount the {what} scan turned (--mount; the bench has: "
                          f"{', '.join(bench.mounts)})")
     if name not in bench.mounts:
         raise InputError(f"--mount {name!r}: no such mount; the bench has: "
                          f"{', '.join(bench.mounts)}")
+    if file_mount is not None and name != file_mount:
+        asked = f"--mount {name!r}" if mount else f"{name!r} (the {what} fit's default mount)"
+        raise InputError(f"{scan.path}: the readings are of mount {file_mount!r} ({why}), but "
+                         f"the {what} fit was asked for {asked}; fit a scan of {name!r}, or "
+                         f"give --mount {file_mount} if that mount is the one to fit")
     return name
+
+
+def mount_statement(bench: Bench, scan: CountScan | PointerScan, mount: str | None,
+                    name: str) -> str:
+    """In words, which mount the readings of ``scan`` were taken to belong to and why
+    (``mount`` is what ``--mount`` gave, ``name`` the mount fitted)."""
+    file_mount, why = _file_mount(bench, scan)
+    if file_mount is not None:
+        return f"readings of mount {name!r} ({why})"
+    if mount:
+        return f"readings taken to belong to mount {name!r} (--mount; the file does not say)"
+    return (f"readings taken to belong to mount {name!r} (the default for this fit; the file "
+            "does not say: give --mount if the scan turned another mount)")
 
 
 def post_probability(bench: Bench, readings: dict[str, ArrayLike]) -> Real:

@@ -86,7 +86,7 @@ def fit_waveplate(bench: Bench, scan: CountScan, mount: str | None = None, *,
                   free_scale: bool = False) -> WaveplateFit:
     """Fit a waveplate scan (see the module docstring); ``mount`` defaults to the bench's
     ``phase_mount``."""
-    name = require_mount(bench, mount, bench.phase_mount, "waveplate")
+    name = require_mount(bench, mount, bench.phase_mount, "waveplate", scan)
     element = plate_element(bench, name)
     dwell = dwell_per_point(scan, dwell_s)
     weights = reference_weights(scan)
