@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import threading
 from collections.abc import Callable, Mapping, Sequence
-from dataclasses import replace
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any
 
@@ -18,10 +18,22 @@ from ..errors import InputError
 from ..run.log import LoggedPoint, RunLog
 from ..run.simbench import DeviceSet
 
-__all__ = ["DeskBackend", "PointHook"]
+__all__ = ["DeskBackend", "PointHook", "SweepPreview"]
 
 #: Called from the sweep thread after each committed point: (point, done, total, run log).
 PointHook = Callable[[LoggedPoint, int, int, RunLog], None]
+
+
+@dataclass(frozen=True)
+class SweepPreview:
+    """A sweep planned but not started: the bench at the desk's readings, the parsed schedule,
+    the planned points and the mounts whose planned readings differ from the desk's by more
+    than one resolution step (``moves``, bench order)."""
+
+    bench: Bench
+    schedule: Any
+    points: tuple[Any, ...]
+    moves: tuple[str, ...]
 
 
 class DeskBackend:
@@ -117,6 +129,23 @@ class DeskBackend:
                 out[name] = (here, float(readings[name]))
         return out
 
+    def hardware_mounts(self) -> tuple[str, ...]:
+        """Mounts whose driver is not a simulation (their moves are real), bench order."""
+        return tuple(name for name, m in self.bench.mounts.items()
+                     if m.driver.partition(":")[0] != "sim")
+
+    def preview(self, spec: str, dwell_s: float, readings: Mapping[str, float]) -> SweepPreview:
+        """Parse and plan a sweep without touching any device (bad input: ``InputError``)."""
+        from ..run.schedule import parse_schedule, plan_points
+
+        bench = self.bench_at(readings)
+        schedule = parse_schedule(spec, dwell_s=dwell_s)
+        points = tuple(plan_points(bench, schedule))
+        moves = tuple(name for name, m in bench.mounts.items()
+                      if any(abs(p.readings[name] - m.reading_deg) > m.resolution_deg
+                             for p in points if name in p.readings))
+        return SweepPreview(bench, schedule, points, moves)
+
     def request_stop(self) -> None:
         """Ask a running sweep to pause after the point it is taking."""
         self._stop.set()
@@ -124,11 +153,12 @@ class DeskBackend:
     def sweep(self, spec: str, dwell_s: float, readings: Mapping[str, float], *,
               on_point: PointHook,
               on_start: Callable[[int, Sequence[Any], RunLog], None] | None = None,
-              resume_run: int | None = None) -> Any:
+              resume_run: int | None = None, planned: SweepPreview | None = None) -> Any:
         """Plan and run a sweep (or resume run ``resume_run``); blocking, for a worker thread.
 
         ``spec`` is a one-word schedule (:func:`aligner.run.schedule.parse_schedule`),
         ``dwell_s`` the count time per point (s); other mounts stay at ``readings`` (deg).
+        ``planned`` (from :meth:`preview`) runs exactly that plan instead of planning again.
         ``on_start(run_id, planned_points, run_log)`` is called once the run exists. Returns
         the engine's ``SweepResult``; a pause asked with :meth:`request_stop` ends it
         ``interrupted``.
@@ -136,25 +166,25 @@ class DeskBackend:
         self._stop.clear()
         self.sweeping = True
         try:
-            return self._sweep(spec, dwell_s, readings, on_point, on_start, resume_run)
+            return self._sweep(spec, dwell_s, readings, on_point, on_start, resume_run,
+                               planned)
         finally:
             self.sweeping = False
 
     def _sweep(self, spec: str, dwell_s: float, readings: Mapping[str, float],
                on_point: PointHook,
                on_start: Callable[[int, Sequence[Any], RunLog], None] | None,
-               resume_run: int | None) -> Any:
-        from ..run.schedule import parse_schedule, plan_points
+               resume_run: int | None, planned: SweepPreview | None) -> Any:
         from ..run.sweep import resume_plan, run_sweep, start_run
 
         devices = self.devices(readings)  # before the run exists: a device fault logs no run
         with RunLog(self.db_path) as log:
             if resume_run is None:
-                bench = self.bench_at(readings)
-                schedule = parse_schedule(spec, dwell_s=dwell_s)
-                points = plan_points(bench, schedule)
+                if planned is None:
+                    planned = self.preview(spec, dwell_s, readings)
+                bench, schedule, points = planned.bench, planned.schedule, planned.points
                 run_id = start_run(log, bench, schedule, points)
-                settle_s = schedule.settle_s
+                dwell_s, settle_s = schedule.dwell_s, schedule.settle_s
             else:
                 record = log.run(resume_run)
                 bench, points = resume_plan(record)

@@ -18,6 +18,7 @@ __all__ = [
     "LimitsReady",
     "PlanReady",
     "ReadingsChanged",
+    "SweepChecked",
     "SweepEnded",
     "SweepProgress",
     "SweepStarted",
@@ -57,6 +58,16 @@ class PlanReady(Message):
     plan: Any = None
     error: str = ""
     limit: str = ""
+
+
+@dataclass
+class SweepChecked(Message):
+    """The sweep form checked: a ``SweepPreview`` (or the engine's ``error``); ``start`` when
+    the operator asked to start it (Ctrl+S) rather than only to check it (Enter)."""
+
+    start: bool
+    preview: Any = None
+    error: str = ""
 
 
 @dataclass

@@ -8,21 +8,24 @@ tests against published results.
 
 from __future__ import annotations
 
+from dataclasses import replace
 from pathlib import Path
 
 import pytest
-from textual.widgets import Input, ProgressBar, Static
+from textual.widgets import Checkbox, Input, ProgressBar, Select, Static
 
 from aligner.bench import load_bench
 from aligner.errors import InfeasibleTarget, InputError
 from aligner.plan import plan
 from aligner.predict import limits, predict
 from aligner.run.log import RunLog
-from aligner.run.schedule import parse_schedule
+from aligner.run.schedule import parse_schedule, plan_points
+from aligner.run.simbench import open_devices
 from aligner.tui.app import DeskApp
 from aligner.tui.backend import DeskBackend
 from aligner.tui.format import num, rate, sci
 from aligner.tui.messages import SweepEnded, SweepProgress
+from aligner.tui.screens.confirm import ConfirmStart
 from aligner.tui.widgets.safety import SAFETY_TEXT
 
 SIZE = (120, 36)
@@ -45,6 +48,14 @@ def text_of(app: DeskApp, selector: str) -> str:
     widget = app.screen.query_one(selector)
     lines = widget.render_lines(widget.region.reset_offset)
     return " ".join(" ".join(strip.text for strip in lines).translate(_BOX).split())
+
+
+def shown_in(app: DeskApp, selector: str) -> str:
+    """The words on the screen inside a widget's region, its children's included."""
+    region = app.screen.query_one(selector).region
+    strips = app.screen._compositor.render_strips()[region.y:region.bottom]
+    lines = [strip.crop(region.x, region.right).text for strip in strips]
+    return " ".join(" ".join(lines).translate(_BOX).split())
 
 
 async def settle(pilot) -> None:
@@ -190,6 +201,64 @@ async def test_plan_infeasible_target_shows_the_engine_message(bench, tmp_path):
         assert app.readings == before and app.current_mode == "plan"
 
 
+async def test_plan_form_states_axis_and_exact_in_words(bench, tmp_path):
+    app = desk(bench, tmp_path)
+    async with app.run_test(size=SIZE) as pilot:
+        await pilot.press("f2")
+        await settle(pilot)
+        assert "axis: re (position)" in shown_in(app, "#axis")
+        assert "exact pointer response: off" in shown_in(app, "#exact")
+        assert text_of(app, "#plan-axis-note") == ""  # the demo's position readout sees Re
+        await pilot.press("ctrl+t", "ctrl+e")
+        await settle(pilot)
+        assert "axis: im (momentum)" in shown_in(app, "#axis")
+        assert "exact pointer response: on" in shown_in(app, "#exact")
+        assert app.screen.query_one("#axis", Select).value == "im"
+        assert app.screen.query_one("#exact", Checkbox).value
+        assert text_of(app, "#plan-status").startswith("planned")
+        assert "(im axis)" in text_of(app, "#plan-result")
+
+
+async def test_plan_for_the_axis_the_readout_does_not_see_says_so(bench, tmp_path):
+    # a position readout measures Re A_w, a momentum readout Im A_w
+    # (Jozsa, Phys. Rev. A 76, 044103 (2007))
+    assert bench.coupling.readout == "position"
+    app = desk(bench, tmp_path)
+    async with app.run_test(size=SIZE) as pilot:
+        await pilot.press("f2")
+        await settle(pilot)
+        await pilot.press("ctrl+t")
+        await settle(pilot)
+        note = text_of(app, "#plan-axis-note")
+        assert "position readout, which measures Re A_w" in note
+        assert "imaginary weak value" in note and "momentum readout" in note
+        expected = plan(bench, amplification=40.0, axis="im", exact=False)
+        await pilot.press("ctrl+a")
+        await settle(pilot)
+        p = predict(bench, app.readings)
+        assert p.axis == "re" and abs(complex(p.weak_value).imag) > abs(
+            complex(p.weak_value).real)
+        assert app.readings["analyzer"] == pytest.approx(expected.quantized.settings["analyzer"])
+        shown = text_of(app, "#prediction-numbers")
+        assert f"ampl. (Re A_w) linear {num(p.amplification_linear, 5)}" in shown
+        assert "A_w is mostly imaginary; a position readout sees Re A_w only" in shown
+
+
+async def test_plan_target_typed_in_a_burst_keeps_every_key(bench, tmp_path):
+    app = desk(bench, tmp_path)
+    async with app.run_test(size=SIZE) as pilot:
+        await pilot.press("f2")
+        await settle(pilot)
+        app.screen.query_one("#target", Input).focus()
+        await pilot.press("end", "backspace", "backspace", "7", "5", "enter")
+        assert app.screen.query_one("#target", Input).value == "75"
+        await settle(pilot)
+        assert text_of(app, "#plan-status").startswith("planned")
+        expected = plan(bench, amplification=75.0, axis="re", exact=False)
+        reading = expected.quantized.settings["analyzer"]
+        assert f"analyzer {reading:.4f}°" in text_of(app, "#plan-result")
+
+
 # -- sweep ---------------------------------------------------------------------------------------
 
 
@@ -200,6 +269,70 @@ async def start_sweep(pilot, schedule: str, dwell: str) -> None:
     app.screen.query_one("#schedule", Input).value = schedule
     app.screen.query_one("#dwell", Input).value = dwell
     await pilot.press("ctrl+s")
+
+
+def runs_in(tmp_path: Path) -> list:
+    with RunLog(tmp_path / "runs.sqlite") as log:
+        return log.runs()
+
+
+async def test_enter_in_a_sweep_field_only_checks_it(bench, tmp_path):
+    app = desk(bench, tmp_path)
+    async with app.run_test(size=SIZE) as pilot:
+        await pilot.press("f3")
+        await pilot.pause()
+        app.screen.query_one("#schedule", Input).value = "linear:0.5:2.0:4"
+        dwell = app.screen.query_one("#dwell", Input)
+        dwell.focus()
+        await pilot.press("end", "backspace", "0", ".", "5", "enter")
+        await settle(pilot)
+        assert dwell.value == "0.5"
+        status = text_of(app, "#sweep-status")
+        assert "checked: 4 points" in status and "analyzer" in status and "Ctrl+S" in status
+        assert runs_in(tmp_path) == [] and not app.backend.sweeping
+        app.screen.query_one("#schedule", Input).focus()
+        await pilot.press("enter")
+        await settle(pilot)
+        assert runs_in(tmp_path) == []
+
+
+def hardware_desk(bench, tmp_path: Path) -> DeskApp:
+    """The demo bench with its analyzer on a (generic line-protocol) driver; the devices are
+    the simulated ones, so nothing real is opened."""
+    real = bench.with_mounts(analyzer=replace(bench.mounts["analyzer"], driver="line:/dev/null"))
+    return DeskApp(DeskBackend(real, db_path=tmp_path / "runs.sqlite",
+                               device_factory=lambda b: open_devices(bench)))
+
+
+async def test_sweep_with_real_mounts_asks_first(bench, tmp_path):
+    app = hardware_desk(bench, tmp_path)
+    assert app.backend.hardware_mounts() == ("analyzer",)
+    schedule = "linear:0.5:2.0:4"
+    expected = plan_points(bench, parse_schedule(schedule, dwell_s=0.5))
+    async with app.run_test(size=SIZE) as pilot:
+        await start_sweep(pilot, schedule, "0.5")
+        await settle(pilot)
+        assert isinstance(app.screen, ConfirmStart)
+        question = text_of(app, "#confirm-question")
+        assert f"Start sweep: {len(expected)} points" in question
+        assert "mounts analyzer will move" in question and "beam blocks in place?" in question
+        assert "laser safety officer" in text_of(app, "#confirm-detail")
+        await pilot.press("enter")  # Cancel has the focus: Enter does not start
+        await settle(pilot)
+        assert not isinstance(app.screen, ConfirmStart)
+        assert "cancelled" in text_of(app, "#sweep-status") and runs_in(tmp_path) == []
+        await pilot.press("ctrl+s")
+        await settle(pilot)
+        await pilot.press("escape")
+        await settle(pilot)
+        assert runs_in(tmp_path) == []
+        await pilot.press("ctrl+s")
+        await settle(pilot)
+        await pilot.press("y")
+        await settle(pilot)
+        assert "complete" in text_of(app, "#sweep-status")
+        (run,) = runs_in(tmp_path)
+        assert run.status == "complete" and run.points == len(expected)
 
 
 async def test_sweep_runs_plots_tables_and_logs_every_point(bench, tmp_path):
@@ -234,7 +367,11 @@ async def test_sweep_pause_leaves_the_bench_safe_and_resume_completes(bench, tmp
         await pilot.press("ctrl+b")
         await settle(pilot)
         status = text_of(app, "#sweep-status")
-        assert "paused" in status and "shutter shut" in status
+        assert "paused as you asked" in status and "shutter shut" in status
+        assert "operator:" not in status and not app.screen.query_one(
+            "#sweep-status", Static).has_class("problem")
+        events = text_of(app, "#sweep-events")
+        assert "paused by the operator" in events and "paused: paused" not in events
         devices = app.backend.devices(app.readings)
         assert not devices.shutter.is_open()
         assert not any(m.is_moving() for m in devices.mounts.values())

@@ -11,7 +11,7 @@ from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, VerticalScroll
 from textual.timer import Timer
-from textual.widgets import Checkbox, Input, Label, RadioButton, RadioSet, Static
+from textual.widgets import Checkbox, Input, Label, Select, Static
 from textual.worker import get_current_worker
 
 from ...errors import AlignerError, InfeasibleTarget
@@ -23,6 +23,28 @@ __all__ = ["PlanScreen"]
 
 #: Seconds without a keystroke before the typed target is planned.
 TYPING_PAUSE_S = 0.4
+#: The axis choices, each stated in words (the choice reads the same without colour).
+AXES = (("axis: re (position)", "re"), ("axis: im (momentum)", "im"))
+#: Which readouts see which part of A_w, and where the other part shows up instead.
+SEEN_BY = {"re": ("Re A_w", "a real weak value", "a position or phase readout"),
+           "im": ("Im A_w", "an imaginary weak value", "a momentum readout")}
+
+
+def exact_label(on: bool) -> str:
+    """The exact checkbox's label, stating its state in words."""
+    return f"exact pointer response: {'on' if on else 'off'}"
+
+
+def axis_note(readout: str, readout_axis: str, planned_axis: str) -> str:
+    """What to tell the operator when the plan targets the part of A_w the bench's readout
+    does not see (Jozsa, Phys. Rev. A 76, 044103 (2007)); ``""`` when it does."""
+    if planned_axis == readout_axis:
+        return ""
+    seen, _, _ = SEEN_BY[readout_axis]
+    wanted, what, where = SEEN_BY[planned_axis]
+    return (f"This bench has a {readout} readout, which measures {seen}; {what} "
+            f"({wanted}) shows up in {where}. The Bench screen keeps showing the amplification "
+            f"along {seen}, so after Ctrl+A it will be small there.")
 
 
 class PlanScreen(DeskScreen):
@@ -44,11 +66,10 @@ class PlanScreen(DeskScreen):
         with Horizontal(id="plan-form"):
             yield Label("target amplification", classes="form-label")
             yield Input("40", id="target", type="number")
-            with RadioSet(id="axis"):
-                yield RadioButton("re (position)", value=True, id="axis-re")
-                yield RadioButton("im (momentum)", id="axis-im")
-            yield Checkbox("exact pointer response", id="exact")
+            yield Select(AXES, value="re", allow_blank=False, id="axis")
+            yield Checkbox(exact_label(False), id="exact")
         yield Static("", id="plan-status")
+        yield Static("", id="plan-axis-note")
         with VerticalScroll(id="plan-scroll"):
             yield PlanResult(self.backend.bench, id="plan-result")
 
@@ -71,7 +92,7 @@ class PlanScreen(DeskScreen):
         if not math.isfinite(value) or value == 0:
             self.status("target amplification: give a finite number other than 0", error=True)
             return None
-        axis = "im" if self.query_one("#axis-im", RadioButton).value else "re"
+        axis = str(self.query_one("#axis", Select).value)
         return {"amplification": value, "axis": axis,
                 "exact": self.query_one("#exact", Checkbox).value}
 
@@ -82,14 +103,23 @@ class PlanScreen(DeskScreen):
             self._debounce.stop()
         self._debounce = self.set_timer(TYPING_PAUSE_S, self.request_plan)
 
+    @on(Checkbox.Changed, "#exact")
+    def exact_changed(self, event: Checkbox.Changed) -> None:
+        event.checkbox.label = exact_label(event.value)
+        self.request_plan()
+
     @on(Input.Submitted, "#target")
-    @on(RadioSet.Changed)
-    @on(Checkbox.Changed)
+    @on(Select.Changed, "#axis")
     def request_plan(self) -> None:
         """Plan the current target in a worker thread."""
         request = self.target()
         if request is None:
             return
+        from ...predict import readout_axis
+
+        bench = self.backend.bench
+        self.query_one("#plan-axis-note", Static).update(
+            axis_note(bench.coupling.readout, readout_axis(bench), request["axis"]))
         self.status(f"planning amplification {request['amplification']:g} on axis "
                     f"{request['axis']}{' (exact)' if request['exact'] else ''}…")
         self.plan_worker(request, dict(self.desk.readings))
@@ -131,9 +161,8 @@ class PlanScreen(DeskScreen):
         self.post_message(ApplyReadings(settings, origin="the plan"))
 
     def action_toggle_axis(self) -> None:
-        button = self.query_one("#axis-im" if self.query_one("#axis-re", RadioButton).value
-                                else "#axis-re", RadioButton)
-        button.value = True
+        axis = self.query_one("#axis", Select)
+        axis.value = "im" if axis.value == "re" else "re"
 
     def action_toggle_exact(self) -> None:
         self.query_one("#exact", Checkbox).toggle()

@@ -12,15 +12,22 @@ from textual.containers import Horizontal
 from textual.widgets import Input, Label, ProgressBar, Static
 
 from ...errors import AlignerError
-from ..messages import SweepEnded, SweepProgress, SweepStarted
+from ..messages import SweepChecked, SweepEnded, SweepProgress, SweepStarted
 from ..widgets.event_list import EventList
 from ..widgets.leak_plot import LeakPlot
 from ..widgets.points_table import PointsTable
 from .base import DeskScreen
+from .confirm import ConfirmStart
 
 __all__ = ["SweepScreen"]
 
 DEFAULT_SCHEDULE = "amplification:5:60:8"
+IDLE = "idle: Ctrl+S starts a new run; Enter in a field only checks it"
+#: How each kind of pause reads in the status line, and whether it is a problem.
+PAUSED = {"operator": ("paused as you asked", False),
+          "interrupt": ("paused by Ctrl-C", False),
+          "guard": ("STOPPED BY THE DETECTOR GUARD", True),
+          "device": ("STOPPED BY A DEVICE FAULT", True)}
 #: Readings of the prediction curve, and the margin (share of the span) added either side.
 CURVE_POINTS, CURVE_MARGIN = 240, 0.1
 
@@ -49,7 +56,7 @@ class SweepScreen(DeskScreen):
             yield Label("dwell (s)", classes="form-label")
             yield Input("1", id="dwell", type="number")
             yield ProgressBar(id="progress", show_eta=False)
-        yield Static("idle: Ctrl+S starts a new run (Enter in a field too)", id="sweep-status")
+        yield Static(IDLE, id="sweep-status")
         with Horizontal(id="sweep-body"):
             yield LeakPlot(id="sweep-plot")
             yield EventList(id="sweep-events")
@@ -62,16 +69,69 @@ class SweepScreen(DeskScreen):
     # -- actions -------------------------------------------------------------------------------
 
     def action_start(self) -> None:
+        """Check the form and start a new run (after a question when real mounts move)."""
         if self.running:
             self.status("a sweep is running; Ctrl+B pauses it first", error=True)
             return
+        self.check(start=True)
+
+    @on(Input.Submitted)
+    def submitted(self) -> None:
+        """Enter checks the form; it never starts a run."""
+        self.check(start=False)
+
+    def check(self, *, start: bool) -> None:
+        """Plan the sweep in the form in a worker (nothing moves); ``start`` it when asked."""
         spec = self.query_one("#schedule", Input).value.strip()
+        text = self.query_one("#dwell", Input).value.strip()
         try:
-            dwell = float(self.query_one("#dwell", Input).value)
+            dwell = float(text)
         except ValueError:
-            self.status("dwell: give the count time per point in seconds, e.g. 1", error=True)
+            self.status(f"dwell: {text!r} is not a number; give the count time per point in "
+                        "seconds, e.g. 1", error=True)
             return
-        self.begin(spec, dwell, None)
+        self.status(f"checking {spec}…")
+        self.check_worker(spec, dwell, dict(self.desk.readings), start)
+
+    @work(thread=True, exclusive=True, group="sweep-check")
+    def check_worker(self, spec: str, dwell: float, readings: dict[str, float],
+                     start: bool) -> None:
+        try:
+            message = SweepChecked(start, preview=self.backend.preview(spec, dwell, readings))
+        except AlignerError as exc:
+            message = SweepChecked(start, error=str(exc))
+        self.post_message(message)
+
+    @on(SweepChecked)
+    def checked(self, event: SweepChecked) -> None:
+        if self.running:
+            return
+        if event.error:
+            self.status(f"not started: {event.error}", error=True)
+            self.query_one(EventList).show((), extra=event.error)
+            return
+        preview = event.preview
+        moves = ", ".join(preview.moves) or "none"
+        if not event.start:
+            self.status(f"checked: {len(preview.points)} points, mounts that move: {moves}. "
+                        "Ctrl+S starts the run.")
+            return
+        hardware = self.backend.hardware_mounts()
+        if not hardware:
+            self.begin(preview)
+            return
+        question = (f"Start sweep: {len(preview.points)} points, mounts {moves} will move; "
+                    "beam blocks in place?")
+        detail = (f"Real devices on this bench: {', '.join(hardware)}. Follow your local "
+                  "laser-safety rules and your laser safety officer.")
+
+        def answered(start: bool | None) -> None:
+            if start:
+                self.begin(preview)
+            else:
+                self.status("not started (cancelled); nothing moved")
+
+        self.app.push_screen(ConfirmStart(question, detail), answered)
 
     def action_resume(self) -> None:
         if self.running:
@@ -80,7 +140,7 @@ class SweepScreen(DeskScreen):
             self.status("nothing to resume here: no run was paused on this screen "
                         "(resume older runs with 'aligner sweep --resume RUN')", error=True)
             return
-        self.begin("", 0.0, self.paused_run)
+        self.begin(None, self.paused_run)
 
     def action_pause(self) -> None:
         if not self.running:
@@ -89,21 +149,17 @@ class SweepScreen(DeskScreen):
         self.backend.request_stop()
         self.status("pausing after the point being counted…")
 
-    @on(Input.Submitted)
-    def submitted(self) -> None:
-        self.action_start()
-
-    def begin(self, spec: str, dwell: float, resume_run: int | None) -> None:
-        """Start (or resume) a sweep in a worker thread."""
+    def begin(self, preview: Any, resume_run: int | None = None) -> None:
+        """Run a checked ``preview`` (or resume run ``resume_run``) in a worker thread."""
         self.running = True
         self.paused_run = None
         self.query_one(PointsTable).reset()
         self.query_one(EventList).show(())
-        self.status("resuming run…" if resume_run else f"planning {spec}…")
-        self.sweep_worker(spec, dwell, dict(self.desk.readings), resume_run)
+        self.status("resuming run…" if resume_run else "starting the run…")
+        self.sweep_worker(preview, dict(self.desk.readings), resume_run)
 
     @work(thread=True, exclusive=True, group="sweep")
-    def sweep_worker(self, spec: str, dwell: float, readings: dict[str, float],
+    def sweep_worker(self, preview: Any, readings: dict[str, float],
                      resume_run: int | None) -> None:
         points: list[Any] = []
         started: dict[str, int] = {}
@@ -128,8 +184,9 @@ class SweepScreen(DeskScreen):
                                             tuple(log.events(started["run"]))))
 
         try:
-            result = self.backend.sweep(spec, dwell, readings, on_point=on_point,
-                                        on_start=on_start, resume_run=resume_run)
+            result = self.backend.sweep("", 0.0, readings, on_point=on_point,
+                                        on_start=on_start, resume_run=resume_run,
+                                        planned=preview)
         except AlignerError as exc:
             self.post_message(SweepEnded(error=str(exc)))
             return
@@ -174,12 +231,14 @@ class SweepScreen(DeskScreen):
                         "logged; shutter shut")
             return
         self.paused_run = r.run_id
-        why = {"interrupt": "paused at the operator's request", "guard": "STOPPED BY THE "
-               "DETECTOR GUARD", "device": "STOPPED BY A DEVICE FAULT"}.get(r.reason, r.reason)
-        detail = "" if r.reason == "interrupt" else f": {r.message}"
-        self.status(f"run {r.run_id} {why}{detail}. Mounts stopped, shutter shut; "
-                    f"{r.points_done} of {r.points_total} points logged. Ctrl+R resumes.",
-                    error=r.reason != "interrupt")
+        why, problem = PAUSED.get(r.reason, (f"stopped ({r.reason})", True))
+        # the engine appends "; the shutter did not confirm it is shut …" when it could not
+        extra = r.message.partition("; ")[2]
+        detail = f": {r.message}" if problem else f"; {extra}" if extra else ""
+        safe = "Mounts stopped" + ("" if extra else ", shutter shut")
+        self.status(f"run {r.run_id} {why}{detail}. {safe}; {r.points_done} of "
+                    f"{r.points_total} points logged. Ctrl+R resumes.",
+                    error=problem or bool(extra))
 
     # -- helpers -------------------------------------------------------------------------------
 

@@ -29,8 +29,14 @@ class EventList(Static):
         text = Text()
         for e in list(events)[-self.limit:]:
             where = f" (point {e.idx})" if e.idx is not None else ""
-            text.append(f"{_LABEL.get(e.kind, e.kind)}{where}: ", style=_STYLE.get(e.kind, ""))
-            text.append(f"{e.message}\n")
+            label, style = _LABEL.get(e.kind, e.kind), _STYLE.get(e.kind, "")
+            if e.message.lower().startswith(label.lower()):
+                # "paused by the operator" says it already: no "paused: " in front
+                text.append(e.message, style=style)
+                text.append(f"{where}\n")
+            else:
+                text.append(f"{label}{where}: ", style=style)
+                text.append(f"{e.message}\n")
         if extra:
             text.append(extra, style="bold red")
         if not text.plain:

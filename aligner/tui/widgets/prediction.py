@@ -45,8 +45,15 @@ class PredictionPanel(Vertical):
         t.add_row("imbalance", f"{float(p.imbalance_deg):+.4f}° from the null")
         t.add_row("weak value A_w", f"{wv.real:.5g} {sign} {abs(wv.imag):.4g} i")
         t.add_row("leak rate", f"{sci(p.leak_rate)} per source photon")
-        t.add_row("amplification", f"linear {num(p.amplification_linear, 5)} · exact "
-                                   f"{num(p.amplification_exact, 5)}")
+        axis = _AXIS[p.axis]
+        t.add_row(f"ampl. ({axis})",
+                  f"linear {num(p.amplification_linear, 5)} · exact "
+                  f"{num(p.amplification_exact, 5)}")
+        seen, unseen = (wv.real, wv.imag) if p.axis == "re" else (wv.imag, wv.real)
+        if abs(unseen) > abs(seen):
+            other = "imaginary" if p.axis == "re" else "real"
+            t.add_row("", f"A_w is mostly {other}; a {self.bench.coupling.readout} readout "
+                          f"sees {axis} only")
         t.add_row("pointer shift", f"{num(p.pointer_shift, 4)} {p.units}")
         t.add_row("SNR", f"{num(p.snr_per_sqrt_s, 4)} per √s of counting")
         self.query_one("#prediction-numbers", Static).update(t)
