@@ -107,7 +107,8 @@ class SweepScreen(DeskScreen):
         if self.running:
             return
         if event.error:
-            self.status(f"not started: {event.error}", error=True)
+            verdict = "not started" if event.start else "not valid"
+            self.status(f"{verdict}: {event.error}", error=True)
             self.query_one(EventList).show((), extra=event.error)
             return
         preview = event.preview
