@@ -84,19 +84,22 @@ class Derivation:
 
 
 def _exact_angle(deg: float) -> Any:
-    """Degrees -> radians, exact (rational multiple of pi) when the angle is one."""
+    """Degrees -> radians: exact (a multiple of 22.5 deg, e.g. 22.5 or 135) when the angle is
+    one, else a float (exact values of other angles only bloat the expressions)."""
     import sympy as sp
 
-    frac = sp.Rational(deg).limit_denominator(3600)
-    if abs(float(frac) - deg) < 1e-10:
-        return sp.pi * frac / 180
+    frac = sp.Rational(deg / 180.0).limit_denominator(8)
+    if abs(float(frac) * 180.0 - deg) < 1e-10:
+        return sp.pi * frac
     return sp.Float(math.radians(deg), 17)
 
 
-def _exact_number(x: float) -> Any:
+def _exact_number(x: float, denominator: int = 8) -> Any:
+    """A simple fraction (denominator up to ``denominator``: a quarter or half wave; 0.92
+    transmission with 100) stays exact, anything else is a float."""
     import sympy as sp
 
-    frac = sp.Rational(x).limit_denominator(10000)
+    frac = sp.Rational(x).limit_denominator(denominator)
     return frac if abs(float(frac) - x) < 1e-12 else sp.Float(x, 17)
 
 
@@ -115,6 +118,14 @@ class _Builder:
         self.free = tuple(free)
         self.readings = bench.readings()
         self.angles = {m: sp.Symbol(f"theta_{_safe_name(m)}", real=True) for m in self.free}
+        # Matrices are multiplied as polynomials in cos/sin of the free angles (and of twice
+        # them): products of trigonometric functions never get expanded symbolically.
+        self.to_poly: dict[Any, Any] = {}
+        for m, th in self.angles.items():
+            for fn, arg, tag in ((sp.cos, 2 * th, "C"), (sp.sin, 2 * th, "S"),
+                                 (sp.cos, th, "c"), (sp.sin, th, "s")):
+                self.to_poly[fn(arg)] = sp.Symbol(f"{tag}_{_safe_name(m)}", real=True)
+        self.from_poly = {v: k for k, v in self.to_poly.items()}
         self.meaning: dict[str, str] = {}
         self.values: dict[Any, float] = {}
         self.small: list[Any] = []  # extinction symbols d (scale as t^2)
@@ -140,9 +151,23 @@ class _Builder:
         self.meaning[str(sym)] = f"1/extinction ratio of the {what} = {1.0 / extinction_ratio:.6g}"
         return sym
 
+    def poly(self, matrix: Any) -> Any:
+        """A matrix of trigonometric entries as polynomials in the cos/sin symbols."""
+        from sympy.simplify.fu import TR7, TR8
+
+        sp = self.sp
+        return matrix.applyfunc(
+            lambda x: sp.expand(sp.expand(TR8(TR7(sp.expand(x)))).xreplace(self.to_poly)))
+
+    def product(self, *factors: Any) -> Any:
+        out = factors[0]
+        for f in factors[1:]:
+            out = (out * f).applyfunc(self.sp.expand)
+        return out
+
     def projector(self, theta: Any) -> Any:
         v = self.sp.Matrix([self.sp.cos(theta), self.sp.sin(theta)])
-        return v * v.T
+        return self.poly(v * v.T)
 
     def element(self, element: Element) -> tuple[str, Any, Any]:
         """("unitary", J) or ("polarizer", (P, Q), factor) for one element."""
@@ -152,14 +177,14 @@ class _Builder:
             d = self.leak(_safe_name(element.key), element.extinction_ratio,
                           f"polarizer {element.key}")
             p = self.projector(theta)
-            return "polarizer", (p, sp.eye(2) - p), (_exact_number(element.transmission), d)
+            return "polarizer", (p, sp.eye(2) - p), (_exact_number(element.transmission, 1000), d)
         if element.type == "rotator":
             c, s = sp.cos(theta), sp.sin(theta)
-            return "unitary", sp.Matrix([[c, -s], [s, c]]), None
+            return "unitary", self.poly(sp.Matrix([[c, -s], [s, c]])), None
         from sympy.physics.optics.polarization import phase_retarder
 
         waves = _exact_number(float(np.mod(element.retardance_waves, 1.0)))
-        return "unitary", phase_retarder(theta, 2 * sp.pi * waves), None
+        return "unitary", self.poly(phase_retarder(theta, 2 * sp.pi * waves)), None
 
     def state(self) -> Any:
         """Unnormalized pre-selected state at the coupling plane (divide by 1 + d_s)."""
@@ -171,10 +196,10 @@ class _Builder:
         for element in self.bench.pre:
             kind, m, extra = self.element(element)
             if kind == "unitary":
-                rho = m * rho * m.H
+                rho = self.product(m, rho, m.H)
             else:
                 t, dd = extra
-                rho = t * (m[0] * rho * m[0] + dd * m[1] * rho * m[1])
+                rho = t * (self.product(m[0], rho, m[0]) + dd * self.product(m[1], rho, m[1]))
         return rho, d
 
     def effect(self) -> Any:
@@ -182,14 +207,14 @@ class _Builder:
         theta = self.angle(an.angle_deg, an.mount)
         d = self.leak("a", an.extinction_ratio, "analyzer")
         p = self.projector(theta)
-        e = _exact_number(an.transmission) * (p + d * (self.sp.eye(2) - p))
+        e = _exact_number(an.transmission, 1000) * (p + d * (self.sp.eye(2) - p))
         for element in reversed(self.bench.post):
             kind, m, extra = self.element(element)
             if kind == "unitary":
-                e = m.H * e * m
+                e = self.product(m.H, e, m)
             else:
                 t, dd = extra
-                e = t * (m[0] * e * m[0] + dd * m[1] * e * m[1])
+                e = t * (self.product(m[0], e, m[0]) + dd * self.product(m[1], e, m[1]))
         return e
 
     def observable(self) -> tuple[Any, tuple[Any, Any], tuple[Any, Any]]:
@@ -197,8 +222,9 @@ class _Builder:
         sp = self.sp
         c = self.bench.coupling
         if c.observable == "axis":
-            n = np.asarray(c.axis, float)
-            axis = [_exact_number(x) for x in n / np.linalg.norm(n)]
+            raw = [_exact_number(x, 1000) for x in c.axis]
+            length = sp.sqrt(sum(x**2 for x in raw))
+            axis = [x / length for x in raw]
             eig = tuple(_exact_number(x) for x in c.eigenvalues)
         else:
             axis, eig = _NAMED[c.observable]
@@ -209,17 +235,35 @@ class _Builder:
         return eig[0] * pi0 + eig[1] * pi1, (pi0, pi1), (eig[0], eig[1])
 
 
-def _tidy(expr: Any, small: Sequence[Any]) -> Any:
-    """Simplify a polynomial in the small symbols coefficient by coefficient (much faster
-    than simplifying the whole expression, and it keeps the extinction terms apart)."""
+def _tidy(expr: Any, small: Sequence[Any], from_poly: Mapping[Any, Any]) -> Any:
+    """Tidy a polynomial in the cos/sin symbols: back to trigonometric functions, products of
+    sines and cosines become sums over combined angles (``TR8``), numeric factors are simplified
+    on their own, and the terms are grouped by powers of the small symbols. Linear in the size
+    of the expression, unlike ``simplify``."""
+    import sympy as sp
+    from sympy.simplify.fu import TR7, TR8
+
+    expr = sp.expand(sp.expand(expr).xreplace(from_poly))
+    expr = sp.expand(TR8(TR7(expr)))
+    free = sorted(expr.free_symbols, key=str)
+    grouped: dict[Any, Any] = {}
+    for term in sp.Add.make_args(expr):
+        number, rest = term.as_independent(*free, as_Add=False)
+        grouped[rest] = grouped.get(rest, 0) + number
+    terms = [_number(n) * rest for rest, n in grouped.items()]
+    out = sp.Add(*terms)
+    return sp.collect(out, small) if small else out
+
+
+def _number(n: Any) -> Any:
+    """Simplify a pure number (exact radicals, or a float rounded to 15 digits)."""
     import sympy as sp
 
-    expr = sp.expand(expr)
-    if not small:
-        return sp.simplify(expr)
-    poly = sp.Poly(expr, *small)
-    return sum((sp.simplify(coeff) * sp.prod([s**k for s, k in zip(small, mon, strict=True)])
-                for mon, coeff in poly.terms()), sp.Integer(0))
+    if n.has(sp.Float):
+        value = complex(n)
+        return sp.Float(value.real, 15) + sp.I * sp.Float(value.imag, 15) if value.imag else \
+            sp.Float(value.real, 15)
+    return sp.nsimplify(sp.simplify(n)) if n.has(sp.Pow) else n
 
 
 def _chop(expr: Any, tol: float = 1e-12) -> Any:
@@ -285,10 +329,11 @@ def derive(bench: Bench, free: Sequence[str] = ()) -> Derivation:
                           f"{c.pointer_sigma:g} {c.units})")
     small = list(dict.fromkeys(b.small))
     norm = 1 + d_s
-    numerator = _tidy((effect * a * rho).trace(), small)
-    denominator = _tidy((effect * rho).trace(), small)
-    decohered = _tidy((effect * pi0 * rho * pi0).trace() + (effect * pi1 * rho * pi1).trace(),
-                      small)
+    back = b.from_poly
+    numerator = _tidy(b.product(effect, a, rho).trace(), small, back)
+    denominator = _tidy(b.product(effect, rho).trace(), small, back)
+    decohered = _tidy(b.product(effect, pi0, rho, pi0).trace()
+                      + b.product(effect, pi1, rho, pi1).trace(), small, back)
     leak = (kappa * denominator + (1 - kappa) * decohered) / norm
 
     null = _null(bench, names)

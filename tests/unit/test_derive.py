@@ -1,0 +1,143 @@
+"""aligner.plan.derive: sympy closed forms against the numeric core and textbook cases."""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+import pytest
+import sympy as sp
+
+from aligner.bench import load_bench, parse_bench
+from aligner.errors import InputError
+from aligner.plan.derive import derive
+from aligner.predict import predict
+
+
+def crossed(*, ana_er: float = math.inf, src_er: float = math.inf, mount: str = "ana") -> Any:
+    """Invented test bench: H source, HWP at 22.5 deg (-> D), A = HV, analyzer on a mount."""
+    return parse_bench({
+        "wavelength_nm": 800.0, "imbalance_mount": mount,
+        "source": {"angle_deg": 0.0, "photon_rate": 1e6, "extinction_ratio": src_er},
+        "pre": [{"type": "hwp", "angle_deg": 22.5}],
+        "coupling": {"observable": "HV", "pointer_sigma": 50.0, "strength": 2.0},
+        "analyzer": {"mount": mount, "extinction_ratio": ana_er},
+        "detector": {},
+        "mounts": {mount: {"reading_deg": 136.0, "travel_deg": [-10.0, 350.0]}},
+    })
+
+
+def mixed_bench() -> Any:
+    """Invented test bench with every element kind: a leaky polarizer, a plate on a mount and a
+    free retarder of odd retardance before the coupling, a rotator after it, an axis observable
+    with unequal eigenvalues, offsets and a reversed mount."""
+    return parse_bench({
+        "wavelength_nm": 633.0, "imbalance_mount": "ana", "phase_mount": "ret",
+        "source": {"angle_deg": 0.0, "photon_rate": 1e6, "extinction_ratio": 3e4},
+        "pre": [{"type": "polarizer", "angle_deg": 0.0, "extinction_ratio": 2e3,
+                 "transmission": 0.8},
+                {"type": "hwp", "mount": "hwp"},
+                {"type": "retarder", "mount": "ret", "retardance_waves": 0.375}],
+        "coupling": {"observable": "axis", "axis": [0.0, 0.0, 1.0], "eigenvalues": [1.0, -0.5],
+                     "pointer_sigma": 3.0, "strength": 0.4},
+        "post": [{"type": "rotator", "angle_deg": 22.5}],
+        "analyzer": {"mount": "ana", "extinction_ratio": 5e4, "transmission": 0.93},
+        "detector": {},
+        "mounts": {"ana": {"reading_deg": 140.0, "offset_deg": 2.5, "sense": -1,
+                           "travel_deg": [-200.0, 200.0]},
+                   "hwp": {"reading_deg": 21.5, "offset_deg": -1.0},
+                   "ret": {"reading_deg": 40.0}},
+    })
+
+
+def _evaluate(d: Any, bench: Any, angles: dict[str, float]) -> tuple[complex, float]:
+    subs = {**d.values, **{d.angles[m]: a for m, a in angles.items()}}
+    wv = complex(sp.N(d.weak_value.subs(subs), 30))
+    leak = complex(sp.N(d.leak_rate.subs(subs), 30))
+    assert abs(leak.imag) < 1e-15
+    return wv, leak.real
+
+
+@pytest.mark.parametrize("which", ["demo", "mixed"])
+def test_closed_forms_equal_numeric_core(which: str) -> None:
+    """sympy expressions (Jones matrices from sympy.physics.optics.polarization.phase_retarder)
+    evaluated at random angles equal the numeric engine to 1e-10."""
+    bench = load_bench("demo") if which == "demo" else mixed_bench()
+    d = derive(bench)
+    rng = np.random.default_rng(3)
+    for _ in range(5):
+        readings = {m: float(rng.uniform(-90, 90)) for m in d.angles}
+        angles = {m: math.radians(bench.mounts[m].element_angle_deg(r))
+                  for m, r in readings.items()}
+        wv, leak = _evaluate(d, bench, angles)
+        p = predict(bench, readings)
+        assert wv == pytest.approx(complex(p.weak_value), rel=1e-10, abs=1e-12)
+        assert leak == pytest.approx(float(p.leak_rate), rel=1e-10)
+
+
+def test_textbook_series_is_one_over_eps() -> None:
+    """Crossed linear case, ideal polarizers: A_w = cot(eps) ~ 1/eps and P = sin^2(eps) ~ eps^2
+    (textbook worked case of A_w = <f|A|i>/<f|i>, Aharonov, Albert & Vaidman, Phys. Rev. Lett.
+    60, 1351 (1988); cot(eps) worked out by hand, physics.md)."""
+    d = derive(crossed())
+    eps = d.offsets["ana"]
+    assert sp.simplify(d.weak_value_series - 1 / eps) == 0
+    eta = sp.Symbol("eta", positive=True)
+    assert sp.simplify(d.leak_rate_series - (eps**2 + eta / 2)) == 0
+    assert d.null_deg["ana"] == pytest.approx(135.0, abs=1e-9)
+    # the exact closed form is cot(eps) at the null + eps
+    theta = d.angles["ana"]
+    exact = d.weak_value.subs(theta, 3 * sp.pi / 4 + eps)
+    assert sp.simplify(exact - sp.cot(eps)) == 0
+
+
+def test_extinction_floor_term() -> None:
+    """Analyzer leakage d: A_w = (1 - d) tan(eps) / (tan^2(eps) + d) (physics.md, derived;
+    related: Knee, Briggs, Benjamin & Gauger, Phys. Rev. A 87, 012115 (2013)), so to leading
+    order A_w ~ eps / (eps^2 + d); the floor of P at the null is d."""
+    d = derive(crossed(ana_er=1e4))
+    eps = d.offsets["ana"]
+    d_a = sp.Symbol("d_a", positive=True)
+    eta = sp.Symbol("eta", positive=True)
+    assert sp.simplify(d.weak_value_series - eps / (eps**2 + d_a)) == 0
+    assert sp.simplify(d.floor - (d_a + eta / 2)) == 0
+    theta = d.angles["ana"]
+    full = sp.simplify(d.weak_value.subs(theta, 3 * sp.pi / 4 + eps))
+    for e in (0.002, 0.01, 0.3):
+        want = (1 - 1e-4) * math.tan(e) / (math.tan(e) ** 2 + 1e-4)
+        got = complex(sp.N(full.subs({eps: e, d_a: 1e-4}), 20))
+        assert got.real == pytest.approx(want, rel=1e-12)
+
+
+def test_series_close_to_exact_near_the_null() -> None:
+    bench = load_bench("demo")
+    d = derive(bench)
+    eps = d.offsets["analyzer"]
+    for e in (2e-3, 5e-3):
+        series = complex(sp.N(d.weak_value_series.subs({**d.values, eps: e,
+                                                        d.offsets["pre_qwp"]: 0}), 20))
+        angle = d.null_deg["analyzer"] + math.degrees(e)
+        exact = complex(predict(bench, {"analyzer": angle, "pre_qwp": 45.0}).weak_value)
+        assert series == pytest.approx(exact, rel=5 * e)
+
+
+def test_names_never_evaluated() -> None:
+    """Mount names go into symbol names only after sanitizing; nothing is parsed as code."""
+    bench = crossed(mount="__import__('os').getcwd()")
+    d = derive(bench)
+    (sym,) = d.angles.values()
+    assert sym.name.isidentifier()
+    assert "(" not in sym.name
+
+
+def test_text_and_latex() -> None:
+    d = derive(crossed(ana_er=1e4))
+    text = d.text()
+    assert "A_w ~" in text and "d_a" in text and "1/extinction ratio" in text
+    assert "\\frac" in d.text(latex=True)
+
+
+def test_unknown_free_mount() -> None:
+    with pytest.raises(InputError, match="unknown mount"):
+        derive(crossed(), free=("nope",))
