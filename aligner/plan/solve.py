@@ -479,7 +479,9 @@ def _find_nulls(bench: Bench, names: tuple[str, ...], fixed: Mapping[str, float]
         if any(shift_k != 1 for shift_k in shift):
             rolled = np.roll(gap, tuple(s - 1 for s in shift), axis=tuple(range(n)))
             is_min &= gap <= rolled
-    seeds = pts[is_min]
+    # the file readings seed too: with more mounts than needed the nulls form a curve, and the
+    # point of it nearest the current setting is the one a user wants
+    seeds = np.concatenate([base[None, :] + PERIOD_DEG / 2, pts[is_min]])
 
     def residual(x: Real) -> Real:
         fwd = forward(bench, _readings(names, x, fixed))
