@@ -170,16 +170,19 @@ class Mount:
 
 @dataclass(frozen=True)
 class Simulation:
-    """What the simulated bench does differently from the file (the "truth" to be found).
+    """The simulated bench's hidden truth, in absolute terms so that writing a calibration into
+    the file never moves it.
 
-    ``offset_error_deg``: true offset minus file offset per mount; ``extinction_scale``:
-    true/file extinction of analyzer and source; ``retardance_error_waves``: added to every
-    plate; ``seed`` for the random draws.
+    ``true_offset_deg``: the true offset of each named mount (others: the file's offset);
+    ``true_extinction``: true extinction ratio of the ``analyzer`` and/or ``source``;
+    ``retardance_error_waves``: added to each plate's nominal or dispersion retardance (a
+    calibrated ``retardance_waves`` in the file does not change the truth); ``seed`` for the
+    random draws.
     """
 
     seed: int = 2026
-    offset_error_deg: Mapping[str, float] = field(default_factory=dict)
-    extinction_scale: float = 1.0
+    true_offset_deg: Mapping[str, float] = field(default_factory=dict)
+    true_extinction: Mapping[str, float] = field(default_factory=dict)
     retardance_error_waves: float = 0.0
 
 
@@ -484,19 +487,17 @@ def _detector(path: str, table: Mapping[str, Any]) -> Detector:
 
 def _simulation(path: str, table: Mapping[str, Any], mounts: Mapping[str, Any]) -> Simulation:
     r = _Reader(path, "simulation", table,
-                ("seed", "offset_error_deg", "extinction_scale", "retardance_error_waves"))
-    offsets = r.table_of("offset_error_deg")
-    errors = {}
-    offset_reader = _Reader(path, "simulation.offset_error_deg", offsets, tuple(offsets))
-    for name in offsets:
-        if name not in mounts:
-            raise BenchFileError(path, f"simulation.offset_error_deg.{name}",
-                                 f"unknown mount (mounts defined: {', '.join(mounts)})")
-        errors[name] = offset_reader.number(name)
+                ("seed", "true_offset_deg", "true_extinction", "retardance_error_waves"))
+    offsets_table = r.table_of("true_offset_deg")
+    offsets = _Reader(path, "simulation.true_offset_deg", offsets_table, tuple(mounts))
+    extinction_table = r.table_of("true_extinction")
+    extinction = _Reader(path, "simulation.true_extinction", extinction_table,
+                         ("analyzer", "source"))
     return Simulation(
         seed=r.integer("seed", 2026),
-        offset_error_deg=errors,
-        extinction_scale=r.number("extinction_scale", 1.0, above=0.0),
+        true_offset_deg={name: offsets.number(name) for name in offsets_table},
+        true_extinction={name: extinction.number(name, minimum=1.0, allow_inf=True)
+                         for name in extinction_table},
         retardance_error_waves=r.number("retardance_error_waves", 0.0),
     )
 
@@ -588,7 +589,7 @@ def _read_document(path: Path) -> tomlkit.TOMLDocument:
         raise BenchFileError(str(path), None, f"cannot be read ({exc})") from None
     try:
         return tomlkit.parse(text)
-    except tomlkit.exceptions.ParseError as exc:
+    except tomlkit.exceptions.TOMLKitError as exc:  # syntax errors and duplicate keys
         raise BenchFileError(str(path), None, f"is not valid TOML ({exc})") from None
 
 

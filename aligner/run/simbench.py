@@ -47,26 +47,43 @@ __all__ = ["DeviceSet", "SimBench", "open_devices", "true_bench"]
 REFERENCE_FRACTION = 1e-3
 
 
-def _plate_error(element: Element, waves: float) -> Element:
+def _true_plate(element: Element, error_waves: float, wavelength_nm: float) -> Element:
+    """The element with its true retardance: the plate's nominal or dispersion value plus the
+    simulated error (a calibrated ``retardance_waves`` in the file does not move the truth)."""
+    from ..bench import NOMINAL_WAVES
+    from ..physics.materials import plate_retardance_waves
+
+    if element.type not in NOMINAL_WAVES:  # retarders have no nominal value: keep the file's
+        base = element.retardance_waves
+    elif element.plate is None:
+        base = NOMINAL_WAVES[element.type]
+    else:
+        pl = element.plate
+        base = float(plate_retardance_waves(NOMINAL_WAVES[element.type], pl.material, pl.kind,
+                                            pl.design_nm, wavelength_nm, order=pl.order,
+                                            thickness_um=pl.thickness_um))
     if element.type in ("hwp", "qwp", "retarder"):
-        return replace(element, retardance_waves=element.retardance_waves + waves)
+        return replace(element, retardance_waves=base + error_waves)
     return element
 
 
 def true_bench(bench: Bench) -> Bench:
-    """The bench as the simulation really is: file values changed by ``bench.simulation``."""
+    """The bench as the simulation really is: the file with the ``[simulation]`` truth put in
+    (absolute true offsets and extinction ratios, plate retardance errors)."""
     sim = bench.simulation
-    mounts = {name: replace(m, offset_deg=m.offset_deg + sim.offset_error_deg.get(name, 0.0))
+    mounts = {name: replace(m, offset_deg=sim.true_offset_deg.get(name, m.offset_deg))
               for name, m in bench.mounts.items()}
-    scale = sim.extinction_scale
+    true_er = sim.true_extinction
+    lam = bench.wavelength_nm
     return replace(
         bench,
         mounts=mounts,
-        source=replace(bench.source, extinction_ratio=bench.source.extinction_ratio * scale),
-        analyzer=replace(bench.analyzer,
-                         extinction_ratio=bench.analyzer.extinction_ratio * scale),
-        pre=tuple(_plate_error(e, sim.retardance_error_waves) for e in bench.pre),
-        post=tuple(_plate_error(e, sim.retardance_error_waves) for e in bench.post),
+        source=replace(bench.source, extinction_ratio=true_er.get(
+            "source", bench.source.extinction_ratio)),
+        analyzer=replace(bench.analyzer, extinction_ratio=true_er.get(
+            "analyzer", bench.analyzer.extinction_ratio)),
+        pre=tuple(_true_plate(e, sim.retardance_error_waves, lam) for e in bench.pre),
+        post=tuple(_true_plate(e, sim.retardance_error_waves, lam) for e in bench.post),
     )
 
 

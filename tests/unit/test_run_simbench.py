@@ -18,12 +18,28 @@ def bench():
 def test_true_bench_applies_the_simulation_table(bench):
     truth = true_bench(bench)
     sim = bench.simulation
-    for name, err in sim.offset_error_deg.items():
-        assert truth.mounts[name].offset_deg == pytest.approx(bench.mounts[name].offset_deg + err)
-    assert truth.analyzer.extinction_ratio == pytest.approx(
-        bench.analyzer.extinction_ratio * sim.extinction_scale)
+    for name, offset in sim.true_offset_deg.items():
+        assert truth.mounts[name].offset_deg == offset
+    assert truth.analyzer.extinction_ratio == sim.true_extinction["analyzer"]
+    assert truth.source.extinction_ratio == sim.true_extinction["source"]
     assert truth.pre[0].retardance_waves == pytest.approx(
         bench.pre[0].retardance_waves + sim.retardance_error_waves)
+
+
+def test_writing_a_calibration_does_not_move_the_truth(bench, tmp_path):
+    from aligner.bench import write_values
+
+    copy = tmp_path / "bench.toml"
+    copy.write_text(bench.path.read_text(encoding="utf-8"), encoding="utf-8")
+    write_values(copy, {"mounts.analyzer.offset_deg": -0.16, "analyzer.extinction_ratio": 8e3,
+                        "pre[1].retardance_waves": 0.26})
+    before, after = true_bench(bench), true_bench(load_bench(copy))
+    assert after.mounts == before.mounts
+    assert after.analyzer == before.analyzer
+    assert after.pre[0] == before.pre[0]
+    # the file now says 0.26 waves, the simulated plate keeps its true retardance
+    assert load_bench(copy).pre[1].retardance_waves == 0.26
+    assert after.pre[1].retardance_waves == before.pre[1].retardance_waves
 
 
 def test_counts_follow_the_model_at_the_true_angles(bench):
