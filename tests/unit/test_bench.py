@@ -237,3 +237,9 @@ def test_write_values_accepts_numpy_float(bench_file):
 def test_write_values_numpy_integer(bench_file):
     write_values(bench_file, {"mounts.ana.sense": np.int64(-1)})
     assert load_bench(bench_file).mounts["ana"].sense == -1
+
+
+def test_duplicate_key_is_a_bench_file_error(write_bench, bench_text):
+    text = bench_text.replace("dead_time_ns = 20.0", "dead_time_ns = 20.0\ndead_time_ns = 30.0")
+    with pytest.raises(BenchFileError, match="dead_time_ns"):
+        load_bench(write_bench(text))
