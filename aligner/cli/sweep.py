@@ -104,6 +104,7 @@ def run(args: argparse.Namespace) -> int:
             if record.status == "complete":
                 raise InputError(f"run {record.id} is already complete ({record.points} points)")
             bench, plan = resume_plan(record)
+            bench = _resume_bench(bench, devices_bench, record)
             dwell, settle = record.dwell_s, record.settle_s
             run_id = record.id
         else:
@@ -157,6 +158,25 @@ def run(args: argparse.Namespace) -> int:
     if not args.json:
         print(f"aligner sweep: paused: {result.message}", file=sys.stderr)
     return 130 if result.reason == "interrupt" else 3
+
+
+def _resume_bench(logged: Any, given: Any, record: Any) -> Any:
+    """The bench a resumed run continues with: the one logged at its start (so predictions stay
+    comparable), but never with a laxer detector limit than the bench file given now."""
+    from dataclasses import replace
+
+    from rich.console import Console
+
+    from ..bench import snapshot_text
+
+    if snapshot_text(given) == record.bench_toml:
+        return logged
+    safe = min(logged.detector.safe_rate, given.detector.safe_rate)
+    Console(stderr=True).print(
+        f"note: {given.path} differs from the bench logged with run {record.id}; the run "
+        f"continues with the logged bench, and the detector guard uses the lower safe_rate of "
+        f"the two ({safe:.3g} counts/s).", style="yellow", highlight=False)
+    return replace(logged, detector=replace(logged.detector, safe_rate=safe))
 
 
 def _point_json(p: Any) -> dict[str, Any]:
