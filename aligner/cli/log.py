@@ -29,6 +29,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     export = action("export", "write a run's points as CSV")
     export.add_argument("run", metavar="RUN", type=int)
     export.add_argument("--csv", metavar="FILE", required=True, help="CSV file to write")
+    export.add_argument("--force", action="store_true", help="replace an existing CSV file")
     note = action("note", "add an operator note to a run")
     note.add_argument("run", metavar="RUN", type=int)
     note.add_argument("text", metavar="TEXT", nargs="+")
@@ -87,7 +88,8 @@ def run(args: argparse.Namespace) -> int:
             for e in events:
                 console.print(f"{e.t_utc[:19]} {e.kind}: {e.message}")
         elif args.action == "export":
-            n = export_csv(log.run(args.run), log.points(args.run), args.csv)
+            n = export_csv(log.run(args.run), log.points(args.run), args.csv,
+                           overwrite=args.force)
             console.print(f"wrote {n} points of run {args.run} to {args.csv}")
         elif args.action == "note":
             log.note(args.run, " ".join(args.text))

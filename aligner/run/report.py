@@ -17,7 +17,7 @@ from .log import Event, LoggedPoint, RunRecord
 
 __all__ = ["CSV_COLUMNS", "Report", "export_csv", "write_report"]
 
-CSV_COLUMNS = ("run", "index", "reading_deg", "counts", "reference", "leak", "leak_lo",
+CSV_COLUMNS = ("run", "index", "mount", "reading_deg", "counts", "reference", "leak", "leak_lo",
                "leak_hi", "predicted_leak", "dwell_s", "imbalance_deg", "predicted_rate",
                "pointer", "pointer_err")
 INSTALL_HINT = 'the plot needs matplotlib: pip install "aligner[report]"'
@@ -33,21 +33,28 @@ class Report:
     note: str = ""
 
 
-def export_csv(record: RunRecord, points: Sequence[LoggedPoint], path: str | Path) -> int:
-    """Write a run's points as CSV (header row, :data:`CSV_COLUMNS`); return the row count.
-    Empty cells stand for a missing reference or pointer reading."""
+def export_csv(record: RunRecord, points: Sequence[LoggedPoint], path: str | Path, *,
+               overwrite: bool = False) -> int:
+    """Write a run's points as CSV (header row, :data:`CSV_COLUMNS`; ``mount`` names the
+    imbalance mount whose reading ``reading_deg`` is); return the row count. Empty cells stand
+    for a missing reference or pointer reading. An existing file is kept unless
+    ``overwrite``."""
     try:
-        with open(path, "w", newline="", encoding="utf-8") as handle:
+        with open(path, "w" if overwrite else "x", newline="", encoding="utf-8") as handle:
             writer = csv.writer(handle)
             writer.writerow(CSV_COLUMNS)
             for p in points:
-                writer.writerow([record.id, p.idx, f"{p.reading_deg:.6f}", p.counts,
+                writer.writerow([record.id, p.idx, record.imbalance_mount,
+                                 f"{p.reading_deg:.6f}", p.counts,
                                  "" if p.reference is None else p.reference, repr(p.leak),
                                  repr(p.leak_lo), repr(p.leak_hi), repr(p.predicted_leak),
                                  repr(p.dwell_s), f"{p.imbalance_deg:.6f}",
                                  repr(p.predicted_rate),
                                  "" if p.pointer is None else repr(p.pointer),
                                  "" if p.pointer_err is None else repr(p.pointer_err)])
+    except FileExistsError:
+        raise InputError(f"--csv {path}: the file exists; choose another name or add --force "
+                         "to replace it") from None
     except OSError as exc:
         raise InputError(f"--csv {path}: cannot be written ({exc})") from None
     return len(points)

@@ -41,6 +41,17 @@ def test_export_csv_has_the_issue_columns(db, tmp_path):
     from aligner.fit.csvdata import load_count_scan
 
     assert load_count_scan(target).counts.shape == (6,)
+    assert {r["mount"] for r in rows} == {"analyzer"}  # the demo's imbalance mount
+
+
+def test_export_keeps_an_existing_file_unless_forced(db, tmp_path):
+    target = tmp_path / "run1.csv"
+    target.write_text("my notes\n")
+    out = _cli("log", "export", "1", "--csv", str(target), "--db", db)
+    assert out.returncode == 2 and "--force" in out.stderr
+    assert target.read_text() == "my notes\n"
+    assert _cli("log", "export", "1", "--csv", str(target), "--db", db, "--force").returncode == 0
+    assert target.read_text().startswith("run,index,mount,")
 
 
 def test_note_and_report(db, tmp_path):
