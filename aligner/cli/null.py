@@ -6,6 +6,7 @@ guard. Mounts with 'driver = "sim"' and '--counter sim' use the simulated bench.
 from __future__ import annotations
 
 import argparse
+import sys
 
 from .common import add_bench_argument, add_json_flag
 from .fit import SAFETY
@@ -51,6 +52,8 @@ def run(args: argparse.Namespace) -> int:
     if name not in bench.mounts:
         raise InputError(f"--mount {name!r}: no such mount; the bench has: "
                          f"{', '.join(bench.mounts)}")
+    if not args.json:
+        print(SAFETY, file=sys.stderr)
     devices = open_devices(bench, counter=args.counter, counter_profile=args.counter_profile,
                            shutter=args.shutter, pointer="none", seed=args.seed)
     try:
@@ -70,7 +73,14 @@ def run(args: argparse.Namespace) -> int:
     rows = [("null reading", f"{result.null_reading_deg:.4f} +/- "
                              f"{result.null_reading_err_deg:.4f} deg"),
             ("mount now at", f"{result.final_reading_deg:.4f} deg"),
-            ("extinction ratio", f"{result.last_fit.extinction_ratio:.3g}"),
+            ("effective extinction ratio (all that fills the null)",
+             f"{result.last_fit.extinction_ratio:.3g}"),
             ("rounds", str(result.rounds)), ("counter reads", str(result.counter_reads))]
-    print_table(f"null search of {name}", rows, [result.message])
+    notes = [result.message]
+    if doc["written"]:
+        notes.append(f"written to {bench.path}: " + ", ".join(
+            f"{key} = {value:.6g}" for key, value in doc["written"].items()))
+    elif args.write:
+        notes.append("nothing written: the search did not converge")
+    print_table(f"null search of {name}", rows, notes)
     return 0 if result.converged else 1
