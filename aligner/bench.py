@@ -25,7 +25,7 @@ from typing import Any
 import tomlkit
 import tomlkit.exceptions
 
-from .errors import BenchFileError
+from .errors import BenchFileError, InputError
 
 __all__ = [
     "DEMO_BENCH",
@@ -403,9 +403,17 @@ def _mount(path: str, name: str, table: Any) -> Mount:
     reading = r.number("reading_deg", 0.0)
     if not travel[0] <= reading <= travel[1]:
         raise r.error("reading_deg", f"{reading:g} is outside travel_deg {list(travel)}")
+    driver = r.text("driver", "sim")
+    if driver != "sim":
+        from drivers.open import check_spec
+
+        try:
+            check_spec(driver)
+        except InputError as exc:
+            raise r.error("driver", str(exc)) from None
     return Mount(
         name=name,
-        driver=r.text("driver", "sim"),
+        driver=driver,
         reading_deg=reading,
         offset_deg=r.number("offset_deg", 0.0),
         sense=int(sense),

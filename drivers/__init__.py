@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from .lineproto import PROFILE_DIR, DeviceProfile, LineChannel, SerialLike, load_profile
 from .manual import ManualCounter, ManualPointer
-from .open import open_counter, open_mount, open_pointer, open_shutter
+from .open import check_spec, open_counter, open_mount, open_pointer, open_shutter
 from .protocols import MOUNT_CAPABILITIES, Counter, PointerReader, RotationMount, Shutter
 from .serial_counter import LineCounter
 from .serial_mount import LineMount
@@ -46,6 +46,7 @@ __all__ = [
     "SimMount",
     "SimPointer",
     "SimShutter",
+    "check_spec",
     "load_profile",
     "open_counter",
     "open_mount",

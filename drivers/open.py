@@ -30,6 +30,7 @@ Options (query keys and keyword names are the same):
 from __future__ import annotations
 
 import dataclasses
+import difflib
 import math
 import re
 from collections.abc import Callable, Mapping
@@ -50,7 +51,7 @@ from .serial_pointer import LinePointer
 from .serial_shutter import LineShutter
 from .sim import FunctionCounter, SimMount, SimPointer, SimShutter, poisson_counter
 
-__all__ = ["open_counter", "open_mount", "open_pointer", "open_shutter"]
+__all__ = ["check_spec", "open_counter", "open_mount", "open_pointer", "open_shutter"]
 
 _URL_SCHEMES = ("loop", "rfc2217", "socket", "spy")
 _ALLOWED_SPECS = (
@@ -173,6 +174,18 @@ def _parse(spec: str, *, manual: bool) -> tuple[str, dict[str, str]]:
     ):
         return "serial", {}
     raise InputError(f"unknown device spec {spec!r}; allowed: {allowed}")
+
+
+def check_spec(spec: str, *, manual: bool = False) -> str:
+    """Check a device spec without opening anything; return its kind (``sim``, ``manual`` or
+    ``serial``) or raise ``InputError`` listing what is allowed (with a did-you-mean)."""
+    try:
+        return _parse(spec, manual=manual)[0]
+    except InputError as exc:
+        close = difflib.get_close_matches(str(spec), ["sim", "manual"] if manual else ["sim"], n=1)
+        if close and ":" not in str(spec):
+            raise InputError(f"{exc}; did you mean {close[0]!r}?") from None
+        raise
 
 
 def _options(

@@ -39,7 +39,7 @@ from drivers.protocols import Counter, PointerReader, RotationMount, Shutter
 from drivers.sim import FunctionCounter, SimMount, SimPointer, SimShutter
 
 from ..bench import Bench, Element
-from ..errors import DeviceError
+from ..errors import DeviceError, InputError
 
 __all__ = ["DeviceSet", "SimBench", "open_devices", "true_bench"]
 
@@ -224,7 +224,11 @@ def open_devices(bench: Bench, *, counter: str = "sim", counter_profile: str | N
     try:
         for name, m in bench.mounts.items():
             if m.driver != "sim":
-                sim.mounts[name] = keep(open_mount(m.driver, profile=m.profile, name=name))
+                try:
+                    mount = open_mount(m.driver, profile=m.profile, name=name)
+                except InputError as exc:  # name the bench key that led here
+                    raise InputError(f"{bench.path}: mounts.{name}: {exc}") from None
+                sim.mounts[name] = keep(mount)
         chosen_counter = (sim.counter if counter == "sim"
                           else keep(open_counter(counter, profile=counter_profile)))
         chosen_shutter = (None if shutter == "none" else sim.shutter if shutter == "sim"

@@ -243,3 +243,9 @@ def test_duplicate_key_is_a_bench_file_error(write_bench, bench_text):
     text = bench_text.replace("dead_time_ns = 20.0", "dead_time_ns = 20.0\ndead_time_ns = 30.0")
     with pytest.raises(BenchFileError, match="dead_time_ns"):
         load_bench(write_bench(text))
+
+
+def test_misspelt_driver_is_caught_when_the_file_loads(write_bench, bench_text):
+    text = bench_text.replace("[mounts.ana]\n", '[mounts.ana]\ndriver = "simm"\n')
+    with pytest.raises(BenchFileError, match=r"mounts\.ana\.driver.*did you mean 'sim'"):
+        load_bench(write_bench(text))
