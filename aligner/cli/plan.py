@@ -8,7 +8,7 @@ import argparse
 import math
 from typing import Any
 
-from .common import add_bench_argument, add_json_flag, emit_json
+from .common import add_bench_argument, emit_json
 
 SAFETY = ("Laser safety: follow your local laser-safety rules and your laser safety officer; "
           "check the expected detector rate before exposing a single-photon detector.")
@@ -21,8 +21,12 @@ def register(sub: argparse._SubParsersAction) -> None:
         description="Solve the full bench model for the mount readings that give a target "
         "amplification, complex weak value or leak rate; list every solution branch inside "
         "the travel, round to the mounts' resolution, and estimate how precisely the mounts "
-        "must sit (Monte Carlo tolerance budget). Exit status 2 when the target is beyond "
-        "the bench's limits. " + SAFETY)
+        "must sit (Monte Carlo tolerance budget). Readings of a mount 180 deg apart set the "
+        "same optics (polarizers, waveplates, rotators), so they are one branch; the table "
+        "shows the reading nearest the current one and how many equivalent readings the "
+        "travel holds. Exit status 2 when the target is beyond the bench's limits or an "
+        "argument is wrong: the message goes to stderr, and with --json nothing is printed on "
+        "stdout. " + SAFETY)
     add_bench_argument(parser)
     target = parser.add_mutually_exclusive_group(required=True)
     target.add_argument("--amplification", type=float, metavar="X",
@@ -38,11 +42,17 @@ def register(sub: argparse._SubParsersAction) -> None:
     parser.add_argument("--free", metavar="MOUNT", action="append", default=[],
                         help="also solve for this mount (repeatable)")
     parser.add_argument("--branch", type=int, metavar="N",
-                        help="use solution branch N instead of the default")
+                        help="use branch N (a row of the branch table: a distinct optical "
+                        "setting, at its reading nearest the current one) instead of the "
+                        "default, the weak-regime setting nearest the current readings")
     parser.add_argument("--samples", type=int, default=100_000, metavar="N",
                         help="Monte Carlo samples of the tolerance budget (0 skips it; "
                         "default 100000)")
-    add_json_flag(parser)
+    parser.add_argument("--json", action="store_true",
+                        help="print one JSON document on stdout (keys: target, unknowns, "
+                        "settings, chosen, branches with equivalent_readings, quantized, "
+                        "predict, sensitivity, tolerance, warnings, message); on an error "
+                        "stdout stays empty, the message goes to stderr, exit status 2")
     parser.add_argument("--write", action="store_true",
                         help="store the rounded readings in the bench file (comments kept)")
     parser.set_defaults(handler=run)
@@ -113,17 +123,24 @@ def _print(bench: Any, result: Any, *, wrote: bool) -> None:
                          _one_percent(sens[name].reading_for_1pct_deg))
     console.print(settings)
 
-    branches = Table(title="solution branches (* = chosen; readings in deg)")
+    branches = Table(title="solution branches, one per optical setting (* = chosen)")
     branches.add_column("#", justify="right")
     for name in result.unknowns:
-        branches.add_column(name, justify="right")
-    for column in ("side", "regime", "imbalance (deg)", "value", "leak rate"):
-        branches.add_column(column, justify="left" if column in ("side", "regime") else "right")
+        branches.add_column(f"{name} (deg)", justify="right")
+    for column in ("regime", "imbalance (deg)", "value", "leak rate", "equiv."):
+        branches.add_column(column, justify="left" if column == "regime" else "right")
     for b in result.branches:
         branches.add_row(f"{b.index}{'*' if b.index == result.chosen else ''}",
-                         *(f"{b.settings[n]:.4f}" for n in result.unknowns), b.side, b.regime,
-                         f"{b.imbalance_deg:.5g}", f"{b.value:.6g}", f"{b.leak_rate:.4g}")
+                         *(f"{b.settings[n]:.4f}" for n in result.unknowns),
+                         "floor" if b.regime == "extinction floor" else b.regime,
+                         f"{b.imbalance_deg:+.5g}", f"{b.value:.6g}", f"{b.leak_rate:.4g}",
+                         str(len(b.equivalent_readings)))
     console.print(branches)
+    console.print("floor: inside the extinction floor (leaked light dominates, touchy). "
+                  "imbalance > 0: high-reading side of the null. equiv.: readings inside the "
+                  "travel that set the same optics (180 deg apart on a mount); the row shows "
+                  "the one nearest the current readings, --json lists them all "
+                  "(branches[].equivalent_readings).")
 
     tol = result.tolerance
     if tol is not None:

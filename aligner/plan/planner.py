@@ -25,6 +25,7 @@ from .solve import (
     Target,
     infeasible,
     make_target,
+    mount_period_deg,
     observe,
     pointer_cap,
     preferred,
@@ -48,6 +49,12 @@ class Branch:
     ``regime``: ``weak`` (the usual working point) or ``extinction floor`` (between the null
     and the amplification peak, where leaked light dominates and the setting is touchy).
     ``value`` is the target quantity (signed amplification, ``|A_w|`` or leak rate).
+
+    One branch is one distinct optical setting: readings of a mount that differ by its period
+    (180 deg for polarizers, waveplates and rotators, :func:`.solve.mount_period_deg`) set the
+    same optics and are one branch. ``settings`` is the equivalent reading nearest the current
+    readings; ``equivalent_readings`` lists every equivalent reading inside the travel, that
+    one first, nearest first.
     """
 
     index: int
@@ -62,6 +69,7 @@ class Branch:
     leak_rate: float
     value: float
     distance_deg: float
+    equivalent_readings: tuple[Mapping[str, float], ...] = ()
 
     def to_dict(self) -> dict[str, Any]:
         return {"index": self.index, "settings": dict(self.settings), "side": self.side,
@@ -70,7 +78,8 @@ class Branch:
                 "amplification": {"linear": self.amplification_linear,
                                   "exact": self.amplification_exact},
                 "leak_rate": self.leak_rate, "value": self.value,
-                "distance_deg": self.distance_deg}
+                "distance_deg": self.distance_deg,
+                "equivalent_readings": [dict(r) for r in self.equivalent_readings]}
 
 
 @dataclass(frozen=True)
@@ -152,8 +161,22 @@ def _quantity(target: Target) -> str:
     return f"{'exact' if target.exact else 'linear'} amplification ({target.axis} axis)"
 
 
+def _same_setting(a: Mapping[str, float], b: Mapping[str, float],
+                  periods: Mapping[str, float]) -> bool:
+    """Readings equal modulo each mount's period (to 1e-6 deg)."""
+    return all(abs((a[n] - b[n] + periods[n] / 2) % periods[n] - periods[n] / 2) < 1e-6
+               for n in periods)
+
+
 def _branches(bench: Bench, target: Target, unknowns: Sequence[str], roots: Sequence[Root],
-              order: Sequence[int]) -> tuple[Branch, ...]:
+              order: Sequence[int]) -> tuple[tuple[Branch, ...], tuple[int, ...]]:
+    """One branch per distinct optical setting, in the default order, and the index of each
+    branch's root (its reading nearest the current readings).
+
+    ``order`` lists the roots in the default order (weak regime first, nearest first), so the
+    first root met of each setting is its nearest reading. Readings count as one setting only
+    when they agree modulo every unknown mount's period and the model gives the same weak value
+    and leak rate there (1e-9 relative): a guard should an element ever not repeat."""
     current = bench.readings()
     full = {n: np.array([dict(zip(unknowns, roots[k].readings, strict=True)).get(n, v)
                          for k in order]) for n, v in current.items()}
@@ -163,19 +186,37 @@ def _branches(bench: Bench, target: Target, unknowns: Sequence[str], roots: Sequ
     ex = axis_part(obs.exact)
     imb = np.asarray(imbalance_deg(bench, full))
     value = np.asarray(target.figure(obs))
-    out = []
+    periods = {n: mount_period_deg(bench, n) for n in unknowns}
+    groups: list[list[int]] = []  # positions in ``order``
     for i, k in enumerate(order):
-        root = roots[k]
+        here = dict(zip(unknowns, roots[k].readings, strict=True))
+        for g in groups:
+            j = g[0]
+            first = dict(zip(unknowns, roots[order[j]].readings, strict=True))
+            if (roots[order[j]].inner == roots[k].inner
+                    and _same_setting(here, first, periods)
+                    and np.isclose(obs.weak_value[i], obs.weak_value[j], rtol=1e-9, atol=0)
+                    and np.isclose(obs.leak_rate[i], obs.leak_rate[j], rtol=1e-9, atol=0)):
+                g.append(i)
+                break
+        else:
+            groups.append([i])
+    out = []
+    for index, g in enumerate(groups):
+        i = g[0]
+        root = roots[order[i]]
         settings = dict(zip(unknowns, root.readings, strict=True))
         out.append(Branch(
-            index=i, settings=settings, side="high" if imb[i] > 0 else "low",
+            index=index, settings=settings, side="high" if imb[i] > 0 else "low",
             regime="extinction floor" if root.inner else "weak",
             null_deg=dict(zip(unknowns, root.null, strict=True)),
             imbalance_deg=float(imb[i]), weak_value=complex(obs.weak_value[i]),
             amplification_linear=float(lin[i]), amplification_exact=float(ex[i]),
             leak_rate=float(obs.leak_rate[i]), value=float(value[i]),
-            distance_deg=float(np.linalg.norm([settings[n] - current[n] for n in unknowns]))))
-    return tuple(out)
+            distance_deg=float(np.linalg.norm([settings[n] - current[n] for n in unknowns])),
+            equivalent_readings=tuple(
+                dict(zip(unknowns, roots[order[j]].readings, strict=True)) for j in g)))
+    return tuple(out), tuple(order[g[0]] for g in groups)
 
 
 def _mismatch(target: Target, value: complex, obs: Any, n: int) -> np.ndarray:
@@ -232,15 +273,19 @@ def _sensitivity(bench: Bench, target: Target, settings: Mapping[str, float], va
 def _reason(branches: Sequence[Branch], chosen: int, requested: int | None) -> str:
     b = branches[chosen]
     n = len(branches)
+    readings = sum(len(x.equivalent_readings) for x in branches)
+    of = f"branch {chosen} of {n} distinct settings"
+    if readings > n:
+        of += f" ({readings} readings in all, counting those 180 deg apart)"
     if requested is not None:
-        return f"branch {chosen} of {n}, as requested with branch={requested}"
+        return f"{of}, as requested with branch={requested}"
     weak = sum(x.regime == "weak" for x in branches)
     if b.regime == "weak":
         others = f"; {n - weak} more inside the extinction floor" if n > weak else ""
-        return (f"branch {chosen} of {n}: the weak-regime solution nearest the current readings "
+        return (f"{of}: the weak-regime setting nearest the current readings "
                 f"({b.distance_deg:.4g} deg away, {b.side}-reading side of the null){others}")
-    return (f"branch {chosen} of {n}: nearest the current readings; every solution lies inside "
-            "the extinction floor, where leaked light dominates and the setting is touchy")
+    return (f"{of}: nearest the current readings; every solution lies inside the extinction "
+            "floor, where leaked light dominates and the setting is touchy")
 
 
 def _fmt(x: float) -> str:
@@ -298,9 +343,11 @@ def plan(bench: Bench, amplification: float | None = None, *, axis: str | None =
     phase read ``re``, momentum ``im``; ``exact`` for the all-orders pointer response),
     ``weak_value`` (complex) or ``leak_rate`` (per source photon). Unknowns: the
     bench's ``imbalance_mount``, its ``phase_mount`` for amplification and weak-value targets,
-    and any ``free`` mounts. ``branch`` picks a solution other than the default (weak regime,
-    nearest the current readings). ``samples`` = 0 skips the Monte Carlo tolerance budget;
-    ``predict`` = False skips the :func:`aligner.predict.prediction_block` of the setting.
+    and any ``free`` mounts. ``branch`` picks another distinct optical setting (an index into
+    :attr:`Plan.branches`) than the default (weak regime, nearest the current readings); the
+    readings used are that setting's equivalent reading nearest the current readings.
+    ``samples`` = 0 skips the Monte Carlo tolerance budget; ``predict`` = False skips the
+    :func:`aligner.predict.prediction_block` of the setting.
 
     Raises :class:`InfeasibleTarget` (the limit and the achievable value in the message) and
     :class:`InputError` for bad arguments.
@@ -314,12 +361,12 @@ def plan(bench: Bench, amplification: float | None = None, *, axis: str | None =
     if not sol.roots:
         raise infeasible(bench, target, sol)
     order = preferred(sol.roots, sol.unknowns, bench.readings())
-    branches = _branches(bench, target, sol.unknowns, sol.roots, order)
+    branches, branch_roots = _branches(bench, target, sol.unknowns, sol.roots, order)
     if branch is not None and not 0 <= branch < len(branches):
         raise InputError(f"branch {branch!r}: this target has branches 0..{len(branches) - 1}")
     chosen = 0 if branch is None else int(branch)
     b = branches[chosen]
-    root = sol.roots[order[chosen]]
+    root = sol.roots[branch_roots[chosen]]
     q = _quantize(bench, target, sol.unknowns, root, b.value)
     if q.step_change > STEP_LIMIT:
         reachable = abs(b.value) * STEP_LIMIT / q.step_change

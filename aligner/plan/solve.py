@@ -447,7 +447,25 @@ def _solve_one_mount(bench: Bench, target: Target, name: str,
     return Solution((name,), roots, peak, sum(s.null is not None for s in segs))
 
 
-PERIOD_DEG = 180.0  # every element (polarizer, retarder, rotator) repeats after 180 deg
+#: Period (deg) of each element type in its element angle, as an optical setting. A polarizer's
+#: projector and a retarder's Jones matrix repeat after 180 deg; a rotator's Jones matrix changes
+#: sign after 180 deg (a global phase: the same density matrix, the same Stokes vector).
+ELEMENT_PERIOD_DEG = {"polarizer": 180.0, "hwp": 180.0, "qwp": 180.0, "retarder": 180.0,
+                      "rotator": 180.0}
+PERIOD_DEG = 180.0  # the period of every element type above
+
+
+def mount_period_deg(bench: Bench, name: str) -> float:
+    """Reading period (deg) after which mount ``name`` gives the same optical setting: 180 deg
+    when every element it turns has that period (:data:`ELEMENT_PERIOD_DEG`), else a full
+    turn (an element type without a known period is never folded)."""
+    types = [e.type for e in (*bench.pre, *bench.post) if e.mount == name]
+    if bench.source.mount == name:
+        types.append("polarizer")
+    if bench.analyzer.mount == name:
+        types.append("polarizer")
+    periods = {ELEMENT_PERIOD_DEG.get(t, 360.0) for t in types}
+    return PERIOD_DEG if periods <= {PERIOD_DEG} else 360.0
 
 
 _NULL_CACHE: dict[tuple[str, tuple[str, ...], tuple[tuple[str, float], ...]], Real] = {}
@@ -561,9 +579,10 @@ def _translations(x: Real, names: Sequence[str], bench: Bench) -> list[Real]:
     options = []
     for k, name in enumerate(names):
         lo, hi = bench.mounts[name].travel_deg
-        first = np.ceil((lo - x[k]) / PERIOD_DEG)
-        last = np.floor((hi - x[k]) / PERIOD_DEG)
-        options.append(x[k] + PERIOD_DEG * np.arange(first, last + 1))
+        period = mount_period_deg(bench, name)
+        first = np.ceil((lo - x[k]) / period)
+        last = np.floor((hi - x[k]) / period)
+        options.append(x[k] + period * np.arange(first, last + 1))
     if any(len(o) == 0 for o in options):
         return []
     grid = np.meshgrid(*options, indexing="ij")
@@ -671,8 +690,9 @@ def infeasible(bench: Bench, target: Target, solution: Solution) -> InfeasibleTa
             "widen travel_deg in the bench file or re-mount the optic", limit="travel",
             achievable=solution.peak)
     an, src = bench.analyzer.extinction_ratio, bench.source.extinction_ratio
+    d_a, d_s = 1.0 / an, 1.0 / src  # leak of each polarizer (0 for a perfect one)
     with np.errstate(divide="ignore"):
-        ideal_cap = 0.5 * np.sqrt(1.0 / np.float64(1.0 / an + 1.0 / src))
+        ideal_cap = 0.5 / np.sqrt(np.float64(d_a + d_s))
     cap = pointer_cap(bench)
     if target.exact and cap < 1.2 * solution.peak:
         return InfeasibleTarget(
@@ -682,12 +702,19 @@ def infeasible(bench: Bench, target: Target, solution: Solution) -> InfeasibleTa
             f"{bench.coupling.pointer_sigma / bench.coupling.strength:.4g}); use a wider "
             "pointer (larger pointer_sigma) or a weaker coupling", limit="pointer",
             achievable=solution.peak)
+    worse = "analyzer" if d_a >= d_s else "source polarizer"
+    arm = [e.key for e in (*bench.pre, *bench.post)
+           if e.type == "polarizer" and np.isfinite(e.extinction_ratio)]
+    also = (f"; the leak of the polarizer(s) {', '.join(arm)} in the arms adds to the floor and "
+            "is not in that estimate" if arm else "")
     return InfeasibleTarget(
-        f"{target.describe()} is beyond the extinction limit: light leaking through the "
-        f"analyzer (extinction ratio {an:.3g}) and the source polarizer ({src:.3g}) caps the "
-        f"amplification at {solution.peak:.4g} on this bench (about sqrt(ER)/2 = "
-        f"{ideal_cap:.4g} for ideal states); use a polarizer with a higher extinction ratio",
-        limit="extinction", achievable=solution.peak)
+        f"{target.describe()} is beyond the extinction limit: light leaking through the source "
+        f"polarizer (extinction ratio {src:.3g}, leak d_s = 1/ER = {d_s:.3g}) and the analyzer "
+        f"(extinction ratio {an:.3g}, leak d_a = {d_a:.3g}) sets a floor under the "
+        f"post-selection, which caps the amplification at {solution.peak:.4g} on this bench "
+        f"(for ideal states about 1/(2 sqrt(d_a + d_s)) = {ideal_cap:.4g}, with the combined "
+        f"leak d_a + d_s = {d_a + d_s:.3g}){also}; the {worse} leaks more: use one with a "
+        "higher extinction ratio", limit="extinction", achievable=solution.peak)
 
 
 def _null_beyond_travel(bench: Bench, names: Sequence[str]) -> bool:

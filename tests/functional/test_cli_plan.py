@@ -28,6 +28,11 @@ def test_plan_json_document() -> None:
     assert doc["tolerance"]["samples"] == 2000
     assert doc["tolerance"]["dominant"] in doc["tolerance"]["by_source"]
     assert len(doc["branches"]) >= 2 and doc["chosen"]["index"] == 0
+    # one branch per optical setting; readings 180 deg apart are listed with it
+    assert len(doc["branches"]) == 8
+    for branch in doc["branches"]:
+        assert branch["equivalent_readings"][0] == branch["settings"]
+        assert len(branch["equivalent_readings"]) == 4
     assert {"derivative_per_deg", "reading_for_1pct_deg"} <= set(doc["sensitivity"]["analyzer"])
 
 
@@ -63,6 +68,22 @@ def test_infeasible_targets_exit_2(write_bench: Callable[[str], Path], bench_tex
     line, = done.stderr.strip().splitlines()
     assert limit in line and "Traceback" not in done.stderr
     assert done.stdout == ""
+
+
+def test_extinction_message_names_both_polarizers_with_json(bench_file: Path) -> None:
+    """The cap quoted for ideal states is 1/(2 sqrt(d_a + d_s)) (physics.md, derived; related:
+    Knee, Briggs, Benjamin & Gauger, Phys. Rev. A 87, 012115 (2013)); with --json an error
+    leaves stdout empty and goes to stderr with exit status 2, as --help says."""
+    done = aligner("plan", str(bench_file), "--amplification", "500", "--json", "--samples", "0")
+    assert done.returncode == 2 and done.stdout == ""
+    message = done.stderr
+    for needle in ("source polarizer", "analyzer", "d_a + d_s", "1/(2 sqrt(d_a + d_s))"):
+        assert needle in message
+    assert "sqrt(ER)/2" not in message
+    helped = aligner("plan", "--help")
+    text = " ".join(helped.stdout.split())
+    assert "stdout stays empty" in text and "stderr" in text and "exit status 2" in text
+    assert "equivalent" in text
 
 
 @pytest.mark.parametrize(("args", "needle"), [

@@ -106,7 +106,9 @@ def test_branches_default_nearest_and_choice() -> None:
     bench = make_bench()  # analyzer at 136 deg, null at 135 deg and 315 deg
     p = plan(bench, 10, samples=0, predict=False)
     weak = [b for b in p.branches if b.regime == "weak"]
-    assert len(weak) == 4  # both sides of both nulls in travel
+    # both sides of the null: the nulls at 135 and 315 deg are one optical setting
+    assert len(weak) == 2
+    assert all(len(b.equivalent_readings) == 2 for b in weak)
     assert p.chosen == 0 and p.branch.side == "high"
     assert p.branch.distance_deg == min(b.distance_deg for b in weak)
     assert "nearest" in p.reason
@@ -213,3 +215,47 @@ def test_plan_document_and_message() -> None:
     assert set(doc["settings"]) == {"analyzer", "pre_qwp"}
     assert "laser safety officer" in p.message
     assert f"{p.quantized.settings['analyzer']:.6g}" in p.message
+
+
+def test_branches_fold_readings_180_deg_apart() -> None:
+    """Polarizers and waveplates repeat after 180 deg of element angle (a projector and a
+    retarder Jones matrix are unchanged by theta -> theta + pi; Hecht, Optics, 5th ed. 2017,
+    ch. 8): one branch per optical setting, each equivalent reading predicting the same."""
+    bench = make_bench(qwp=45.0, travel=(-170.0, 350.0))
+    p = plan(bench, 12, samples=0, predict=False)
+    readings = [r for b in p.branches for r in b.equivalent_readings]
+    for b in p.branches:
+        first = b.equivalent_readings[0]
+        assert first == dict(b.settings)
+        assert b.distance_deg == min(
+            math.dist([r[n] for n in p.unknowns], [bench.mounts[n].reading_deg
+                                                   for n in p.unknowns])
+            for r in b.equivalent_readings)
+        w = complex(predict(bench, first).weak_value)
+        for r in b.equivalent_readings[1:]:
+            steps = [(r[n] - first[n]) / 180.0 for n in p.unknowns]
+            assert all(abs(k - round(k)) < 1e-8 for k in steps) and any(steps)
+            assert complex(predict(bench, r).weak_value) == pytest.approx(w, rel=1e-9)
+    # a qwp at 45 and at -45 (135) deg are different settings: both stay as branches
+    qwp = {round(b.settings["qwp"] % 180.0, 6) for b in p.branches}
+    assert qwp == {45.0, 135.0}
+    # distinct branches are never 180-deg copies of one another
+    keys = {(b.regime, *(round(b.settings[n] % 180.0, 6) for n in p.unknowns))
+            for b in p.branches}
+    assert len(keys) == len(p.branches)
+    assert len(readings) > len(p.branches)
+    doc = p.to_dict()
+    assert len(doc["branches"][0]["equivalent_readings"]) == len(p.branch.equivalent_readings)
+
+
+def test_mount_period_guard() -> None:
+    """Every element type on a mount folds at 180 deg; an unknown type would not be folded."""
+    from dataclasses import replace
+
+    from aligner.plan.solve import mount_period_deg
+
+    bench = make_bench(qwp=45.0)
+    assert mount_period_deg(bench, "ana") == 180.0 and mount_period_deg(bench, "qwp") == 180.0
+    odd = replace(bench, pre=tuple(replace(e, type="mystery") if e.mount == "qwp" else e
+                                   for e in bench.pre))
+    assert mount_period_deg(odd, "qwp") == 360.0

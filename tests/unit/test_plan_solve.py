@@ -91,14 +91,15 @@ def test_amplification_arrays_and_roots_hit_target() -> None:
 
 
 def test_extinction_cap_is_infeasible() -> None:
-    """The leak floor caps |A_w| near sqrt(ER)/2 (physics.md, derived; related: Knee, Briggs,
-    Benjamin & Gauger, Phys. Rev. A 87, 012115 (2013))."""
+    """The leak floor caps |A_w| near 1/(2 sqrt(d_a + d_s)) (physics.md, derived; related: Knee,
+    Briggs, Benjamin & Gauger, Phys. Rev. A 87, 012115 (2013))."""
     bench = crossed_bench(extinction=1e5)
     with pytest.raises(InfeasibleTarget) as err:
         readings_for_amplification(bench, 200.0)
     assert err.value.limit == "extinction"
-    # source and analyzer both 1e5: effective leak 2e-5 -> cap sqrt(5e4)/2 = 111.8
-    assert err.value.achievable == pytest.approx(0.5 * math.sqrt(5e4), rel=0.02)
+    # source and analyzer both 1e5: combined leak d_a + d_s = 2e-5 -> cap 1/(2 sqrt(2e-5)) = 111.8
+    assert err.value.achievable == pytest.approx(0.5 / math.sqrt(2e-5), rel=0.02)
+    assert "d_a + d_s = 2e-05" in str(err.value) and "source polarizer" in str(err.value)
 
 
 def test_other_readings_untouched() -> None:
