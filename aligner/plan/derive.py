@@ -22,7 +22,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -46,8 +46,9 @@ class Derivation:
     """Closed forms (sympy expressions) and what their symbols mean.
 
     ``meaning``: symbol name -> description with its value on this bench; ``values``: the
-    numeric value of every constant symbol; ``null_deg``: element angles (deg) of the null the
-    series is taken around.
+    numeric value of every constant symbol (leaks ``d``, transmissions ``T``, ``kappa``,
+    ``eta``); ``null_deg``: element angles (deg) of the null the series is taken around;
+    ``latex_names``: symbol -> its LaTeX form (``\\theta_{\\mathrm{pre\\_qwp}}``).
     """
 
     angles: Mapping[str, Any]  # mount -> element-angle symbol (rad)
@@ -62,25 +63,88 @@ class Derivation:
     leak_rate_series: Any
     floor: Any
     null_deg: Mapping[str, float]
+    latex_names: Mapping[Any, str] = field(default_factory=dict)
 
-    def text(self, latex: bool = False) -> str:
-        """Readable (or LaTeX) rendering for a notebook."""
+    def _formulas(self) -> list[tuple[str, str, str, Any]]:
+        """(key, plain name, LaTeX name, expression) of every result."""
+        return [("numerator", "N", "N", self.numerator),
+                ("denominator", "D", "D", self.denominator),
+                ("leak_rate", "P", "P", self.leak_rate),
+                ("weak_value_series", "A_w ~", r"A_w \simeq", self.weak_value_series),
+                ("leak_rate_series", "P   ~", r"P \simeq", self.leak_rate_series),
+                ("floor", "floor (P at the null) =", r"P_{\mathrm{floor}} =", self.floor)]
+
+    def latex(self, expr: Any) -> str:
+        """``expr`` in LaTeX with the bench's symbol names."""
         import sympy as sp
 
-        show = sp.latex if latex else sp.sstr
-        eq = " = "
+        return sp.latex(expr, symbol_names=dict(self.latex_names))
+
+    def _symbol_latex(self, name: str) -> str:
+        return next((v for k, v in self.latex_names.items() if str(k) == name), name)
+
+    def _null_text(self, latex: bool) -> str:
+        if latex:
+            return ", ".join(f"{self._symbol_latex(str(self.angles[m]))} = "
+                             f"{self.null_deg[m]:.6g}^\\circ + {self._symbol_latex(str(e))}"
+                             for m, e in self.offsets.items())
+        return ", ".join(f"{self.angles[m]} = {self.null_deg[m]:.6g} deg + {e}"
+                         for m, e in self.offsets.items())
+
+    def text(self, latex: bool = False) -> str:
+        """Readable (or LaTeX) rendering for a notebook: the symbol table, A_w = N/D, the leak
+        rate, and the leading order around the null."""
+        import sympy as sp
+
+        forms = {key: (plain, tex, expr) for key, plain, tex, expr in self._formulas()}
+        series = ("weak_value_series", "leak_rate_series", "floor")
+        if latex:
+            rows = [f"  {self._symbol_latex(n)} & \\text{{{_latex_text(t)}}} \\\\"
+                    for n, t in self.meaning.items()]
+            out = ["% symbols", r"\begin{array}{ll}", *rows, r"\end{array}", "",
+                   r"% weak value A_w = N / D, leak rate P per source photon",
+                   r"A_w = \frac{N}{D}"]
+            out += [f"{forms[k][1]} = {self.latex(forms[k][2])}"
+                    for k in ("numerator", "denominator", "leak_rate")]
+            out += ["", f"% around the null {self._null_text(True)}, to leading order"]
+            out += [f"{forms[k][1]} {self.latex(forms[k][2])}" for k in series]
+            return "\n".join(out)
+        show = sp.sstr
         lines = ["Symbols:"]
         lines += [f"  {name}: {text}" for name, text in self.meaning.items()]
         lines += ["", "Weak value A_w = N / D with",
-                  f"  N{eq}{show(self.numerator)}", f"  D{eq}{show(self.denominator)}",
-                  "", "Leak rate (per source photon):", f"  P{eq}{show(self.leak_rate)}",
-                  "", "Around the null "
-                  + ", ".join(f"{self.angles[m]} = {self.null_deg[m]:.6g} deg + {e}"
-                              for m, e in self.offsets.items()) + ", to leading order:",
-                  f"  A_w ~ {show(self.weak_value_series)}",
-                  f"  P   ~ {show(self.leak_rate_series)}",
-                  f"  floor (P at the null){eq}{show(self.floor)}"]
+                  f"  N = {show(self.numerator)}", f"  D = {show(self.denominator)}",
+                  "", "Leak rate (per source photon):", f"  P = {show(self.leak_rate)}",
+                  "", f"Around the null {self._null_text(False)}, to leading order:"]
+        lines += [f"  {forms[k][0]} {show(forms[k][2])}" for k in series]
         return "\n".join(lines)
+
+    def to_dict(self) -> dict[str, Any]:
+        """The JSON document of ``aligner derive --json``: every expression as a plain string
+        (sympy syntax) and as LaTeX, and the symbol table (meaning, LaTeX, value)."""
+        import sympy as sp
+
+        values = {str(k): v for k, v in self.values.items()}
+        return {
+            "symbols": {name: {"meaning": text, "latex": self._symbol_latex(name),
+                               "value": values.get(name)}
+                        for name, text in self.meaning.items()},
+            "angles": {m: str(s) for m, s in self.angles.items()},
+            "offsets": {m: str(s) for m, s in self.offsets.items()},
+            "null_deg": dict(self.null_deg),
+            "expressions": {key: {"text": sp.sstr(expr), "latex": self.latex(expr)}
+                            for key, _, _, expr in [("weak_value", "", "", self.weak_value),
+                                                    *self._formulas()]},
+        }
+
+
+def _latex_text(text: str) -> str:
+    """Plain text escaped for ``\\text{...}``."""
+    out = text.replace("\\", "\0")
+    for char, esc in (("{", r"\{"), ("}", r"\}"), ("_", r"\_"), ("^", r"\^{}"), ("%", r"\%"),
+                      ("&", r"\&"), ("#", r"\#"), ("$", r"\$"), ("~", r"\~{}")):
+        out = out.replace(char, esc)
+    return out.replace("\0", r"\textbackslash{}")
 
 
 def _exact_angle(deg: float) -> Any:
@@ -107,8 +171,23 @@ def _safe_name(text: str) -> str:
     return "".join(c if c.isalnum() else "_" for c in text)
 
 
+def _latex_name(text: str) -> str:
+    """A name as a LaTeX subscript: a single character as is, a word upright with its
+    underscores escaped (``pre_qwp`` -> ``\\mathrm{pre\\_qwp}``)."""
+    safe = _safe_name(text)
+    return safe if len(safe) == 1 else r"\mathrm{" + safe.replace("_", r"\_") + "}"
+
+
 class _Builder:
-    """Builds the sympy matrices of one bench."""
+    """Builds the sympy matrices of one bench.
+
+    Entries are polynomials in the cos/sin symbols of the free angles (``C_m = cos 2 theta_m``,
+    ``S_m = sin 2 theta_m``, and ``c_m``, ``s_m`` of the single angle), the leak symbols ``d``
+    and the transmission symbols ``T``, with exact numeric coefficients in Q(sqrt 2, i) when the
+    fixed angles are multiples of 22.5 deg and the retardances multiples of 1/8 wave: a fixed
+    element is built at a placeholder angle, brought to double angles (``TR7``/``TR8``) and only
+    then given its value, so no nested radical such as ``cos(pi/8)`` enters the products.
+    """
 
     def __init__(self, bench: Bench, free: Sequence[str]) -> None:
         import sympy as sp
@@ -118,6 +197,8 @@ class _Builder:
         self.free = tuple(free)
         self.readings = bench.readings()
         self.angles = {m: sp.Symbol(f"theta_{_safe_name(m)}", real=True) for m in self.free}
+        self.latex: dict[Any, str] = {th: rf"\theta_{{{_latex_name(m)}}}"
+                                      for m, th in self.angles.items()}
         # Matrices are multiplied as polynomials in cos/sin of the free angles (and of twice
         # them): products of trigonometric functions never get expanded symbolically.
         self.to_poly: dict[Any, Any] = {}
@@ -126,6 +207,7 @@ class _Builder:
                                  (sp.cos, th, "c"), (sp.sin, th, "s")):
                 self.to_poly[fn(arg)] = sp.Symbol(f"{tag}_{_safe_name(m)}", real=True)
         self.from_poly = {v: k for k, v in self.to_poly.items()}
+        self.fixed: dict[Any, Any] = {}  # placeholder angle -> exact fixed angle (rad)
         self.meaning: dict[str, str] = {}
         self.values: dict[Any, float] = {}
         self.small: list[Any] = []  # extinction symbols d (scale as t^2)
@@ -135,29 +217,52 @@ class _Builder:
                                       f"{mount.sense:+d} x (reading - {mount.offset_deg:g} deg)")
 
     def angle(self, angle_deg: float, mount: str | None) -> Any:
-        """The free angle's symbol, or the exact fixed angle (rad)."""
+        """The free angle's symbol, or a placeholder for the exact fixed angle (rad)."""
         if mount in self.angles:
             return self.angles[mount]
         deg = angle_deg if mount is None else float(
             self.bench.mounts[mount].element_angle_deg(self.readings[mount]))
-        return _exact_angle(deg)
+        phi = self.sp.Dummy("phi", real=True)
+        self.fixed[phi] = _exact_angle(deg)
+        return phi
+
+    def constant(self, name: str, latex: str, value: float, text: str, *, small: bool) -> Any:
+        """A named bench number (a leak ``d`` or a transmission ``T``) with its value listed."""
+        sym = self.sp.Symbol(name, positive=True)
+        self.values[sym] = value
+        self.latex[sym] = latex
+        self.meaning[name] = f"{text} = {value:.6g}"
+        if small:
+            self.small.append(sym)
+        return sym
 
     def leak(self, name: str, extinction_ratio: float, what: str) -> Any:
         if math.isinf(extinction_ratio):
             return 0
-        sym = self.sp.Symbol(f"d_{name}", positive=True)
-        self.small.append(sym)
-        self.values[sym] = 1.0 / extinction_ratio
-        self.meaning[str(sym)] = f"1/extinction ratio of the {what} = {1.0 / extinction_ratio:.6g}"
-        return sym
+        return self.constant(f"d_{name}", f"d_{{{_latex_name(name)}}}", 1.0 / extinction_ratio,
+                             f"leak of the {what}, 1/extinction ratio", small=True)
+
+    def transmission(self, name: str, value: float, what: str) -> Any:
+        if value == 1.0:
+            return 1
+        return self.constant(f"T_{name}", f"T_{{{_latex_name(name)}}}", value,
+                             f"transmission of the {what} along its pass axis", small=False)
 
     def poly(self, matrix: Any) -> Any:
-        """A matrix of trigonometric entries as polynomials in the cos/sin symbols."""
+        """A matrix of trigonometric entries as polynomials in the cos/sin symbols: double
+        angles first, then the fixed angles' values, then ``exp(i x)`` of a number as
+        ``cos x + i sin x`` (exact for multiples of 45 deg)."""
         from sympy.simplify.fu import TR7, TR8
 
         sp = self.sp
-        return matrix.applyfunc(
-            lambda x: sp.expand(sp.expand(TR8(TR7(sp.expand(x)))).xreplace(self.to_poly)))
+
+        def entry(x: Any) -> Any:
+            x = sp.expand(TR8(TR7(sp.expand(x)))).xreplace(self.fixed)
+            x = x.xreplace({e: sp.cos(-sp.I * e.exp) + sp.I * sp.sin(-sp.I * e.exp)
+                            for e in x.atoms(sp.exp) if e.exp.is_number})
+            return sp.expand(x).xreplace(self.to_poly)
+
+        return matrix.applyfunc(entry)
 
     def product(self, *factors: Any) -> Any:
         out = factors[0]
@@ -170,21 +275,44 @@ class _Builder:
         return self.poly(v * v.T)
 
     def element(self, element: Element) -> tuple[str, Any, Any]:
-        """("unitary", J) or ("polarizer", (P, Q), factor) for one element."""
+        """("unitary", J, None), ("rotator", (cos 2 phi, sin 2 phi), None) or ("polarizer",
+        (P, Q), (T, d)) for one element."""
         sp = self.sp
         theta = self.angle(element.angle_deg, element.mount)
         if element.type == "polarizer":
-            d = self.leak(_safe_name(element.key), element.extinction_ratio,
-                          f"polarizer {element.key}")
+            key = _safe_name(element.key)
+            d = self.leak(key, element.extinction_ratio, f"polarizer {element.key}")
+            t = self.transmission(key, element.transmission, f"polarizer {element.key}")
             p = self.projector(theta)
-            return "polarizer", (p, sp.eye(2) - p), (_exact_number(element.transmission, 1000), d)
+            return "polarizer", (p, sp.eye(2) - p), (t, d)
         if element.type == "rotator":
-            c, s = sp.cos(theta), sp.sin(theta)
-            return "unitary", self.poly(sp.Matrix([[c, -s], [s, c]])), None
+            cs = self.poly(sp.Matrix([sp.cos(2 * theta), sp.sin(2 * theta)]))
+            return "rotator", (cs[0], cs[1]), None
         from sympy.physics.optics.polarization import phase_retarder
 
-        waves = _exact_number(float(np.mod(element.retardance_waves, 1.0)))
-        return "unitary", self.poly(phase_retarder(theta, 2 * sp.pi * waves)), None
+        delta = 2 * sp.pi * _exact_number(float(np.mod(element.retardance_waves, 1.0)))
+        # sympy's retarder carries a global phase exp(-i delta/2); it cancels in J X J^dagger
+        return "unitary", self.poly(phase_retarder(theta, delta) * sp.exp(sp.I * delta / 2)), None
+
+    def rotate(self, x: Any, cos2: Any, sin2: Any) -> Any:
+        """``R X R^T`` for a rotator ``R`` of angle phi (a rotation by 2 phi of the S1-S2 part of
+        ``X``; ``sin2`` -> ``-sin2`` gives ``R^T X R``)."""
+        sp = self.sp
+        s0, s3 = (x[0, 0] + x[1, 1]) / 2, sp.I * (x[0, 1] - x[1, 0]) / 2
+        s1, s2 = (x[0, 0] - x[1, 1]) / 2, (x[0, 1] + x[1, 0]) / 2
+        r1, r2 = cos2 * s1 - sin2 * s2, sin2 * s1 + cos2 * s2
+        return sp.Matrix([[s0 + r1, r2 - sp.I * s3], [r2 + sp.I * s3, s0 - r1]]).applyfunc(
+            sp.expand)
+
+    def through(self, x: Any, element: Element, backward: bool) -> Any:
+        """``x`` carried through one element: forward (a state) or backward (an effect)."""
+        kind, m, extra = self.element(element)
+        if kind == "rotator":
+            return self.rotate(x, m[0], -m[1] if backward else m[1])
+        if kind == "unitary":
+            return self.product(m.H, x, m) if backward else self.product(m, x, m.H)
+        t, dd = extra
+        return t * (self.product(m[0], x, m[0]) + dd * self.product(m[1], x, m[1]))
 
     def state(self) -> Any:
         """Unnormalized pre-selected state at the coupling plane (divide by 1 + d_s)."""
@@ -192,30 +320,25 @@ class _Builder:
         theta = self.angle(src.angle_deg, src.mount)
         d = self.leak("s", src.extinction_ratio, "source polarizer")
         p = self.projector(theta)
-        rho = p + d * (self.sp.eye(2) - p)
+        rho = (p + d * (self.sp.eye(2) - p)).applyfunc(self.sp.expand)
         for element in self.bench.pre:
-            kind, m, extra = self.element(element)
-            if kind == "unitary":
-                rho = self.product(m, rho, m.H)
-            else:
-                t, dd = extra
-                rho = t * (self.product(m[0], rho, m[0]) + dd * self.product(m[1], rho, m[1]))
+            rho = self.through(rho, element, backward=False)
         return rho, d
 
     def effect(self) -> Any:
         an = self.bench.analyzer
         theta = self.angle(an.angle_deg, an.mount)
         d = self.leak("a", an.extinction_ratio, "analyzer")
+        t = self.transmission("a", an.transmission, "analyzer")
         p = self.projector(theta)
-        e = _exact_number(an.transmission, 1000) * (p + d * (self.sp.eye(2) - p))
+        e = (t * (p + d * (self.sp.eye(2) - p))).applyfunc(self.sp.expand)
         for element in reversed(self.bench.post):
-            kind, m, extra = self.element(element)
-            if kind == "unitary":
-                e = self.product(m.H, e, m)
-            else:
-                t, dd = extra
-                e = t * (self.product(m[0], e, m[0]) + dd * self.product(m[1], e, m[1]))
+            e = self.through(e, element, backward=True)
         return e
+
+    def trace(self, x: Any, y: Any) -> Any:
+        """``Tr(X Y)`` from the entries, without forming the product matrix."""
+        return self.sp.expand(sum(x[i, j] * y[j, i] for i in range(2) for j in range(2)))
 
     def observable(self) -> tuple[Any, tuple[Any, Any], tuple[Any, Any]]:
         """A, its eigenprojectors, its eigenvalues."""
@@ -252,18 +375,20 @@ def _tidy(expr: Any, small: Sequence[Any], from_poly: Mapping[Any, Any]) -> Any:
         grouped[rest] = grouped.get(rest, 0) + number
     terms = [_number(n) * rest for rest, n in grouped.items()]
     out = sp.Add(*terms)
-    return sp.collect(out, small) if small else out
+    # grouped by powers of the leaks, common factors (transmissions, numbers) in front
+    return sp.factor_terms(sp.collect(out, small) if small else out)
 
 
 def _number(n: Any) -> Any:
-    """Simplify a pure number (exact radicals, or a float rounded to 15 digits)."""
+    """Tidy a pure number: exact numbers (in Q(sqrt 2, i), see :class:`_Builder`) are expanded,
+    which is canonical for them; a float is rounded to 15 digits."""
     import sympy as sp
 
     if n.has(sp.Float):
         value = complex(n)
         return sp.Float(value.real, 15) + sp.I * sp.Float(value.imag, 15) if value.imag else \
             sp.Float(value.real, 15)
-    return sp.nsimplify(sp.simplify(n)) if n.has(sp.Pow) else n
+    return sp.expand(n)
 
 
 def _chop(expr: Any, tol: float = 1e-12) -> Any:
@@ -330,10 +455,10 @@ def derive(bench: Bench, free: Sequence[str] = ()) -> Derivation:
     small = list(dict.fromkeys(b.small))
     norm = 1 + d_s
     back = b.from_poly
-    numerator = _tidy(b.product(effect, a, rho).trace(), small, back)
-    denominator = _tidy(b.product(effect, rho).trace(), small, back)
-    decohered = _tidy(b.product(effect, pi0, rho, pi0).trace()
-                      + b.product(effect, pi1, rho, pi1).trace(), small, back)
+    numerator = _tidy(b.trace(b.product(effect, a), rho), small, back)
+    denominator = _tidy(b.trace(effect, rho), small, back)
+    dephased = b.product(pi0, effect, pi0) + b.product(pi1, effect, pi1)
+    decohered = _tidy(b.trace(dephased, rho), small, back)
     leak = (kappa * denominator + (1 - kappa) * decohered) / norm
 
     null = _null(bench, names)
@@ -352,14 +477,18 @@ def derive(bench: Bench, free: Sequence[str] = ()) -> Derivation:
         return _chop(sp.expand(sp.diff(scaled, t, order).subs(t, 0) / math.factorial(order)))
 
     n1 = coefficient(numerator, 1)
+    d0 = coefficient(denominator, 0)
     d2 = coefficient(denominator, 2)
-    leak_scaled = leak.subs(kappa, 1 - eta)
-    scale_eta = {**scale, eta: t**2 * eta}
-    p2 = _chop(sp.expand(sp.diff(leak_scaled.subs(scale_eta), t, 2).subs(t, 0) / 2))
-    weak_series = sp.cancel(n1 / d2)
-    floor = p2.subs({e: 0 for e in offsets.values()})
+    # P = [(1 - eta t^2) D + eta t^2 Dec] / (1 + d_s t^2): the t^2 coefficient from those of
+    # D and Dec, exactly, without differentiating the whole leak rate
+    dec0 = coefficient(decohered, 0)
+    p2 = _chop(sp.expand(d2 + eta * (dec0 - d0) - d_s * d0))
+    weak_series = sp.factor_terms(sp.cancel(n1 / d2))
+    floor = sp.factor_terms(p2.subs({e: 0 for e in offsets.values()}))
     values = dict(b.values)
     values[eta] = 1.0 - values[kappa]
+    latex = {**b.latex, kappa: r"\kappa", eta: r"\eta",
+             **{e: rf"\epsilon_{{{_latex_name(m)}}}" for m, e in offsets.items()}}
     return Derivation(b.angles, offsets, b.meaning, values, numerator, denominator,
-                      numerator / denominator, leak, weak_series, p2, floor,
-                      null_deg)
+                      numerator / denominator, leak, weak_series, sp.factor_terms(p2), floor,
+                      null_deg, latex)

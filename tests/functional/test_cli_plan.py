@@ -123,3 +123,16 @@ def test_derive_plain_and_latex(bench_file: Path) -> None:
     assert "A_w ~" in done.stdout and "d_a" in done.stdout
     latex = aligner("derive", str(bench_file), "--latex")
     assert latex.returncode == 0 and "\\frac" in latex.stdout
+
+
+def test_derive_json_and_progress_note(bench_file: Path) -> None:
+    done = aligner("derive", str(bench_file), "--json")
+    assert done.returncode == 0, done.stderr
+    doc = json.loads(done.stdout)
+    assert {"symbols", "expressions"} <= set(doc) and "d_a" in doc["symbols"]
+    assert "deriving" not in done.stderr
+    readable = aligner("derive", str(bench_file))
+    assert "deriving... (sympy, a few seconds)" in readable.stderr
+    assert "deriving" not in readable.stdout
+    bad = aligner("derive", str(bench_file), "--json", "--free", "nope")
+    assert bad.returncode == 2 and bad.stdout == "" and "unknown mount" in bad.stderr

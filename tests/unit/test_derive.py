@@ -138,6 +138,53 @@ def test_text_and_latex() -> None:
     assert "\\frac" in d.text(latex=True)
 
 
+def test_latex_safe_names_and_symbol_table() -> None:
+    """Mount names with underscores render as upright subscripts, in the formulas and in the
+    symbol table; the plain text keeps the plain names."""
+    d = derive(load_bench("demo"))
+    latex = d.text(latex=True)
+    assert r"\theta_{\mathrm{pre\_qwp}}" in latex and r"\epsilon_{\mathrm{pre\_qwp}}" in latex
+    assert "pre qwp" not in latex and "{pre_qwp}" not in latex
+    assert r"\begin{array}{ll}" in latex and r"T_{a} & \text{transmission" in latex
+    assert "theta_pre_qwp" in d.text()
+
+
+def test_bench_numbers_are_named_symbols() -> None:
+    """Transmission and leaks stay symbols with their values listed: at the null only the leaks
+    pass, so the floor is T_a (d_a + d_s + eta/2) (physics.md, extinction and decoherence,
+    derived), and no 23/100-style constant from T_a = 0.92 is left in the formulas."""
+    bench = load_bench("demo")
+    d = derive(bench)
+    names = {str(k): v for k, v in d.values.items()}
+    assert names["T_a"] == pytest.approx(bench.analyzer.transmission)
+    assert names["d_a"] == pytest.approx(1 / bench.analyzer.extinction_ratio)
+    assert names["d_s"] == pytest.approx(1 / bench.source.extinction_ratio)
+    t_a, d_a, d_s, eta = (sp.Symbol(n, positive=True) for n in ("T_a", "d_a", "d_s", "eta"))
+    assert sp.expand(d.floor - t_a * (d_a + d_s + eta / 2)) == 0
+    assert "23" not in sp.sstr(d.denominator) and "23" not in sp.sstr(d.leak_rate)
+
+
+def test_exact_constants_without_nested_radicals() -> None:
+    """Fixed angles at multiples of 22.5 deg and 3/8-wave retardance give constants in
+    Q(sqrt 2, i): no cos(pi/8)-style nested radical and no unevaluated exp survives."""
+    d = derive(mixed_bench())
+    for expr in (d.numerator, d.denominator, d.leak_rate):
+        text = sp.sstr(expr)
+        assert "sqrt(2 " not in text and "sqrt(1/2" not in text and "exp(" not in text
+
+
+def test_json_document() -> None:
+    d = derive(load_bench("demo"))
+    doc = d.to_dict()
+    assert set(doc) == {"symbols", "angles", "offsets", "null_deg", "expressions"}
+    assert doc["symbols"]["T_a"]["value"] == pytest.approx(0.92)
+    assert doc["symbols"]["theta_pre_qwp"]["latex"] == r"\theta_{\mathrm{pre\_qwp}}"
+    for key in ("weak_value", "numerator", "denominator", "leak_rate", "weak_value_series",
+                "leak_rate_series", "floor"):
+        assert doc["expressions"][key]["text"] and doc["expressions"][key]["latex"]
+    assert doc["expressions"]["floor"]["text"] == sp.sstr(d.floor)
+
+
 def test_unknown_free_mount() -> None:
     with pytest.raises(InputError, match="unknown mount"):
         derive(crossed(), free=("nope",))
