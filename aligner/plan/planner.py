@@ -161,13 +161,6 @@ def _quantity(target: Target) -> str:
     return f"{'exact' if target.exact else 'linear'} amplification ({target.axis} axis)"
 
 
-def _same_setting(a: Mapping[str, float], b: Mapping[str, float],
-                  periods: Mapping[str, float]) -> bool:
-    """Readings equal modulo each mount's period (to 1e-6 deg)."""
-    return all(abs((a[n] - b[n] + periods[n] / 2) % periods[n] - periods[n] / 2) < 1e-6
-               for n in periods)
-
-
 def _branches(bench: Bench, target: Target, unknowns: Sequence[str], roots: Sequence[Root],
               order: Sequence[int]) -> tuple[tuple[Branch, ...], tuple[int, ...]]:
     """One branch per distinct optical setting, in the default order, and the index of each
@@ -186,21 +179,21 @@ def _branches(bench: Bench, target: Target, unknowns: Sequence[str], roots: Sequ
     ex = axis_part(obs.exact)
     imb = np.asarray(imbalance_deg(bench, full))
     value = np.asarray(target.figure(obs))
-    periods = {n: mount_period_deg(bench, n) for n in unknowns}
-    groups: list[list[int]] = []  # positions in ``order``
-    for i, k in enumerate(order):
-        here = dict(zip(unknowns, roots[k].readings, strict=True))
-        for g in groups:
-            j = g[0]
-            first = dict(zip(unknowns, roots[order[j]].readings, strict=True))
-            if (roots[order[j]].inner == roots[k].inner
-                    and _same_setting(here, first, periods)
-                    and np.isclose(obs.weak_value[i], obs.weak_value[j], rtol=1e-9, atol=0)
-                    and np.isclose(obs.leak_rate[i], obs.leak_rate[j], rtol=1e-9, atol=0)):
-                g.append(i)
-                break
-        else:
-            groups.append([i])
+    periods = np.array([mount_period_deg(bench, n) for n in unknowns])
+    x = np.array([roots[k].readings for k in order])  # (r, n)
+    inner = np.array([roots[k].inner for k in order])
+    diff = x[:, None, :] - x[None, :, :]
+    same = (np.all(np.abs(np.mod(diff + periods / 2, periods) - periods / 2) < 1e-6, axis=-1)
+            & (inner[:, None] == inner[None, :])
+            & np.isclose(obs.weak_value[:, None], obs.weak_value[None, :], rtol=1e-9, atol=0)
+            & np.isclose(obs.leak_rate[:, None], obs.leak_rate[None, :], rtol=1e-9, atol=0))
+    groups: list[list[int]] = []  # positions in ``order``, nearest reading first
+    free = np.ones(len(order), bool)
+    for i in range(len(order)):
+        if free[i]:
+            members = np.nonzero(same[i] & free)[0]
+            free[members] = False
+            groups.append([int(j) for j in members])
     out = []
     for index, g in enumerate(groups):
         i = g[0]

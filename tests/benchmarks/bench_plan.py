@@ -1,5 +1,6 @@
 """Planner speed on the demo bench: median solve time against a brute-force grid search of the
-same accuracy (one mount-resolution step), and Monte Carlo samples per second.
+same accuracy (one mount-resolution step), Monte Carlo samples per second, and the time of the
+sympy derivation (``aligner derive``) on the demo bench and on a bench with every element kind.
 
 Run: ``python tests/benchmarks/bench_plan.py``. Prints figures and ratios; asserts nothing.
 """
@@ -12,7 +13,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from aligner.bench import load_bench
+from aligner.bench import load_bench, parse_bench
 from aligner.plan import plan
 from aligner.plan import solve as solve_module
 from aligner.plan.solve import Target, observe, solve
@@ -101,5 +102,58 @@ def main() -> None:
           f"{t_full * 1e3:.0f} ms")
 
 
+def every_kind_bench():
+    """Invented bench with every element kind: a leaky arm polarizer, a fixed half-wave plate,
+    a 3/8-wave retarder on the phase mount, a rotator at 22.5 deg, an axis observable."""
+    return parse_bench({
+        "wavelength_nm": 633.0, "imbalance_mount": "ana", "phase_mount": "ret",
+        "source": {"angle_deg": 0.0, "photon_rate": 1e6, "extinction_ratio": 3e4},
+        "pre": [{"type": "polarizer", "angle_deg": 0.0, "extinction_ratio": 2e3,
+                 "transmission": 0.8},
+                {"type": "hwp", "angle_deg": 22.5},
+                {"type": "retarder", "mount": "ret", "retardance_waves": 0.375}],
+        "coupling": {"observable": "axis", "axis": [0.0, 0.0, 1.0], "eigenvalues": [1.0, -0.5],
+                     "pointer_sigma": 3.0, "strength": 0.4},
+        "post": [{"type": "rotator", "angle_deg": 22.5}],
+        "analyzer": {"mount": "ana", "extinction_ratio": 5e4, "transmission": 0.93},
+        "detector": {},
+        "mounts": {"ana": {"reading_deg": 140.0, "travel_deg": [-200.0, 200.0]},
+                   "ret": {"reading_deg": 40.0}},
+    })
+
+
+_DERIVE_RUN = """
+import sys, time
+import sympy
+sys.path.insert(0, {here!r})
+from bench_plan import every_kind_bench
+from aligner.bench import load_bench
+from aligner.plan.derive import derive
+bench = load_bench("demo") if {which!r} != "kinds" else every_kind_bench()
+t0 = time.perf_counter()
+derive(bench, {free!r})
+print(time.perf_counter() - t0)
+"""
+
+
+def derive_times() -> None:
+    """Wall time of one derivation, each in a fresh interpreter (sympy's cache would make a
+    repeat in the same process look faster than a user's run); sympy's import is not counted."""
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    here = str(Path(__file__).resolve().parent)
+    print("derive (sympy closed forms, one run in a fresh process, median of 3):")
+    for label, which, free in (("demo bench", "demo", ()),
+                               ("demo bench, --free pre_hwp", "demo", ("pre_hwp",)),
+                               ("every element kind", "kinds", ())):
+        code = _DERIVE_RUN.format(here=here, which=which, free=free)
+        times = [float(subprocess.run([sys.executable, "-c", code], capture_output=True,
+                                      text=True, check=True).stdout) for _ in range(3)]
+        print(f"  {label}: {statistics.median(times):.2f} s")
+
+
 if __name__ == "__main__":
+    derive_times()
     main()
