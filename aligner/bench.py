@@ -370,6 +370,9 @@ def _element(path: str, key: str, table: Any, mounts: Mapping[str, Any],
                "extinction_ratio", "transmission", "label")
     r = _Reader(path, key, table, allowed)
     kind = r.text("type", choices=ELEMENT_TYPES)
+    if kind == "rotator" and r.has("mount"):
+        raise r.error("mount", "a rotator (optical activity) turns light the same however it "
+                               "is turned about the beam; give its rotation as angle_deg")
     angle, mount = _angle_or_mount(r, mounts)
     waves, plate, tol, er, t = 0.0, None, 0.0, INF, 1.0
     if kind in ("hwp", "qwp", "retarder"):
@@ -487,7 +490,8 @@ def _detector(path: str, table: Mapping[str, Any]) -> Detector:
         safe_rate=r.number("safe_rate", INF, above=0.0, allow_inf=True),
         mode=mode,
         rep_rate_hz=rep,
-        gate_dark_probability=r.number("gate_dark_probability", 0.0, minimum=0.0, maximum=1.0),
+        gate_dark_probability=r.number("gate_dark_probability", 0.0, minimum=0.0,
+                                       maximum=0.5),
         saturation_rate=(r.number("saturation_rate", above=0.0)
                          if r.has("saturation_rate") else None),
     )

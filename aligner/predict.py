@@ -147,13 +147,16 @@ def detector_flags(bench: Bench, rates: DetectorRates) -> tuple[NDArray[np.bool_
 
     Saturated: the true rate exceeds ``detector.saturation_rate`` (when given) or more than
     :data:`SATURATION_LOSS` of the linear response is lost to dead time or multi-photon pulses.
-    Over the safe rate: the true (incident) count rate exceeds ``detector.safe_rate``.
+    Over the safe rate: the exposure rate (the linear response ``photon_rate leak eta + dark``,
+    in pulsed mode ``R (eta mu + p_d)``: photons detected per second before any saturation)
+    exceeds ``detector.safe_rate``. In pulsed mode the click rate cannot exceed the repetition
+    rate however bright the pulses are, so it must not be what the guard compares.
     """
     d = bench.detector
     saturated = rates.loss > SATURATION_LOSS
     if d.saturation_rate is not None:
         saturated = saturated | (rates.true_rate > d.saturation_rate)
-    return np.asarray(saturated), np.asarray(rates.true_rate > d.safe_rate)
+    return np.asarray(saturated), np.asarray(rates.linear_rate > d.safe_rate)
 
 
 def _jitter_equivalent(bench: Bench) -> float:
@@ -220,7 +223,8 @@ class Prediction:
     ``weak_value`` (complex), ``leak_rate`` (per source photon), ``amplification_linear`` and
     ``amplification_exact`` (along ``axis``), ``pointer_shift`` (``units``), ``detector_rate``
     (true count rate incl. dark, counts/s), ``measured_rate`` (after dead time), ``saturated``,
-    ``over_safe_rate``, ``imbalance_deg``, ``snr_per_sqrt_s``, ``signal_fraction`` (share of the
+    ``over_safe_rate``, ``exposure_rate`` (photons detected per second before saturation, what
+    ``safe_rate`` limits), ``imbalance_deg``, ``snr_per_sqrt_s``, ``signal_fraction`` (share of the
     counts holding a signal photon; dark counts dilute the pointer shift by it); ``angles_deg``
     maps each mount to its element angle (deg).
     """
@@ -234,6 +238,7 @@ class Prediction:
     measured_rate: Real
     saturated: NDArray[np.bool_]
     over_safe_rate: NDArray[np.bool_]
+    exposure_rate: Real
     imbalance_deg: Real
     snr_per_sqrt_s: Real
     signal_fraction: Real
@@ -271,6 +276,7 @@ def predict(bench: Bench, readings: Readings | None = None) -> Prediction:
         measured_rate=np.broadcast_to(rates.measured_rate, shape),
         saturated=np.broadcast_to(saturated, shape),
         over_safe_rate=np.broadcast_to(over, shape),
+        exposure_rate=np.broadcast_to(rates.linear_rate, shape),
         imbalance_deg=np.broadcast_to(imbalance_deg(bench, r), shape),
         snr_per_sqrt_s=snr_per_sqrt_s(bench, fwd, rates, axis),
         signal_fraction=np.broadcast_to(rates.signal_fraction, shape),

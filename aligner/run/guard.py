@@ -73,6 +73,7 @@ class DetectorGuard:
         self.bench = bench
         self.has_shutter = has_shutter
         self.safe_rate = bench.detector.safe_rate
+        self.headroom = headroom
         self.limit = headroom * self.safe_rate
         self.step_deg = step_deg
         self._overshoot = overshoot_deg
@@ -83,10 +84,11 @@ class DetectorGuard:
     # -- prediction ---------------------------------------------------------------------------
 
     def rates(self, readings: Mapping[str, float | NDArray[np.float64]]) -> NDArray[np.float64]:
-        """Predicted true detector rate (counts/s) at ``readings`` (arrays broadcast)."""
+        """Predicted exposure rate (photons detected per second before saturation, counts/s)
+        at ``readings`` (arrays broadcast)."""
         from ..predict import predict
 
-        return np.asarray(predict(self.bench, readings).detector_rate, float)
+        return np.asarray(predict(self.bench, readings).exposure_rate, float)
 
     def _table(self, readings: Mapping[str, float], mount: str,
                ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
@@ -179,9 +181,9 @@ class DetectorGuard:
                                      "(the same element angle) to keep the detector dark")
         raise GuardTrip(
             f"detector guard: moving {mount} from {start:g} to {target:g} deg would expose the "
-            f"detector to about {peak:.3g} counts/s (limit {self.limit:.3g}, half of safe_rate "
-            f"{self.safe_rate:.3g}) and there is no shutter and no dark way round; block the "
-            "beam and move by hand, or add a shutter")
+            f"detector to about {peak:.3g} counts/s (limit {self.limit:.3g}, {self.headroom:g} x "
+            f"safe_rate {self.safe_rate:.3g}) and there is no shutter and no dark way round; "
+            "block the beam and move by hand, or add a shutter")
 
     def moved(self, mount: str, reached: float) -> None:
         """Record that a planned move (ending upwards) was made and ``mount`` reads ``reached``
@@ -200,13 +202,29 @@ class DetectorGuard:
             where = ", ".join(f"{k} {v:.4g} deg" for k, v in readings.items())
             raise GuardTrip(f"detector guard: at {where} the predicted rate is "
                             f"{predicted_rate:.3g} counts/s, above the limit {self.limit:.3g} "
-                            f"(half of safe_rate {self.safe_rate:.3g}); the point is refused")
+                            f"({self.headroom:g} x safe_rate {self.safe_rate:.3g}); the point "
+                            "is refused")
 
     def check_counts(self, counts: int, dwell_s: float) -> float:
-        """The true rate (counts/s) behind a gate's ``counts``; ``GuardTrip`` above safe_rate."""
-        from ..physics.detection import true_rate
+        """The exposure rate (counts/s) behind a gate's ``counts``; ``GuardTrip`` above
+        safe_rate. CW: dead time undone. Pulsed: clicks per pulse inverted to photons per pulse
+        (a saturated detector gives infinity, so it trips)."""
+        from ..physics.detection import (
+            click_probability_from_rate,
+            mean_photons_from_clicks,
+            true_rate,
+        )
 
-        rate = float(true_rate(counts / dwell_s, self.bench.detector.dead_time_ns * 1e-9))
+        d = self.bench.detector
+        tau = d.dead_time_ns * 1e-9
+        if d.mode == "pulsed" and d.rep_rate_hz is not None:
+            p = click_probability_from_rate(counts / dwell_s, d.rep_rate_hz, tau)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                mu = mean_photons_from_clicks(np.minimum(p, 1.0), d.efficiency,
+                                              d.gate_dark_probability)
+            rate = float(d.rep_rate_hz * (d.efficiency * mu + d.gate_dark_probability))
+        else:
+            rate = float(true_rate(counts / dwell_s, tau))
         if rate > self.safe_rate:
             raise GuardTrip(f"detector guard: measured {rate:.3g} counts/s, above safe_rate "
                             f"{self.safe_rate:.3g}; shutter shut and sweep stopped. Check the "

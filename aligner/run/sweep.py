@@ -52,12 +52,14 @@ RETRYABLE = (DeviceTimeout, BadReply, DeviceRefused)
 @dataclass(frozen=True)
 class SweepOptions:
     """Knobs of the loop: ``retries`` per device operation, guard ``headroom`` (fraction of
-    safe_rate a prediction may reach) and path ``step_deg``, the longest single gate
-    ``gate_s`` (s; longer dwells are split so a bright beam is caught early)."""
+    safe_rate a prediction may reach) and path ``step_deg``, the first (probe) gate ``probe_s``
+    and the longest later gate ``gate_s`` (s; the dwell is split so a bright beam is caught
+    early)."""
 
     retries: int = 2
     headroom: float = 0.5
     step_deg: float = 0.1
+    probe_s: float = 0.01
     gate_s: float = 1.0
 
 
@@ -200,12 +202,20 @@ class _Sweep:
 
     # -- one point ----------------------------------------------------------------------------
 
+    def gates(self) -> list[float]:
+        """Gate lengths (s) summing to the dwell: a short probe gate first, so a bright beam is
+        caught within ``probe_s`` of opening the shutter, then gates of at most ``gate_s``."""
+        probe = min(self.options.probe_s, self.dwell_s)
+        rest = self.dwell_s - probe
+        if rest <= 1e-9:  # a dwell no longer than the probe
+            return [self.dwell_s]
+        n = max(1, math.ceil(rest / self.options.gate_s - 1e-9))
+        return [probe] + [rest / n] * n
+
     def count(self, idx: int) -> tuple[int, int | None]:
         counter = self.devices.counter
-        gates = max(1, math.ceil(self.dwell_s / self.options.gate_s - 1e-9))
-        gate = self.dwell_s / gates
         post, ref = 0, 0
-        for _ in range(gates):
+        for gate in self.gates():
             counts = counter.count(gate)
             self.guard.check_counts(counts[0], gate)
             post += counts[0]
@@ -268,7 +278,7 @@ class _Sweep:
             where = ", ".join(f"{k} {v:.4g} deg" for k, v in p.readings.items())
             raise GuardTrip(f"detector guard: point {p.index} ({where}) is predicted at "
                             f"{rates[worst]:.3g} counts/s, above the limit "
-                            f"{self.guard.limit:.3g} (half of safe_rate "
+                            f"{self.guard.limit:.3g} ({self.guard.headroom:g} x safe_rate "
                             f"{self.guard.safe_rate:.3g}); choose a schedule nearer the null")
 
     def pause(self, message: str, reason: str) -> SweepResult:

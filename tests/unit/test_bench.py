@@ -249,3 +249,17 @@ def test_misspelt_driver_is_caught_when_the_file_loads(write_bench, bench_text):
     text = bench_text.replace("[mounts.ana]\n", '[mounts.ana]\ndriver = "simm"\n')
     with pytest.raises(BenchFileError, match=r"mounts\.ana\.driver.*did you mean 'sim'"):
         load_bench(write_bench(text))
+
+
+def test_rotator_on_a_mount_is_refused(write_bench, bench_text):
+    post = '[[post]]\ntype = "rotator"\nmount = "hwp"\n\n[coupling]'
+    text = bench_text.replace("[coupling]", post)
+    with pytest.raises(BenchFileError, match=r"post\[0\]\.mount.*angle_deg"):
+        load_bench(write_bench(text))
+
+
+def test_gate_dark_probability_must_leave_room_for_light(write_bench, bench_text):
+    text = bench_text.replace("safe_rate = 1.0e6",
+                              "safe_rate = 1.0e6\ngate_dark_probability = 1.0")
+    with pytest.raises(BenchFileError, match=r"detector\.gate_dark_probability"):
+        load_bench(write_bench(text))

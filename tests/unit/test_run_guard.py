@@ -127,3 +127,24 @@ def test_headroom_and_step_are_checked(bench):
     guard = DetectorGuard(bright, has_shutter=True)
     with pytest.raises(GuardTrip, match="refused"):
         guard.check_point(100.0, {"analyzer": 136.0})
+
+
+def test_pulsed_guard_limits_photons_not_clicks(bench_text, write_bench):
+    """In pulsed mode the click rate saturates at the repetition rate however bright the pulses,
+    so the guard must compare the photon exposure R (eta mu + p_d) with safe_rate."""
+    from aligner.physics.detection import click_probability, pulsed_measured_rate
+
+    text = bench_text.replace("safe_rate = 1.0e6",
+                              'safe_rate = 2.0e6\nmode = "pulsed"\nrep_rate_hz = 1.0e6')
+    bench = load_bench(write_bench(text))
+    # the analyzer turned to transmission with a 1e8 photons/s source: far above safe_rate
+    bright = dataclasses.replace(bench, source=dataclasses.replace(bench.source,
+                                                                   photon_rate=1.0e8))
+    p = predict(bright, {"ana": 45.0})
+    assert float(p.detector_rate) <= 1.0e6  # clicks never exceed the repetition rate
+    assert float(p.exposure_rate) > 2.0e6 and bool(p.over_safe_rate)
+    guard = DetectorGuard(bright, has_shutter=True)
+    # a gate full of clicks (mu >> 1) trips: the inversion of clicks per pulse gives infinity
+    clicks = float(pulsed_measured_rate(click_probability(50.0, 0.5), 1.0e6, 20e-9))
+    with np.errstate(divide="ignore"), pytest.raises(GuardTrip):
+        guard.check_counts(int(clicks * 0.01), 0.01)

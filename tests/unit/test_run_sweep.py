@@ -65,11 +65,15 @@ def test_bright_count_trips_the_guard_then_resumes(tmp_path, bench, plan):
 
     def count(dwell):
         calls.append(dwell)
-        return (10**7, 0) if len(calls) == 3 else real.count(dwell)
+        # each point counts a 10 ms probe gate, then the rest of the dwell; the beam turns
+        # bright at the third point's probe
+        return (10**5, 0) if len(calls) == 5 else real.count(dwell)
 
     devices.counter = FunctionCounter(count, channels=2)
     result = run_sweep(bench, devices, log, run, plan, dwell_s=0.5)
     assert (result.status, result.reason, result.points_done) == ("interrupted", "guard", 2)
+    assert calls[:4] == pytest.approx([0.01, 0.49, 0.01, 0.49])
+    assert len(calls) == 5  # stopped after the 10 ms probe: exposed for 10 ms, not the dwell
     assert not devices.shutter.is_open()
     assert "safe_rate" in log.run(run).message
     assert [e.kind for e in log.events(run)][-1] == "guard"
@@ -105,7 +109,8 @@ def test_timeouts_are_retried_then_pause(tmp_path, bench, plan):
 def test_disconnect_pauses_at_once_and_ctrl_c_pauses(tmp_path, bench, plan):
     log, run = _start(tmp_path, bench, plan)
     devices = open_devices(bench)
-    devices.counter.count = Flaky(devices.counter.count, {2}, Disconnected("counter gone"))
+    # each point counts two gates (a 10 ms probe, then the rest): call 3 is point 1's probe
+    devices.counter.count = Flaky(devices.counter.count, {3}, Disconnected("counter gone"))
     result = run_sweep(bench, devices, log, run, plan, dwell_s=0.5)
     assert (result.reason, result.points_done) == ("device", 1)
     devices = open_devices(bench)
