@@ -20,10 +20,10 @@ _LAZY = {
     "load_bench": "aligner.bench",
     "Bench": "aligner.bench",
     "forward": "aligner.model",
-    "predict": "aligner.predict",
-    "Prediction": "aligner.predict",
-    "plan": "aligner.plan",
-    "Plan": "aligner.plan",
+    "predict": "aligner.prediction",
+    "Prediction": "aligner.prediction",
+    "plan": "aligner.planning",
+    "Plan": "aligner.planning",
 }
 
 __all__ = sorted([*_LAZY, "__version__"])

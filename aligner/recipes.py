@@ -241,7 +241,7 @@ class _Runner:
         return "told", {}
 
     def predict(self, step: Step) -> tuple[str, dict[str, Any]]:
-        from .predict import prediction_block
+        from .prediction import prediction_block
 
         block = prediction_block(self.bench, self.bench.readings())
         amp = block["amplification"]
@@ -252,7 +252,7 @@ class _Runner:
         return text, block
 
     def plan(self, step: Step) -> tuple[str, dict[str, Any]]:
-        from .plan import plan
+        from .planning import plan
 
         a = step.args
         result = plan(self.bench, a.get("amplification"), axis=a.get("axis"),

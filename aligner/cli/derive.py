@@ -42,7 +42,7 @@ def run(args: argparse.Namespace) -> int:
     bench = load_bench(args.bench)
     if not args.json:
         print("deriving... (sympy, a few seconds)", file=sys.stderr, flush=True)
-    from ..plan.derive import derive
+    from ..planning.derive import derive
 
     result = derive(bench, tuple(args.free))
     if args.json:

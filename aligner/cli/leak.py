@@ -58,7 +58,7 @@ def run(args: argparse.Namespace) -> int:
     predicted = None
     if args.bench:
         from ..bench import load_bench
-        from ..predict import predict
+        from ..prediction import predict
 
         bench = load_bench(args.bench)
         d = bench.detector

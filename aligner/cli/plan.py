@@ -77,7 +77,7 @@ def run(args: argparse.Namespace) -> int:
     """Plan, then print JSON or readable tables; ``--write`` stores the rounded readings."""
     from ..bench import DEMO_BENCH, load_bench, write_values
     from ..errors import InputError
-    from ..plan import plan
+    from ..planning import plan
 
     bench = load_bench(args.bench)
     if args.samples < 0:

@@ -41,7 +41,7 @@ def run(args: argparse.Namespace) -> int:
         if not low <= value <= high:
             raise InputError(f"--set {name}={value:g}: outside the mount's travel "
                              f"[{low:g}, {high:g}] deg")
-    from ..predict import best_snr_imbalance, limits, predict, prediction_block
+    from ..prediction import best_snr_imbalance, limits, predict, prediction_block
 
     block = prediction_block(bench, settings)
     if args.json:

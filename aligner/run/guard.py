@@ -1,7 +1,7 @@
 """The detector guard: no move and no count may expose the detector above its safe rate.
 
 Before a mount moves with the detector exposed, the guard predicts the count rate (true rate,
-before dead-time losses, dark counts included; :func:`aligner.predict.predict` on the bench
+before dead-time losses, dark counts included; :func:`aligner.prediction.predict` on the bench
 file) at readings every ``step_deg`` along the whole path the mount will turn through,
 backlash approach included (one vectorized prediction over the mount's travel per setting of
 the other mounts, then a look-up per move) -- a polarizer turned far from the null passes
@@ -86,7 +86,7 @@ class DetectorGuard:
     def rates(self, readings: Mapping[str, float | NDArray[np.float64]]) -> NDArray[np.float64]:
         """Predicted exposure rate (photons detected per second before saturation, counts/s)
         at ``readings`` (arrays broadcast)."""
-        from ..predict import predict
+        from ..prediction import predict
 
         return np.asarray(predict(self.bench, readings).exposure_rate, float)
 

@@ -135,16 +135,16 @@ def plan_points(bench: Bench, schedule: Schedule) -> tuple[PlannedPoint, ...]:
     """Readings of every mount for every point, through the planner (mounts it does not solve
     for stay at the file readings); each imbalance is solved near the previous point's reading
     so a sweep stays by one null."""
-    from .. import plan
+    from ..planning import readings_for_amplification, readings_for_imbalance
 
     base = bench.readings()
     one_pass: list[dict[str, float]] = []
     near: float | None = None
     for target in schedule.targets:
         if schedule.quantity == "amplification":
-            solved = plan.readings_for_amplification(bench, target, axis="re")
+            solved = readings_for_amplification(bench, target, axis="re")
         else:
-            solved = plan.readings_for_imbalance(bench, target, near=near)
+            solved = readings_for_imbalance(bench, target, near=near)
         readings = {**base, **{name: float(value) for name, value in solved.items()}}
         near = readings[bench.imbalance_mount]
         one_pass.append(readings)

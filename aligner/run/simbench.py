@@ -7,7 +7,7 @@ with the file's resolution, backlash, speed, travel and repeatability. Its count
 dwell ``t``:
 
 * channel 1 (post-selected port): Poisson counts of mean ``m t``, where ``m`` is the measured
-  (dead-time-limited) rate that :func:`aligner.predict.predict` gives for the true bench at the
+  (dead-time-limited) rate that :func:`aligner.prediction.predict` gives for the true bench at the
   mounts' *true* element readings (``SimMount.true_angle_deg()``: backlash play and
   repeatability included), dark counts included; with the shutter shut only dark counts;
 * channel 2 (reference port): a monitor pick-off of the source ahead of the interferometer,
@@ -129,7 +129,7 @@ class SimBench:
 
     def expected(self, readings: Mapping[str, float] | None = None) -> Any:
         """The prediction for the true bench at ``readings`` (default: the true readings)."""
-        from ..predict import predict
+        from ..prediction import predict
 
         return predict(self.truth, self.true_readings() if readings is None else readings)
 

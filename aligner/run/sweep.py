@@ -223,7 +223,7 @@ class _Sweep:
         return post, (ref if counter.channels > 1 else None)
 
     def point(self, p: PlannedPoint) -> LoggedPoint:
-        from ..predict import predict
+        from ..prediction import predict
 
         started = utc_now()
         self.commanded = dict(p.readings)

@@ -71,33 +71,33 @@ class DeskBackend:
             for name, value in readings.items()})
 
     def predict(self, readings: Mapping[str, float]) -> Any:
-        """:func:`aligner.predict.predict` at ``readings`` (deg)."""
-        from ..predict import predict
+        """:func:`aligner.prediction.predict` at ``readings`` (deg)."""
+        from ..prediction import predict
 
         return predict(self.bench, dict(readings))
 
     def predict_curve(self, readings: Mapping[str, float], imbalance_readings: Any) -> Any:
         """The prediction along the imbalance mount (an array of its readings, deg), the other
         mounts at ``readings``."""
-        from ..predict import predict
+        from ..prediction import predict
 
         return predict(self.bench, {**readings, self.bench.imbalance_mount: imbalance_readings})
 
     def limits(self, readings: Mapping[str, float]) -> Any:
-        """:func:`aligner.predict.limits` at ``readings`` (deg)."""
-        from ..predict import limits
+        """:func:`aligner.prediction.limits` at ``readings`` (deg)."""
+        from ..prediction import limits
 
         return limits(self.bench, dict(readings))
 
     def find_null(self, readings: Mapping[str, float]) -> float:
         """Reading (deg) of the imbalance mount at the null nearest its reading."""
-        from ..predict import find_null
+        from ..prediction import find_null
 
         return find_null(self.bench, dict(readings))
 
     def plan(self, readings: Mapping[str, float], **target: Any) -> Any:
-        """:func:`aligner.plan.plan` for ``target`` on the bench at ``readings`` (deg)."""
-        from ..plan import plan
+        """:func:`aligner.planning.plan` for ``target`` on the bench at ``readings`` (deg)."""
+        from ..planning import plan
 
         return plan(self.bench_at(readings), **target)
 

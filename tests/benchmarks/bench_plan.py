@@ -14,10 +14,10 @@ from dataclasses import replace
 import numpy as np
 
 from aligner.bench import load_bench, parse_bench
-from aligner.plan import plan
-from aligner.plan import solve as solve_module
-from aligner.plan.solve import Target, observe, solve
-from aligner.plan.tolerance import _sample, error_items
+from aligner.planning import plan
+from aligner.planning import solve as solve_module
+from aligner.planning.solve import Target, observe, solve
+from aligner.planning.tolerance import _sample, error_items
 
 TARGET = 40.0
 
@@ -128,7 +128,7 @@ import sympy
 sys.path.insert(0, {here!r})
 from bench_plan import every_kind_bench
 from aligner.bench import load_bench
-from aligner.plan.derive import derive
+from aligner.planning.derive import derive
 bench = load_bench("demo") if {which!r} != "kinds" else every_kind_bench()
 t0 = time.perf_counter()
 derive(bench, {free!r})

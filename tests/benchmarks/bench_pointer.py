@@ -20,7 +20,7 @@ from test_weak import grid_response, random_hermitian, random_psd
 
 from aligner.bench import load_bench
 from aligner.physics.weak import pointer_response
-from aligner.predict import predict
+from aligner.prediction import predict
 
 PAIRS = 1_000_000
 GRID_PAIRS = 20

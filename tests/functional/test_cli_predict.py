@@ -10,7 +10,7 @@ import pytest
 
 from aligner.bench import load_bench
 from aligner.cli import main
-from aligner.predict import predict
+from aligner.prediction import predict
 
 
 def run(capsys, *argv):

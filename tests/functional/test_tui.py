@@ -2,7 +2,7 @@
 simulated devices and a temporary run log.
 
 The desk computes nothing itself: every check compares what a screen shows with the engine
-function the screen calls (aligner.predict, aligner.plan, aligner.run), which have their own
+function the screen calls (aligner.prediction, aligner.planning, aligner.run), which have their own
 tests against published results.
 """
 
@@ -16,8 +16,8 @@ from textual.widgets import Checkbox, Input, ProgressBar, Select, Static
 
 from aligner.bench import load_bench
 from aligner.errors import InfeasibleTarget, InputError
-from aligner.plan import plan
-from aligner.predict import limits, predict
+from aligner.planning import plan
+from aligner.prediction import limits, predict
 from aligner.run.log import RunLog
 from aligner.run.schedule import parse_schedule, plan_points
 from aligner.run.simbench import open_devices

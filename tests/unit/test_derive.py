@@ -1,4 +1,4 @@
-"""aligner.plan.derive: sympy closed forms against the numeric core and textbook cases."""
+"""aligner.planning.derive: sympy closed forms against the numeric core and textbook cases."""
 
 from __future__ import annotations
 
@@ -11,8 +11,8 @@ import sympy as sp
 
 from aligner.bench import load_bench, parse_bench
 from aligner.errors import InputError
-from aligner.plan.derive import derive
-from aligner.predict import predict
+from aligner.planning.derive import derive
+from aligner.prediction import predict
 
 
 def crossed(*, ana_er: float = math.inf, src_er: float = math.inf, mount: str = "ana") -> Any:

@@ -11,8 +11,8 @@ import pytest
 from aligner.bench import load_bench, parse_bench
 from aligner.errors import InfeasibleTarget, InputError
 from aligner.model import imbalance_deg
-from aligner.plan import readings_for_amplification, readings_for_imbalance
-from aligner.plan.solve import Target, observe, solve
+from aligner.planning import readings_for_amplification, readings_for_imbalance
+from aligner.planning.solve import Target, observe, solve
 
 
 def crossed_bench(*, extinction: float = math.inf, travel: tuple[float, float] = (-10.0, 350.0),

@@ -14,7 +14,7 @@ from aligner.bench import load_bench, parse_bench
 from aligner.errors import InputError
 from aligner.model import forward
 from aligner.physics.weak import pointer_response
-from aligner.predict import (
+from aligner.prediction import (
     MECHANISMS,
     amplification,
     best_snr_imbalance,

@@ -91,7 +91,7 @@ def test_find_null_finds_the_simulated_true_null(tmp_path: Path) -> None:
     # search of the true bench's leak rate, is what the closed loop must find
     import numpy as np
 
-    from aligner.predict import predict
+    from aligner.prediction import predict
     from aligner.run.simbench import true_bench
 
     grid = np.linspace(134.0, 136.0, 20001)

@@ -8,7 +8,7 @@ import pytest
 
 from aligner.bench import load_bench
 from aligner.errors import GuardTrip, InputError
-from aligner.predict import predict
+from aligner.prediction import predict
 from aligner.run.guard import DetectorGuard
 
 

@@ -5,7 +5,7 @@ import pytest
 
 from aligner.bench import load_bench
 from aligner.physics.detection import measured_rate
-from aligner.predict import predict
+from aligner.prediction import predict
 from aligner.run.simbench import SimBench, open_devices, true_bench
 from aligner.run.sweep import measured_leak
 

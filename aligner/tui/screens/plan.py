@@ -115,7 +115,7 @@ class PlanScreen(DeskScreen):
         request = self.target()
         if request is None:
             return
-        from ...predict import readout_axis
+        from ...prediction import readout_axis
 
         bench = self.backend.bench
         self.query_one("#plan-axis-note", Static).update(

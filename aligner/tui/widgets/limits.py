@@ -16,7 +16,7 @@ __all__ = ["LimitsPanel"]
 
 class LimitsPanel(Static):
     """The combined limit (largest amplification, where, what limits it) and each mechanism
-    alone, from :func:`aligner.predict.limits`."""
+    alone, from :func:`aligner.prediction.limits`."""
 
     def __init__(self, mount: str, **kwargs: Any) -> None:
         super().__init__("working out the limits…", **kwargs)
@@ -33,7 +33,7 @@ class LimitsPanel(Static):
         self.update(Text(message, style="bold red"))
 
     def show(self, lim: Any) -> None:
-        """Show an :class:`aligner.predict.Limits`."""
+        """Show an :class:`aligner.prediction.Limits`."""
         self.border_subtitle = ""
         head = Table.grid(padding=(0, 2))
         head.add_column(style="bold", no_wrap=True)

@@ -32,7 +32,8 @@ def _heading(text: str) -> Text:
 
 
 class PlanResult(Static):
-    """Shows an :class:`aligner.plan.Plan`, or the planner's message for an infeasible target."""
+    """Shows an :class:`aligner.planning.Plan`, or the planner's message for an infeasible
+    target."""
 
     def __init__(self, bench: Bench, **kwargs: Any) -> None:
         super().__init__("", **kwargs)

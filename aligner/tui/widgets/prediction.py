@@ -38,7 +38,7 @@ class PredictionPanel(Vertical):
         yield Static(id="detector-status", classes="detector-status")
 
     def show(self, p: Any) -> None:
-        """Show a scalar :class:`aligner.predict.Prediction`."""
+        """Show a scalar :class:`aligner.prediction.Prediction`."""
         wv = complex(p.weak_value)
         sign = "+" if wv.imag >= 0 else "−"
         t = _grid()

@@ -1,7 +1,7 @@
-"""``aligner.plan``: where to set the mounts for a target amplification, weak value or leak rate,
+"""Planner: where to set the mounts for a target amplification, weak value or leak rate,
 and how precisely they must sit.
 
-Conventions: readings in degrees; "amplification" as in :mod:`aligner.predict` (linear:
+Conventions: readings in degrees; "amplification" as in :mod:`aligner.prediction` (linear:
 ``Re``/``Im A_w``; exact: all-orders pointer response); an amplification target is a size,
 and both signs (the two sides of a null) are branches. For a weak-value target the
 sensitivity and tolerance are about ``|A_w|``; for a leak-rate target about the leak rate.
@@ -19,7 +19,7 @@ import numpy as np
 from ..bench import Bench
 from ..errors import InfeasibleTarget, InputError
 from ..model import imbalance_deg
-from ..predict import readout_axis
+from ..prediction import readout_axis
 from .solve import (
     Root,
     Target,
@@ -340,7 +340,7 @@ def plan(bench: Bench, amplification: float | None = None, *, axis: str | None =
     :attr:`Plan.branches`) than the default (weak regime, nearest the current readings); the
     readings used are that setting's equivalent reading nearest the current readings.
     ``samples`` = 0 skips the Monte Carlo tolerance budget; ``predict`` = False skips the
-    :func:`aligner.predict.prediction_block` of the setting.
+    :func:`aligner.prediction.prediction_block` of the setting.
 
     Raises :class:`InfeasibleTarget` (the limit and the achievable value in the message) and
     :class:`InputError` for bad arguments.
@@ -378,7 +378,7 @@ def plan(bench: Bench, amplification: float | None = None, *, axis: str | None =
         tol = tolerance_budget(bench, target, full, samples=int(samples), seed=seed)
     block = None
     if predict:
-        from ..predict import prediction_block
+        from ..prediction import prediction_block
 
         block = prediction_block(bench, full)
     reason = _reason(branches, chosen, branch)

@@ -811,7 +811,7 @@ def readings_for_amplification(bench: Bench, amplification: ArrayLike, *,
     Floats in, floats out; arrays give arrays of the same shape. Raises
     :class:`InfeasibleTarget` (with the limit) for an unreachable target.
     """
-    from ..predict import readout_axis
+    from ..prediction import readout_axis
 
     values = np.asarray(amplification, float)
     axis = axis or readout_axis(bench)
