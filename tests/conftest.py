@@ -72,3 +72,11 @@ def write_bench(tmp_path: Path) -> Callable[[str], Path]:
 def bench_file(write_bench: Callable[[str], Path], bench_text: str) -> Path:
     """The minimal bench as a file."""
     return write_bench(bench_text)
+
+
+@pytest.fixture(autouse=True)
+def _private_data_folder(tmp_path_factory: pytest.TempPathFactory,
+                         monkeypatch: pytest.MonkeyPatch) -> None:
+    """Keep the default run log (platformdirs user data folder) out of the user's home, for
+    this process and the subprocesses the tests start."""
+    monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path_factory.mktemp("data")))

@@ -35,7 +35,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         "sweep", help="run an imbalance sweep and log it",
         description="Step the bench's imbalance mount through a schedule, count the "
                     "post-selected and reference ports at each point and log measured against "
-                    "predicted leak rates in the run log.",
+                    "predicted leak rates in the run log. " + SAFETY,
         epilog=SCHEDULE_HELP, formatter_class=argparse.RawDescriptionHelpFormatter)
     add_bench_argument(parser)
     parser.add_argument("--schedule", metavar="SPEC", help="the schedule (forms below)")

@@ -117,3 +117,12 @@ def test_cli_refuses_yes_on_a_real_bench(tmp_path: Path, bench_text: str) -> Non
     assert out.returncode == 2
     assert "--yes is only for simulated benches" in out.stderr
     assert "Traceback" not in out.stderr
+
+
+def test_every_recipe_that_moves_mounts_names_beam_blocks_and_eyewear() -> None:
+    # common practice, no source: beam blocks at reject ports and rated eyewear before moving
+    for recipe in bundled_recipes():
+        moves = any(s.do in ("null", "sweep", "plan") for s in recipe.steps)
+        text = " ".join(recipe.cautions).lower()
+        if moves:
+            assert "beam block" in text and "eyewear" in text, recipe.name
