@@ -104,7 +104,8 @@ class Coupling:
     intensity, ``strength`` the shift per unit eigenvalue (both in ``units``). For the
     ``phase`` readout the pointer is a coherent probe of ``probe_photons`` photons whose phase
     spread is ``1/(2 sqrt(N))`` rad, and ``strength`` is in rad. ``jitter_rms`` is technical
-    pointer noise (not amplified) in ``units``.
+    pointer noise (not amplified): the rms of a reading averaged for 1 s, in the readout's units
+    (``units``; 1/``units`` for a momentum readout); white, so it falls as 1/sqrt(time).
     """
 
     observable: str

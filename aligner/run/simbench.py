@@ -163,11 +163,14 @@ class SimBench:
         return int(post), int(ref)
 
     def draw_pointer(self, dwell_s: float) -> tuple[float, float]:
-        """Pointer reading (mean, standard error) in the bench's pointer units."""
+        """Pointer reading (mean, standard error) in the readout's units: the shot noise of the
+        counted photons (spread sigma, or 1/(2 sigma) for a momentum readout) and the technical
+        jitter, ``jitter_rms`` after 1 s, falling as 1/sqrt(dwell)."""
         p = self.expected()
         c = self.truth.coupling
         photons = max(float(p.measured_rate) * dwell_s, 1.0)
-        sem = math.sqrt(c.pointer_sigma**2 / photons + c.jitter_rms**2)
+        spread = 1 / (2 * c.pointer_sigma) if c.readout == "momentum" else c.pointer_sigma
+        sem = math.sqrt(spread**2 / photons + c.jitter_rms**2 / dwell_s)
         return float(p.pointer_shift) + float(self.rng.normal(0.0, sem)), sem
 
 
