@@ -11,7 +11,7 @@ without the pointer-overlap factor (see :mod:`aligner.physics.weak` for that).
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from functools import cached_property
 
 import numpy as np
@@ -39,7 +39,9 @@ __all__ = [
     "forward",
     "forward_stokes",
     "full_readings",
+    "ideal_optics",
     "imbalance_deg",
+    "overlap_of_pure_parts",
     "pure_overlap",
 ]
 
@@ -136,37 +138,62 @@ def coupling_observable(bench: Bench) -> Complex:
     return observable_matrix(c.observable)
 
 
-def pure_overlap(bench: Bench, readings: Mapping[str, ArrayLike] | None = None,
-                 ) -> NDArray[np.float64]:
-    """``|<f|i>|`` of the pure parts of rho and E: ``|n_f + n_i| / 2`` with unit Stokes
-    directions ``n`` (free of the cancellation in ``1 + n_f . n_i`` near the null)."""
-    s, e, _ = forward_stokes(bench, readings)
-    s_i, s_f = s[..., 1:], e[..., 1:]
-    with np.errstate(invalid="ignore", divide="ignore"):  # unpolarized -> NaN, caught by caller
+def overlap_of_pure_parts(state_stokes: NDArray[np.float64], effect_stokes: NDArray[np.float64],
+                          ) -> NDArray[np.float64]:
+    """``|<f|i>|`` of the pure parts of a state and an effect given as Stokes vectors:
+    ``|n_f + n_i| / 2`` with unit Stokes directions ``n`` (free of the cancellation in
+    ``1 + n_f . n_i`` near the null). NaN where either has no polarized part."""
+    s_i, s_f = state_stokes[..., 1:], effect_stokes[..., 1:]
+    with np.errstate(invalid="ignore", divide="ignore"):
         n_i = s_i / np.linalg.norm(s_i, axis=-1, keepdims=True)
         n_f = s_f / np.linalg.norm(s_f, axis=-1, keepdims=True)
     return np.linalg.norm(n_i + n_f, axis=-1) / 2
 
 
+def pure_overlap(bench: Bench, readings: Mapping[str, ArrayLike] | None = None,
+                 ) -> NDArray[np.float64]:
+    """``|<f|i>|`` of the pure parts of rho and E at ``readings``
+    (:func:`overlap_of_pure_parts`)."""
+    s, e, _ = forward_stokes(bench, readings)
+    return overlap_of_pure_parts(s, e)
+
+
 def imbalance_deg(bench: Bench, readings: Mapping[str, ArrayLike] | None = None,
-                  step_deg: float = 1e-3) -> NDArray[np.float64]:
+                  step_deg: float = 1e-3, *, mount: str | None = None) -> NDArray[np.float64]:
     """Signed imbalance (deg): the angle between the post-selected state and the state orthogonal
     to the pre-selected one.
 
     Magnitude ``arcsin |<f|i>|`` with ``|i>``, ``|f>`` the pure parts (dominant eigenvectors) of
     ``rho`` and ``E`` at the coupling plane; for linear states it is the physical rotation away
-    from crossed. Sign: positive when turning the bench's ``imbalance_mount`` to a higher reading
-    increases the overlap, i.e. on the high-reading side of the null ("the same sense as the
-    mount"). A mixed state's pure part is the direction of its Stokes vector. Raises
-    :class:`InputError` for a state with no polarized part.
+    from crossed. Sign: positive when turning ``mount`` (default the bench's
+    ``imbalance_mount``) to a higher reading increases the overlap, i.e. on the high-reading
+    side of the null ("the same sense as the mount"). A mixed state's pure part is the direction
+    of its Stokes vector. Raises :class:`InputError` for a state with no polarized part.
     """
     r = full_readings(bench, readings)
-    name = bench.imbalance_mount
-    gap = pure_overlap(bench, r)
+    name = bench.imbalance_mount if mount is None else mount
+    # the reading and the two side steps in one stacked forward evaluation
+    stacked = {k: np.asarray(v) for k, v in r.items()}
+    shape = np.broadcast_shapes(*(v.shape for v in stacked.values()))
+    stacked = {k: np.broadcast_to(v, shape) for k, v in stacked.items()}
+    stacked[name] = np.stack([stacked[name], stacked[name] + step_deg, stacked[name] - step_deg])
+    s, e, _ = forward_stokes(bench, stacked)
+    gap, up, down = overlap_of_pure_parts(s, e)
     if not np.all(np.isfinite(gap)):
         raise InputError("the pre- or post-selection is unpolarized at these readings, so the "
                          "imbalance is undefined; check the source and analyzer settings")
-    up = pure_overlap(bench, {**r, name: r[name] + step_deg})
-    down = pure_overlap(bench, {**r, name: r[name] - step_deg})
-    sign = np.sign(up - down)
+    sign = np.where(up >= down, 1.0, -1.0)
     return np.rad2deg(np.arcsin(np.clip(gap, 0.0, 1.0))) * sign
+
+
+def ideal_optics(bench: Bench) -> Bench:
+    """The bench with perfect extinction everywhere (source, analyzer, polarizer elements)."""
+    inf = float("inf")
+
+    def clean(elements: tuple[Element, ...]) -> tuple[Element, ...]:
+        return tuple(replace(e, extinction_ratio=inf) if e.type == "polarizer" else e
+                     for e in elements)
+
+    return replace(bench, source=replace(bench.source, extinction_ratio=inf),
+                   analyzer=replace(bench.analyzer, extinction_ratio=inf),
+                   pre=clean(bench.pre), post=clean(bench.post))

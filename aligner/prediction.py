@@ -39,6 +39,7 @@ from .model import (
     coupling_observable,
     forward,
     full_readings,
+    ideal_optics,
     imbalance_deg,
     pure_overlap,
 )
@@ -370,17 +371,6 @@ class Limits:
     step_error: float
 
 
-def _ideal_optics(bench: Bench) -> Bench:
-    """The bench with perfect extinction everywhere (source, analyzer, polarizer elements)."""
-    def clean(elements: tuple) -> tuple:
-        return tuple(replace(e, extinction_ratio=INF) if e.type == "polarizer" else e
-                     for e in elements)
-
-    return replace(bench, source=replace(bench.source, extinction_ratio=INF),
-                   analyzer=replace(bench.analyzer, extinction_ratio=INF),
-                   pre=clean(bench.pre), post=clean(bench.post))
-
-
 def _amplifier(bench: Bench, readings: Mapping[str, float], axis: str, *, exact: bool,
                dark: bool) -> Callable[[ArrayLike], Real]:
     """``|amplification|`` as a function of the imbalance mount reading, optionally diluted by
@@ -487,7 +477,7 @@ def limits(bench: Bench, readings: Mapping[str, float] | None = None,
     r = _scalar_readings(bench, readings)
     name = bench.imbalance_mount
     step = bench.mounts[name].resolution_deg
-    ideal = _ideal_optics(bench)
+    ideal = ideal_optics(bench)
     null = find_null(bench, r)
     ideal_null = find_null(ideal, r)
 

@@ -36,7 +36,14 @@ from numpy.typing import ArrayLike, NDArray
 
 from ..bench import Bench
 from ..errors import InfeasibleTarget, InputError
-from ..model import coupling_observable, forward, full_readings
+from ..model import (
+    coupling_observable,
+    forward,
+    full_readings,
+    ideal_optics,
+    imbalance_deg,
+    overlap_of_pure_parts,
+)
 from ..physics.jones import stokes_from_density
 from ..physics.weak import PointerResponse, pointer_response, weak_value
 
@@ -97,19 +104,11 @@ class Observed:
     @cached_property
     def gap(self) -> Real:
         with np.errstate(divide="ignore", invalid="ignore"):
-            return _gap(self._fwd.rho, self._fwd.effect)
+            return overlap_of_pure_parts(self._fwd.state_stokes, self._fwd.effect_stokes)
 
     def response(self, exact: bool) -> Cplx:
         """The complex amplification: exact pointer response or the weak value."""
         return self.exact if exact else self.weak_value
-
-
-def _gap(rho: Cplx, effect: Cplx) -> Real:
-    s_i = stokes_from_density(rho)[..., 1:]
-    s_f = stokes_from_density(effect)[..., 1:]
-    n_i = s_i / np.linalg.norm(s_i, axis=-1, keepdims=True)
-    n_f = s_f / np.linalg.norm(s_f, axis=-1, keepdims=True)
-    return np.linalg.norm(n_i + n_f, axis=-1) / 2
 
 
 def observe(bench: Bench, readings: Mapping[str, ArrayLike] | None = None) -> Observed:
@@ -123,18 +122,9 @@ def _with(fixed: Mapping[str, float], name: str, values: ArrayLike) -> dict[str,
 
 def signed_imbalance_deg(bench: Bench, name: str, readings: ArrayLike,
                          fixed: Mapping[str, float]) -> Real:
-    """Signed imbalance (deg) along mount ``name`` at ``readings`` (others at ``fixed``).
-
-    Same definition as :func:`aligner.model.imbalance_deg`, but along any mount and with the
-    three evaluations (reading, +step, -step) stacked into one forward call.
-    """
-    r = np.asarray(readings, float)
-    stack = np.stack([r, r + SIGN_STEP_DEG, r - SIGN_STEP_DEG])
-    fwd = forward(bench, _with(fixed, name, stack))
-    with np.errstate(invalid="ignore"):
-        gap = _gap(fwd.rho, fwd.effect)
-    sign = np.where(gap[1] >= gap[2], 1.0, -1.0)
-    return np.rad2deg(np.arcsin(np.clip(gap[0], 0.0, 1.0))) * sign
+    """Signed imbalance (deg) along mount ``name`` at ``readings`` (others at ``fixed``):
+    :func:`aligner.model.imbalance_deg` with ``name`` as the mount that sets the sign."""
+    return imbalance_deg(bench, _with(fixed, name, readings), SIGN_STEP_DEG, mount=name)
 
 
 @dataclass(frozen=True)
@@ -380,19 +370,6 @@ def _residual_scalar(target: Target, obs: Observed, value: ArrayLike, n: int) ->
     return np.where(on_im, w.imag, w.real) / np.where(on_im, v.imag, v.real) - 1.0
 
 
-def _ideal(bench: Bench) -> Bench:
-    """The same bench with perfect polarizers (the closed-form seed model)."""
-    inf = float("inf")
-
-    def clean(chain: tuple) -> tuple:
-        return tuple(replace(e, extinction_ratio=inf) if e.type == "polarizer" else e
-                     for e in chain)
-
-    return replace(bench, source=replace(bench.source, extinction_ratio=inf),
-                   analyzer=replace(bench.analyzer, extinction_ratio=inf),
-                   pre=clean(bench.pre), post=clean(bench.post))
-
-
 def _readings(names: Sequence[str], x: Real, fixed: Mapping[str, float]) -> dict[str, Real]:
     """Readings dict for points ``x`` (..., n) of the unknown mounts ``names``."""
     return {**fixed, **{name: x[..., k] for k, name in enumerate(names)}}
@@ -533,7 +510,7 @@ def _ray_directions(bench: Bench, names: Sequence[str], fixed: Mapping[str, floa
     h = 1e-4  # central differences: 1/A_w is 0/0 at the null itself
     pts = centres[:, None, :] + np.concatenate([h * np.eye(n), -h * np.eye(n)])[None]
     with np.errstate(divide="ignore", invalid="ignore"):
-        u = 1.0 / observe(_ideal(bench), _readings(names, pts, fixed)).weak_value  # (k, 2n)
+        u = 1.0 / observe(ideal_optics(bench), _readings(names, pts, fixed)).weak_value  # (k, 2n)
     du = (u[:, :n] - u[:, n:]) / (2 * h)  # (k, n) complex
     jac = np.stack([du.real, du.imag], axis=1)  # (k, 2, n)
     goal = 1.0 / values
