@@ -38,6 +38,7 @@ __all__ = [
     "Plate",
     "Simulation",
     "Source",
+    "ensure_writable",
     "load_bench",
     "resolve_bench_path",
     "snapshot_text",
@@ -660,13 +661,25 @@ def snapshot_text(bench: Bench) -> str:
     return tomlkit.dumps(_apply_updates(bench.path, updates))
 
 
+def ensure_writable(path: str | Path | None) -> Path:
+    """The bench file to write, or :class:`BenchFileError` for the bundled demo bench (it is
+    shared by every user of the installation) or a bench without a file."""
+    if path is None:
+        raise BenchFileError("<bench>", None, "this bench was not read from a file")
+    p = resolve_bench_path(path)
+    if p.resolve() == DEMO_BENCH.resolve():
+        raise BenchFileError(str(p), None, "the bundled demo bench is not written to; copy it to "
+                                           "a file of your own (e.g. my-bench.toml) and use that")
+    return p
+
+
 def write_values(path: str | Path, updates: Mapping[str, float | int | str]) -> None:
     """Store values into a bench file by dotted key, keeping comments and layout.
 
     Keys as in error messages: ``mounts.analyzer.offset_deg``, ``pre[1].retardance_waves``.
     The result is validated before the file is replaced, so a bad update never leaves a broken
     file behind."""
-    p = resolve_bench_path(path)
+    p = ensure_writable(path)
     doc = _apply_updates(p, updates)
     parse_bench(doc.unwrap(), str(p))
     tmp = p.with_suffix(p.suffix + ".tmp")

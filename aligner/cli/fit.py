@@ -135,8 +135,7 @@ def _rows(kind: str, doc: dict[str, Any]) -> list[tuple[str, str]]:
 
 def run(args: argparse.Namespace) -> int:
     """Run the fit and print (or write) its result."""
-    from ..bench import DEMO_BENCH, load_bench, write_values
-    from ..errors import InputError
+    from ..bench import ensure_writable, load_bench, write_values
     from ..fit.csvdata import load_count_scan
     from ..fit.scanmodel import mount_statement
     from .common import emit_json
@@ -167,9 +166,8 @@ def run(args: argparse.Namespace) -> int:
     doc = result.to_json()
     doc["mount_basis"] = mount_statement(bench, scan, args.mount, result.mount)
     updates = result.bench_updates()
-    if args.write and bench.path == DEMO_BENCH:
-        raise InputError("--write: the bundled demo bench is not written to; copy it "
-                         "(e.g. to my-bench.toml) and fit with --bench my-bench.toml")
+    if args.write:
+        ensure_writable(bench.path)  # before any work: the demo bench is not written to
     sound = result.fit.success and not result.fit.warning
     written = bool(args.write and updates and sound)
     if written:

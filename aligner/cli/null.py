@@ -37,7 +37,7 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """Run the search and report."""
-    from ..bench import DEMO_BENCH, load_bench, write_values
+    from ..bench import ensure_writable, load_bench, write_values
     from ..errors import InputError
     from ..fit.nullsearch import search_null
     from ..run.guard import DetectorGuard
@@ -46,8 +46,8 @@ def run(args: argparse.Namespace) -> int:
     from .fit import print_table
 
     bench = load_bench(args.bench)
-    if args.write and bench.path == DEMO_BENCH:
-        raise InputError("--write: the bundled demo bench is not written to; copy it first")
+    if args.write:
+        ensure_writable(bench.path)  # before any work: the demo bench is not written to
     name = args.mount or bench.analyzer.mount
     if name not in bench.mounts:
         raise InputError(f"--mount {name!r}: no such mount; the bench has: "

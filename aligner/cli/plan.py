@@ -75,16 +75,15 @@ def parse_weak_value(text: str) -> complex:
 
 def run(args: argparse.Namespace) -> int:
     """Plan, then print JSON or readable tables; ``--write`` stores the rounded readings."""
-    from ..bench import DEMO_BENCH, load_bench, write_values
+    from ..bench import ensure_writable, load_bench, write_values
     from ..errors import InputError
     from ..planning import plan
 
     bench = load_bench(args.bench)
     if args.samples < 0:
         raise InputError(f"--samples {args.samples}: must be 0 (skip) or a positive count")
-    if args.write and bench.path is not None and bench.path.resolve() == DEMO_BENCH.resolve():
-        raise InputError("--write: the bundled demo bench is read-only; copy it to a file of "
-                         "your own and plan on that")
+    if args.write:
+        ensure_writable(bench.path)  # before any work: the demo bench is not written to
     weak = parse_weak_value(args.weak_value) if args.weak_value is not None else None
     result = plan(bench, args.amplification, axis=args.axis, exact=args.exact, weak_value=weak,
                   leak_rate=args.leak_rate, free=tuple(args.free), branch=args.branch,

@@ -263,3 +263,12 @@ def test_gate_dark_probability_must_leave_room_for_light(write_bench, bench_text
                               "safe_rate = 1.0e6\ngate_dark_probability = 1.0")
     with pytest.raises(BenchFileError, match=r"detector\.gate_dark_probability"):
         load_bench(write_bench(text))
+
+
+def test_write_values_refuses_the_bundled_demo_bench():
+    from aligner.bench import DEMO_BENCH
+
+    before = DEMO_BENCH.read_text(encoding="utf-8")
+    with pytest.raises(BenchFileError, match="demo bench is not written to"):
+        write_values(str(DEMO_BENCH.resolve()), {"mounts.analyzer.reading_deg": 136.5})
+    assert DEMO_BENCH.read_text(encoding="utf-8") == before
