@@ -29,6 +29,7 @@ import numpy as np
 
 from ..bench import Bench, Element
 from ..errors import InputError
+from .solve import mounts_in_play
 
 __all__ = ["Derivation", "derive"]
 
@@ -421,26 +422,13 @@ def _null(bench: Bench, free: Sequence[str]) -> dict[str, float]:
     return dict(zip(free, (float(x) for x in best), strict=True))
 
 
-def _free_mounts(bench: Bench, free: Sequence[str]) -> tuple[str, ...]:
-    names = [bench.imbalance_mount]
-    if bench.phase_mount and bench.phase_mount not in names:
-        names.append(bench.phase_mount)
-    for name in free:
-        if name not in bench.mounts:
-            raise InputError(f"--free {name!r}: unknown mount; the bench has: "
-                             f"{', '.join(bench.mounts)}")
-        if name not in names:
-            names.append(name)
-    return tuple(names)
-
-
 def derive(bench: Bench, free: Sequence[str] = ()) -> Derivation:
     """Closed forms of the weak value and leak rate, with the imbalance mount, the phase mount
     (if any) and ``free`` mounts as symbols (element angles, rad), and their leading order
     around the null nearest the file readings."""
     import sympy as sp
 
-    names = _free_mounts(bench, free)
+    names = tuple(mounts_in_play(bench, free))
     b = _Builder(bench, names)
     rho, d_s = b.state()
     effect = b.effect()

@@ -307,11 +307,11 @@ class Target:
         return (self.value,)
 
 
-def unknown_mounts(bench: Bench, target: Target, free: Sequence[str] = ()) -> tuple[str, ...]:
-    """The mounts a target solves for: the imbalance mount, the phase mount for amplification
-    (keeps the weak value on its axis) and weak-value targets, and any ``free`` mounts."""
+def mounts_in_play(bench: Bench, free: Sequence[str] = (), *, phase: bool = True) -> list[str]:
+    """The imbalance mount, the phase mount (when ``phase``) and the ``free`` mounts, in that
+    order and once each; an unknown ``free`` mount is an :class:`InputError`."""
     names = [bench.imbalance_mount]
-    if target.kind != "leak_rate" and bench.phase_mount and bench.phase_mount not in names:
+    if phase and bench.phase_mount and bench.phase_mount not in names:
         names.append(bench.phase_mount)
     for name in free:
         if name not in bench.mounts:
@@ -319,6 +319,13 @@ def unknown_mounts(bench: Bench, target: Target, free: Sequence[str] = ()) -> tu
                              f"{', '.join(bench.mounts)}")
         if name not in names:
             names.append(name)
+    return names
+
+
+def unknown_mounts(bench: Bench, target: Target, free: Sequence[str] = ()) -> tuple[str, ...]:
+    """The mounts a target solves for: the imbalance mount, the phase mount for amplification
+    (keeps the weak value on its axis) and weak-value targets, and any ``free`` mounts."""
+    names = mounts_in_play(bench, free, phase=target.kind != "leak_rate")
     if target.kind == "leak_rate" and len(names) > 1:
         raise InputError("a leak-rate target is set by the imbalance mount alone; drop --free "
                          "(or change imbalance_mount in the bench file)")

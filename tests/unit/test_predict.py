@@ -280,8 +280,8 @@ def test_snr_independent_of_imbalance_in_weak_regime():
 
 
 def test_technical_jitter_favours_post_selection():
-    # Technical (unamplified) pointer noise: post-selection wins (Jordan, Martinez-Rincon,
-    # Howell, PRX 4, 011031 (2014)). Closed form of our noise model:
+    # Technical (unamplified) pointer noise: post-selection wins (Jordan et al.,
+    # Phys. Rev. X 4, 011031 (2014)). Closed form of our noise model:
     # SNR = g A / sqrt(s^2/(N P) + j^2) versus g / sqrt(s^2/N + j^2).
     g, sigma, jit = 1e-6, 1.0, 1e-2
     bench = make_bench(**{"coupling.strength": g, "coupling.jitter_rms": jit})
