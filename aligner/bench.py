@@ -344,8 +344,12 @@ def _plate(r: _Reader, element_type: str, wavelength_nm: float) -> tuple[float, 
     nominal = NOMINAL_WAVES[element_type]
     if not r.has("plate"):
         return (nominal if override is None else override), None
-    pr = _Reader(r.path, r.key("plate"), r.table_of("plate"),
-                 ("material", "kind", "design_nm", "order", "thickness_um"))
+    pr = _Reader(
+        r.path,
+        r.key("plate"),
+        r.table_of("plate"),
+        ("material", "kind", "design_nm", "order", "thickness_um"),
+    )
     material = pr.text("material", "quartz", tuple(MATERIALS))
     kind = pr.text("kind", "zero-order", PLATE_KINDS)
     design = pr.number("design_nm", wavelength_nm, above=0.0)
@@ -354,27 +358,47 @@ def _plate(r: _Reader, element_type: str, wavelength_nm: float) -> tuple[float, 
     lo, hi = (1000 * x for x in MATERIALS[material][0].valid_um)
     for key, lam in ((pr.key("design_nm"), design), ("wavelength_nm", wavelength_nm)):
         if not lo <= lam <= hi:
-            raise BenchFileError(r.path, key, f"{lam:g} nm is outside the {material} dispersion "
-                                              f"fit ({lo:g}-{hi:g} nm) used by {r.key('plate')}")
+            raise BenchFileError(
+                r.path,
+                key,
+                f"{lam:g} nm is outside the {material} dispersion "
+                f"fit ({lo:g}-{hi:g} nm) used by {r.key('plate')}",
+            )
     plate = Plate(material, kind, design, order, thickness)
     if override is not None:  # a measured value (e.g. from a waveplate fit) beats the dispersion
         return override, plate
-    waves = float(plate_retardance_waves(nominal, material, kind, design, wavelength_nm,
-                                         order=order, thickness_um=thickness))
+    waves = float(
+        plate_retardance_waves(
+            nominal, material, kind, design, wavelength_nm, order=order, thickness_um=thickness
+        )
+    )
     return waves, plate
 
 
-def _element(path: str, key: str, table: Any, mounts: Mapping[str, Any],
-             wavelength_nm: float) -> Element:
+def _element(
+    path: str, key: str, table: Any, mounts: Mapping[str, Any], wavelength_nm: float
+) -> Element:
     if not isinstance(table, Mapping):
         raise BenchFileError(path, key, "must be a table with a 'type' key")
-    allowed = ("type", "mount", "angle_deg", "retardance_waves", "retardance_tol_waves", "plate",
-               "extinction_ratio", "transmission", "label")
+    allowed = (
+        "type",
+        "mount",
+        "angle_deg",
+        "retardance_waves",
+        "retardance_tol_waves",
+        "plate",
+        "extinction_ratio",
+        "transmission",
+        "label",
+    )
     r = _Reader(path, key, table, allowed)
     kind = r.text("type", choices=ELEMENT_TYPES)
     if kind == "rotator" and r.has("mount"):
-        raise r.error("mount", "a rotator (optical activity) turns light the same however it "
-                               "is turned about the beam; give its rotation as angle_deg")
+        raise r.error(
+            "mount",
+            "a rotator (optical activity) turns light the same however it "
+            "is turned about the beam; give its rotation as angle_deg",
+        )
     angle, mount = _angle_or_mount(r, mounts)
     waves, plate, tol, er, t = 0.0, None, 0.0, INF, 1.0
     if kind in ("hwp", "qwp", "retarder"):
@@ -396,8 +420,19 @@ def _mount(path: str, name: str, table: Any) -> Mount:
     key = f"mounts.{name}"
     if not isinstance(table, Mapping):
         raise BenchFileError(path, key, "must be a table")
-    allowed = ("driver", "reading_deg", "offset_deg", "sense", "resolution_deg", "backlash_deg",
-               "travel_deg", "repeatability_deg", "offset_err_deg", "speed_deg_s", "profile")
+    allowed = (
+        "driver",
+        "reading_deg",
+        "offset_deg",
+        "sense",
+        "resolution_deg",
+        "backlash_deg",
+        "travel_deg",
+        "repeatability_deg",
+        "offset_err_deg",
+        "speed_deg_s",
+        "profile",
+    )
     r = _Reader(path, key, table, allowed)
     sense = r.number("sense", 1.0)
     if sense not in (1.0, -1.0):
@@ -435,16 +470,26 @@ def _mount(path: str, name: str, table: Any) -> Mount:
 def _coupling(path: str, table: Mapping[str, Any]) -> Coupling:
     from .physics.weak import OBSERVABLE_NAMES
 
-    allowed = ("observable", "axis", "eigenvalues", "readout", "pointer_sigma", "strength",
-               "units", "jitter_rms", "probe_photons")
+    allowed = (
+        "observable",
+        "axis",
+        "eigenvalues",
+        "readout",
+        "pointer_sigma",
+        "strength",
+        "units",
+        "jitter_rms",
+        "probe_photons",
+    )
     r = _Reader(path, "coupling", table, allowed)
     observable = r.text("observable", "HV", (*OBSERVABLE_NAMES, "axis"))
     axis = None
     eigenvalues = (1.0, 0.0) if observable in OBSERVABLE_NAMES[3:] else (1.0, -1.0)
     if observable == "axis":
         if not r.has("axis"):
-            raise r.error("axis", "is required when observable = 'axis' (a Stokes direction "
-                                  "[S1, S2, S3])")
+            raise r.error(
+                "axis", "is required when observable = 'axis' (a Stokes direction [S1, S2, S3])"
+            )
         axis = r.numbers("axis", 3)
         if not any(axis):
             raise r.error("axis", "must not be [0, 0, 0]")
@@ -452,16 +497,19 @@ def _coupling(path: str, table: Mapping[str, Any]) -> Coupling:
         if eigenvalues[0] == eigenvalues[1]:
             raise r.error("eigenvalues", "must differ (equal eigenvalues couple nothing)")
     elif r.has("axis") or r.has("eigenvalues"):
-        raise r.error("axis" if r.has("axis") else "eigenvalues",
-                      "applies only when observable = 'axis'")
+        raise r.error(
+            "axis" if r.has("axis") else "eigenvalues", "applies only when observable = 'axis'"
+        )
     readout = r.text("readout", "position", READOUTS)
     probe = None
     if readout == "phase":
         probe = r.number("probe_photons", above=0.0)
         sigma = 1.0 / (2.0 * math.sqrt(probe))
         if r.has("pointer_sigma"):
-            raise r.error("pointer_sigma", "is set by probe_photons for the phase readout "
-                                           "(spread 1/(2 sqrt N)); remove it")
+            raise r.error(
+                "pointer_sigma",
+                "is set by probe_photons for the phase readout (spread 1/(2 sqrt N)); remove it",
+            )
         units = r.text("units", "rad")
     else:
         sigma = r.number("pointer_sigma", above=0.0)
@@ -480,8 +528,16 @@ def _coupling(path: str, table: Mapping[str, Any]) -> Coupling:
 
 
 def _detector(path: str, table: Mapping[str, Any]) -> Detector:
-    allowed = ("efficiency", "dark_rate", "dead_time_ns", "safe_rate", "mode", "rep_rate_hz",
-               "gate_dark_probability", "saturation_rate")
+    allowed = (
+        "efficiency",
+        "dark_rate",
+        "dead_time_ns",
+        "safe_rate",
+        "mode",
+        "rep_rate_hz",
+        "gate_dark_probability",
+        "saturation_rate",
+    )
     r = _Reader(path, "detector", table, allowed)
     mode = r.text("mode", "cw", DETECTOR_MODES)
     rep = r.number("rep_rate_hz", above=0.0) if (mode == "pulsed" or r.has("rep_rate_hz")) else None
@@ -492,32 +548,50 @@ def _detector(path: str, table: Mapping[str, Any]) -> Detector:
         safe_rate=r.number("safe_rate", INF, above=0.0, allow_inf=True),
         mode=mode,
         rep_rate_hz=rep,
-        gate_dark_probability=r.number("gate_dark_probability", 0.0, minimum=0.0,
-                                       maximum=0.5),
-        saturation_rate=(r.number("saturation_rate", above=0.0)
-                         if r.has("saturation_rate") else None),
+        gate_dark_probability=r.number("gate_dark_probability", 0.0, minimum=0.0, maximum=0.5),
+        saturation_rate=(
+            r.number("saturation_rate", above=0.0) if r.has("saturation_rate") else None
+        ),
     )
 
 
 def _simulation(path: str, table: Mapping[str, Any], mounts: Mapping[str, Any]) -> Simulation:
-    r = _Reader(path, "simulation", table,
-                ("seed", "true_offset_deg", "true_extinction", "retardance_error_waves"))
+    r = _Reader(
+        path,
+        "simulation",
+        table,
+        ("seed", "true_offset_deg", "true_extinction", "retardance_error_waves"),
+    )
     offsets_table = r.table_of("true_offset_deg")
     offsets = _Reader(path, "simulation.true_offset_deg", offsets_table, tuple(mounts))
     extinction_table = r.table_of("true_extinction")
-    extinction = _Reader(path, "simulation.true_extinction", extinction_table,
-                         ("analyzer", "source"))
+    extinction = _Reader(
+        path, "simulation.true_extinction", extinction_table, ("analyzer", "source")
+    )
     return Simulation(
         seed=r.integer("seed", 2026),
         true_offset_deg={name: offsets.number(name) for name in offsets_table},
-        true_extinction={name: extinction.number(name, minimum=1.0, allow_inf=True)
-                         for name in extinction_table},
+        true_extinction={
+            name: extinction.number(name, minimum=1.0, allow_inf=True) for name in extinction_table
+        },
         retardance_error_waves=r.number("retardance_error_waves", 0.0),
     )
 
 
-_TOP_KEYS = ("name", "wavelength_nm", "imbalance_mount", "phase_mount", "source", "pre",
-             "coupling", "post", "analyzer", "detector", "mounts", "simulation")
+_TOP_KEYS = (
+    "name",
+    "wavelength_nm",
+    "imbalance_mount",
+    "phase_mount",
+    "source",
+    "pre",
+    "coupling",
+    "post",
+    "analyzer",
+    "detector",
+    "mounts",
+    "simulation",
+)
 
 
 def parse_bench(doc: Mapping[str, Any], path: str = "<bench>") -> Bench:
@@ -539,27 +613,38 @@ def parse_bench(doc: Mapping[str, Any], path: str = "<bench>") -> Bench:
         if name not in mounts:
             close = difflib.get_close_matches(name, list(mounts), n=1)
             hint = f"; did you mean {close[0]!r}?" if close else ""
-            raise top.error(key, f"unknown mount {name!r} (mounts defined: "
-                                 f"{', '.join(mounts) or 'none'}){hint}")
+            raise top.error(
+                key, f"unknown mount {name!r} (mounts defined: {', '.join(mounts) or 'none'}){hint}"
+            )
         return name
 
-    sr = _Reader(path, "source", top.table_of("source"),
-                 ("angle_deg", "mount", "extinction_ratio", "photon_rate"))
+    sr = _Reader(
+        path,
+        "source",
+        top.table_of("source"),
+        ("angle_deg", "mount", "extinction_ratio", "photon_rate"),
+    )
     s_angle, s_mount = _angle_or_mount(sr, mounts)
     source = Source(sr.number("photon_rate", above=0.0), s_angle, s_mount, _extinction(sr))
 
-    ar = _Reader(path, "analyzer", top.table_of("analyzer"),
-                 ("angle_deg", "mount", "extinction_ratio", "transmission"))
+    ar = _Reader(
+        path,
+        "analyzer",
+        top.table_of("analyzer"),
+        ("angle_deg", "mount", "extinction_ratio", "transmission"),
+    )
     a_angle, a_mount = _angle_or_mount(ar, mounts)
-    analyzer = Analyzer(a_angle, a_mount, _extinction(ar),
-                        ar.number("transmission", 1.0, above=0.0, maximum=1.0))
+    analyzer = Analyzer(
+        a_angle, a_mount, _extinction(ar), ar.number("transmission", 1.0, above=0.0, maximum=1.0)
+    )
 
     def chain(name: str) -> tuple[Element, ...]:
         items = doc.get(name, [])
         if not isinstance(items, list):
             raise top.error(name, "must be an array of tables ([[pre]] / [[post]])")
-        return tuple(_element(path, f"{name}[{i}]", t, mounts, wavelength)
-                     for i, t in enumerate(items))
+        return tuple(
+            _element(path, f"{name}[{i}]", t, mounts, wavelength) for i, t in enumerate(items)
+        )
 
     bench = Bench(
         path=None if path == "<bench>" else Path(path),
@@ -580,8 +665,11 @@ def parse_bench(doc: Mapping[str, Any], path: str = "<bench>") -> Bench:
     for key in ("imbalance_mount", "phase_mount"):
         name = getattr(bench, key)
         if name and name not in used:
-            raise top.error(key, f"mount {name!r} holds no element (give it to the source, an "
-                                 "element or the analyzer with mount = ...)")
+            raise top.error(
+                key,
+                f"mount {name!r} holds no element (give it to the source, an "
+                "element or the analyzer with mount = ...)",
+            )
     return bench
 
 
@@ -597,8 +685,12 @@ def _read_document(path: Path) -> tomlkit.TOMLDocument:
     try:
         text = path.read_text(encoding="utf-8")
     except FileNotFoundError:
-        raise BenchFileError(str(path), None, "file not found (give the path of a bench .toml "
-                             "file, or 'demo' for the bundled demo bench)") from None
+        raise BenchFileError(
+            str(path),
+            None,
+            "file not found (give the path of a bench .toml "
+            "file, or 'demo' for the bundled demo bench)",
+        ) from None
     except (OSError, UnicodeDecodeError) as exc:
         raise BenchFileError(str(path), None, f"cannot be read ({exc})") from None
     try:
@@ -668,8 +760,12 @@ def ensure_writable(path: str | Path | None) -> Path:
         raise BenchFileError("<bench>", None, "this bench was not read from a file")
     p = resolve_bench_path(path)
     if p.resolve() == DEMO_BENCH.resolve():
-        raise BenchFileError(str(p), None, "the bundled demo bench is not written to; copy it to "
-                                           "a file of your own (e.g. my-bench.toml) and use that")
+        raise BenchFileError(
+            str(p),
+            None,
+            "the bundled demo bench is not written to; copy it to "
+            "a file of your own (e.g. my-bench.toml) and use that",
+        )
     return p
 
 

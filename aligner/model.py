@@ -74,8 +74,10 @@ class Forward:
         return density_from_stokes(e)
 
 
-def full_readings(bench: Bench, readings: Mapping[str, ArrayLike] | None = None,
-                  ) -> dict[str, NDArray[np.float64]]:
+def full_readings(
+    bench: Bench,
+    readings: Mapping[str, ArrayLike] | None = None,
+) -> dict[str, NDArray[np.float64]]:
     """Readings for every mount: those given, the bench file's for the rest.
 
     Unknown mount names raise :class:`InputError` naming the mount and the known ones.
@@ -88,8 +90,10 @@ def full_readings(bench: Bench, readings: Mapping[str, ArrayLike] | None = None,
     return out
 
 
-def element_angles_deg(bench: Bench, readings: Mapping[str, ArrayLike] | None = None,
-                       ) -> dict[str, NDArray[np.float64]]:
+def element_angles_deg(
+    bench: Bench,
+    readings: Mapping[str, ArrayLike] | None = None,
+) -> dict[str, NDArray[np.float64]]:
     """Element angle (deg) of every mount at the given readings (``sense*(reading-offset)``)."""
     r = full_readings(bench, readings)
     return {name: np.asarray(m.element_angle_deg(r[name])) for name, m in bench.mounts.items()}
@@ -108,8 +112,10 @@ def _channel(element: Element, angles: Mapping[str, np.ndarray]) -> Channel:
     return Retarder(theta, 2 * np.pi * element.retardance_waves)
 
 
-def forward_stokes(bench: Bench, readings: Mapping[str, ArrayLike] | None = None,
-                   ) -> tuple[NDArray[np.float64], NDArray[np.float64], dict[str, np.ndarray]]:
+def forward_stokes(
+    bench: Bench,
+    readings: Mapping[str, ArrayLike] | None = None,
+) -> tuple[NDArray[np.float64], NDArray[np.float64], dict[str, np.ndarray]]:
     """Stokes vectors of the state and of the effect at the coupling plane, and the element
     angles (deg); the fast path under :func:`forward`."""
     angles = element_angles_deg(bench, readings)
@@ -117,8 +123,9 @@ def forward_stokes(bench: Bench, readings: Mapping[str, ArrayLike] | None = None
     s = source_stokes(_angle_rad(src.angle_deg, src.mount, angles), src.extinction_ratio)
     s = push_forward_stokes(s, [_channel(e, angles) for e in bench.pre])
     an = bench.analyzer
-    e = analyzer_stokes(_angle_rad(an.angle_deg, an.mount, angles), an.extinction_ratio,
-                        an.transmission)
+    e = analyzer_stokes(
+        _angle_rad(an.angle_deg, an.mount, angles), an.extinction_ratio, an.transmission
+    )
     e = pull_back_stokes(e, [_channel(el, angles) for el in bench.post])
     return s, e, angles
 
@@ -138,8 +145,10 @@ def coupling_observable(bench: Bench) -> Complex:
     return observable_matrix(c.observable)
 
 
-def overlap_of_pure_parts(state_stokes: NDArray[np.float64], effect_stokes: NDArray[np.float64],
-                          ) -> NDArray[np.float64]:
+def overlap_of_pure_parts(
+    state_stokes: NDArray[np.float64],
+    effect_stokes: NDArray[np.float64],
+) -> NDArray[np.float64]:
     """``|<f|i>|`` of the pure parts of a state and an effect given as Stokes vectors:
     ``|n_f + n_i| / 2`` with unit Stokes directions ``n`` (free of the cancellation in
     ``1 + n_f . n_i`` near the null). NaN where either has no polarized part."""
@@ -150,16 +159,23 @@ def overlap_of_pure_parts(state_stokes: NDArray[np.float64], effect_stokes: NDAr
     return np.linalg.norm(n_i + n_f, axis=-1) / 2
 
 
-def pure_overlap(bench: Bench, readings: Mapping[str, ArrayLike] | None = None,
-                 ) -> NDArray[np.float64]:
+def pure_overlap(
+    bench: Bench,
+    readings: Mapping[str, ArrayLike] | None = None,
+) -> NDArray[np.float64]:
     """``|<f|i>|`` of the pure parts of rho and E at ``readings``
     (:func:`overlap_of_pure_parts`)."""
     s, e, _ = forward_stokes(bench, readings)
     return overlap_of_pure_parts(s, e)
 
 
-def imbalance_deg(bench: Bench, readings: Mapping[str, ArrayLike] | None = None,
-                  step_deg: float = 1e-3, *, mount: str | None = None) -> NDArray[np.float64]:
+def imbalance_deg(
+    bench: Bench,
+    readings: Mapping[str, ArrayLike] | None = None,
+    step_deg: float = 1e-3,
+    *,
+    mount: str | None = None,
+) -> NDArray[np.float64]:
     """Signed imbalance (deg): the angle between the post-selected state and the state orthogonal
     to the pre-selected one.
 
@@ -180,8 +196,10 @@ def imbalance_deg(bench: Bench, readings: Mapping[str, ArrayLike] | None = None,
     s, e, _ = forward_stokes(bench, stacked)
     gap, up, down = overlap_of_pure_parts(s, e)
     if not np.all(np.isfinite(gap)):
-        raise InputError("the pre- or post-selection is unpolarized at these readings, so the "
-                         "imbalance is undefined; check the source and analyzer settings")
+        raise InputError(
+            "the pre- or post-selection is unpolarized at these readings, so the "
+            "imbalance is undefined; check the source and analyzer settings"
+        )
     sign = np.where(up >= down, 1.0, -1.0)
     return np.rad2deg(np.arcsin(np.clip(gap, 0.0, 1.0))) * sign
 
@@ -191,9 +209,14 @@ def ideal_optics(bench: Bench) -> Bench:
     inf = float("inf")
 
     def clean(elements: tuple[Element, ...]) -> tuple[Element, ...]:
-        return tuple(replace(e, extinction_ratio=inf) if e.type == "polarizer" else e
-                     for e in elements)
+        return tuple(
+            replace(e, extinction_ratio=inf) if e.type == "polarizer" else e for e in elements
+        )
 
-    return replace(bench, source=replace(bench.source, extinction_ratio=inf),
-                   analyzer=replace(bench.analyzer, extinction_ratio=inf),
-                   pre=clean(bench.pre), post=clean(bench.post))
+    return replace(
+        bench,
+        source=replace(bench.source, extinction_ratio=inf),
+        analyzer=replace(bench.analyzer, extinction_ratio=inf),
+        pre=clean(bench.pre),
+        post=clean(bench.post),
+    )

@@ -113,8 +113,7 @@ def _equivalent_shift(bench: Bench, fwd: Forward, axis: str, g: float) -> tuple[
     return resp.probability, shift
 
 
-def amplification(bench: Bench, fwd: Forward, axis: str | None = None,
-                  exact: bool = True) -> Real:
+def amplification(bench: Bench, fwd: Forward, axis: str | None = None, exact: bool = True) -> Real:
     """Amplification of a Forward (``model.forward``) along ``axis`` (default: the readout's).
 
     ``exact=False``: ``Re A_w`` or ``Im A_w``. ``exact=True``: ``<q>/g`` or
@@ -136,14 +135,20 @@ def amplification(bench: Bench, fwd: Forward, axis: str | None = None,
 def detector_rates(bench: Bench, leak_rate: ArrayLike) -> DetectorRates:
     """Expected detector rates for a post-selection probability per source photon ``leak_rate``."""
     d = bench.detector
-    return expected_rates(bench.source.photon_rate, leak_rate, d.efficiency, d.dark_rate,
-                          d.dead_time_ns * 1e-9,
-                          rep_rate_hz=d.rep_rate_hz if d.mode == "pulsed" else None,
-                          dark_probability=d.gate_dark_probability)
+    return expected_rates(
+        bench.source.photon_rate,
+        leak_rate,
+        d.efficiency,
+        d.dark_rate,
+        d.dead_time_ns * 1e-9,
+        rep_rate_hz=d.rep_rate_hz if d.mode == "pulsed" else None,
+        dark_probability=d.gate_dark_probability,
+    )
 
 
-def detector_flags(bench: Bench, rates: DetectorRates) -> tuple[NDArray[np.bool_],
-                                                                 NDArray[np.bool_]]:
+def detector_flags(
+    bench: Bench, rates: DetectorRates
+) -> tuple[NDArray[np.bool_], NDArray[np.bool_]]:
     """``(saturated, over_safe_rate)``.
 
     Saturated: the true rate exceeds ``detector.saturation_rate`` (when given) or more than
@@ -176,8 +181,9 @@ def _snr(signal: ArrayLike, rates: DetectorRates, bench: Bench) -> Real:
     return np.where(m > 0, out, 0.0)
 
 
-def snr_per_sqrt_s(bench: Bench, fwd: Forward, rates: DetectorRates | None = None,
-                   axis: str | None = None) -> Real:
+def snr_per_sqrt_s(
+    bench: Bench, fwd: Forward, rates: DetectorRates | None = None, axis: str | None = None
+) -> Real:
     """Signal to noise of the coupling estimate after one second of counting (see module doc)."""
     axis = axis or readout_axis(bench)
     _check_axis(axis)
@@ -195,8 +201,9 @@ def _open_bench(bench: Bench) -> Bench:
     return replace(bench, analyzer=replace(bench.analyzer, extinction_ratio=1.0, transmission=1.0))
 
 
-def standard_snr_per_sqrt_s(bench: Bench, readings: Readings | None = None,
-                            within_limits: bool = False) -> float:
+def standard_snr_per_sqrt_s(
+    bench: Bench, readings: Readings | None = None, within_limits: bool = False
+) -> float:
     """SNR per sqrt(s) of the standard measurement (no post-selection; see module doc).
 
     ``within_limits``: the beam is attenuated as far as needed to keep the detector below its
@@ -281,8 +288,9 @@ def predict(bench: Bench, readings: Readings | None = None) -> Prediction:
         imbalance_deg=np.broadcast_to(imbalance_deg(bench, r), shape),
         snr_per_sqrt_s=snr_per_sqrt_s(bench, fwd, rates, axis),
         signal_fraction=np.broadcast_to(rates.signal_fraction, shape),
-        angles_deg=MappingProxyType({k: np.broadcast_to(v, shape)
-                                     for k, v in fwd.angles_deg.items()}),
+        angles_deg=MappingProxyType(
+            {k: np.broadcast_to(v, shape) for k, v in fwd.angles_deg.items()}
+        ),
         axis=axis,
         units=readout_units(bench),
     )
@@ -296,8 +304,9 @@ def _scalar_readings(bench: Bench, readings: Mapping[str, float] | None) -> dict
     out = {}
     for name, value in full_readings(bench, readings).items():
         if np.ndim(value) != 0:
-            raise InputError(f"reading of mount {name!r}: the limits analysis needs one number, "
-                             f"not an array")
+            raise InputError(
+                f"reading of mount {name!r}: the limits analysis needs one number, not an array"
+            )
         out[name] = float(value)
     return out
 
@@ -327,8 +336,12 @@ def find_null(bench: Bench, readings: Mapping[str, float] | None = None) -> floa
     candidates = inner if inner.size else np.array([int(np.argmin(gap))])
     x0 = grid[candidates[np.argmin(np.abs(grid[candidates] - r[name]))]]
     bounds = (max(low, x0 - _COARSE_STEP_DEG), min(high, x0 + _COARSE_STEP_DEG))
-    res = minimize_scalar(lambda x: float(_closest_approach_deg(bench, {**r, name: x})),
-                          bounds=bounds, method="bounded", options={"xatol": 1e-11})
+    res = minimize_scalar(
+        lambda x: float(_closest_approach_deg(bench, {**r, name: x})),
+        bounds=bounds,
+        method="bounded",
+        options={"xatol": 1e-11},
+    )
     return float(res.x)
 
 
@@ -371,8 +384,9 @@ class Limits:
     step_error: float
 
 
-def _amplifier(bench: Bench, readings: Mapping[str, float], axis: str, *, exact: bool,
-               dark: bool) -> Callable[[ArrayLike], Real]:
+def _amplifier(
+    bench: Bench, readings: Mapping[str, float], axis: str, *, exact: bool, dark: bool
+) -> Callable[[ArrayLike], Real]:
     """``|amplification|`` as a function of the imbalance mount reading, optionally diluted by
     the signal share of the detector counts."""
     name = bench.imbalance_mount
@@ -414,8 +428,9 @@ def _pick(x: Real, values: Real, null: float, prefer: float) -> int:
     return int(np.argmax(values))
 
 
-def _maximize(f: Callable[[ArrayLike], Real], null: float, bench: Bench, min_offset: float,
-              prefer: float) -> tuple[float, float]:
+def _maximize(
+    f: Callable[[ArrayLike], Real], null: float, bench: Bench, min_offset: float, prefer: float
+) -> tuple[float, float]:
     """Largest ``f`` on :func:`_grid`, refined between the neighbours of the best point (picked
     by :func:`_pick`)."""
     from scipy.optimize import minimize_scalar
@@ -430,45 +445,60 @@ def _maximize(f: Callable[[ArrayLike], Real], null: float, bench: Bench, min_off
     hi = x[i + 1] if i + 1 < x.size and side_of[i + 1] == side else edge
     lo, hi = sorted((lo, hi))
     if hi > lo:
-        res = minimize_scalar(lambda t: -float(np.nan_to_num(f(t), nan=-np.inf)),
-                              bounds=(lo, hi), method="bounded",
-                              options={"xatol": 1e-9 * max(1.0, abs(null))})
+        res = minimize_scalar(
+            lambda t: -float(np.nan_to_num(f(t), nan=-np.inf)),
+            bounds=(lo, hi),
+            method="bounded",
+            options={"xatol": 1e-9 * max(1.0, abs(null))},
+        )
         if -res.fun > values[i]:
             return float(res.x), float(-res.fun)
     return float(x[i]), float(values[i])
 
 
-def _explain(bench: Bench, key: str, lim: MechanismLimit, smallest_imbalance: float,
-             closest: float) -> str:
+def _explain(
+    bench: Bench, key: str, lim: MechanismLimit, smallest_imbalance: float, closest: float
+) -> str:
     c, d = bench.coupling, bench.detector
     amp = f"{lim.max_amplification:.4g}"
     if key == SETTING:
-        return (f"the other mounts' settings: with them where they are, the "
-                f"{bench.imbalance_mount} mount cannot reach a null (the closest it gets is an "
-                f"imbalance of {closest:.3g} deg), so even ideal optics reach only {amp}; set "
-                f"the other mounts (e.g. the phase mount) closer to a null")
+        return (
+            f"the other mounts' settings: with them where they are, the "
+            f"{bench.imbalance_mount} mount cannot reach a null (the closest it gets is an "
+            f"imbalance of {closest:.3g} deg), so even ideal optics reach only {amp}; set "
+            f"the other mounts (e.g. the phase mount) closer to a null"
+        )
     if key == "pointer":
-        return (f"the pointer: a shift cannot grow much beyond one pointer width "
-                f"({c.pointer_sigma:g} {c.units}), so the amplification peaks at {amp}, near "
-                f"sigma/g = {c.pointer_sigma / c.strength:.4g}, and falls again closer to the null")
+        return (
+            f"the pointer: a shift cannot grow much beyond one pointer width "
+            f"({c.pointer_sigma:g} {c.units}), so the amplification peaks at {amp}, near "
+            f"sigma/g = {c.pointer_sigma / c.strength:.4g}, and falls again closer to the null"
+        )
     if key == "extinction":
-        return (f"extinction: light leaking through the analyzer (extinction ratio "
-                f"{bench.analyzer.extinction_ratio:.3g}) and the source polarizer "
-                f"({bench.source.extinction_ratio:.3g}) keeps the post-selected intensity from "
-                f"reaching zero, so the weak value stops growing at {amp} (about sqrt(ER)/2) and "
-                f"falls again closer to the null")
+        return (
+            f"extinction: light leaking through the analyzer (extinction ratio "
+            f"{bench.analyzer.extinction_ratio:.3g}) and the source polarizer "
+            f"({bench.source.extinction_ratio:.3g}) keeps the post-selected intensity from "
+            f"reaching zero, so the weak value stops growing at {amp} (about sqrt(ER)/2) and "
+            f"falls again closer to the null"
+        )
     if key == "resolution":
-        return (f"mount resolution: the {bench.imbalance_mount} mount steps in "
-                f"{bench.mounts[bench.imbalance_mount].resolution_deg:g} deg, so the smallest "
-                f"imbalance it can set is {abs(smallest_imbalance):.3g} deg, where the "
-                f"amplification is {amp}")
-    return (f"dark counts: near the null the post-selected signal falls towards the detector's "
-            f"dark rate ({d.dark_rate:g} counts/s), and dark counts carry no pointer shift, so "
-            f"the shift seen per unit coupling stops growing at {amp}")
+        return (
+            f"mount resolution: the {bench.imbalance_mount} mount steps in "
+            f"{bench.mounts[bench.imbalance_mount].resolution_deg:g} deg, so the smallest "
+            f"imbalance it can set is {abs(smallest_imbalance):.3g} deg, where the "
+            f"amplification is {amp}"
+        )
+    return (
+        f"dark counts: near the null the post-selected signal falls towards the detector's "
+        f"dark rate ({d.dark_rate:g} counts/s), and dark counts carry no pointer shift, so "
+        f"the shift seen per unit coupling stops growing at {amp}"
+    )
 
 
-def limits(bench: Bench, readings: Mapping[str, float] | None = None,
-           axis: str | None = None) -> Limits:
+def limits(
+    bench: Bench, readings: Mapping[str, float] | None = None, axis: str | None = None
+) -> Limits:
     """Largest achievable amplification on the bench, for each mechanism alone and together,
     by scanning the imbalance mount either side of the null on the model (other mounts at
     ``readings``, default the bench file's)."""
@@ -486,31 +516,44 @@ def limits(bench: Bench, readings: Mapping[str, float] | None = None,
 
     mechanisms: dict[str, MechanismLimit] = {}
     for key, b, null_b, exact, dark, min_offset in (
-            ("pointer", ideal, ideal_null, True, False, 0.0),
-            ("extinction", bench, null, False, False, 0.0),
-            ("resolution", ideal, ideal_null, False, False, step),
-            ("dark counts", ideal, ideal_null, False, True, 0.0)):
-        mechanisms[key] = at(b, *_maximize(_amplifier(b, r, axis, exact=exact, dark=dark),
-                                           null_b, bench, min_offset, r[name]))
+        ("pointer", ideal, ideal_null, True, False, 0.0),
+        ("extinction", bench, null, False, False, 0.0),
+        ("resolution", ideal, ideal_null, False, False, step),
+        ("dark counts", ideal, ideal_null, False, True, 0.0),
+    ):
+        mechanisms[key] = at(
+            b,
+            *_maximize(
+                _amplifier(b, r, axis, exact=exact, dark=dark), null_b, bench, min_offset, r[name]
+            ),
+        )
     closest = float(_closest_approach_deg(ideal, {**r, name: ideal_null}))
     if closest > 10 * _FLOOR_DEG:
-        mechanisms[SETTING] = at(ideal, *_maximize(
-            _amplifier(ideal, r, axis, exact=False, dark=False), ideal_null, bench, 0.0, r[name]))
+        mechanisms[SETTING] = at(
+            ideal,
+            *_maximize(
+                _amplifier(ideal, r, axis, exact=False, dark=False), ideal_null, bench, 0.0, r[name]
+            ),
+        )
     side = np.sign(mechanisms["resolution"].at_reading_deg - ideal_null) or 1.0
     smallest = float(imbalance_deg(ideal, {**r, name: ideal_null + side * step}))
 
-    reading, best = _maximize(_amplifier(bench, r, axis, exact=True, dark=True), null, bench,
-                              step, r[name])
+    reading, best = _maximize(
+        _amplifier(bench, r, axis, exact=True, dark=True), null, bench, step, r[name]
+    )
     limited_by = min(mechanisms, key=lambda k: mechanisms[k].max_amplification)
-    if SETTING in mechanisms and (mechanisms[limited_by].max_amplification
-                                  >= 0.99 * mechanisms[SETTING].max_amplification):
+    if SETTING in mechanisms and (
+        mechanisms[limited_by].max_amplification >= 0.99 * mechanisms[SETTING].max_amplification
+    ):
         limited_by = SETTING  # no mechanism costs even 1 % below what the settings allow
     here = _amplifier(bench, r, axis, exact=True, dark=False)(r[name] + np.array([-step, 0, step]))
     together = at(bench, reading, best)
     why = _explain(bench, limited_by, mechanisms[limited_by], smallest, closest)
-    explanation = (f"Limited by {why}. "
-                   f"With every mechanism together the largest amplification is {best:.4g}, at "
-                   f"an imbalance of {together.at_imbalance_deg:.4g} deg.")
+    explanation = (
+        f"Limited by {why}. "
+        f"With every mechanism together the largest amplification is {best:.4g}, at "
+        f"an imbalance of {together.at_imbalance_deg:.4g} deg."
+    )
     return Limits(
         axis=axis,
         null_reading_deg=null,
@@ -564,8 +607,12 @@ def best_snr_imbalance(bench: Bench, readings: Mapping[str, float] | None = None
     p = predict(bench, {**r, name: x})
     allowed = ~(p.saturated | p.over_safe_rate)
     feasible = bool(np.any(allowed))
-    i = _pick(x, np.where(allowed, p.snr_per_sqrt_s, -1.0) if feasible else p.snr_per_sqrt_s,
-              null, r[name])
+    i = _pick(
+        x,
+        np.where(allowed, p.snr_per_sqrt_s, -1.0) if feasible else p.snr_per_sqrt_s,
+        null,
+        r[name],
+    )
     standard = standard_snr_per_sqrt_s(bench, r)
     limited = standard_snr_per_sqrt_s(bench, r, within_limits=True)
     snr = float(p.snr_per_sqrt_s[i])
@@ -574,25 +621,41 @@ def best_snr_imbalance(bench: Bench, readings: Mapping[str, float] | None = None
         return snr / x if x > 0 else INF
 
     if feasible:
-        message = (f"Best SNR {snr:.4g}/sqrt(s) at an imbalance of {p.imbalance_deg[i]:.4g} deg "
-                   f"({name} at {x[i]:.4f} deg), {ratio(limited):.3g} times the standard "
-                   f"measurement kept within the detector's limits and {ratio(standard):.3g} "
-                   f"times it with the detector overexposed.")
+        message = (
+            f"Best SNR {snr:.4g}/sqrt(s) at an imbalance of {p.imbalance_deg[i]:.4g} deg "
+            f"({name} at {x[i]:.4f} deg), {ratio(limited):.3g} times the standard "
+            f"measurement kept within the detector's limits and {ratio(standard):.3g} "
+            f"times it with the detector overexposed."
+        )
     else:
-        message = ("Every scanned imbalance overexposes or saturates the detector: attenuate "
-                   "the beam before counting (follow your laser-safety rules).")
-    return SnrChoice(feasible, float(x[i]), float(p.imbalance_deg[i]), snr,
-                     float(p.amplification_exact[i]), float(p.leak_rate[i]),
-                     float(p.detector_rate[i]), standard, limited, ratio(standard),
-                     ratio(limited), message)
+        message = (
+            "Every scanned imbalance overexposes or saturates the detector: attenuate "
+            "the beam before counting (follow your laser-safety rules)."
+        )
+    return SnrChoice(
+        feasible,
+        float(x[i]),
+        float(p.imbalance_deg[i]),
+        snr,
+        float(p.amplification_exact[i]),
+        float(p.leak_rate[i]),
+        float(p.detector_rate[i]),
+        standard,
+        limited,
+        ratio(standard),
+        ratio(limited),
+        message,
+    )
 
 
 # --------------------------------------------------------------------------------------------
 # The JSON block
 
 
-def prediction_block(bench: Bench, readings: Mapping[str, float] | None = None,
-                     ) -> dict[str, Any]:
+def prediction_block(
+    bench: Bench,
+    readings: Mapping[str, float] | None = None,
+) -> dict[str, Any]:
     """The stable JSON block of ``aligner predict`` (plain floats; single readings only)."""
     r = _scalar_readings(bench, readings)
     p = predict(bench, r)
@@ -603,13 +666,22 @@ def prediction_block(bench: Bench, readings: Mapping[str, float] | None = None,
         "imbalance_deg": float(p.imbalance_deg),
         "weak_value": {"re": wv.real, "im": wv.imag},
         "leak_rate": float(p.leak_rate),
-        "amplification": {"linear": float(p.amplification_linear),
-                          "exact": float(p.amplification_exact)},
+        "amplification": {
+            "linear": float(p.amplification_linear),
+            "exact": float(p.amplification_exact),
+        },
         "pointer_shift": float(p.pointer_shift),
         "units": p.units,
-        "detector": {"rate": float(p.detector_rate), "measured_rate": float(p.measured_rate),
-                     "saturated": bool(p.saturated), "over_safe_rate": bool(p.over_safe_rate)},
-        "limit": {"max_amplification": lim.max_amplification,
-                  "at_imbalance_deg": lim.at_imbalance_deg, "limited_by": lim.limited_by},
+        "detector": {
+            "rate": float(p.detector_rate),
+            "measured_rate": float(p.measured_rate),
+            "saturated": bool(p.saturated),
+            "over_safe_rate": bool(p.over_safe_rate),
+        },
+        "limit": {
+            "max_amplification": lim.max_amplification,
+            "at_imbalance_deg": lim.at_imbalance_deg,
+            "limited_by": lim.limited_by,
+        },
         "snr_per_sqrt_s": float(p.snr_per_sqrt_s),
     }

@@ -50,8 +50,11 @@ STEP_KEYS: dict[str, tuple[str, ...]] = {
     "null": ("mount", "dwell_s"),
     "sweep": ("schedule", "dwell_s"),
 }
-REQUIRED: dict[str, tuple[str, ...]] = {"say": ("text",), "confirm": ("text",),
-                                        "sweep": ("schedule",)}
+REQUIRED: dict[str, tuple[str, ...]] = {
+    "say": ("text",),
+    "confirm": ("text",),
+    "sweep": ("schedule",),
+}
 
 
 @dataclass(frozen=True)
@@ -102,8 +105,10 @@ def find_recipe(name_or_path: str) -> Recipe:
     names = [q.stem for q in sorted(bundled_dir().glob("*.toml"))]
     close = difflib.get_close_matches(name_or_path, names, n=1)
     hint = f"; did you mean {close[0]!r}?" if close else ""
-    raise RecipeError(f"no recipe file or bundled recipe named {name_or_path!r} (bundled: "
-                      f"{', '.join(names)}){hint}")
+    raise RecipeError(
+        f"no recipe file or bundled recipe named {name_or_path!r} (bundled: "
+        f"{', '.join(names)}){hint}"
+    )
 
 
 def _fail(path: Path, key: str, problem: str) -> RecipeError:
@@ -133,15 +138,19 @@ def _step(path: Path, index: int, table: Any) -> Step:
     if kind not in STEP_KEYS:
         close = difflib.get_close_matches(str(kind), list(STEP_KEYS), n=1)
         hint = f"; did you mean {close[0]!r}?" if close else ""
-        raise _fail(path, f"{where}.do", f"must be one of {', '.join(STEP_KEYS)}, got "
-                                         f"{kind!r}{hint}")
+        raise _fail(
+            path, f"{where}.do", f"must be one of {', '.join(STEP_KEYS)}, got {kind!r}{hint}"
+        )
     allowed = (*STEP_KEYS[kind], "do", "label")
     for name, value in table.items():
         if name not in allowed:
             close = difflib.get_close_matches(name, allowed, n=1)
             hint = f"; did you mean {close[0]!r}?" if close else ""
-            raise _fail(path, f"{where}.{name}", f"not a key of a {kind!r} step (allowed: "
-                                                 f"{', '.join(allowed)}){hint}")
+            raise _fail(
+                path,
+                f"{where}.{name}",
+                f"not a key of a {kind!r} step (allowed: {', '.join(allowed)}){hint}",
+            )
         _check_value(path, f"{where}.{name}", name, value)
     for name in REQUIRED.get(kind, ()):
         if name not in table:
@@ -180,8 +189,13 @@ def load_recipe(path: str | Path) -> Recipe:
     steps = doc.get("step", [])
     if not isinstance(steps, list) or not steps:
         raise _fail(p, "step", "at least one [[step]] is required")
-    return Recipe(p, head["title"], str(head.get("about", "")), tuple(cautions),
-                  tuple(_step(p, i, t) for i, t in enumerate(steps)))
+    return Recipe(
+        p,
+        head["title"],
+        str(head.get("about", "")),
+        tuple(cautions),
+        tuple(_step(p, i, t) for i, t in enumerate(steps)),
+    )
 
 
 @dataclass(frozen=True)
@@ -211,8 +225,16 @@ Report = Callable[[str], None]
 class _Runner:
     """Steps through one recipe on one bench, keeping the devices open between steps."""
 
-    def __init__(self, bench: Bench, confirm: Confirm, report: Report, *, db: str | None,
-                 seed: int | None, device_specs: Mapping[str, str | None]) -> None:
+    def __init__(
+        self,
+        bench: Bench,
+        confirm: Confirm,
+        report: Report,
+        *,
+        db: str | None,
+        seed: int | None,
+        device_specs: Mapping[str, str | None],
+    ) -> None:
         self.bench, self.confirm, self.report = bench, confirm, report
         self.db, self.seed, self.device_specs = db, seed, device_specs
         self.devices: DeviceSet | None = None
@@ -221,8 +243,9 @@ class _Runner:
         from .run.simbench import open_devices
 
         if self.devices is None:
-            self.devices = open_devices(self.bench, pointer="none", seed=self.seed,
-                                        **self.device_specs)
+            self.devices = open_devices(
+                self.bench, pointer="none", seed=self.seed, **self.device_specs
+            )
         return self.devices
 
     def close(self) -> None:
@@ -245,9 +268,11 @@ class _Runner:
 
         block = prediction_block(self.bench, self.bench.readings())
         amp = block["amplification"]
-        text = (f"imbalance {block['imbalance_deg']:+.4f} deg, leak rate "
-                f"{block['leak_rate']:.3e}, amplification {amp['exact']:.2f} (linear "
-                f"{amp['linear']:.2f}), detector {block['detector']['rate']:.4g} counts/s")
+        text = (
+            f"imbalance {block['imbalance_deg']:+.4f} deg, leak rate "
+            f"{block['leak_rate']:.3e}, amplification {amp['exact']:.2f} (linear "
+            f"{amp['linear']:.2f}), detector {block['detector']['rate']:.4g} counts/s"
+        )
         self.report(text)
         return text, block
 
@@ -255,9 +280,14 @@ class _Runner:
         from .planning import plan
 
         a = step.args
-        result = plan(self.bench, a.get("amplification"), axis=a.get("axis"),
-                      exact=bool(a.get("exact", False)), leak_rate=a.get("leak_rate"),
-                      samples=0)
+        result = plan(
+            self.bench,
+            a.get("amplification"),
+            axis=a.get("axis"),
+            exact=bool(a.get("exact", False)),
+            leak_rate=a.get("leak_rate"),
+            samples=0,
+        )
         settings = {k: float(v) for k, v in result.quantized.settings.items()}
         text = result.message or ", ".join(f"{k} {v:.4f} deg" for k, v in settings.items())
         if a.get("apply", False):
@@ -272,13 +302,21 @@ class _Runner:
 
         name = step.args.get("mount", self.bench.imbalance_mount)
         if name not in self.bench.mounts:
-            raise RecipeError(f"null step: the bench has no mount {name!r} (it has "
-                              f"{', '.join(self.bench.mounts)})")
+            raise RecipeError(
+                f"null step: the bench has no mount {name!r} (it has "
+                f"{', '.join(self.bench.mounts)})"
+            )
         devices = self.devices_open()
         guard = DetectorGuard(self.bench, has_shutter=devices.shutter is not None)
-        result = search_null(self.bench, devices.mounts[name], devices.counter, guard,
-                             mount_name=name, shutter=devices.shutter,
-                             dwell_s=float(step.args.get("dwell_s", 0.2)))
+        result = search_null(
+            self.bench,
+            devices.mounts[name],
+            devices.counter,
+            guard,
+            mount_name=name,
+            shutter=devices.shutter,
+            dwell_s=float(step.args.get("dwell_s", 0.2)),
+        )
         if result.converged:
             self.apply(result.last_fit.bench_updates())
         self.report(result.message)
@@ -289,26 +327,45 @@ class _Runner:
         from .run.schedule import parse_schedule, plan_points
         from .run.sweep import run_sweep, start_run
 
-        schedule = parse_schedule(step.args["schedule"],
-                                  dwell_s=float(step.args.get("dwell_s", 1.0)))
+        schedule = parse_schedule(
+            step.args["schedule"], dwell_s=float(step.args.get("dwell_s", 1.0))
+        )
         points = plan_points(self.bench, schedule)
         devices = self.devices_open()
         with RunLog(self.db) as log:
             run_id = start_run(log, self.bench, schedule, points)
-            result = run_sweep(self.bench, devices, log, run_id, points,
-                               dwell_s=schedule.dwell_s, settle_s=schedule.settle_s)
-        text = f"run {result.run_id}: {result.status}, {result.points_done} of " \
-               f"{result.points_total} points. {result.message}".strip()
+            result = run_sweep(
+                self.bench,
+                devices,
+                log,
+                run_id,
+                points,
+                dwell_s=schedule.dwell_s,
+                settle_s=schedule.settle_s,
+            )
+        text = (
+            f"run {result.run_id}: {result.status}, {result.points_done} of "
+            f"{result.points_total} points. {result.message}".strip()
+        )
         self.report(text)
         if result.status != "complete":
-            raise RecipeError(f"sweep step paused: {result.message} (resume it with aligner "
-                              f"sweep BENCH --resume {result.run_id})")
+            raise RecipeError(
+                f"sweep step paused: {result.message} (resume it with aligner "
+                f"sweep BENCH --resume {result.run_id})"
+            )
         return text, {"run": result.run_id, "status": result.status}
 
 
-def run_recipe(recipe: Recipe, bench: Bench, *, confirm: Confirm, report: Report,
-               db: str | None = None, seed: int | None = None,
-               device_specs: Mapping[str, str | None] | None = None) -> RecipeResult:
+def run_recipe(
+    recipe: Recipe,
+    bench: Bench,
+    *,
+    confirm: Confirm,
+    report: Report,
+    db: str | None = None,
+    seed: int | None = None,
+    device_specs: Mapping[str, str | None] | None = None,
+) -> RecipeResult:
     """Run ``recipe`` on ``bench``: show its cautions, then each step in order.
 
     ``confirm(text)`` asks the operator (False stops the recipe); ``report(text)`` shows a
@@ -326,12 +383,18 @@ def run_recipe(recipe: Recipe, bench: Bench, *, confirm: Confirm, report: Report
     outcomes: list[StepOutcome] = []
     try:
         for index, step in enumerate(recipe.steps):
-            report(f"step {index + 1}/{len(recipe.steps)} ({step.do})"
-                   + (f": {step.label}" if step.label else ""))
+            report(
+                f"step {index + 1}/{len(recipe.steps)} ({step.do})"
+                + (f": {step.label}" if step.label else "")
+            )
             if step.do == "confirm":
                 if not confirm(step.args["text"]):
-                    return RecipeResult(recipe.name, tuple(outcomes), False,
-                                        f"stopped at step {index + 1}: not confirmed")
+                    return RecipeResult(
+                        recipe.name,
+                        tuple(outcomes),
+                        False,
+                        f"stopped at step {index + 1}: not confirmed",
+                    )
                 outcomes.append(StepOutcome(index, step.do, "confirmed"))
                 continue
             message, values = getattr(runner, step.do)(step)

@@ -75,8 +75,9 @@ def bench_file(write_bench: Callable[[str], Path], bench_text: str) -> Path:
 
 
 @pytest.fixture(autouse=True)
-def _private_data_folder(tmp_path_factory: pytest.TempPathFactory,
-                         monkeypatch: pytest.MonkeyPatch) -> None:
+def _private_data_folder(
+    tmp_path_factory: pytest.TempPathFactory, monkeypatch: pytest.MonkeyPatch
+) -> None:
     """Keep the default run log (platformdirs user data folder) out of the user's home, for
     this process and the subprocesses the tests start."""
     monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path_factory.mktemp("data")))

@@ -30,8 +30,13 @@ def add_json_flag(parser: argparse.ArgumentParser) -> None:
 
 def add_set_argument(parser: argparse.ArgumentParser) -> None:
     """``--set MOUNT=READING_DEG`` (repeatable)."""
-    parser.add_argument("--set", metavar="MOUNT=READING_DEG", action="append", default=[],
-                        help="override a mount reading in degrees (repeatable)")
+    parser.add_argument(
+        "--set",
+        metavar="MOUNT=READING_DEG",
+        action="append",
+        default=[],
+        help="override a mount reading in degrees (repeatable)",
+    )
 
 
 def parse_settings(items: list[str]) -> dict[str, float]:

@@ -13,7 +13,8 @@ from .common import add_bench_argument, emit_json
 def register(sub: argparse._SubParsersAction) -> None:
     """Add the ``derive`` command."""
     parser = sub.add_parser(
-        "derive", help="closed-form weak value and leak rate of a bench (sympy)",
+        "derive",
+        help="closed-form weak value and leak rate of a bench (sympy)",
         description="Derive, from the bench file's optics, the weak value A_w = Tr(E A rho) / "
         "Tr(E rho) and the leak rate in closed form, with the element angles of the imbalance "
         "mount, the phase mount and any --free mount as symbols (rad), the bench's leaks "
@@ -21,17 +22,29 @@ def register(sub: argparse._SubParsersAction) -> None:
         "listed, and their leading order around the null, extinction floor included. "
         "Paste-ready for lab notebooks. Takes a few seconds (sympy). Exit status 2 for a bad "
         "bench file or mount name: the message goes to stderr, and with --json nothing is "
-        "printed on stdout.")
+        "printed on stdout.",
+    )
     add_bench_argument(parser)
-    parser.add_argument("--free", metavar="MOUNT", action="append", default=[],
-                        help="also keep this mount's element angle as a symbol (repeatable)")
+    parser.add_argument(
+        "--free",
+        metavar="MOUNT",
+        action="append",
+        default=[],
+        help="also keep this mount's element angle as a symbol (repeatable)",
+    )
     output = parser.add_mutually_exclusive_group()
-    output.add_argument("--latex", action="store_true",
-                        help="print LaTeX (symbol table and formulas) instead of plain text")
-    output.add_argument("--json", action="store_true",
-                        help="print one JSON document: symbols (meaning, latex, value), "
-                        "angles, offsets, null_deg, and expressions (each as text in sympy "
-                        "syntax and as latex)")
+    output.add_argument(
+        "--latex",
+        action="store_true",
+        help="print LaTeX (symbol table and formulas) instead of plain text",
+    )
+    output.add_argument(
+        "--json",
+        action="store_true",
+        help="print one JSON document: symbols (meaning, latex, value), "
+        "angles, offsets, null_deg, and expressions (each as text in sympy "
+        "syntax and as latex)",
+    )
     parser.set_defaults(handler=run)
 
 

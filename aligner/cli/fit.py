@@ -14,8 +14,10 @@ from typing import Any
 from .common import add_json_flag
 
 KINDS = ("null", "waveplate", "leak", "coupling")
-SAFETY = ("Laser safety: follow your local laser-safety rules and your laser safety officer; "
-          "never expose a single-photon detector to a bright beam.")
+SAFETY = (
+    "Laser safety: follow your local laser-safety rules and your laser safety officer; "
+    "never expose a single-photon detector to a bright beam."
+)
 
 
 def print_table(title: str, rows: Iterable[tuple[str, str]], notes: Iterable[str] = ()) -> None:
@@ -36,25 +38,52 @@ def print_table(title: str, rows: Iterable[tuple[str, str]], notes: Iterable[str
 
 def register(sub: argparse._SubParsersAction) -> None:
     """Add the ``fit`` command."""
-    p = sub.add_parser("fit", help="fit a measured scan: null, waveplate, leak or coupling",
-                       description=__doc__, epilog=SAFETY)
+    p = sub.add_parser(
+        "fit",
+        help="fit a measured scan: null, waveplate, leak or coupling",
+        description=__doc__,
+        epilog=SAFETY,
+    )
     p.add_argument("kind", choices=KINDS, help="which fit")
-    p.add_argument("data", metavar="FILE|RUN",
-                   help="CSV file (reading_deg,counts[,dwell_s,reference] or, for coupling, "
-                        "reading_deg,pointer,pointer_err), or a logged run number (coupling)")
-    p.add_argument("--bench", metavar="BENCH", default="demo",
-                   help="bench file (TOML) or 'demo' (default: demo)")
-    p.add_argument("--mount", metavar="M", help="the mount the scan turned (default: the "
-                   "analyzer for null, phase_mount for waveplate, imbalance_mount otherwise)")
-    p.add_argument("--dwell", type=float, metavar="S", help="gate time (s) when the file has "
-                   "no dwell_s column")
-    p.add_argument("--dark-rate", type=float, metavar="R", help="dark rate (counts/s) measured "
-                   "with the shutter closed (default: the bench detector's)")
-    p.add_argument("--free-rate", action="store_true", help="waveplate fit: fit the photon "
-                   "rate too (only when the polarizers are not crossed)")
+    p.add_argument(
+        "data",
+        metavar="FILE|RUN",
+        help="CSV file (reading_deg,counts[,dwell_s,reference] or, for coupling, "
+        "reading_deg,pointer,pointer_err), or a logged run number (coupling)",
+    )
+    p.add_argument(
+        "--bench",
+        metavar="BENCH",
+        default="demo",
+        help="bench file (TOML) or 'demo' (default: demo)",
+    )
+    p.add_argument(
+        "--mount",
+        metavar="M",
+        help="the mount the scan turned (default: the "
+        "analyzer for null, phase_mount for waveplate, imbalance_mount otherwise)",
+    )
+    p.add_argument(
+        "--dwell", type=float, metavar="S", help="gate time (s) when the file has no dwell_s column"
+    )
+    p.add_argument(
+        "--dark-rate",
+        type=float,
+        metavar="R",
+        help="dark rate (counts/s) measured "
+        "with the shutter closed (default: the bench detector's)",
+    )
+    p.add_argument(
+        "--free-rate",
+        action="store_true",
+        help="waveplate fit: fit the photon rate too (only when the polarizers are not crossed)",
+    )
     p.add_argument("--db", metavar="PATH", help="run log database (coupling RUN)")
-    p.add_argument("--write", action="store_true",
-                   help="store the fitted values in the bench file (comments kept)")
+    p.add_argument(
+        "--write",
+        action="store_true",
+        help="store the fitted values in the bench file (comments kept)",
+    )
     add_json_flag(p)
     p.set_defaults(handler=run)
 
@@ -76,12 +105,17 @@ def _load_pointer(data: str, db: str | None) -> tuple[Any, str]:
     record, points = read_run(int(data), db)
     with_pointer = [p for p in points if p.pointer is not None and p.pointer_err]
     if len(with_pointer) < 2:
-        raise DataFileError(f"run {data}: {len(with_pointer)} point(s) carry pointer readings; "
-                            "the coupling fit needs at least 2")
-    return PointerScan(np.array([p.reading_deg for p in with_pointer]),
-                       np.array([p.pointer for p in with_pointer]),
-                       np.array([p.pointer_err for p in with_pointer]), f"run {data}",
-                       record.imbalance_mount), f"run {data}"
+        raise DataFileError(
+            f"run {data}: {len(with_pointer)} point(s) carry pointer readings; "
+            "the coupling fit needs at least 2"
+        )
+    return PointerScan(
+        np.array([p.reading_deg for p in with_pointer]),
+        np.array([p.pointer for p in with_pointer]),
+        np.array([p.pointer_err for p in with_pointer]),
+        f"run {data}",
+        record.imbalance_mount,
+    ), f"run {data}"
 
 
 def _pm(doc: dict[str, Any], key: str, err: str | None, unit: str, fmt: str = ".6g") -> str:
@@ -94,24 +128,30 @@ def _pm(doc: dict[str, Any], key: str, err: str | None, unit: str, fmt: str = ".
 
 #: Readable rows of each fit: (label, value key, error key or None, unit).
 ROWS: dict[str, tuple[tuple[str, str, str | None, str], ...]] = {
-    "null": (("null reading", "null_reading_deg", "null_reading_err_deg", "deg"),
-             ("mount offset for the bench file", "offset_deg", None, "deg"),
-             ("analyzer extinction ratio", "extinction_ratio", "extinction_ratio_err", ""),
-             ("photon rate / bench file's", "rate_scale", "rate_scale_err", ""),
-             ("dark rate used", "dark_rate", None, "counts/s")),
-    "waveplate": (("fast-axis reading", "fast_axis_reading_deg", "fast_axis_err_deg", "deg"),
-                  ("equally good reading (fast/slow swapped)", "fast_axis_alternative_deg",
-                   None, "deg"),
-                  ("retardance", "retardance_waves", "retardance_err_waves", "waves"),
-                  ("photon rate / bench file's", "rate_scale", None, "")),
-    "leak": (("imbalance offset", "imbalance_offset_deg", "imbalance_offset_err_deg", "deg"),
-             ("leak floor (fraction of bright)", "leak_floor", "leak_floor_err", ""),
-             ("implied extinction", "implied_extinction", None, ""),
-             ("bench file's predicted floor", "predicted_floor", None, "")),
-    "coupling": (("coupling strength (exact)", "strength", "strength_err", ""),
-                 ("coupling strength (linear formula)", "linear_strength",
-                  "linear_strength_err", ""),
-                 ("bench file's coupling.strength", "bench_strength", None, "")),
+    "null": (
+        ("null reading", "null_reading_deg", "null_reading_err_deg", "deg"),
+        ("mount offset for the bench file", "offset_deg", None, "deg"),
+        ("analyzer extinction ratio", "extinction_ratio", "extinction_ratio_err", ""),
+        ("photon rate / bench file's", "rate_scale", "rate_scale_err", ""),
+        ("dark rate used", "dark_rate", None, "counts/s"),
+    ),
+    "waveplate": (
+        ("fast-axis reading", "fast_axis_reading_deg", "fast_axis_err_deg", "deg"),
+        ("equally good reading (fast/slow swapped)", "fast_axis_alternative_deg", None, "deg"),
+        ("retardance", "retardance_waves", "retardance_err_waves", "waves"),
+        ("photon rate / bench file's", "rate_scale", None, ""),
+    ),
+    "leak": (
+        ("imbalance offset", "imbalance_offset_deg", "imbalance_offset_err_deg", "deg"),
+        ("leak floor (fraction of bright)", "leak_floor", "leak_floor_err", ""),
+        ("implied extinction", "implied_extinction", None, ""),
+        ("bench file's predicted floor", "predicted_floor", None, ""),
+    ),
+    "coupling": (
+        ("coupling strength (exact)", "strength", "strength_err", ""),
+        ("coupling strength (linear formula)", "linear_strength", "linear_strength_err", ""),
+        ("bench file's coupling.strength", "bench_strength", None, ""),
+    ),
 }
 
 
@@ -121,15 +161,21 @@ def _rows(kind: str, doc: dict[str, Any]) -> list[tuple[str, str]]:
     from ..fit.counts import format_sigma
 
     rows = [("mount", str(doc["mount"]))]
-    rows += [(label, _pm(doc, key, err, doc["units"] if kind == "coupling" else unit))
-             for label, key, err, unit in ROWS[kind]]
+    rows += [
+        (label, _pm(doc, key, err, doc["units"] if kind == "coupling" else unit))
+        for label, key, err, unit in ROWS[kind]
+    ]
     if kind == "coupling":
         rows.append(("fitted - bench file", format_sigma(doc["bench_difference_sigma"])))
     gof = doc["goodness_of_fit"]
-    rows += [("points", str(doc["points"])),
-             ("deviance / degrees of freedom", f"{gof['deviance']:.1f} / {gof['dof']} "
-                                               f"(p = {gof['p_value']:.3g})"),
-             ("fit", "converged" if doc["success"] else "FAILED")]
+    rows += [
+        ("points", str(doc["points"])),
+        (
+            "deviance / degrees of freedom",
+            f"{gof['deviance']:.1f} / {gof['dof']} (p = {gof['p_value']:.3g})",
+        ),
+        ("fit", "converged" if doc["success"] else "FAILED"),
+    ]
     return rows
 
 
@@ -157,8 +203,7 @@ def run(args: argparse.Namespace) -> int:
         elif args.kind == "waveplate":
             from ..fit.waveplate import fit_waveplate
 
-            result = fit_waveplate(bench, scan, args.mount, free_scale=args.free_rate,
-                                   **options)
+            result = fit_waveplate(bench, scan, args.mount, free_scale=args.free_rate, **options)
         else:
             from ..fit.leakcurve import fit_leak_curve
 
@@ -176,17 +221,27 @@ def run(args: argparse.Namespace) -> int:
     if args.json:
         emit_json(doc)
         return 0 if result.fit.success else 1
-    notes = [result.fit.warning, doc["mount_basis"], doc.get("ambiguity", ""),
-             doc.get("statement", ""), getattr(result, "bench_comparison", ""),
-             f"verdict: {doc['verdict']}" if doc.get("verdict") else "",
-             "" if result.fit.success else f"the fit failed: {result.fit.message}"]
+    notes = [
+        result.fit.warning,
+        doc["mount_basis"],
+        doc.get("ambiguity", ""),
+        doc.get("statement", ""),
+        getattr(result, "bench_comparison", ""),
+        f"verdict: {doc['verdict']}" if doc.get("verdict") else "",
+        "" if result.fit.success else f"the fit failed: {result.fit.message}",
+    ]
     if written:
-        notes.append(f"written to {bench.path}: " + ", ".join(f"{k} = {v}"
-                                                             for k, v in updates.items()))
+        notes.append(
+            f"written to {bench.path}: " + ", ".join(f"{k} = {v}" for k, v in updates.items())
+        )
     elif args.write:
-        why = ("this fit has no bench values to store" if not updates else
-               "the fit failed" if not result.fit.success else
-               "the model does not describe the data (see the warning)")
+        why = (
+            "this fit has no bench values to store"
+            if not updates
+            else "the fit failed"
+            if not result.fit.success
+            else "the model does not describe the data (see the warning)"
+        )
         notes.append(f"nothing written: {why}")
     print_table(f"{args.kind} fit of {label}", _rows(args.kind, doc), [n for n in notes if n])
     return 0 if result.fit.success else 1

@@ -10,15 +10,20 @@ from .common import add_json_flag
 
 def register(sub: argparse._SubParsersAction) -> None:
     """Create the ``log`` subcommand and its actions."""
-    parser = sub.add_parser("log", help="read the run log: list, show, export, note, report",
-                            description="Read and annotate the run log written by "
-                                        "'aligner sweep'.")
+    parser = sub.add_parser(
+        "log",
+        help="read the run log: list, show, export, note, report",
+        description="Read and annotate the run log written by 'aligner sweep'.",
+    )
     actions = parser.add_subparsers(dest="action", metavar="ACTION", required=True)
 
     def action(name: str, help_text: str) -> argparse.ArgumentParser:
         p = actions.add_parser(name, help=help_text, description=help_text)
-        p.add_argument("--db", metavar="FILE", help="run-log file (default: runs.sqlite in the "
-                                                    "user data folder)")
+        p.add_argument(
+            "--db",
+            metavar="FILE",
+            help="run-log file (default: runs.sqlite in the user data folder)",
+        )
         p.set_defaults(handler=run)
         return p
 
@@ -39,9 +44,17 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def _run_json(r: Any) -> dict[str, Any]:
-    return {"id": r.id, "status": r.status, "points": r.points, "planned": r.planned,
-            "bench": r.bench_name, "schedule": r.schedule, "started_utc": r.started_utc,
-            "ended_utc": r.ended_utc, "message": r.message}
+    return {
+        "id": r.id,
+        "status": r.status,
+        "points": r.points,
+        "planned": r.planned,
+        "bench": r.bench_name,
+        "schedule": r.schedule,
+        "started_utc": r.started_utc,
+        "ended_utc": r.ended_utc,
+        "message": r.message,
+    }
 
 
 def run(args: argparse.Namespace) -> int:
@@ -64,39 +77,67 @@ def run(args: argparse.Namespace) -> int:
             for column in ("run", "status", "points", "schedule", "bench", "started (UTC)"):
                 table.add_column(column)
             for r in runs:
-                table.add_row(str(r.id), r.status, f"{r.points}/{r.planned}", r.schedule,
-                              r.bench_name, r.started_utc[:19])
+                table.add_row(
+                    str(r.id),
+                    r.status,
+                    f"{r.points}/{r.planned}",
+                    r.schedule,
+                    r.bench_name,
+                    r.started_utc[:19],
+                )
             console.print(table)
         elif args.action == "show":
             record, points, events = log.run(args.run), log.points(args.run), log.events(args.run)
             if args.json:
-                emit_json({**_run_json(record), "points_detail": [p.__dict__ for p in points],
-                           "events": [e.__dict__ for e in events]})
+                emit_json(
+                    {
+                        **_run_json(record),
+                        "points_detail": [p.__dict__ for p in points],
+                        "events": [e.__dict__ for e in events],
+                    }
+                )
                 return 0
-            console.print(f"run {record.id}: {record.status}, {record.points}/{record.planned} "
-                          f"points, schedule {record.schedule}, bench {record.bench_name}"
-                          + (f"\n{record.message}" if record.message else ""))
+            console.print(
+                f"run {record.id}: {record.status}, {record.points}/{record.planned} "
+                f"points, schedule {record.schedule}, bench {record.bench_name}"
+                + (f"\n{record.message}" if record.message else "")
+            )
             table = Table()
-            for column in ("#", "reading (deg)", "imbalance (deg)", "counts", "reference",
-                           "leak", "predicted"):
+            for column in (
+                "#",
+                "reading (deg)",
+                "imbalance (deg)",
+                "counts",
+                "reference",
+                "leak",
+                "predicted",
+            ):
                 table.add_column(column, justify="right")
             for p in points:
-                table.add_row(str(p.idx), f"{p.reading_deg:.4f}", f"{p.imbalance_deg:+.3f}",
-                              str(p.counts), "-" if p.reference is None else str(p.reference),
-                              f"{p.leak:.3e}", f"{p.predicted_leak:.3e}")
+                table.add_row(
+                    str(p.idx),
+                    f"{p.reading_deg:.4f}",
+                    f"{p.imbalance_deg:+.3f}",
+                    str(p.counts),
+                    "-" if p.reference is None else str(p.reference),
+                    f"{p.leak:.3e}",
+                    f"{p.predicted_leak:.3e}",
+                )
             console.print(table)
             for e in events:
                 console.print(f"{e.t_utc[:19]} {e.kind}: {e.message}")
         elif args.action == "export":
-            n = export_csv(log.run(args.run), log.points(args.run), args.csv,
-                           overwrite=args.force)
+            n = export_csv(log.run(args.run), log.points(args.run), args.csv, overwrite=args.force)
             console.print(f"wrote {n} points of run {args.run} to {args.csv}")
         elif args.action == "note":
             log.note(args.run, " ".join(args.text))
             console.print(f"note added to run {args.run}")
         else:
-            report = write_report(log.run(args.run), log.points(args.run),
-                                  log.events(args.run), args.out)
-            console.print(f"wrote {report.markdown}" + (f" and {report.plot}" if report.plot
-                                                         else f" ({report.note})"))
+            report = write_report(
+                log.run(args.run), log.points(args.run), log.events(args.run), args.out
+            )
+            console.print(
+                f"wrote {report.markdown}"
+                + (f" and {report.plot}" if report.plot else f" ({report.note})")
+            )
     return 0

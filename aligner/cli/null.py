@@ -14,23 +14,37 @@ from .fit import SAFETY
 
 def register(sub: argparse._SubParsersAction) -> None:
     """Add the ``null`` command."""
-    p = sub.add_parser("null", help="find the null of a mount in closed loop",
-                       description=__doc__, epilog=SAFETY)
+    p = sub.add_parser(
+        "null", help="find the null of a mount in closed loop", description=__doc__, epilog=SAFETY
+    )
     add_bench_argument(p)
     p.add_argument("--mount", metavar="M", help="mount to null (default: the analyzer's)")
-    p.add_argument("--counter", default="sim", metavar="SPEC",
-                   help="counter spec (default: sim, the simulated bench)")
+    p.add_argument(
+        "--counter",
+        default="sim",
+        metavar="SPEC",
+        help="counter spec (default: sim, the simulated bench)",
+    )
     p.add_argument("--counter-profile", metavar="NAME", help="line-protocol profile")
-    p.add_argument("--shutter", default="sim", metavar="SPEC",
-                   help="shutter spec, or 'none' (default: sim)")
+    p.add_argument(
+        "--shutter", default="sim", metavar="SPEC", help="shutter spec, or 'none' (default: sim)"
+    )
     p.add_argument("--dwell", type=float, default=0.2, metavar="S", help="gate per point (s)")
-    p.add_argument("--span", type=float, default=2.0, metavar="DEG",
-                   help="half-width of the coarse scan (deg; narrowed to keep the detector dark)")
+    p.add_argument(
+        "--span",
+        type=float,
+        default=2.0,
+        metavar="DEG",
+        help="half-width of the coarse scan (deg; narrowed to keep the detector dark)",
+    )
     p.add_argument("--points", type=int, default=21, help="points per scan (default 21)")
     p.add_argument("--rounds", type=int, default=8, help="most scan-and-fit rounds (default 8)")
     p.add_argument("--seed", type=int, help="seed of the simulated bench")
-    p.add_argument("--write", action="store_true",
-                   help="store the found offset in the bench file (comments kept)")
+    p.add_argument(
+        "--write",
+        action="store_true",
+        help="store the found offset in the bench file (comments kept)",
+    )
     add_json_flag(p)
     p.set_defaults(handler=run)
 
@@ -50,17 +64,33 @@ def run(args: argparse.Namespace) -> int:
         ensure_writable(bench.path)  # before any work: the demo bench is not written to
     name = args.mount or bench.analyzer.mount
     if name not in bench.mounts:
-        raise InputError(f"--mount {name!r}: no such mount; the bench has: "
-                         f"{', '.join(bench.mounts)}")
+        raise InputError(
+            f"--mount {name!r}: no such mount; the bench has: {', '.join(bench.mounts)}"
+        )
     if not args.json:
         print(SAFETY, file=sys.stderr)
-    devices = open_devices(bench, counter=args.counter, counter_profile=args.counter_profile,
-                           shutter=args.shutter, pointer="none", seed=args.seed)
+    devices = open_devices(
+        bench,
+        counter=args.counter,
+        counter_profile=args.counter_profile,
+        shutter=args.shutter,
+        pointer="none",
+        seed=args.seed,
+    )
     try:
         guard = DetectorGuard(bench, has_shutter=devices.shutter is not None)
-        result = search_null(bench, devices.mounts[name], devices.counter, guard,
-                             mount_name=name, shutter=devices.shutter, dwell_s=args.dwell,
-                             span_deg=args.span, points=args.points, max_rounds=args.rounds)
+        result = search_null(
+            bench,
+            devices.mounts[name],
+            devices.counter,
+            guard,
+            mount_name=name,
+            shutter=devices.shutter,
+            dwell_s=args.dwell,
+            span_deg=args.span,
+            points=args.points,
+            max_rounds=args.rounds,
+        )
     finally:
         devices.close()
     updates = result.last_fit.bench_updates()
@@ -70,16 +100,25 @@ def run(args: argparse.Namespace) -> int:
     if args.json:
         emit_json(doc)
         return 0 if result.converged else 1
-    rows = [("null reading", f"{result.null_reading_deg:.4f} +/- "
-                             f"{result.null_reading_err_deg:.4f} deg"),
-            ("mount now at", f"{result.final_reading_deg:.4f} deg"),
-            ("effective extinction ratio (all that fills the null)",
-             f"{result.last_fit.extinction_ratio:.3g}"),
-            ("rounds", str(result.rounds)), ("counter reads", str(result.counter_reads))]
+    rows = [
+        (
+            "null reading",
+            f"{result.null_reading_deg:.4f} +/- {result.null_reading_err_deg:.4f} deg",
+        ),
+        ("mount now at", f"{result.final_reading_deg:.4f} deg"),
+        (
+            "effective extinction ratio (all that fills the null)",
+            f"{result.last_fit.extinction_ratio:.3g}",
+        ),
+        ("rounds", str(result.rounds)),
+        ("counter reads", str(result.counter_reads)),
+    ]
     notes = [result.message]
     if doc["written"]:
-        notes.append(f"written to {bench.path}: " + ", ".join(
-            f"{key} = {value:.6g}" for key, value in doc["written"].items()))
+        notes.append(
+            f"written to {bench.path}: "
+            + ", ".join(f"{key} = {value:.6g}" for key, value in doc["written"].items())
+        )
     elif args.write:
         notes.append("nothing written: the search did not converge")
     print_table(f"null search of {name}", rows, notes)

@@ -9,17 +9,21 @@ from typing import Any
 
 from .common import add_bench_argument, add_json_flag, add_set_argument, emit_json, parse_settings
 
-SAFETY = ("Laser safety: follow your local laser-safety rules and your laser safety officer; "
-          "block the beam before exposing a single-photon detector to a rate near its limit.")
+SAFETY = (
+    "Laser safety: follow your local laser-safety rules and your laser safety officer; "
+    "block the beam before exposing a single-photon detector to a rate near its limit."
+)
 
 
 def register(sub: argparse._SubParsersAction) -> None:
     """Add the ``predict`` command."""
     parser = sub.add_parser(
-        "predict", help="predict weak value, leak rate, amplification and detector rate",
+        "predict",
+        help="predict weak value, leak rate, amplification and detector rate",
         description="Predict the weak value, leak rate, amplification, detector rate and "
         "signal to noise of a bench at its mount readings (those in the file unless --set), "
-        "and the largest amplification the bench allows. " + SAFETY)
+        "and the largest amplification the bench allows. " + SAFETY,
+    )
     add_bench_argument(parser)
     add_set_argument(parser)
     add_json_flag(parser)
@@ -35,12 +39,15 @@ def run(args: argparse.Namespace) -> int:
     settings = parse_settings(args.set)
     for name, value in settings.items():
         if name not in bench.mounts:
-            raise InputError(f"--set {name}={value:g}: unknown mount {name!r}; the bench has: "
-                             f"{', '.join(bench.mounts)}")
+            raise InputError(
+                f"--set {name}={value:g}: unknown mount {name!r}; the bench has: "
+                f"{', '.join(bench.mounts)}"
+            )
         low, high = bench.mounts[name].travel_deg
         if not low <= value <= high:
-            raise InputError(f"--set {name}={value:g}: outside the mount's travel "
-                             f"[{low:g}, {high:g}] deg")
+            raise InputError(
+                f"--set {name}={value:g}: outside the mount's travel [{low:g}, {high:g}] deg"
+            )
     from ..prediction import best_snr_imbalance, limits, predict, prediction_block
 
     block = prediction_block(bench, settings)
@@ -50,13 +57,25 @@ def run(args: argparse.Namespace) -> int:
 
     readings = {**bench.readings(), **settings}
     diluted = float(predict(bench, settings).signal_fraction) * block["amplification"]["exact"]
-    _print_tables(bench, readings, block, diluted, limits(bench, settings),
-                  best_snr_imbalance(bench, settings))
+    _print_tables(
+        bench,
+        readings,
+        block,
+        diluted,
+        limits(bench, settings),
+        best_snr_imbalance(bench, settings),
+    )
     return 0
 
 
-def _print_tables(bench: Any, readings: dict[str, float], block: dict[str, Any],
-                  diluted: float, lim: Any, choice: Any) -> None:
+def _print_tables(
+    bench: Any,
+    readings: dict[str, float],
+    block: dict[str, Any],
+    diluted: float,
+    lim: Any,
+    choice: Any,
+) -> None:
     from rich.console import Console
     from rich.table import Table
 
@@ -82,8 +101,11 @@ def _print_tables(bench: Any, readings: dict[str, float], block: dict[str, Any],
         ("detector rate (incl. dark)", f"{det['rate']:.5g}", "counts/s"),
         ("measured rate (dead time)", f"{det['measured_rate']:.5g}", "counts/s"),
         ("saturated", "yes" if det["saturated"] else "no", ""),
-        ("above safe rate", "YES" if det["over_safe_rate"] else "no",
-         f"safe rate {bench.detector.safe_rate:g} counts/s"),
+        (
+            "above safe rate",
+            "YES" if det["over_safe_rate"] else "no",
+            f"safe rate {bench.detector.safe_rate:g} counts/s",
+        ),
         ("SNR of the coupling", f"{block['snr_per_sqrt_s']:.4g}", "per sqrt(s)"),
     ]
     table = Table(title="prediction")
@@ -99,16 +121,21 @@ def _print_tables(bench: Any, readings: dict[str, float], block: dict[str, Any],
     caps.add_column("max |amplification|", justify="right")
     caps.add_column("at imbalance (deg)", justify="right")
     for key, item in lim.mechanisms.items():
-        caps.add_row(f"{key} alone", f"{item.max_amplification:.5g}",
-                     f"{item.at_imbalance_deg:.4g}")
+        caps.add_row(
+            f"{key} alone", f"{item.max_amplification:.5g}", f"{item.at_imbalance_deg:.4g}"
+        )
     caps.add_row("all together", f"{lim.max_amplification:.5g}", f"{lim.at_imbalance_deg:.4g}")
     console.print(caps)
     console.print(lim.explanation)
-    console.print(f"One {bench.imbalance_mount} step changes the exact amplification by "
-                  f"{lim.step_error:.3g} at this reading.")
+    console.print(
+        f"One {bench.imbalance_mount} step changes the exact amplification by "
+        f"{lim.step_error:.3g} at this reading."
+    )
     console.print(choice.message)
     if det["over_safe_rate"] or det["saturated"]:
-        console.print("[bold red]Warning:[/] at these readings the detector would be "
-                      + ("above its safe rate" if det["over_safe_rate"] else "saturated")
-                      + "; do not open the shutter.")
+        console.print(
+            "[bold red]Warning:[/] at these readings the detector would be "
+            + ("above its safe rate" if det["over_safe_rate"] else "saturated")
+            + "; do not open the shutter."
+        )
     console.print(SAFETY)

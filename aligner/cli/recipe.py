@@ -7,16 +7,21 @@ import sys
 
 from .common import add_json_flag
 
-SAFETY = ("Safety: recipes move mounts that can send a bright beam onto the detector. Follow your "
-          "local laser-safety rules and your laser safety officer; keep beam blocks at the "
-          "reject ports.")
+SAFETY = (
+    "Safety: recipes move mounts that can send a bright beam onto the detector. Follow your "
+    "local laser-safety rules and your laser safety officer; keep beam blocks at the "
+    "reject ports."
+)
 
 
 def register(sub: argparse._SubParsersAction) -> None:
     """Create the ``recipe`` subcommand and its actions."""
-    parser = sub.add_parser("recipe", help="list, show or run alignment recipes",
-                            description="Written alignment procedures: bundled ones by name, "
-                                        "your own by file path.", epilog=SAFETY)
+    parser = sub.add_parser(
+        "recipe",
+        help="list, show or run alignment recipes",
+        description="Written alignment procedures: bundled ones by name, your own by file path.",
+        epilog=SAFETY,
+    )
     actions = parser.add_subparsers(dest="action", metavar="ACTION", required=True)
     listing = actions.add_parser("list", help="the bundled recipes")
     add_json_flag(listing)
@@ -26,15 +31,20 @@ def register(sub: argparse._SubParsersAction) -> None:
     run_p = actions.add_parser("run", help="step through a recipe on a bench", epilog=SAFETY)
     run_p.add_argument("recipe", metavar="RECIPE", help="bundled recipe name or a .toml file")
     run_p.add_argument("bench", metavar="BENCH", help="bench file (TOML), or 'demo'")
-    run_p.add_argument("--yes", action="store_true",
-                       help="confirm every check without asking (simulated benches only)")
+    run_p.add_argument(
+        "--yes",
+        action="store_true",
+        help="confirm every check without asking (simulated benches only)",
+    )
     run_p.add_argument("--db", metavar="FILE", help="run-log file for sweep steps")
     run_p.add_argument("--seed", metavar="N", type=int, help="seed of the simulated bench")
     for device in ("counter", "shutter"):
-        run_p.add_argument(f"--{device}", metavar="SPEC", default="sim",
-                           help=f"{device} device spec (default sim)")
-        run_p.add_argument(f"--{device}-profile", metavar="PROFILE",
-                           help=f"device profile of a serial {device}")
+        run_p.add_argument(
+            f"--{device}", metavar="SPEC", default="sim", help=f"{device} device spec (default sim)"
+        )
+        run_p.add_argument(
+            f"--{device}-profile", metavar="PROFILE", help=f"device profile of a serial {device}"
+        )
     add_json_flag(run_p)
     parser.set_defaults(handler=run)
 
@@ -64,8 +74,13 @@ def run(args: argparse.Namespace) -> int:
     if args.action == "list":
         recipes = bundled_recipes()
         if args.json:
-            emit_json({"recipes": [{"name": r.name, "title": r.title, "steps": len(r.steps)}
-                                   for r in recipes]})
+            emit_json(
+                {
+                    "recipes": [
+                        {"name": r.name, "title": r.title, "steps": len(r.steps)} for r in recipes
+                    ]
+                }
+            )
         else:
             for r in recipes:
                 print(f"{r.name:<24} {r.title} ({len(r.steps)} steps)")
@@ -92,11 +107,15 @@ def _run_recipe(args: argparse.Namespace, recipe: object) -> int:
     from .common import emit_json
 
     bench = load_bench(args.bench)
-    simulated = (all(m.driver == "sim" for m in bench.mounts.values())
-                 and args.counter == "sim" and args.shutter in ("sim", "none"))
+    simulated = (
+        all(m.driver == "sim" for m in bench.mounts.values())
+        and args.counter == "sim"
+        and args.shutter in ("sim", "none")
+    )
     if args.yes and not simulated:
-        raise InputError("--yes is only for simulated benches; at a real bench confirm each "
-                         "check yourself")
+        raise InputError(
+            "--yes is only for simulated benches; at a real bench confirm each check yourself"
+        )
     print(SAFETY, file=sys.stderr)
     lines: list[str] = []
 
@@ -105,15 +124,34 @@ def _run_recipe(args: argparse.Namespace, recipe: object) -> int:
         if not args.json:
             print(text, flush=True)
 
-    specs = {"counter": args.counter, "counter_profile": args.counter_profile,
-             "shutter": args.shutter, "shutter_profile": args.shutter_profile}
-    result = run_recipe(recipe, bench, confirm=(lambda _text: True) if args.yes else _ask,  # type: ignore[arg-type]
-                        report=report, db=args.db, seed=args.seed, device_specs=specs)
+    specs = {
+        "counter": args.counter,
+        "counter_profile": args.counter_profile,
+        "shutter": args.shutter,
+        "shutter_profile": args.shutter_profile,
+    }
+    result = run_recipe(
+        recipe,
+        bench,
+        confirm=(lambda _text: True) if args.yes else _ask,  # type: ignore[arg-type]
+        report=report,
+        db=args.db,
+        seed=args.seed,
+        device_specs=specs,
+    )
     if args.json:
-        emit_json({"recipe": result.recipe, "completed": result.completed,
-                   "message": result.message, "lines": lines,
-                   "steps": [{"index": o.index, "do": o.do, "message": o.message,
-                              "values": o.values} for o in result.outcomes]})
+        emit_json(
+            {
+                "recipe": result.recipe,
+                "completed": result.completed,
+                "message": result.message,
+                "lines": lines,
+                "steps": [
+                    {"index": o.index, "do": o.do, "message": o.message, "values": o.values}
+                    for o in result.outcomes
+                ],
+            }
+        )
     else:
         print(result.message)
     return 0 if result.completed else 1

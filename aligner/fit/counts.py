@@ -60,13 +60,16 @@ __all__ = ["LeakMeasurement", "Verdict", "compare", "format_sigma", "measure_lea
 CONSISTENT_SIGMA = 2.0
 
 _WORDS = {
-    "rate": ("high: the null has drifted or the analyzer leaks",
-             "low: less light than predicted; check the photon rate, the detector efficiency "
-             "and the beam path in the bench file"),
-    "floor": ("high: the leak floor is above the bench's prediction; the analyzer or source "
-              "extinction is worse than the file says, or a plate's retardance is off",
-              "low: the floor is below the bench's prediction; the file understates the "
-              "extinction"),
+    "rate": (
+        "high: the null has drifted or the analyzer leaks",
+        "low: less light than predicted; check the photon rate, the detector efficiency "
+        "and the beam path in the bench file",
+    ),
+    "floor": (
+        "high: the leak floor is above the bench's prediction; the analyzer or source "
+        "extinction is worse than the file says, or a plate's retardance is off",
+        "low: the floor is below the bench's prediction; the file understates the extinction",
+    ),
 }
 
 
@@ -99,8 +102,11 @@ def compare(measured: float, error: float, predicted: float, kind: str = "rate")
     if abs(residual) <= CONSISTENT_SIGMA:
         return Verdict(residual, "consistent", f"consistent ({format_sigma(residual)})")
     high, low = _WORDS[kind]
-    return (Verdict(residual, "high", f"{high} ({format_sigma(residual)})") if residual > 0
-            else Verdict(residual, "low", f"{low} ({format_sigma(residual)})"))
+    return (
+        Verdict(residual, "high", f"{high} ({format_sigma(residual)})")
+        if residual > 0
+        else Verdict(residual, "low", f"{low} ({format_sigma(residual)})")
+    )
 
 
 @dataclass(frozen=True)
@@ -149,15 +155,24 @@ class LeakMeasurement:
     def to_json(self) -> dict[str, Any]:
         """The JSON document of ``aligner leak --json``."""
         doc: dict[str, Any] = {
-            "counts": self.counts, "dwell_s": self.dwell_s, "level": self.level,
-            "method": self.method, "signal_rate": self.signal_rate,
-            "signal_rate_low": self.signal_rate_low, "signal_rate_high": self.signal_rate_high,
-            "dark_rate": self.dark_rate, "leak": self.leak, "leak_low": self.leak_low,
-            "leak_high": self.leak_high, "reference": self.reference,
+            "counts": self.counts,
+            "dwell_s": self.dwell_s,
+            "level": self.level,
+            "method": self.method,
+            "signal_rate": self.signal_rate,
+            "signal_rate_low": self.signal_rate_low,
+            "signal_rate_high": self.signal_rate_high,
+            "dark_rate": self.dark_rate,
+            "leak": self.leak,
+            "leak_low": self.leak_low,
+            "leak_high": self.leak_high,
+            "reference": self.reference,
             "mean_photons_per_pulse": self.mean_photons_per_pulse,
             "mean_photons_given_click": self.mean_photons_given_click,
-            "predicted_rate": self.predicted_rate, "notes": list(self.notes),
-            "raw_rate": self.raw_rate, "dead_time_s": self.dead_time_s,
+            "predicted_rate": self.predicted_rate,
+            "notes": list(self.notes),
+            "raw_rate": self.raw_rate,
+            "dead_time_s": self.dead_time_s,
             "dead_time_corrected_rate": self.dead_time_corrected_rate,
             "reference_raw_rate": self.reference_raw_rate,
             "reference_corrected_rate": self.reference_corrected_rate,
@@ -188,10 +203,12 @@ def _exposure_warning(what: str, rate: float, safe_rate: float) -> str | None:
     """A plain safety warning when the detector saw ``rate`` (counts/s) above ``safe_rate``."""
     if not rate > safe_rate:
         return None
-    return (f"SAFETY: the detector was exposed to {rate:.4g} counts/s on the {what}, above its "
-            f"safe rate of {safe_rate:.4g} counts/s (bench file, detector.safe_rate). Check the "
-            "attenuation before the next bright measurement; follow your local laser-safety "
-            "rules and your laser safety officer.")
+    return (
+        f"SAFETY: the detector was exposed to {rate:.4g} counts/s on the {what}, above its "
+        f"safe rate of {safe_rate:.4g} counts/s (bench file, detector.safe_rate). Check the "
+        "attenuation before the next bright measurement; follow your local laser-safety "
+        "rules and your laser safety officer."
+    )
 
 
 def measure_leak(
@@ -237,15 +254,21 @@ def measure_leak(
         rep = _positive(rep_rate_hz, "--rep-rate")
         if dark is not None:
             dark_probability = _whole(dark, "--dark") / (rep * t_dark)
-        p_floor = (float(garwood(dark, level)[0]) / (rep * t_dark) if dark is not None
-                   else dark_probability)
+        p_floor = (
+            float(garwood(dark, level)[0]) / (rep * t_dark)
+            if dark is not None
+            else dark_probability
+        )
         n_low, n_high = (float(x) for x in clopper_pearson(k, rep * t, level))
         low_high = np.array([n_low, n_high]) * rep * t  # click counts
 
         def signal(clicks: np.ndarray, dark_level: float) -> np.ndarray:
             p_click = click_probability_from_rate(clicks / t, rep, tau)
-            return mean_photons_from_clicks(np.minimum(p_click, 1.0), efficiency,
-                                            dark_level) * efficiency * rep
+            return (
+                mean_photons_from_clicks(np.minimum(p_click, 1.0), efficiency, dark_level)
+                * efficiency
+                * rep
+            )
 
         corrected = float(click_probability_from_rate(raw, rep, tau)) * rep
         background = float(pulsed_measured_rate(dark_probability, rep, tau)) * t
@@ -258,9 +281,11 @@ def measure_leak(
         if dark is not None:
             dark_rate = _whole(dark, "--dark") / t_dark
             d_low, d_high = garwood(dark, level)
-            notes.append(f"dark measured: {dark_rate:.4g} counts/s, its own interval "
-                         f"{d_low / t_dark:.4g} to {d_high / t_dark:.4g} counts/s is not "
-                         "folded into the leak interval")
+            notes.append(
+                f"dark measured: {dark_rate:.4g} counts/s, its own interval "
+                f"{d_low / t_dark:.4g} to {d_high / t_dark:.4g} counts/s is not "
+                "folded into the leak interval"
+            )
         low_high = np.array([float(x) for x in garwood(k, level)])
 
         def signal(n: np.ndarray, dark_level: float) -> np.ndarray:
@@ -282,16 +307,22 @@ def measure_leak(
         # a smaller dark gives a higher limit: take the dark's lower bound (conservative)
         limit = float(poisson_upper_limit(k, floor, credibility))
         rates = np.array([0.0, 0.0, float(signal(np.array([floor + limit]), dark_floor)[0])])
-        method = (f"upper limit: counts at or below the dark level ({background:.4g} dark "
-                  "counts expected in the gate); Bayesian flat-prior limit over the dark "
-                  f"(Helene 1983) at {credibility:.2%}, with the dark at its lower bound")
-        notes.append(f"the counts are at or below the dark level: the signal is below "
-                     f"{rates[2]:.4g} counts/s ({credibility:.2%} upper limit), no interval")
+        method = (
+            f"upper limit: counts at or below the dark level ({background:.4g} dark "
+            "counts expected in the gate); Bayesian flat-prior limit over the dark "
+            f"(Helene 1983) at {credibility:.2%}, with the dark at its lower bound"
+        )
+        notes.append(
+            f"the counts are at or below the dark level: the signal is below "
+            f"{rates[2]:.4g} counts/s ({credibility:.2%} upper limit), no interval"
+        )
         chance = float(poisson.cdf(k, background))
         if chance < 0.01:
-            notes.append(f"{k} counts are improbably few for {background:.4g} expected dark "
-                         f"counts (probability {chance:.2g}): the dark measurement may not "
-                         "apply (another gate, detector or temperature?)")
+            notes.append(
+                f"{k} counts are improbably few for {background:.4g} expected dark "
+                f"counts (probability {chance:.2g}): the dark measurement may not "
+                "apply (another gate, detector or temperature?)"
+            )
     if pulsed:
         cond = photon_conditioning(rates[1] / (efficiency * rep), efficiency, dark_probability)
         mean_mu, given_click = float(rates[1] / (efficiency * rep)), float(cond.mean_given_click)
@@ -302,8 +333,9 @@ def measure_leak(
     ref_text = ref_raw = ref_corrected = None
     if reference is not None:
         k_ref = _whole(reference, "--reference")
-        t_ref = _positive(reference_dwell_s if reference_dwell_s is not None else t,
-                          "--reference-dwell")
+        t_ref = _positive(
+            reference_dwell_s if reference_dwell_s is not None else t, "--reference-dwell"
+        )
         ref_raw = k_ref / t_ref
         ref_corrected = float(true_rate(ref_raw, tau))
         if ref_corrected <= 0:
@@ -319,15 +351,18 @@ def measure_leak(
             r_low, r_high = (float(x) for x in poisson_ratio_interval(k, k_ref, level))
             measured = np.array([r_low, k / max(k_ref, 1e-300), r_high]) * t_ref / t
             factor = (corrected / raw if k else 1.0) / (ref_corrected / ref_raw)
-            ratio = np.maximum(measured * factor - dark_used / ref_corrected,
-                               0.0) / relative_efficiency
+            ratio = (
+                np.maximum(measured * factor - dark_used / ref_corrected, 0.0) / relative_efficiency
+            )
             method += "; leak by Clopper-Pearson on the count ratio"
         leak_b = ratio / (1 + ratio) if reference_kind == "port" else ratio
         leak_low, leak, leak_high = (float(x) for x in leak_b)
         ref_text = f"{reference_kind} reference: {k_ref} counts in {t_ref:g} s"
         if pulsed:
-            notes.append("pulsed mode: the leak ratio treats the reference counts as clicks "
-                         "of a linear detector; use --reference-rate for a bright reference")
+            notes.append(
+                "pulsed mode: the leak ratio treats the reference counts as clicks "
+                "of a linear detector; use --reference-rate for a bright reference"
+            )
     elif reference_rate is not None:
         r = _positive(reference_rate, "--reference-rate")
         leak_low, leak, leak_high = (float(x) for x in rates / r)
@@ -335,14 +370,39 @@ def measure_leak(
             warnings.append(_exposure_warning("reference", r, safe_rate))
             ref_text = f"reference rate {r:g} counts/s (measured)"
         else:
-            ref_text = (f"reference rate {r:g} counts/s (the bench's photon rate times the "
-                        "detector efficiency: the leak per source photon)")
+            ref_text = (
+                f"reference rate {r:g} counts/s (the bench's photon rate times the "
+                "detector efficiency: the leak per source photon)"
+            )
     low, mid, high = (float(x) for x in rates)
     verdict = None
     if predicted_rate is not None:
         error = (mid - low) if predicted_rate < mid else (high - mid)
         verdict = compare(mid, error, float(predicted_rate))
-    return LeakMeasurement(k, t, level, method, mid, low, high, dark_used, leak, leak_low,
-                           leak_high, ref_text, mean_mu, given_click, predicted_rate, verdict,
-                           tuple(notes), raw, tau, corrected, ref_raw, ref_corrected, below,
-                           credibility, tuple(w for w in warnings if w))
+    return LeakMeasurement(
+        k,
+        t,
+        level,
+        method,
+        mid,
+        low,
+        high,
+        dark_used,
+        leak,
+        leak_low,
+        leak_high,
+        ref_text,
+        mean_mu,
+        given_click,
+        predicted_rate,
+        verdict,
+        tuple(notes),
+        raw,
+        tau,
+        corrected,
+        ref_raw,
+        ref_corrected,
+        below,
+        credibility,
+        tuple(w for w in warnings if w),
+    )

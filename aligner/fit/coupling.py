@@ -56,24 +56,36 @@ class CouplingFit:
     def bench_comparison(self) -> str:
         """The fitted strength against the bench file's, in words."""
         if not math.isfinite(self.bench_difference_sigma):
-            return (f"the bench file's coupling.strength is {self.bench_strength:.5g} "
-                    f"{self.units}; no comparison (the error of the fit is unknown)")
+            return (
+                f"the bench file's coupling.strength is {self.bench_strength:.5g} "
+                f"{self.units}; no comparison (the error of the fit is unknown)"
+            )
         far = abs(self.bench_difference_sigma) > 2.0
-        return (f"fitted {self.strength:.5g} {self.units} against the bench file's "
-                f"coupling.strength {self.bench_strength:.5g} "
-                f"({format_sigma(self.bench_difference_sigma)}): "
-                + ("they differ; store the fitted value (--write) if the scan is sound"
-                   if far else "consistent"))
+        return (
+            f"fitted {self.strength:.5g} {self.units} against the bench file's "
+            f"coupling.strength {self.bench_strength:.5g} "
+            f"({format_sigma(self.bench_difference_sigma)}): "
+            + (
+                "they differ; store the fitted value (--write) if the scan is sound"
+                if far
+                else "consistent"
+            )
+        )
 
     def to_json(self) -> dict[str, Any]:
         """The JSON document of ``aligner fit coupling --json``."""
         return {
-            "fit": "coupling", "mount": self.mount, "units": self.units,
-            "strength": self.strength, "strength_err": self.strength_err,
+            "fit": "coupling",
+            "mount": self.mount,
+            "units": self.units,
+            "strength": self.strength,
+            "strength_err": self.strength_err,
             "linear_strength": self.linear_strength,
             "linear_strength_err": self.linear_strength_err,
-            "linear_bias": self.linear_bias, "linear_bias_sigma": self.linear_bias_sigma,
-            "statement": self.statement, "bench_strength": self.bench_strength,
+            "linear_bias": self.linear_bias,
+            "linear_bias_sigma": self.linear_bias_sigma,
+            "statement": self.statement,
+            "bench_strength": self.bench_strength,
             "bench_difference_sigma": self.bench_difference_sigma,
             **self.fit.summary(),
         }
@@ -104,8 +116,10 @@ def fit_coupling(bench: Bench, scan: PointerScan, mount: str | None = None) -> C
     if not info > 0:
         from ..errors import InputError
 
-        raise InputError(f"{scan.path}: the weak value is zero at every point; the pointer "
-                         "readings say nothing about the coupling")
+        raise InputError(
+            f"{scan.path}: the weak value is zero at every point; the pointer "
+            "readings say nothing about the coupling"
+        )
     g_lin = float(np.sum(w * x * scan.pointer)) / info
     g_lin_err = 1 / math.sqrt(info)
     family = Gaussian(scan.pointer, scan.pointer_err)
@@ -114,22 +128,37 @@ def fit_coupling(bench: Bench, scan: PointerScan, mount: str | None = None) -> C
     grid = np.sign(g_lin or 1.0) * centre * np.geomspace(0.05, 50.0, 121)[:, None]
     start = grid[int(np.argmin(np.sum(family.residuals(model(grid)) ** 2, axis=-1)))]
     step = 1e-6 * max(abs(float(start[0])), c.strength)
-    fit = maximize_likelihood(model, family, start,
-                              ("strength",), [step])
+    fit = maximize_likelihood(model, family, start, ("strength",), [step])
     g, g_err = fit.value("strength"), fit.error("strength")
     bias = g_lin / g - 1 if g else math.nan
     bias_sigma = (g_lin - g) / g_err if g_err > 0 else math.nan
     if abs(bias_sigma) > BIAS_SIGMA:
-        statement = (f"the linear formula is biased here: it gives {g_lin:.5g} {c.units}, "
-                     f"{_percent(bias)} from the exact {g:.5g} ({format_sigma(bias_sigma)}); the "
-                     "shifts are outside the linear regime (|g A_w| is not small against the "
-                     "pointer width), so use the exact estimate")
+        statement = (
+            f"the linear formula is biased here: it gives {g_lin:.5g} {c.units}, "
+            f"{_percent(bias)} from the exact {g:.5g} ({format_sigma(bias_sigma)}); the "
+            "shifts are outside the linear regime (|g A_w| is not small against the "
+            "pointer width), so use the exact estimate"
+        )
     else:
-        statement = (f"the linear formula agrees within the error ({_percent(bias)}, "
-                     f"{format_sigma(bias_sigma)}): the points are in the linear regime")
+        statement = (
+            f"the linear formula agrees within the error ({_percent(bias)}, "
+            f"{format_sigma(bias_sigma)}): the points are in the linear regime"
+        )
     difference = (g - c.strength) / g_err if g_err > 0 else math.nan
-    return CouplingFit(name, c.units, g, g_err, g_lin, g_lin_err, bias, bias_sigma, statement,
-                       fit, float(c.strength), difference)
+    return CouplingFit(
+        name,
+        c.units,
+        g,
+        g_err,
+        g_lin,
+        g_lin_err,
+        bias,
+        bias_sigma,
+        statement,
+        fit,
+        float(c.strength),
+        difference,
+    )
 
 
 def _percent(value: float) -> str:

@@ -73,12 +73,15 @@ def _check(path: str, row: int, name: str, text: str, spec: Column) -> float:
     try:
         value = float(text)
     except ValueError:
-        raise DataFileError(f"{where}: {text.strip()!r} is not a number "
-                            f"(allowed: {spec.allowed()})") from None
-    bad = (not math.isfinite(value)
-           or (spec.whole and (value < 0 or value != int(value)))
-           or (spec.positive and value <= 0)
-           or (spec.minimum is not None and value < spec.minimum))
+        raise DataFileError(
+            f"{where}: {text.strip()!r} is not a number (allowed: {spec.allowed()})"
+        ) from None
+    bad = (
+        not math.isfinite(value)
+        or (spec.whole and (value < 0 or value != int(value)))
+        or (spec.positive and value <= 0)
+        or (spec.minimum is not None and value < spec.minimum)
+    )
     if bad:
         raise DataFileError(f"{where}: {text.strip()} is not allowed (allowed: {spec.allowed()})")
     return value
@@ -99,22 +102,27 @@ def _read_table(path: str | Path) -> tuple[str, list[str], list[list[str]]]:
     return name, [cell.strip() for cell in rows[0]], rows[1:]
 
 
-def read_columns(path: str | Path, columns: Mapping[str, Column],
-                 min_rows: int) -> dict[str, Real]:
+def read_columns(path: str | Path, columns: Mapping[str, Column], min_rows: int) -> dict[str, Real]:
     """Read the named columns of a CSV file as float arrays (absent optional ones left out)."""
     return _columns(*_read_table(path), columns, min_rows)
 
 
-def _columns(name: str, header: list[str], data: list[list[str]],
-             columns: Mapping[str, Column], min_rows: int) -> dict[str, Real]:
+def _columns(
+    name: str,
+    header: list[str],
+    data: list[list[str]],
+    columns: Mapping[str, Column],
+    min_rows: int,
+) -> dict[str, Real]:
     wanted = ", ".join(k for k, c in columns.items() if c.required)
     missing = [k for k, c in columns.items() if c.required and k not in header]
     if missing:
-        raise DataFileError(f"{name}: row 1 (header) lacks column(s) {', '.join(missing)}; "
-                            f"the header must name at least: {wanted}")
+        raise DataFileError(
+            f"{name}: row 1 (header) lacks column(s) {', '.join(missing)}; "
+            f"the header must name at least: {wanted}"
+        )
     if len(data) < min_rows:
-        raise DataFileError(f"{name}: {len(data)} data row(s); this fit needs at least "
-                            f"{min_rows}")
+        raise DataFileError(f"{name}: {len(data)} data row(s); this fit needs at least {min_rows}")
     out: dict[str, Real] = {}
     for key, spec in columns.items():
         if key not in header:
@@ -123,8 +131,10 @@ def _columns(name: str, header: list[str], data: list[list[str]],
         values = []
         for number, row in enumerate(data, start=2):
             if index >= len(row) or not row[index].strip():
-                raise DataFileError(f"{name}: row {number}, column {key!r}: the value is "
-                                    f"missing (allowed: {spec.allowed()})")
+                raise DataFileError(
+                    f"{name}: row {number}, column {key!r}: the value is "
+                    f"missing (allowed: {spec.allowed()})"
+                )
             values.append(_check(name, number, key, row[index], spec))
         out[key] = np.array(values)
     return out
@@ -142,9 +152,11 @@ def _mount(name: str, header: list[str], data: list[list[str]]) -> tuple[str | N
     for number, cell in enumerate(cells, start=2):
         if not cell or cell != first:
             problem = f"differs from {first!r} in row 2" if cell else "is empty"
-            raise DataFileError(f"{name}: row {number}, column {MOUNT_COLUMN!r}: {cell!r} "
-                                f"{problem}; a scan turns one mount, so every row must name "
-                                "the same mount (split the file by mount)")
+            raise DataFileError(
+                f"{name}: row {number}, column {MOUNT_COLUMN!r}: {cell!r} "
+                f"{problem}; a scan turns one mount, so every row must name "
+                "the same mount (split the file by mount)"
+            )
     return (first or None), export
 
 
@@ -180,13 +192,20 @@ def load_count_scan(path: str | Path, min_rows: int = 4) -> CountScan:
     """Read a count scan CSV (see the module docstring)."""
     table = _read_table(path)
     cols = _columns(*table, COUNT_COLUMNS, min_rows)
-    return CountScan(cols["reading_deg"], cols["counts"], cols.get("dwell_s"),
-                     cols.get("reference"), table[0], *_mount(*table))
+    return CountScan(
+        cols["reading_deg"],
+        cols["counts"],
+        cols.get("dwell_s"),
+        cols.get("reference"),
+        table[0],
+        *_mount(*table),
+    )
 
 
 def load_pointer_scan(path: str | Path, min_rows: int = 2) -> PointerScan:
     """Read a pointer scan CSV (see the module docstring)."""
     table = _read_table(path)
     cols = _columns(*table, POINTER_COLUMNS, min_rows)
-    return PointerScan(cols["reading_deg"], cols["pointer"], cols["pointer_err"], table[0],
-                       *_mount(*table))
+    return PointerScan(
+        cols["reading_deg"], cols["pointer"], cols["pointer_err"], table[0], *_mount(*table)
+    )

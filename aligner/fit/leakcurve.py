@@ -53,13 +53,16 @@ class LeakFit:
     def to_json(self) -> dict[str, Any]:
         """The JSON document of ``aligner fit leak --json``."""
         return {
-            "fit": "leak", "mount": self.mount,
+            "fit": "leak",
+            "mount": self.mount,
             "imbalance_offset_deg": self.imbalance_offset_deg,
             "imbalance_offset_err_deg": self.imbalance_offset_err_deg,
-            "leak_floor": self.leak_floor, "leak_floor_err": self.leak_floor_err,
+            "leak_floor": self.leak_floor,
+            "leak_floor_err": self.leak_floor_err,
             "implied_extinction": self.implied_extinction,
             "predicted_floor": self.predicted_floor,
-            "residual_sigma": self.verdict.residual_sigma, "verdict": self.verdict.text,
+            "residual_sigma": self.verdict.residual_sigma,
+            "verdict": self.verdict.text,
             **self.fit.summary(),
         }
 
@@ -75,8 +78,14 @@ def _bright_probability(bench: Bench, mount: str) -> float:
     return float(np.max(post_probability(bench, {mount: reading + np.linspace(0, 180, 721)})))
 
 
-def fit_leak_curve(bench: Bench, scan: CountScan, mount: str | None = None, *,
-                   dwell_s: float | None = None, dark_rate: float | None = None) -> LeakFit:
+def fit_leak_curve(
+    bench: Bench,
+    scan: CountScan,
+    mount: str | None = None,
+    *,
+    dwell_s: float | None = None,
+    dark_rate: float | None = None,
+) -> LeakFit:
     """Fit leak against imbalance (see the module docstring); ``mount`` defaults to the
     bench's ``imbalance_mount``."""
     name = require_mount(bench, mount, bench.imbalance_mount, "leak", scan)
@@ -93,27 +102,52 @@ def fit_leak_curve(bench: Bench, scan: CountScan, mount: str | None = None, *,
         cols = np.atleast_2d(theta)
         floor = np.exp(cols[:, 1:2])
         leak = (1 - floor) * np.sin(eps - np.deg2rad(cols[:, 0:1])) ** 2 + floor
-        rate = expected_rates(bright * np.exp(cols[:, 2:3]) * weights, leak, det.efficiency,
-                              dark, det.dead_time_ns * 1e-9,
-                              rep_rate_hz=det.rep_rate_hz if det.mode == "pulsed" else None,
-                              dark_probability=det.gate_dark_probability).measured_rate
+        rate = expected_rates(
+            bright * np.exp(cols[:, 2:3]) * weights,
+            leak,
+            det.efficiency,
+            dark,
+            det.dead_time_ns * 1e-9,
+            rep_rate_hz=det.rep_rate_hz if det.mode == "pulsed" else None,
+            dark_probability=det.gate_dark_probability,
+        ).measured_rate
         return rate * dwell
 
     family = Poisson(scan.counts)
     eps_deg = np.rad2deg(eps)
     span = float(np.ptp(eps_deg))
-    grid = np.array([[e0, math.log(predicted) + dl, 0.0]
-                     for e0 in np.linspace(eps_deg.min(), eps_deg.max(), 41)
-                     for dl in np.linspace(-4.0, 4.0, 9)])
+    grid = np.array(
+        [
+            [e0, math.log(predicted) + dl, 0.0]
+            for e0 in np.linspace(eps_deg.min(), eps_deg.max(), 41)
+            for dl in np.linspace(-4.0, 4.0, 9)
+        ]
+    )
     deviance = np.sum(family.residuals(model(grid)) ** 2, axis=-1)
     start = grid[int(np.argmin(deviance))]
-    bounds = (np.array([eps_deg.min() - span, math.log(1e-12), -8.0]),
-              np.array([eps_deg.max() + span, 0.0, 8.0]))
-    fit = maximize_likelihood(model, family, start,
-                              ("imbalance_offset_deg", "ln_leak_floor", "ln_rate_scale"),
-                              [1e-4, 1e-4, 1e-4], bounds)
+    bounds = (
+        np.array([eps_deg.min() - span, math.log(1e-12), -8.0]),
+        np.array([eps_deg.max() + span, 0.0, 8.0]),
+    )
+    fit = maximize_likelihood(
+        model,
+        family,
+        start,
+        ("imbalance_offset_deg", "ln_leak_floor", "ln_rate_scale"),
+        [1e-4, 1e-4, 1e-4],
+        bounds,
+    )
     floor = math.exp(fit.value("ln_leak_floor"))
     ln_err = fit.error("ln_leak_floor")
     verdict = compare(math.log(floor), ln_err, math.log(predicted), kind="floor")
-    return LeakFit(name, fit.value("imbalance_offset_deg"), fit.error("imbalance_offset_deg"),
-                   floor, floor * ln_err, 1 / floor, predicted, verdict, fit)
+    return LeakFit(
+        name,
+        fit.value("imbalance_offset_deg"),
+        fit.error("imbalance_offset_deg"),
+        floor,
+        floor * ln_err,
+        1 / floor,
+        predicted,
+        verdict,
+        fit,
+    )

@@ -139,10 +139,12 @@ class FitResult:
         """A plain goodness-of-fit warning when ``p_value < GOF_P_MIN``, else ``""``."""
         if not (self.dof > 0 and self.p_value < GOF_P_MIN):
             return ""
-        return (f"warning: the model does not describe the data (deviance {self.deviance:.1f} "
-                f"for {self.dof} degrees of freedom, p = {self.p_value:.2g}): the bench file "
-                "or the scan may be wrong (e.g. a drifting source, the wrong mount, a wrong "
-                "dark rate); the values and errors above are not to be trusted")
+        return (
+            f"warning: the model does not describe the data (deviance {self.deviance:.1f} "
+            f"for {self.dof} degrees of freedom, p = {self.p_value:.2g}): the bench file "
+            "or the scan may be wrong (e.g. a drifting source, the wrong mount, a wrong "
+            "dark rate); the values and errors above are not to be trusted"
+        )
 
     def value(self, name: str) -> float:
         """Estimate of the parameter ``name``."""
@@ -155,14 +157,22 @@ class FitResult:
     def summary(self) -> dict[str, object]:
         """The keys every fit's JSON shares: ``success``, ``message``, ``optimizer_message``,
         ``goodness_of_fit`` and ``points``."""
-        return {"success": self.success, "message": self.message,
-                "optimizer_message": self.optimizer_message,
-                "goodness_of_fit": self.goodness(), "points": self.n_points}
+        return {
+            "success": self.success,
+            "message": self.message,
+            "optimizer_message": self.optimizer_message,
+            "goodness_of_fit": self.goodness(),
+            "points": self.n_points,
+        }
 
     def goodness(self) -> dict[str, float | int]:
         """Goodness of fit as plain numbers (for JSON)."""
-        return {"deviance": self.deviance, "dof": self.dof, "p_value": self.p_value,
-                "reduced": self.deviance / self.dof if self.dof > 0 else math.nan}
+        return {
+            "deviance": self.deviance,
+            "dof": self.dof,
+            "p_value": self.p_value,
+            "reduced": self.deviance / self.dof if self.dof > 0 else math.nan,
+        }
 
 
 def _stencil(theta: Real, steps: Real) -> Real:
@@ -183,7 +193,7 @@ def _derivatives(means: Real, steps: Real) -> tuple[Real, Real, Real]:
     """Means, Jacobian (n, p) and Hessians (n, p, p) from the rows of :func:`_stencil`."""
     p = steps.size
     centre = means[0]
-    plus, minus = means[1:2 * p + 1:2], means[2:2 * p + 1:2]
+    plus, minus = means[1 : 2 * p + 1 : 2], means[2 : 2 * p + 1 : 2]
     jac = ((plus - minus) / (2 * steps[:, None])).T
     hess = np.empty((centre.size, p, p))
     for j in range(p):
@@ -191,7 +201,7 @@ def _derivatives(means: Real, steps: Real) -> tuple[Real, Real, Real]:
     row = 2 * p + 1
     for j in range(p):
         for k in range(j + 1, p):
-            pp, pm, mp, mm = means[row:row + 4]
+            pp, pm, mp, mm = means[row : row + 4]
             row += 4
             hess[:, j, k] = hess[:, k, j] = (pp - pm - mp + mm) / (4 * steps[j] * steps[k])
     return centre, jac, hess
@@ -236,24 +246,39 @@ def maximize_likelihood(
         return family.residual_slope(mu[0], r)[:, None] * jac_mu
 
     lo, hi = (np.full(p, -np.inf), np.full(p, np.inf)) if bounds is None else bounds
-    solution = least_squares(residuals, x0, jac=jacobian, bounds=(lo, hi), method="trf",
-                             x_scale="jac", xtol=1e-10, ftol=1e-10, gtol=1e-10, max_nfev=200)
+    solution = least_squares(
+        residuals,
+        x0,
+        jac=jacobian,
+        bounds=(lo, hi),
+        method="trf",
+        x_scale="jac",
+        xtol=1e-10,
+        ftol=1e-10,
+        gtol=1e-10,
+        max_nfev=200,
+    )
     theta = solution.x
     mu, jac_mu, hess_mu = _derivatives(means(_stencil(theta, h)), h)
     d1, d2 = family.nll_derivatives(mu)
     info = jac_mu.T @ (d2[:, None] * jac_mu) + np.einsum("i,ijk->jk", d1, hess_mu)
     success = bool(solution.success)
-    message = ("the fit converged" if success else
-               "the optimizer stopped before converging (too many evaluations); check the "
-               "scan covers the feature and the bench file's start values")
+    message = (
+        "the fit converged"
+        if success
+        else "the optimizer stopped before converging (too many evaluations); check the "
+        "scan covers the feature and the bench file's start values"
+    )
     try:
         np.linalg.cholesky(info)
         covariance = np.linalg.inv(info)
     except np.linalg.LinAlgError:
         covariance = np.full((p, p), np.nan)
         success = False
-        message = ("the observed information is not positive definite: the data do not "
-                   "determine every parameter (widen the scan or fix a parameter)")
+        message = (
+            "the observed information is not positive definite: the data do not "
+            "determine every parameter (widen the scan or fix a parameter)"
+        )
     at_bound = np.isclose(theta, lo) | np.isclose(theta, hi)
     if np.any(at_bound):
         success = False
@@ -261,9 +286,20 @@ def maximize_likelihood(
     deviance = float(np.sum(family.residuals(mu) ** 2))
     dof = family.size - p
     p_value = float(chi2.sf(deviance, dof)) if dof > 0 else math.nan
-    result = FitResult(tuple(names), theta, np.sqrt(np.diag(covariance)), covariance, success,
-                       message, deviance, dof, p_value, family.size, evaluations,
-                       str(solution.message))
+    result = FitResult(
+        tuple(names),
+        theta,
+        np.sqrt(np.diag(covariance)),
+        covariance,
+        success,
+        message,
+        deviance,
+        dof,
+        p_value,
+        family.size,
+        evaluations,
+        str(solution.message),
+    )
     if result.warning:
         return replace(result, message=f"{message}; {result.warning}")
     return result

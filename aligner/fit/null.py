@@ -58,14 +58,16 @@ class NullFit:
     def to_json(self) -> dict[str, Any]:
         """The JSON document of ``aligner fit null --json``."""
         return {
-            "fit": "null", "mount": self.mount,
+            "fit": "null",
+            "mount": self.mount,
             "null_reading_deg": self.null_reading_deg,
             "null_reading_err_deg": self.null_reading_err_deg,
             "offset_deg": self.offset_deg,
             "extinction_ratio": self.extinction_ratio,
             "extinction_ratio_err": self.extinction_ratio_err,
             "log_extinction_err": self.log_extinction_err,
-            "rate_scale": self.rate_scale, "rate_scale_err": self.rate_scale_err,
+            "rate_scale": self.rate_scale,
+            "rate_scale_err": self.rate_scale_err,
             "dark_rate": self.dark_rate,
             **self.fit.summary(),
         }
@@ -79,9 +81,15 @@ class NullFit:
         }
 
 
-def fit_null(bench: Bench, scan: CountScan, mount: str | None = None, *,
-             dwell_s: float | None = None, dark_rate: float | None = None,
-             free_scale: bool = True) -> NullFit:
+def fit_null(
+    bench: Bench,
+    scan: CountScan,
+    mount: str | None = None,
+    *,
+    dwell_s: float | None = None,
+    dark_rate: float | None = None,
+    free_scale: bool = True,
+) -> NullFit:
     """Fit an analyzer null scan (see the module docstring).
 
     ``mount`` defaults to the analyzer's mount; ``dwell_s`` is used when the scan has no
@@ -100,8 +108,9 @@ def fit_null(bench: Bench, scan: CountScan, mount: str | None = None, *,
         trial = with_offset(bench, name, offset0 + cols[:, 0:1])
         trial = with_analyzer_extinction(trial, np.exp(cols[:, 1:2]))
         scale = np.exp(cols[:, 2:3]) if free_scale else 1.0
-        rate = detected_rate(trial, {name: readings},
-                             bench.source.photon_rate * scale * weights, dark)
+        rate = detected_rate(
+            trial, {name: readings}, bench.source.photon_rate * scale * weights, dark
+        )
         return rate * dwell
 
     family = Poisson(scan.counts)
@@ -112,9 +121,13 @@ def fit_null(bench: Bench, scan: CountScan, mount: str | None = None, *,
     start = [shift0, log_er0, 0.0][: 3 if free_scale else 2]
     # a coarse look along the offset and ln ER axes gives a start inside the basin
     span = float(np.ptp(readings))
-    grid = np.array([[shift0 + ds, log_er0 + dl, 0.0][: len(start)]
-                     for ds in np.linspace(-0.05, 0.05, 11) * span
-                     for dl in np.linspace(-3.0, 3.0, 7)])
+    grid = np.array(
+        [
+            [shift0 + ds, log_er0 + dl, 0.0][: len(start)]
+            for ds in np.linspace(-0.05, 0.05, 11) * span
+            for dl in np.linspace(-3.0, 3.0, 7)
+        ]
+    )
     deviance = np.sum(family.residuals(model(grid)) ** 2, axis=-1)
     start = grid[int(np.argmin(deviance))]
     steps = [1e-4, 1e-4, 1e-4][: len(start)]
@@ -127,5 +140,16 @@ def fit_null(bench: Bench, scan: CountScan, mount: str | None = None, *,
     ln_er_err = fit.error("ln_extinction_ratio")
     scale = math.exp(fit.value("ln_rate_scale")) if free_scale else 1.0
     scale_err = scale * fit.error("ln_rate_scale") if free_scale else 0.0
-    return NullFit(name, nominal + shift, shift_err, offset0 + shift, er, er * ln_er_err,
-                   ln_er_err, scale, scale_err, dark, fit)
+    return NullFit(
+        name,
+        nominal + shift,
+        shift_err,
+        offset0 + shift,
+        er,
+        er * ln_er_err,
+        ln_er_err,
+        scale,
+        scale_err,
+        dark,
+        fit,
+    )

@@ -40,8 +40,9 @@ class Guard(Protocol):
 
     def rates(self, readings: Mapping[str, Any]) -> Any: ...
 
-    def plan_move(self, readings: Mapping[str, float], mount: str, target: float, *,
-                  shutter_open: bool = True) -> Any: ...
+    def plan_move(
+        self, readings: Mapping[str, float], mount: str, target: float, *, shutter_open: bool = True
+    ) -> Any: ...
 
     def moved(self, mount: str, reached: float) -> None: ...
 
@@ -70,19 +71,23 @@ class NullSearchResult:
     def to_json(self) -> dict[str, Any]:
         """The JSON document of ``aligner null --json``."""
         return {
-            "mount": self.mount, "null_reading_deg": self.null_reading_deg,
+            "mount": self.mount,
+            "null_reading_deg": self.null_reading_deg,
             "null_reading_err_deg": self.null_reading_err_deg,
             "final_reading_deg": self.final_reading_deg,
             "extinction_ratio": self.last_fit.extinction_ratio,
             "extinction_ratio_err": self.last_fit.extinction_ratio_err,
-            "rounds": self.rounds, "counter_reads": self.counter_reads,
-            "steps_deg": list(self.steps_deg), "converged": self.converged,
+            "rounds": self.rounds,
+            "counter_reads": self.counter_reads,
+            "steps_deg": list(self.steps_deg),
+            "converged": self.converged,
             "message": self.message,
         }
 
 
-def _safe_span(guard: Guard, readings: Mapping[str, float], name: str, centre: float,
-               largest: float) -> float:
+def _safe_span(
+    guard: Guard, readings: Mapping[str, float], name: str, centre: float, largest: float
+) -> float:
     """Half-width (deg) around ``centre`` where the predicted rate stays below half the
     guard's limit, at most ``largest``."""
     offsets = np.linspace(0.0, largest, 201)
@@ -98,18 +103,26 @@ def _safe_span(guard: Guard, readings: Mapping[str, float], name: str, centre: f
 def _check_options(span_deg: float, points: int, max_rounds: int, dwell_s: float) -> None:
     """One clear error per bad option, in the words of the CLI options of ``aligner null``."""
     problems = [
-        (not (math.isfinite(span_deg) and span_deg > 0),
-         f"the scan half-width span_deg (--span) must be a number of degrees > 0, got "
-         f"{span_deg!r}"),
-        (not (points >= 5 and points == int(points)),
-         f"the points per scan (points, --points) must be a whole number >= 5 (a null fit has "
-         f"up to 3 parameters), got {points!r}"),
-        (not (max_rounds >= 1 and max_rounds == int(max_rounds)),
-         f"the most scan-and-fit rounds (max_rounds, --rounds) must be a whole number >= 1, "
-         f"got {max_rounds!r}"),
-        (not (math.isfinite(dwell_s) and dwell_s > 0),
-         f"the gate per point dwell_s (--dwell) must be a number of seconds > 0, got "
-         f"{dwell_s!r}"),
+        (
+            not (math.isfinite(span_deg) and span_deg > 0),
+            f"the scan half-width span_deg (--span) must be a number of degrees > 0, got "
+            f"{span_deg!r}",
+        ),
+        (
+            not (points >= 5 and points == int(points)),
+            f"the points per scan (points, --points) must be a whole number >= 5 (a null fit has "
+            f"up to 3 parameters), got {points!r}",
+        ),
+        (
+            not (max_rounds >= 1 and max_rounds == int(max_rounds)),
+            f"the most scan-and-fit rounds (max_rounds, --rounds) must be a whole number >= 1, "
+            f"got {max_rounds!r}",
+        ),
+        (
+            not (math.isfinite(dwell_s) and dwell_s > 0),
+            f"the gate per point dwell_s (--dwell) must be a number of seconds > 0, got "
+            f"{dwell_s!r}",
+        ),
     ]
     bad = [text for failed, text in problems if failed]
     if bad:
@@ -139,14 +152,17 @@ def search_null(
     _check_options(span_deg, points, max_rounds, dwell_s)
     current = {**bench.readings(), **(readings or {})}
     current[name] = float(mount.position())
-    here = bench.with_mounts(**{k: replace(m, reading_deg=current[k])
-                                for k, m in bench.mounts.items()})
+    here = bench.with_mounts(
+        **{k: replace(m, reading_deg=current[k]) for k, m in bench.mounts.items()}
+    )
     resolution = bench.mounts[name].resolution_deg
     centre = null_reading_deg(here, name, bench.mounts[name].reading_deg, span_deg=10.0)
     span = _safe_span(guard, current, name, centre, span_deg)
     if span < 10 * resolution:
-        raise GuardTrip(f"null search: the predicted rate near the null of {name} is above "
-                        "the guard's limit; lower the source power before searching")
+        raise GuardTrip(
+            f"null search: the predicted rate near the null of {name} is above "
+            "the guard's limit; lower the source power before searching"
+        )
     taken: list[tuple[float, int]] = []
     if shutter is not None and not shutter.is_open():
         guard.check_point(float(np.asarray(guard.rates(current))), current)
@@ -196,11 +212,23 @@ def search_null(
         error = fit.null_reading_err_deg
         if step <= max(resolution, error if math.isfinite(error) else 0.0):
             converged = True
-            message = (f"converged: last step {step:.4f} deg is below the mount resolution "
-                       f"{resolution:g} deg or the statistical error {error:.4f} deg")
+            message = (
+                f"converged: last step {step:.4f} deg is below the mount resolution "
+                f"{resolution:g} deg or the statistical error {error:.4f} deg"
+            )
             break
         span = max(4 * error if math.isfinite(error) else span / 4, 5 * resolution, span / 4)
     assert fit is not None
     final = go(centre)
-    return NullSearchResult(name, fit.null_reading_deg, fit.null_reading_err_deg, final,
-                            len(steps), len(taken), tuple(steps), converged, message, fit)
+    return NullSearchResult(
+        name,
+        fit.null_reading_deg,
+        fit.null_reading_err_deg,
+        final,
+        len(steps),
+        len(taken),
+        tuple(steps),
+        converged,
+        message,
+        fit,
+    )

@@ -46,34 +46,47 @@ def _file_mount(bench: Bench, scan: CountScan | PointerScan | None) -> tuple[str
     if scan.mount:
         return scan.mount, "the file's mount column"
     if scan.run_export:
-        return bench.imbalance_mount, ("a run export without a mount column: readings of the "
-                                       "run's imbalance mount, taken to be this bench's "
-                                       "imbalance_mount")
+        return bench.imbalance_mount, (
+            "a run export without a mount column: readings of the "
+            "run's imbalance mount, taken to be this bench's "
+            "imbalance_mount"
+        )
     return None, ""
 
 
-def require_mount(bench: Bench, mount: str | None, default: str | None, what: str,
-                  scan: CountScan | PointerScan | None = None) -> str:
+def require_mount(
+    bench: Bench,
+    mount: str | None,
+    default: str | None,
+    what: str,
+    scan: CountScan | PointerScan | None = None,
+) -> str:
     """The mount a scan was taken with (``--mount``, else ``default``), checked against the
     bench and against the mount the scan file names (a mismatch is refused)."""
     file_mount, why = _file_mount(bench, scan)
     name = mount or default or file_mount
     if name is None:
-        raise InputError(f"say which mount the {what} scan turned (--mount; the bench has: "
-                         f"{', '.join(bench.mounts)})")
+        raise InputError(
+            f"say which mount the {what} scan turned (--mount; the bench has: "
+            f"{', '.join(bench.mounts)})"
+        )
     if name not in bench.mounts:
-        raise InputError(f"--mount {name!r}: no such mount; the bench has: "
-                         f"{', '.join(bench.mounts)}")
+        raise InputError(
+            f"--mount {name!r}: no such mount; the bench has: {', '.join(bench.mounts)}"
+        )
     if file_mount is not None and name != file_mount:
         asked = f"--mount {name!r}" if mount else f"{name!r} (the {what} fit's default mount)"
-        raise InputError(f"{scan.path}: the readings are of mount {file_mount!r} ({why}), but "
-                         f"the {what} fit was asked for {asked}; fit a scan of {name!r}, or "
-                         f"give --mount {file_mount} if that mount is the one to fit")
+        raise InputError(
+            f"{scan.path}: the readings are of mount {file_mount!r} ({why}), but "
+            f"the {what} fit was asked for {asked}; fit a scan of {name!r}, or "
+            f"give --mount {file_mount} if that mount is the one to fit"
+        )
     return name
 
 
-def mount_statement(bench: Bench, scan: CountScan | PointerScan, mount: str | None,
-                    name: str) -> str:
+def mount_statement(
+    bench: Bench, scan: CountScan | PointerScan, mount: str | None, name: str
+) -> str:
     """In words, which mount the readings of ``scan`` were taken to belong to and why
     (``mount`` is what ``--mount`` gave, ``name`` the mount fitted)."""
     file_mount, why = _file_mount(bench, scan)
@@ -81,26 +94,36 @@ def mount_statement(bench: Bench, scan: CountScan | PointerScan, mount: str | No
         return f"readings of mount {name!r} ({why})"
     if mount:
         return f"readings taken to belong to mount {name!r} (--mount; the file does not say)"
-    return (f"readings taken to belong to mount {name!r} (the default for this fit; the file "
-            "does not say: give --mount if the scan turned another mount)")
+    return (
+        f"readings taken to belong to mount {name!r} (the default for this fit; the file "
+        "does not say: give --mount if the scan turned another mount)"
+    )
 
 
 def post_probability(bench: Bench, readings: dict[str, ArrayLike]) -> Real:
     """Exact post-selection probability per source photon (pointer overlap included)."""
     fwd = forward(bench, readings)
     c = bench.coupling
-    return pointer_response(fwd.rho, fwd.effect, coupling_observable(bench), c.strength,
-                            c.pointer_sigma).probability
+    return pointer_response(
+        fwd.rho, fwd.effect, coupling_observable(bench), c.strength, c.pointer_sigma
+    ).probability
 
 
-def detected_rate(bench: Bench, readings: dict[str, ArrayLike], photon_rate: ArrayLike,
-                  dark_rate: float | None = None) -> Real:
+def detected_rate(
+    bench: Bench,
+    readings: dict[str, ArrayLike],
+    photon_rate: ArrayLike,
+    dark_rate: float | None = None,
+) -> Real:
     """Measured count rate (counts/s) at ``readings`` for a source ``photon_rate`` (photons/s);
     ``dark_rate`` (counts/s) overrides the bench detector's."""
     d = bench.detector
     return expected_rates(
-        photon_rate, post_probability(bench, readings), d.efficiency,
-        d.dark_rate if dark_rate is None else dark_rate, d.dead_time_ns * 1e-9,
+        photon_rate,
+        post_probability(bench, readings),
+        d.efficiency,
+        d.dark_rate if dark_rate is None else dark_rate,
+        d.dead_time_ns * 1e-9,
         rep_rate_hz=d.rep_rate_hz if d.mode == "pulsed" else None,
         dark_probability=d.gate_dark_probability,
     ).measured_rate
@@ -111,8 +134,9 @@ def dwell_per_point(scan: CountScan, dwell_s: float | None) -> Real:
     if scan.dwell_s is not None:
         return scan.dwell_s
     if dwell_s is None or not dwell_s > 0:
-        raise InputError(f"{scan.path}: the file has no dwell_s column; give the gate time "
-                         "with --dwell SECONDS")
+        raise InputError(
+            f"{scan.path}: the file has no dwell_s column; give the gate time with --dwell SECONDS"
+        )
     return np.full(scan.counts.shape, float(dwell_s))
 
 
@@ -122,8 +146,10 @@ def reference_weights(scan: CountScan) -> Real:
         return np.ones_like(scan.counts)
     mean = float(np.mean(scan.reference))
     if mean <= 0:
-        raise InputError(f"{scan.path}: the reference column is all zero; it must hold the "
-                         "counts of a reference port or monitor")
+        raise InputError(
+            f"{scan.path}: the reference column is all zero; it must hold the "
+            "counts of a reference port or monitor"
+        )
     return scan.reference / mean
 
 
@@ -142,16 +168,22 @@ def plate_element(bench: Bench, mount: str) -> Element:
     for element in (*bench.pre, *bench.post):
         if element.mount == mount and element.type in ("hwp", "qwp", "retarder"):
             return element
-    raise InputError(f"--mount {mount!r} holds no waveplate; a waveplate fit needs the mount "
-                     "of an hwp, qwp or retarder")
+    raise InputError(
+        f"--mount {mount!r} holds no waveplate; a waveplate fit needs the mount "
+        "of an hwp, qwp or retarder"
+    )
 
 
 def with_retardance(bench: Bench, mount: str, waves: ArrayLike) -> Bench:
     """The bench with the retardance (waves) of the plate on ``mount`` replaced."""
+
     def swap(chain: tuple[Element, ...]) -> tuple[Element, ...]:
-        return tuple(replace(e, retardance_waves=waves)
-                     if e.mount == mount and e.type in ("hwp", "qwp", "retarder") else e
-                     for e in chain)
+        return tuple(
+            replace(e, retardance_waves=waves)
+            if e.mount == mount and e.type in ("hwp", "qwp", "retarder")
+            else e
+            for e in chain
+        )
 
     return replace(bench, pre=swap(bench.pre), post=swap(bench.post))
 
@@ -168,6 +200,10 @@ def null_reading_deg(bench: Bench, mount: str, near_deg: float, span_deg: float 
     lo, hi = grid[max(i - 1, 0)], grid[min(i + 1, grid.size - 1)]
     if hi - lo < step:
         return float(grid[i])
-    best = minimize_scalar(lambda r: float(post_probability(bench, {mount: r})),
-                           bounds=(lo, hi), method="bounded", options={"xatol": 1e-7})
+    best = minimize_scalar(
+        lambda r: float(post_probability(bench, {mount: r})),
+        bounds=(lo, hi),
+        method="bounded",
+        options={"xatol": 1e-7},
+    )
     return float(best.x)

@@ -54,22 +54,26 @@ class WaveplateFit:
         x = self.fast_axis_reading_deg
         r = self.retardance_waves
         other = math.ceil(r) - r if r % 1 else 1.0
-        return (f"Counts between linear polarizers cannot tell the fast axis from the slow axis: "
-                f"reading {x:.3f} deg and {x + 90:.3f} deg (or {x - 90:.3f} deg) fit equally "
-                f"well, and so do retardances of {r:.4f} and {other:.4f} waves (modulo whole "
-                "waves). The result is the solution nearest the bench file; check the fast "
-                "axis once against a marked plate or a circular-polarization test.")
+        return (
+            f"Counts between linear polarizers cannot tell the fast axis from the slow axis: "
+            f"reading {x:.3f} deg and {x + 90:.3f} deg (or {x - 90:.3f} deg) fit equally "
+            f"well, and so do retardances of {r:.4f} and {other:.4f} waves (modulo whole "
+            "waves). The result is the solution nearest the bench file; check the fast "
+            "axis once against a marked plate or a circular-polarization test."
+        )
 
     def to_json(self) -> dict[str, Any]:
         """The JSON document of ``aligner fit waveplate --json``."""
         return {
-            "fit": "waveplate", "mount": self.mount,
+            "fit": "waveplate",
+            "mount": self.mount,
             "fast_axis_reading_deg": self.fast_axis_reading_deg,
             "fast_axis_err_deg": self.fast_axis_err_deg,
             "fast_axis_alternative_deg": self.fast_axis_reading_deg + 90.0,
             "retardance_waves": self.retardance_waves,
             "retardance_err_waves": self.retardance_err_waves,
-            "rate_scale": self.rate_scale, "ambiguity": self.ambiguity,
+            "rate_scale": self.rate_scale,
+            "ambiguity": self.ambiguity,
             **self.fit.summary(),
         }
 
@@ -77,13 +81,21 @@ class WaveplateFit:
         """Dotted bench keys for :func:`aligner.bench.write_values`: the mount offset (the
         reading of the fast axis) and its error. The retardance is reported, not written:
         ``write_values`` addresses tables by name, not entries of ``[[pre]]``/``[[post]]``."""
-        return {f"mounts.{self.mount}.offset_deg": round(self.fast_axis_reading_deg, 6),
-                f"mounts.{self.mount}.offset_err_deg": round(self.fast_axis_err_deg, 6)}
+        return {
+            f"mounts.{self.mount}.offset_deg": round(self.fast_axis_reading_deg, 6),
+            f"mounts.{self.mount}.offset_err_deg": round(self.fast_axis_err_deg, 6),
+        }
 
 
-def fit_waveplate(bench: Bench, scan: CountScan, mount: str | None = None, *,
-                  dwell_s: float | None = None, dark_rate: float | None = None,
-                  free_scale: bool = False) -> WaveplateFit:
+def fit_waveplate(
+    bench: Bench,
+    scan: CountScan,
+    mount: str | None = None,
+    *,
+    dwell_s: float | None = None,
+    dark_rate: float | None = None,
+    free_scale: bool = False,
+) -> WaveplateFit:
     """Fit a waveplate scan (see the module docstring); ``mount`` defaults to the bench's
     ``phase_mount``."""
     name = require_mount(bench, mount, bench.phase_mount, "waveplate", scan)
@@ -95,17 +107,24 @@ def fit_waveplate(bench: Bench, scan: CountScan, mount: str | None = None, *,
 
     def model(theta: np.ndarray) -> np.ndarray:
         cols = np.atleast_2d(theta)
-        trial = with_retardance(with_offset(bench, name, offset0 + cols[:, 0:1]), name,
-                                waves0 + cols[:, 1:2])
+        trial = with_retardance(
+            with_offset(bench, name, offset0 + cols[:, 0:1]), name, waves0 + cols[:, 1:2]
+        )
         scale = np.exp(cols[:, 2:3]) if free_scale else 1.0
-        rate = detected_rate(trial, {name: scan.reading_deg},
-                             bench.source.photon_rate * scale * weights, dark_rate)
+        rate = detected_rate(
+            trial, {name: scan.reading_deg}, bench.source.photon_rate * scale * weights, dark_rate
+        )
         return rate * dwell
 
     family = Poisson(scan.counts)
     size = 3 if free_scale else 2
-    grid = np.array([[ds, dr, 0.0][:size] for ds in np.arange(-45.0, 45.0, 2.5)
-                     for dr in np.linspace(-0.12, 0.12, 7)])
+    grid = np.array(
+        [
+            [ds, dr, 0.0][:size]
+            for ds in np.arange(-45.0, 45.0, 2.5)
+            for dr in np.linspace(-0.12, 0.12, 7)
+        ]
+    )
     deviance = np.sum(family.residuals(model(grid)) ** 2, axis=-1)
     start = grid[int(np.argmin(deviance))]
     names = ("offset_shift_deg", "retardance_shift_waves", "ln_rate_scale")[:size]
@@ -113,6 +132,12 @@ def fit_waveplate(bench: Bench, scan: CountScan, mount: str | None = None, *,
     fit = maximize_likelihood(model, family, start, names, [1e-4] * size, bounds)
     shift = fit.value("offset_shift_deg")
     scale = math.exp(fit.value("ln_rate_scale")) if free_scale else 1.0
-    return WaveplateFit(name, offset0 + shift, fit.error("offset_shift_deg"),
-                        waves0 + fit.value("retardance_shift_waves"),
-                        fit.error("retardance_shift_waves"), scale, fit)
+    return WaveplateFit(
+        name,
+        offset0 + shift,
+        fit.error("offset_shift_deg"),
+        waves0 + fit.value("retardance_shift_waves"),
+        fit.error("retardance_shift_waves"),
+        scale,
+        fit,
+    )

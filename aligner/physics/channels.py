@@ -125,8 +125,11 @@ class Polarizer:
         along = c * s[..., 1] + t * s[..., 2]
         passed = 0.5 * (s[..., 0] + along)
         blocked = 0.5 * (s[..., 0] - along) * leak
-        out = np.empty(np.broadcast_shapes(s.shape, (*np.shape(c), 4), (*np.shape(leak), 4),
-                                           (*np.shape(trans), 4)))
+        out = np.empty(
+            np.broadcast_shapes(
+                s.shape, (*np.shape(c), 4), (*np.shape(leak), 4), (*np.shape(trans), 4)
+            )
+        )
         out[..., 0] = trans * (passed + blocked)
         polarized = trans * (passed - blocked)
         out[..., 1] = polarized * c

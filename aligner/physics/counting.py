@@ -80,8 +80,7 @@ def garwood(k: ArrayLike, level: float = DEFAULT_LEVEL) -> tuple[Real, Real]:
     return low, high
 
 
-def poisson_upper_limit(k: ArrayLike, background: ArrayLike,
-                        credibility: float) -> Real:
+def poisson_upper_limit(k: ArrayLike, background: ArrayLike, credibility: float) -> Real:
     """Upper limit on the signal mean ``s >= 0`` from ``k`` counts over a known background mean
     ``b`` (counts): Bayesian with a flat prior on ``s`` (Helene, Nucl. Instrum. Methods 212,
     319 (1983)), the limit ``s_up`` solving
@@ -108,8 +107,9 @@ def poisson_upper_limit(k: ArrayLike, background: ArrayLike,
     return np.maximum(np.where(q > 0, exact, tail), 0.0)
 
 
-def poisson_ratio_interval(k1: ArrayLike, k2: ArrayLike,
-                           level: float = DEFAULT_LEVEL) -> tuple[Real, Real]:
+def poisson_ratio_interval(
+    k1: ArrayLike, k2: ArrayLike, level: float = DEFAULT_LEVEL
+) -> tuple[Real, Real]:
     """Exact conditional interval ``(low, high)`` for ``lambda1 / lambda2`` from Poisson counts
     ``k1``, ``k2`` taken over equal times.
 
@@ -135,8 +135,9 @@ class PhotonConditioning:
     mean_given_no_click: Real
 
 
-def photon_conditioning(mean: ArrayLike, efficiency: ArrayLike,
-                        dark_probability: ArrayLike = 0.0) -> PhotonConditioning:
+def photon_conditioning(
+    mean: ArrayLike, efficiency: ArrayLike, dark_probability: ArrayLike = 0.0
+) -> PhotonConditioning:
     """Photon-number conditioning of a threshold detector on a coherent (Poisson) pulse.
 
     Each photon is detected independently with probability ``efficiency``, so the detected and

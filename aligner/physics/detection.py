@@ -57,16 +57,18 @@ def true_rate(measured_rate: ArrayLike, dead_time_s: ArrayLike) -> Real:
         return np.where(live > 0, m / np.where(live > 0, live, 1.0), np.inf)
 
 
-def click_probability(mean_photons_per_pulse: ArrayLike, efficiency: ArrayLike,
-                      dark_probability: ArrayLike = 0.0) -> Real:
+def click_probability(
+    mean_photons_per_pulse: ArrayLike, efficiency: ArrayLike, dark_probability: ArrayLike = 0.0
+) -> Real:
     """Click probability per pulse of a threshold detector: ``1 - (1 - p_d) exp(-eta mu)``."""
     mu = np.asarray(mean_photons_per_pulse, float)
     eta = np.asarray(efficiency, float)
     return 1.0 - (1.0 - np.asarray(dark_probability, float)) * np.exp(-eta * mu)
 
 
-def mean_photons_from_clicks(click_probability: ArrayLike, efficiency: ArrayLike,
-                             dark_probability: ArrayLike = 0.0) -> Real:
+def mean_photons_from_clicks(
+    click_probability: ArrayLike, efficiency: ArrayLike, dark_probability: ArrayLike = 0.0
+) -> Real:
     """Mean photons per pulse (before the detector's efficiency) behind a click probability:
     ``mu = -ln((1 - P) / (1 - p_d)) / eta``.
 
@@ -86,8 +88,9 @@ def pulses_blocked(dead_time_s: ArrayLike, rep_rate_hz: ArrayLike) -> Real:
     return np.maximum(np.ceil(periods * (1 - 1e-12)) - 1.0, 0.0)
 
 
-def pulsed_measured_rate(click_probability: ArrayLike, rep_rate_hz: ArrayLike,
-                         dead_time_s: ArrayLike = 0.0) -> Real:
+def pulsed_measured_rate(
+    click_probability: ArrayLike, rep_rate_hz: ArrayLike, dead_time_s: ArrayLike = 0.0
+) -> Real:
     """Counted clicks per second in pulsed mode: ``R P / (1 + k P)``, ``k`` from
     :func:`pulses_blocked`."""
     p = np.asarray(click_probability, float)
@@ -95,8 +98,9 @@ def pulsed_measured_rate(click_probability: ArrayLike, rep_rate_hz: ArrayLike,
     return rep * p / (1.0 + pulses_blocked(dead_time_s, rep) * p)
 
 
-def click_probability_from_rate(measured_rate: ArrayLike, rep_rate_hz: ArrayLike,
-                                dead_time_s: ArrayLike = 0.0) -> Real:
+def click_probability_from_rate(
+    measured_rate: ArrayLike, rep_rate_hz: ArrayLike, dead_time_s: ArrayLike = 0.0
+) -> Real:
     """Inverse of :func:`pulsed_measured_rate`: ``P = m / (R - k m)`` (inf when ``m >= R/k``)."""
     m = np.asarray(measured_rate, float)
     rep = np.asarray(rep_rate_hz, float)
@@ -127,10 +131,16 @@ class DetectorRates:
             return np.where(self.linear_rate > 0, 1.0 - self.measured_rate / self.linear_rate, 0.0)
 
 
-def expected_rates(photon_rate: ArrayLike, leak_rate: ArrayLike, efficiency: ArrayLike = 1.0,
-                   dark_rate: ArrayLike = 0.0, dead_time_s: ArrayLike = 0.0, *,
-                   rep_rate_hz: float | None = None,
-                   dark_probability: ArrayLike = 0.0) -> DetectorRates:
+def expected_rates(
+    photon_rate: ArrayLike,
+    leak_rate: ArrayLike,
+    efficiency: ArrayLike = 1.0,
+    dark_rate: ArrayLike = 0.0,
+    dead_time_s: ArrayLike = 0.0,
+    *,
+    rep_rate_hz: float | None = None,
+    dark_probability: ArrayLike = 0.0,
+) -> DetectorRates:
     """Expected count rates for ``photon_rate`` photons/s of which ``leak_rate`` reach the detector.
 
     Continuous wave (``rep_rate_hz`` None): true rate ``photon_rate leak eta + dark_rate``, then
@@ -154,5 +164,6 @@ def expected_rates(photon_rate: ArrayLike, leak_rate: ArrayLike, efficiency: Arr
     with np.errstate(divide="ignore", invalid="ignore"):
         fraction = np.where(p > 0, p_signal / np.where(p > 0, p, 1.0), 0.0)
     linear = rep_rate_hz * (eta * mu + p_dark)
-    return DetectorRates(rep_rate_hz * p, pulsed_measured_rate(p, rep_rate_hz, dead_time_s),
-                         linear, fraction)
+    return DetectorRates(
+        rep_rate_hz * p, pulsed_measured_rate(p, rep_rate_hz, dead_time_s), linear, fraction
+    )

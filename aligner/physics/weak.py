@@ -45,8 +45,9 @@ def observable_matrix(name: str) -> Complex:
     raise ValueError(f"unknown observable {name!r}; allowed: {', '.join(OBSERVABLE_NAMES)}")
 
 
-def observable_from_axis(axis: ArrayLike,
-                         eigenvalues: tuple[float, float] = (1.0, -1.0)) -> Complex:
+def observable_from_axis(
+    axis: ArrayLike, eigenvalues: tuple[float, float] = (1.0, -1.0)
+) -> Complex:
     """Observable with eigenvalue ``eigenvalues[0]`` on the state whose Stokes direction is
     ``axis`` (S1, S2, S3; any length) and ``eigenvalues[1]`` on the orthogonal state."""
     n = np.asarray(axis, float)
@@ -88,8 +89,11 @@ class PointerResponse:
 
 def _in_basis(x: Complex, vectors: Complex, j: int, k: int) -> Complex:
     """Element ``(j, k)`` of ``V^dagger x V`` (only the elements needed, for large stacks)."""
-    return sum(np.conj(vectors[..., a, j]) * vectors[..., b, k] * x[..., a, b]
-               for a in (0, 1) for b in (0, 1))
+    return sum(
+        np.conj(vectors[..., a, j]) * vectors[..., b, k] * x[..., a, b]
+        for a in (0, 1)
+        for b in (0, 1)
+    )
 
 
 def pointer_response(

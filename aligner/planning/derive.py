@@ -36,9 +36,15 @@ __all__ = ["Derivation", "derive"]
 # Stokes axis and eigenvalues of every named observable (project convention: S1 = HV,
 # S2 = DA, S3 = RL).
 _NAMED = {
-    "HV": ((1, 0, 0), (1, -1)), "DA": ((0, 1, 0), (1, -1)), "RL": ((0, 0, 1), (1, -1)),
-    "H": ((1, 0, 0), (1, 0)), "V": ((-1, 0, 0), (1, 0)), "D": ((0, 1, 0), (1, 0)),
-    "A": ((0, -1, 0), (1, 0)), "R": ((0, 0, 1), (1, 0)), "L": ((0, 0, -1), (1, 0)),
+    "HV": ((1, 0, 0), (1, -1)),
+    "DA": ((0, 1, 0), (1, -1)),
+    "RL": ((0, 0, 1), (1, -1)),
+    "H": ((1, 0, 0), (1, 0)),
+    "V": ((-1, 0, 0), (1, 0)),
+    "D": ((0, 1, 0), (1, 0)),
+    "A": ((0, -1, 0), (1, 0)),
+    "R": ((0, 0, 1), (1, 0)),
+    "L": ((0, 0, -1), (1, 0)),
 }
 
 
@@ -68,12 +74,14 @@ class Derivation:
 
     def _formulas(self) -> list[tuple[str, str, str, Any]]:
         """(key, plain name, LaTeX name, expression) of every result."""
-        return [("numerator", "N", "N", self.numerator),
-                ("denominator", "D", "D", self.denominator),
-                ("leak_rate", "P", "P", self.leak_rate),
-                ("weak_value_series", "A_w ~", r"A_w \simeq", self.weak_value_series),
-                ("leak_rate_series", "P   ~", r"P \simeq", self.leak_rate_series),
-                ("floor", "floor (P at the null) =", r"P_{\mathrm{floor}} =", self.floor)]
+        return [
+            ("numerator", "N", "N", self.numerator),
+            ("denominator", "D", "D", self.denominator),
+            ("leak_rate", "P", "P", self.leak_rate),
+            ("weak_value_series", "A_w ~", r"A_w \simeq", self.weak_value_series),
+            ("leak_rate_series", "P   ~", r"P \simeq", self.leak_rate_series),
+            ("floor", "floor (P at the null) =", r"P_{\mathrm{floor}} =", self.floor),
+        ]
 
     def latex(self, expr: Any) -> str:
         """``expr`` in LaTeX with the bench's symbol names."""
@@ -86,11 +94,14 @@ class Derivation:
 
     def _null_text(self, latex: bool) -> str:
         if latex:
-            return ", ".join(f"{self._symbol_latex(str(self.angles[m]))} = "
-                             f"{self.null_deg[m]:.6g}^\\circ + {self._symbol_latex(str(e))}"
-                             for m, e in self.offsets.items())
-        return ", ".join(f"{self.angles[m]} = {self.null_deg[m]:.6g} deg + {e}"
-                         for m, e in self.offsets.items())
+            return ", ".join(
+                f"{self._symbol_latex(str(self.angles[m]))} = "
+                f"{self.null_deg[m]:.6g}^\\circ + {self._symbol_latex(str(e))}"
+                for m, e in self.offsets.items()
+            )
+        return ", ".join(
+            f"{self.angles[m]} = {self.null_deg[m]:.6g} deg + {e}" for m, e in self.offsets.items()
+        )
 
     def text(self, latex: bool = False) -> str:
         """Readable (or LaTeX) rendering for a notebook: the symbol table, A_w = N/D, the leak
@@ -100,23 +111,40 @@ class Derivation:
         forms = {key: (plain, tex, expr) for key, plain, tex, expr in self._formulas()}
         series = ("weak_value_series", "leak_rate_series", "floor")
         if latex:
-            rows = [f"  {self._symbol_latex(n)} & \\text{{{_latex_text(t)}}} \\\\"
-                    for n, t in self.meaning.items()]
-            out = ["% symbols", r"\begin{array}{ll}", *rows, r"\end{array}", "",
-                   r"% weak value A_w = N / D, leak rate P per source photon",
-                   r"A_w = \frac{N}{D}"]
-            out += [f"{forms[k][1]} = {self.latex(forms[k][2])}"
-                    for k in ("numerator", "denominator", "leak_rate")]
+            rows = [
+                f"  {self._symbol_latex(n)} & \\text{{{_latex_text(t)}}} \\\\"
+                for n, t in self.meaning.items()
+            ]
+            out = [
+                "% symbols",
+                r"\begin{array}{ll}",
+                *rows,
+                r"\end{array}",
+                "",
+                r"% weak value A_w = N / D, leak rate P per source photon",
+                r"A_w = \frac{N}{D}",
+            ]
+            out += [
+                f"{forms[k][1]} = {self.latex(forms[k][2])}"
+                for k in ("numerator", "denominator", "leak_rate")
+            ]
             out += ["", f"% around the null {self._null_text(True)}, to leading order"]
             out += [f"{forms[k][1]} {self.latex(forms[k][2])}" for k in series]
             return "\n".join(out)
         show = sp.sstr
         lines = ["Symbols:"]
         lines += [f"  {name}: {text}" for name, text in self.meaning.items()]
-        lines += ["", "Weak value A_w = N / D with",
-                  f"  N = {show(self.numerator)}", f"  D = {show(self.denominator)}",
-                  "", "Leak rate (per source photon):", f"  P = {show(self.leak_rate)}",
-                  "", f"Around the null {self._null_text(False)}, to leading order:"]
+        lines += [
+            "",
+            "Weak value A_w = N / D with",
+            f"  N = {show(self.numerator)}",
+            f"  D = {show(self.denominator)}",
+            "",
+            "Leak rate (per source photon):",
+            f"  P = {show(self.leak_rate)}",
+            "",
+            f"Around the null {self._null_text(False)}, to leading order:",
+        ]
         lines += [f"  {forms[k][0]} {show(forms[k][2])}" for k in series]
         return "\n".join(lines)
 
@@ -127,23 +155,38 @@ class Derivation:
 
         values = {str(k): v for k, v in self.values.items()}
         return {
-            "symbols": {name: {"meaning": text, "latex": self._symbol_latex(name),
-                               "value": values.get(name)}
-                        for name, text in self.meaning.items()},
+            "symbols": {
+                name: {
+                    "meaning": text,
+                    "latex": self._symbol_latex(name),
+                    "value": values.get(name),
+                }
+                for name, text in self.meaning.items()
+            },
             "angles": {m: str(s) for m, s in self.angles.items()},
             "offsets": {m: str(s) for m, s in self.offsets.items()},
             "null_deg": dict(self.null_deg),
-            "expressions": {key: {"text": sp.sstr(expr), "latex": self.latex(expr)}
-                            for key, _, _, expr in [("weak_value", "", "", self.weak_value),
-                                                    *self._formulas()]},
+            "expressions": {
+                key: {"text": sp.sstr(expr), "latex": self.latex(expr)}
+                for key, _, _, expr in [("weak_value", "", "", self.weak_value), *self._formulas()]
+            },
         }
 
 
 def _latex_text(text: str) -> str:
     """Plain text escaped for ``\\text{...}``."""
     out = text.replace("\\", "\0")
-    for char, esc in (("{", r"\{"), ("}", r"\}"), ("_", r"\_"), ("^", r"\^{}"), ("%", r"\%"),
-                      ("&", r"\&"), ("#", r"\#"), ("$", r"\$"), ("~", r"\~{}")):
+    for char, esc in (
+        ("{", r"\{"),
+        ("}", r"\}"),
+        ("_", r"\_"),
+        ("^", r"\^{}"),
+        ("%", r"\%"),
+        ("&", r"\&"),
+        ("#", r"\#"),
+        ("$", r"\$"),
+        ("~", r"\~{}"),
+    ):
         out = out.replace(char, esc)
     return out.replace("\0", r"\textbackslash{}")
 
@@ -198,14 +241,19 @@ class _Builder:
         self.free = tuple(free)
         self.readings = bench.readings()
         self.angles = {m: sp.Symbol(f"theta_{_safe_name(m)}", real=True) for m in self.free}
-        self.latex: dict[Any, str] = {th: rf"\theta_{{{_latex_name(m)}}}"
-                                      for m, th in self.angles.items()}
+        self.latex: dict[Any, str] = {
+            th: rf"\theta_{{{_latex_name(m)}}}" for m, th in self.angles.items()
+        }
         # Matrices are multiplied as polynomials in cos/sin of the free angles (and of twice
         # them): products of trigonometric functions never get expanded symbolically.
         self.to_poly: dict[Any, Any] = {}
         for m, th in self.angles.items():
-            for fn, arg, tag in ((sp.cos, 2 * th, "C"), (sp.sin, 2 * th, "S"),
-                                 (sp.cos, th, "c"), (sp.sin, th, "s")):
+            for fn, arg, tag in (
+                (sp.cos, 2 * th, "C"),
+                (sp.sin, 2 * th, "S"),
+                (sp.cos, th, "c"),
+                (sp.sin, th, "s"),
+            ):
                 self.to_poly[fn(arg)] = sp.Symbol(f"{tag}_{_safe_name(m)}", real=True)
         self.from_poly = {v: k for k, v in self.to_poly.items()}
         self.fixed: dict[Any, Any] = {}  # placeholder angle -> exact fixed angle (rad)
@@ -214,15 +262,20 @@ class _Builder:
         self.small: list[Any] = []  # extinction symbols d (scale as t^2)
         for m, sym in self.angles.items():
             mount = bench.mounts[m]
-            self.meaning[str(sym)] = (f"element angle (rad) of mount {m!r} = "
-                                      f"{mount.sense:+d} x (reading - {mount.offset_deg:g} deg)")
+            self.meaning[str(sym)] = (
+                f"element angle (rad) of mount {m!r} = "
+                f"{mount.sense:+d} x (reading - {mount.offset_deg:g} deg)"
+            )
 
     def angle(self, angle_deg: float, mount: str | None) -> Any:
         """The free angle's symbol, or a placeholder for the exact fixed angle (rad)."""
         if mount in self.angles:
             return self.angles[mount]
-        deg = angle_deg if mount is None else float(
-            self.bench.mounts[mount].element_angle_deg(self.readings[mount]))
+        deg = (
+            angle_deg
+            if mount is None
+            else float(self.bench.mounts[mount].element_angle_deg(self.readings[mount]))
+        )
         phi = self.sp.Dummy("phi", real=True)
         self.fixed[phi] = _exact_angle(deg)
         return phi
@@ -240,14 +293,24 @@ class _Builder:
     def leak(self, name: str, extinction_ratio: float, what: str) -> Any:
         if math.isinf(extinction_ratio):
             return 0
-        return self.constant(f"d_{name}", f"d_{{{_latex_name(name)}}}", 1.0 / extinction_ratio,
-                             f"leak of the {what}, 1/extinction ratio", small=True)
+        return self.constant(
+            f"d_{name}",
+            f"d_{{{_latex_name(name)}}}",
+            1.0 / extinction_ratio,
+            f"leak of the {what}, 1/extinction ratio",
+            small=True,
+        )
 
     def transmission(self, name: str, value: float, what: str) -> Any:
         if value == 1.0:
             return 1
-        return self.constant(f"T_{name}", f"T_{{{_latex_name(name)}}}", value,
-                             f"transmission of the {what} along its pass axis", small=False)
+        return self.constant(
+            f"T_{name}",
+            f"T_{{{_latex_name(name)}}}",
+            value,
+            f"transmission of the {what} along its pass axis",
+            small=False,
+        )
 
     def poly(self, matrix: Any) -> Any:
         """A matrix of trigonometric entries as polynomials in the cos/sin symbols: double
@@ -259,8 +322,13 @@ class _Builder:
 
         def entry(x: Any) -> Any:
             x = sp.expand(TR8(TR7(sp.expand(x)))).xreplace(self.fixed)
-            x = x.xreplace({e: sp.cos(-sp.I * e.exp) + sp.I * sp.sin(-sp.I * e.exp)
-                            for e in x.atoms(sp.exp) if e.exp.is_number})
+            x = x.xreplace(
+                {
+                    e: sp.cos(-sp.I * e.exp) + sp.I * sp.sin(-sp.I * e.exp)
+                    for e in x.atoms(sp.exp)
+                    if e.exp.is_number
+                }
+            )
             return sp.expand(x).xreplace(self.to_poly)
 
         return matrix.applyfunc(entry)
@@ -303,7 +371,8 @@ class _Builder:
         s1, s2 = (x[0, 0] - x[1, 1]) / 2, (x[0, 1] + x[1, 0]) / 2
         r1, r2 = cos2 * s1 - sin2 * s2, sin2 * s1 + cos2 * s2
         return sp.Matrix([[s0 + r1, r2 - sp.I * s3], [r2 + sp.I * s3, s0 - r1]]).applyfunc(
-            sp.expand)
+            sp.expand
+        )
 
     def through(self, x: Any, element: Element, backward: bool) -> Any:
         """``x`` carried through one element: forward (a state) or backward (an effect)."""
@@ -352,8 +421,11 @@ class _Builder:
             eig = tuple(_exact_number(x) for x in c.eigenvalues)
         else:
             axis, eig = _NAMED[c.observable]
-        sigma = (axis[0] * sp.Matrix([[1, 0], [0, -1]]) + axis[1] * sp.Matrix([[0, 1], [1, 0]])
-                 + axis[2] * sp.Matrix([[0, -sp.I], [sp.I, 0]]))
+        sigma = (
+            axis[0] * sp.Matrix([[1, 0], [0, -1]])
+            + axis[1] * sp.Matrix([[0, 1], [1, 0]])
+            + axis[2] * sp.Matrix([[0, -sp.I], [sp.I, 0]])
+        )
         pi0 = (sp.eye(2) + sigma) / 2
         pi1 = (sp.eye(2) - sigma) / 2
         return eig[0] * pi0 + eig[1] * pi1, (pi0, pi1), (eig[0], eig[1])
@@ -387,8 +459,11 @@ def _number(n: Any) -> Any:
 
     if n.has(sp.Float):
         value = complex(n)
-        return sp.Float(value.real, 15) + sp.I * sp.Float(value.imag, 15) if value.imag else \
-            sp.Float(value.real, 15)
+        return (
+            sp.Float(value.real, 15) + sp.I * sp.Float(value.imag, 15)
+            if value.imag
+            else sp.Float(value.real, 15)
+        )
     return sp.expand(n)
 
 
@@ -408,14 +483,17 @@ def _null(bench: Bench, free: Sequence[str]) -> dict[str, float]:
     if len(free) == 1:
         found = [s.null for s in segments(bench, free[0], fixed) if s.null is not None]
         if not found:
-            raise InputError(f"mount {free[0]!r} cannot reach a null with the other mounts at "
-                             "their readings, so there is no series to expand around")
+            raise InputError(
+                f"mount {free[0]!r} cannot reach a null with the other mounts at "
+                "their readings, so there is no series to expand around"
+            )
         best = min(found, key=lambda r: abs(r - readings[free[0]]))
         return {free[0]: best}
     pts = nulls(bench, free, fixed)
     if len(pts) == 0:
-        raise InputError(f"mounts {', '.join(free)} cannot reach a null, so there is no series "
-                         "to expand around")
+        raise InputError(
+            f"mounts {', '.join(free)} cannot reach a null, so there is no series to expand around"
+        )
     here = np.array([readings[m] for m in free])
     best = pts[np.argmin(np.linalg.norm(np.mod(pts - here + 90.0, 180.0) - 90.0, axis=1))]
     best = here + np.mod(best - here + 90.0, 180.0) - 90.0
@@ -435,11 +513,14 @@ def derive(bench: Bench, free: Sequence[str] = ()) -> Derivation:
     a, (pi0, pi1), (a0, a1) = b.observable()
     c = bench.coupling
     kappa = sp.Symbol("kappa", positive=True)
-    b.values[kappa] = float(np.exp(-(c.strength * float(a0 - a1)) ** 2
-                                   / (8 * c.pointer_sigma**2)))
-    b.meaning["kappa"] = (f"exp(-g^2 (a0 - a1)^2 / (8 sigma^2)) = {b.values[kappa]:.12g}, the "
-                          f"overlap of the two displaced pointers (g = {c.strength:g}, sigma = "
-                          f"{c.pointer_sigma:g} {c.units})")
+    b.values[kappa] = float(
+        np.exp(-((c.strength * float(a0 - a1)) ** 2) / (8 * c.pointer_sigma**2))
+    )
+    b.meaning["kappa"] = (
+        f"exp(-g^2 (a0 - a1)^2 / (8 sigma^2)) = {b.values[kappa]:.12g}, the "
+        f"overlap of the two displaced pointers (g = {c.strength:g}, sigma = "
+        f"{c.pointer_sigma:g} {c.units})"
+    )
     small = list(dict.fromkeys(b.small))
     norm = 1 + d_s
     back = b.from_poly
@@ -475,8 +556,24 @@ def derive(bench: Bench, free: Sequence[str] = ()) -> Derivation:
     floor = sp.factor_terms(p2.subs({e: 0 for e in offsets.values()}))
     values = dict(b.values)
     values[eta] = 1.0 - values[kappa]
-    latex = {**b.latex, kappa: r"\kappa", eta: r"\eta",
-             **{e: rf"\epsilon_{{{_latex_name(m)}}}" for m, e in offsets.items()}}
-    return Derivation(b.angles, offsets, b.meaning, values, numerator, denominator,
-                      numerator / denominator, leak, weak_series, sp.factor_terms(p2), floor,
-                      null_deg, latex)
+    latex = {
+        **b.latex,
+        kappa: r"\kappa",
+        eta: r"\eta",
+        **{e: rf"\epsilon_{{{_latex_name(m)}}}" for m, e in offsets.items()},
+    }
+    return Derivation(
+        b.angles,
+        offsets,
+        b.meaning,
+        values,
+        numerator,
+        denominator,
+        numerator / denominator,
+        leak,
+        weak_series,
+        sp.factor_terms(p2),
+        floor,
+        null_deg,
+        latex,
+    )

@@ -72,14 +72,23 @@ class Branch:
     equivalent_readings: tuple[Mapping[str, float], ...] = ()
 
     def to_dict(self) -> dict[str, Any]:
-        return {"index": self.index, "settings": dict(self.settings), "side": self.side,
-                "regime": self.regime, "null_deg": dict(self.null_deg),
-                "imbalance_deg": self.imbalance_deg, "weak_value": self.weak_value,
-                "amplification": {"linear": self.amplification_linear,
-                                  "exact": self.amplification_exact},
-                "leak_rate": self.leak_rate, "value": self.value,
-                "distance_deg": self.distance_deg,
-                "equivalent_readings": [dict(r) for r in self.equivalent_readings]}
+        return {
+            "index": self.index,
+            "settings": dict(self.settings),
+            "side": self.side,
+            "regime": self.regime,
+            "null_deg": dict(self.null_deg),
+            "imbalance_deg": self.imbalance_deg,
+            "weak_value": self.weak_value,
+            "amplification": {
+                "linear": self.amplification_linear,
+                "exact": self.amplification_exact,
+            },
+            "leak_rate": self.leak_rate,
+            "value": self.value,
+            "distance_deg": self.distance_deg,
+            "equivalent_readings": [dict(r) for r in self.equivalent_readings],
+        }
 
 
 @dataclass(frozen=True)
@@ -141,12 +150,20 @@ class Plan:
             "settings": dict(self.settings),
             "chosen": {"index": self.chosen, "reason": self.reason},
             "branches": [b.to_dict() for b in self.branches],
-            "quantized": {"settings": dict(q.settings), "value": q.value,
-                          "relative_error": q.relative_error, "step_change": q.step_change},
+            "quantized": {
+                "settings": dict(q.settings),
+                "value": q.value,
+                "relative_error": q.relative_error,
+                "step_change": q.step_change,
+            },
             "predict": None if self.predict is None else dict(self.predict),
-            "sensitivity": {s.mount: {"derivative_per_deg": s.derivative,
-                                      "reading_for_1pct_deg": s.reading_for_1pct_deg}
-                            for s in self.sensitivity},
+            "sensitivity": {
+                s.mount: {
+                    "derivative_per_deg": s.derivative,
+                    "reading_for_1pct_deg": s.reading_for_1pct_deg,
+                }
+                for s in self.sensitivity
+            },
             "tolerance": None if self.tolerance is None else self.tolerance.to_dict(),
             "warnings": list(self.warnings),
             "message": self.message,
@@ -161,8 +178,13 @@ def _quantity(target: Target) -> str:
     return f"{'exact' if target.exact else 'linear'} amplification ({target.axis} axis)"
 
 
-def _branches(bench: Bench, target: Target, unknowns: Sequence[str], roots: Sequence[Root],
-              order: Sequence[int]) -> tuple[tuple[Branch, ...], tuple[int, ...]]:
+def _branches(
+    bench: Bench,
+    target: Target,
+    unknowns: Sequence[str],
+    roots: Sequence[Root],
+    order: Sequence[int],
+) -> tuple[tuple[Branch, ...], tuple[int, ...]]:
     """One branch per distinct optical setting, in the default order, and the index of each
     branch's root (its reading nearest the current readings).
 
@@ -171,8 +193,10 @@ def _branches(bench: Bench, target: Target, unknowns: Sequence[str], roots: Sequ
     when they agree modulo every unknown mount's period and the model gives the same weak value
     and leak rate there (1e-9 relative): a guard should an element ever not repeat."""
     current = bench.readings()
-    full = {n: np.array([dict(zip(unknowns, roots[k].readings, strict=True)).get(n, v)
-                         for k in order]) for n, v in current.items()}
+    full = {
+        n: np.array([dict(zip(unknowns, roots[k].readings, strict=True)).get(n, v) for k in order])
+        for n, v in current.items()
+    }
     obs = observe(bench, full)
     axis_part = np.real if target.axis == "re" else np.imag
     lin = axis_part(obs.weak_value)
@@ -183,10 +207,12 @@ def _branches(bench: Bench, target: Target, unknowns: Sequence[str], roots: Sequ
     x = np.array([roots[k].readings for k in order])  # (r, n)
     inner = np.array([roots[k].inner for k in order])
     diff = x[:, None, :] - x[None, :, :]
-    same = (np.all(np.abs(np.mod(diff + periods / 2, periods) - periods / 2) < 1e-6, axis=-1)
-            & (inner[:, None] == inner[None, :])
-            & np.isclose(obs.weak_value[:, None], obs.weak_value[None, :], rtol=1e-9, atol=0)
-            & np.isclose(obs.leak_rate[:, None], obs.leak_rate[None, :], rtol=1e-9, atol=0))
+    same = (
+        np.all(np.abs(np.mod(diff + periods / 2, periods) - periods / 2) < 1e-6, axis=-1)
+        & (inner[:, None] == inner[None, :])
+        & np.isclose(obs.weak_value[:, None], obs.weak_value[None, :], rtol=1e-9, atol=0)
+        & np.isclose(obs.leak_rate[:, None], obs.leak_rate[None, :], rtol=1e-9, atol=0)
+    )
     groups: list[list[int]] = []  # positions in ``order``, nearest reading first
     free = np.ones(len(order), bool)
     for i in range(len(order)):
@@ -199,16 +225,25 @@ def _branches(bench: Bench, target: Target, unknowns: Sequence[str], roots: Sequ
         i = g[0]
         root = roots[order[i]]
         settings = dict(zip(unknowns, root.readings, strict=True))
-        out.append(Branch(
-            index=index, settings=settings, side="high" if imb[i] > 0 else "low",
-            regime="extinction floor" if root.inner else "weak",
-            null_deg=dict(zip(unknowns, root.null, strict=True)),
-            imbalance_deg=float(imb[i]), weak_value=complex(obs.weak_value[i]),
-            amplification_linear=float(lin[i]), amplification_exact=float(ex[i]),
-            leak_rate=float(obs.leak_rate[i]), value=float(value[i]),
-            distance_deg=float(np.linalg.norm([settings[n] - current[n] for n in unknowns])),
-            equivalent_readings=tuple(
-                dict(zip(unknowns, roots[order[j]].readings, strict=True)) for j in g)))
+        out.append(
+            Branch(
+                index=index,
+                settings=settings,
+                side="high" if imb[i] > 0 else "low",
+                regime="extinction floor" if root.inner else "weak",
+                null_deg=dict(zip(unknowns, root.null, strict=True)),
+                imbalance_deg=float(imb[i]),
+                weak_value=complex(obs.weak_value[i]),
+                amplification_linear=float(lin[i]),
+                amplification_exact=float(ex[i]),
+                leak_rate=float(obs.leak_rate[i]),
+                value=float(value[i]),
+                distance_deg=float(np.linalg.norm([settings[n] - current[n] for n in unknowns])),
+                equivalent_readings=tuple(
+                    dict(zip(unknowns, roots[order[j]].readings, strict=True)) for j in g
+                ),
+            )
+        )
     return tuple(out), tuple(order[g[0]] for g in groups)
 
 
@@ -218,13 +253,15 @@ def _mismatch(target: Target, value: complex, obs: Any, n: int) -> np.ndarray:
         return np.abs(np.log(obs.leak_rate / value.real))
     w = obs.response(target.exact)
     if n == 1:
-        return np.abs(np.real(w) - value.real) if value.imag == 0 else np.abs(np.imag(w) -
-                                                                              value.imag)
+        return (
+            np.abs(np.real(w) - value.real) if value.imag == 0 else np.abs(np.imag(w) - value.imag)
+        )
     return np.abs(w - value)
 
 
-def _quantize(bench: Bench, target: Target, unknowns: Sequence[str], root: Root,
-              exact_value: float) -> Quantized:
+def _quantize(
+    bench: Bench, target: Target, unknowns: Sequence[str], root: Root, exact_value: float
+) -> Quantized:
     options = []
     for name, r in zip(unknowns, root.readings, strict=True):
         res = bench.mounts[name].resolution_deg
@@ -246,8 +283,12 @@ def _quantize(bench: Bench, target: Target, unknowns: Sequence[str], root: Root,
     return Quantized(settings, value, value / exact_value - 1.0, change)
 
 
-def _sensitivity(bench: Bench, target: Target, settings: Mapping[str, float], value: float,
-                 ) -> tuple[Sensitivity, ...]:
+def _sensitivity(
+    bench: Bench,
+    target: Target,
+    settings: Mapping[str, float],
+    value: float,
+) -> tuple[Sensitivity, ...]:
     names = list(bench.mounts)
     h = _SENS_STEP_DEG
     readings = {n: np.full(2 * len(names), settings[n]) for n in names}
@@ -275,61 +316,101 @@ def _reason(branches: Sequence[Branch], chosen: int, requested: int | None) -> s
     weak = sum(x.regime == "weak" for x in branches)
     if b.regime == "weak":
         others = f"; {n - weak} more inside the extinction floor" if n > weak else ""
-        return (f"{of}: the weak-regime setting nearest the current readings "
-                f"({b.distance_deg:.4g} deg away, {b.side}-reading side of the null){others}")
-    return (f"{of}: nearest the current readings; every solution lies inside the extinction "
-            "floor, where leaked light dominates and the setting is touchy")
+        return (
+            f"{of}: the weak-regime setting nearest the current readings "
+            f"({b.distance_deg:.4g} deg away, {b.side}-reading side of the null){others}"
+        )
+    return (
+        f"{of}: nearest the current readings; every solution lies inside the extinction "
+        "floor, where leaked light dominates and the setting is touchy"
+    )
 
 
 def _fmt(x: float) -> str:
     return f"{x:.6g}"
 
 
-def _message(bench: Bench, p_quantity: str, reason: str, q: Quantized,
-             sens: Sequence[Sensitivity], tol: Tolerance | None, warnings: Sequence[str]) -> str:
-    lines = ["Set " + ", ".join(f"{n} to {_fmt(r)} deg" for n, r in q.settings.items())
-             + f" ({reason})."]
-    lines.append(f"At these rounded readings the {p_quantity} is {_fmt(q.value)} "
-                 f"({100 * q.relative_error:+.3g} % from the exact solution); one step of "
-                 f"{bench.imbalance_mount} changes it by {100 * q.step_change:.3g} %.")
+def _message(
+    bench: Bench,
+    p_quantity: str,
+    reason: str,
+    q: Quantized,
+    sens: Sequence[Sensitivity],
+    tol: Tolerance | None,
+    warnings: Sequence[str],
+) -> str:
+    lines = [
+        "Set " + ", ".join(f"{n} to {_fmt(r)} deg" for n, r in q.settings.items()) + f" ({reason})."
+    ]
+    lines.append(
+        f"At these rounded readings the {p_quantity} is {_fmt(q.value)} "
+        f"({100 * q.relative_error:+.3g} % from the exact solution); one step of "
+        f"{bench.imbalance_mount} changes it by {100 * q.step_change:.3g} %."
+    )
     key = max(sens, key=lambda s: abs(s.derivative))
-    lines.append(f"Most sensitive mount: {key.mount} ({key.reading_for_1pct_deg:.3g} deg moves "
-                 "the value by 1 %).")
+    lines.append(
+        f"Most sensitive mount: {key.mount} ({key.reading_for_1pct_deg:.3g} deg moves "
+        "the value by 1 %)."
+    )
     if tol is not None:
         f = tol.figure
-        lines.append(f"Tolerance ({tol.samples} samples): 68 % of setups within "
-                     f"{_fmt(f.low68)}..{_fmt(f.high68)}, 95 % within "
-                     f"{_fmt(f.low95)}..{_fmt(f.high95)}"
-                     + (f"; dominant error: {tol.dominant}." if tol.dominant else
-                        "; the bench file declares no mount or plate errors."))
+        lines.append(
+            f"Tolerance ({tol.samples} samples): 68 % of setups within "
+            f"{_fmt(f.low68)}..{_fmt(f.high68)}, 95 % within "
+            f"{_fmt(f.low95)}..{_fmt(f.high95)}"
+            + (
+                f"; dominant error: {tol.dominant}."
+                if tol.dominant
+                else "; the bench file declares no mount or plate errors."
+            )
+        )
         if tol.dominant and "retardance" in tol.dominant:
-            lines.append("A plate's retardance error moves the null itself: re-find the null on "
-                         "the bench before setting the imbalance.")
+            lines.append(
+                "A plate's retardance error moves the null itself: re-find the null on "
+                "the bench before setting the imbalance."
+            )
     lines.extend(warnings)
-    lines.append("Safety: check the expected detector rate before opening the shutter; follow "
-                 "your local laser-safety rules and your laser safety officer.")
+    lines.append(
+        "Safety: check the expected detector rate before opening the shutter; follow "
+        "your local laser-safety rules and your laser safety officer."
+    )
     return "\n".join(lines)
 
 
-def _warnings(bench: Bench, target: Target, branch: Branch,
-              block: Mapping[str, Any] | None) -> list[str]:
+def _warnings(
+    bench: Bench, target: Target, branch: Branch, block: Mapping[str, Any] | None
+) -> list[str]:
     out = []
     cap = pointer_cap(bench)
     if target.kind != "leak_rate" and not target.exact and abs(branch.amplification_linear) > cap:
-        out.append(f"Warning: the linear amplification exceeds the pointer limit (about {cap:.4g}"
-                   f"); the measured shift follows the exact value, "
-                   f"{branch.amplification_exact:.4g}.")
+        out.append(
+            f"Warning: the linear amplification exceeds the pointer limit (about {cap:.4g}"
+            f"); the measured shift follows the exact value, "
+            f"{branch.amplification_exact:.4g}."
+        )
     if block is not None and block["detector"]["over_safe_rate"]:
-        out.append(f"Warning: the expected detector rate {block['detector']['rate']:.3g}/s is "
-                   f"above the bench's safe_rate ({bench.detector.safe_rate:.3g}/s); attenuate "
-                   "the beam or use a branch with a lower leak rate.")
+        out.append(
+            f"Warning: the expected detector rate {block['detector']['rate']:.3g}/s is "
+            f"above the bench's safe_rate ({bench.detector.safe_rate:.3g}/s); attenuate "
+            "the beam or use a branch with a lower leak rate."
+        )
     return out
 
 
-def plan(bench: Bench, amplification: float | None = None, *, axis: str | None = None,
-         exact: bool = False, weak_value: complex | None = None, leak_rate: float | None = None,
-         free: Sequence[str] = (), branch: int | None = None, samples: int = 100_000,
-         seed: int = 0, predict: bool = True) -> Plan:
+def plan(
+    bench: Bench,
+    amplification: float | None = None,
+    *,
+    axis: str | None = None,
+    exact: bool = False,
+    weak_value: complex | None = None,
+    leak_rate: float | None = None,
+    free: Sequence[str] = (),
+    branch: int | None = None,
+    samples: int = 100_000,
+    seed: int = 0,
+    predict: bool = True,
+) -> Plan:
     """Plan the mount readings for exactly one target.
 
     ``amplification`` (size > 0; ``axis`` ``re``/``im``, default the readout's: position and
@@ -345,9 +426,13 @@ def plan(bench: Bench, amplification: float | None = None, *, axis: str | None =
     Raises :class:`InfeasibleTarget` (the limit and the achievable value in the message) and
     :class:`InputError` for bad arguments.
     """
-    target = make_target(amplification, axis=axis or readout_axis(bench), exact=exact,
-                         weak_value=weak_value,
-                         leak_rate=leak_rate)
+    target = make_target(
+        amplification,
+        axis=axis or readout_axis(bench),
+        exact=exact,
+        weak_value=weak_value,
+        leak_rate=leak_rate,
+    )
     if int(samples) < 0:
         raise InputError(f"samples must be >= 0, got {samples!r}")
     sol = solve(bench, target, free)
@@ -369,8 +454,10 @@ def plan(bench: Bench, amplification: float | None = None, *, axis: str | None =
             f"{bench.mounts[name].resolution_deg:g}-deg step of {name} changes it by "
             f"{100 * q.step_change:.3g} % (at most {100 * STEP_LIMIT:g} % allowed), so about "
             f"{reachable:.3g} is the most this mount can set reliably; use a finer mount "
-            "(smaller resolution_deg) or a smaller target", limit="resolution",
-            achievable=reachable)
+            "(smaller resolution_deg) or a smaller target",
+            limit="resolution",
+            achievable=reachable,
+        )
     full = {**bench.readings(), **b.settings}
     sens = _sensitivity(bench, target, full, b.value)
     tol = None
@@ -384,6 +471,18 @@ def plan(bench: Bench, amplification: float | None = None, *, axis: str | None =
     reason = _reason(branches, chosen, branch)
     warnings = _warnings(bench, target, b, block)
     quantity = _quantity(target)
-    return Plan(target, quantity, sol.unknowns, dict(b.settings), branches, chosen, reason, q,
-                sens, tol, block, tuple(warnings),
-                _message(bench, quantity, reason, q, sens, tol, warnings))
+    return Plan(
+        target,
+        quantity,
+        sol.unknowns,
+        dict(b.settings),
+        branches,
+        chosen,
+        reason,
+        q,
+        sens,
+        tol,
+        block,
+        tuple(warnings),
+        _message(bench, quantity, reason, q, sens, tol, warnings),
+    )

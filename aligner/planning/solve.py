@@ -88,8 +88,13 @@ class Observed:
     def _pointer(self) -> PointerResponse:
         c = self._bench.coupling
         with np.errstate(divide="ignore", invalid="ignore"):
-            return pointer_response(self._fwd.rho, self._fwd.effect,
-                                    coupling_observable(self._bench), c.strength, c.pointer_sigma)
+            return pointer_response(
+                self._fwd.rho,
+                self._fwd.effect,
+                coupling_observable(self._bench),
+                c.strength,
+                c.pointer_sigma,
+            )
 
     @cached_property
     def exact(self) -> Cplx:
@@ -120,8 +125,9 @@ def _with(fixed: Mapping[str, float], name: str, values: ArrayLike) -> dict[str,
     return {**fixed, name: values}
 
 
-def signed_imbalance_deg(bench: Bench, name: str, readings: ArrayLike,
-                         fixed: Mapping[str, float]) -> Real:
+def signed_imbalance_deg(
+    bench: Bench, name: str, readings: ArrayLike, fixed: Mapping[str, float]
+) -> Real:
     """Signed imbalance (deg) along mount ``name`` at ``readings`` (others at ``fixed``):
     :func:`aligner.model.imbalance_deg` with ``name`` as the mount that sets the sign."""
     return imbalance_deg(bench, _with(fixed, name, readings), SIGN_STEP_DEG, mount=name)
@@ -146,8 +152,11 @@ class Segment:
 _SEGMENT_CACHE: dict[tuple[str, str, tuple[tuple[str, float], ...]], tuple[Segment, ...]] = {}
 
 
-def segments(bench: Bench, name: str, fixed: Mapping[str, float] | None = None,
-             ) -> tuple[Segment, ...]:
+def segments(
+    bench: Bench,
+    name: str,
+    fixed: Mapping[str, float] | None = None,
+) -> tuple[Segment, ...]:
     """The null-holding stretches of mount ``name``'s travel, others at ``fixed`` readings
     (default: the file readings). Cached per bench (by its repr) and fixed readings."""
     fx = {k: float(v) for k, v in full_readings(bench, fixed).items() if k != name}
@@ -168,12 +177,16 @@ def _find_segments(bench: Bench, name: str, fixed: Mapping[str, float]) -> tuple
     with np.errstate(invalid="ignore"):
         gap = observe(bench, _with(fixed, name, grid)).gap
     if not np.all(np.isfinite(gap)):
-        raise InputError("the pre- or post-selection is unpolarized at these readings, so there "
-                         "is no null to plan around; check the source and analyzer settings")
+        raise InputError(
+            "the pre- or post-selection is unpolarized at these readings, so there "
+            "is no null to plan around; check the source and analyzer settings"
+        )
     if np.ptp(gap) < 1e-9:
         raise InfeasibleTarget(
             f"turning mount {name!r} does not change the overlap of pre- and post-selection, so "
-            "it cannot set the imbalance; choose another imbalance_mount", limit="geometry")
+            "it cannot set the imbalance; choose another imbalance_mount",
+            limit="geometry",
+        )
     d = np.diff(gap)
     maxima = [i for i in range(1, len(grid) - 1) if d[i - 1] > 0 >= d[i]]
     minima = [i for i in range(1, len(grid) - 1) if d[i - 1] < 0 <= d[i]]
@@ -196,8 +209,14 @@ def _find_segments(bench: Bench, name: str, fixed: Mapping[str, float]) -> tuple
         null = None
         centre = float(grid[i_min])
         if ends[0] < 0 < ends[1]:
-            centre = brentq(lambda r: float(signed_imbalance_deg(bench, name, r, fixed)), a, b,
-                            xtol=1e-12, rtol=1e-15, disp=False)
+            centre = brentq(
+                lambda r: float(signed_imbalance_deg(bench, name, r, fixed)),
+                a,
+                b,
+                xtol=1e-12,
+                rtol=1e-15,
+                disp=False,
+            )
             floor = abs(float(signed_imbalance_deg(bench, name, centre, fixed)))
             if floor <= NULL_TOL_DEG:  # else a jump across a kink, not a crossing
                 null = centre
@@ -215,8 +234,9 @@ def _nearest(items: Sequence[Segment], near: float) -> list[Segment]:
     return sorted(items, key=distance)
 
 
-def readings_for_imbalance(bench: Bench, imbalance_deg: float, *,
-                           near: float | None = None) -> dict[str, float]:
+def readings_for_imbalance(
+    bench: Bench, imbalance_deg: float, *, near: float | None = None
+) -> dict[str, float]:
     """Reading (deg) of the bench's ``imbalance_mount`` that gives the signed imbalance
     ``imbalance_deg`` (deg, :func:`aligner.model.imbalance_deg`), other mounts at the file
     readings.
@@ -233,8 +253,9 @@ def readings_for_imbalance(bench: Bench, imbalance_deg: float, *,
     mount = bench.mounts[name]
     target = float(imbalance_deg)
     if not np.isfinite(target) or abs(target) >= 90.0:
-        raise InputError(f"imbalance_deg must be a finite angle between -90 and 90 deg, got "
-                         f"{imbalance_deg!r}")
+        raise InputError(
+            f"imbalance_deg must be a finite angle between -90 and 90 deg, got {imbalance_deg!r}"
+        )
     centre = mount.reading_deg if near is None else float(near)
     if not np.isfinite(centre):
         raise InputError(f"near must be a finite reading in degrees, got {near!r}")
@@ -246,7 +267,12 @@ def readings_for_imbalance(bench: Bench, imbalance_deg: float, *,
         if ends[0] < 0 < ends[1]:
             reading = brentq(
                 lambda r, s=seg: float(signed_imbalance_deg(bench, name, r, fixed)) - target,
-                seg.low, seg.high, xtol=1e-12, rtol=1e-15, disp=False)
+                seg.low,
+                seg.high,
+                xtol=1e-12,
+                rtol=1e-15,
+                disp=False,
+            )
             got = float(signed_imbalance_deg(bench, name, reading, fixed))
             if abs(got - target) < 1e-6 + 1e-9 * abs(target):
                 return {name: float(reading)}
@@ -256,11 +282,16 @@ def readings_for_imbalance(bench: Bench, imbalance_deg: float, *,
             f"mount {name!r} cannot reach an imbalance of {target:g} deg: with the other mounts "
             f"at their readings the smallest imbalance it reaches is {floor:.4g} deg (the pre- "
             "and post-selection never cross exactly); adjust the other mounts so that they can "
-            "cross", limit="geometry", achievable=floor)
+            "cross",
+            limit="geometry",
+            achievable=floor,
+        )
     raise InfeasibleTarget(
         f"an imbalance of {target:g} deg needs mount {name!r} outside its travel "
         f"[{lo:g}, {hi:g}] deg on that side of every null; use the other sign or widen "
-        f"mounts.{name}.travel_deg", limit="travel")
+        f"mounts.{name}.travel_deg",
+        limit="travel",
+    )
 
 
 # --------------------------------------------------------------------------------------------
@@ -315,8 +346,9 @@ def mounts_in_play(bench: Bench, free: Sequence[str] = (), *, phase: bool = True
         names.append(bench.phase_mount)
     for name in free:
         if name not in bench.mounts:
-            raise InputError(f"--free {name!r}: unknown mount; the bench has: "
-                             f"{', '.join(bench.mounts)}")
+            raise InputError(
+                f"--free {name!r}: unknown mount; the bench has: {', '.join(bench.mounts)}"
+            )
         if name not in names:
             names.append(name)
     return names
@@ -327,11 +359,15 @@ def unknown_mounts(bench: Bench, target: Target, free: Sequence[str] = ()) -> tu
     (keeps the weak value on its axis) and weak-value targets, and any ``free`` mounts."""
     names = mounts_in_play(bench, free, phase=target.kind != "leak_rate")
     if target.kind == "leak_rate" and len(names) > 1:
-        raise InputError("a leak-rate target is set by the imbalance mount alone; drop --free "
-                         "(or change imbalance_mount in the bench file)")
+        raise InputError(
+            "a leak-rate target is set by the imbalance mount alone; drop --free "
+            "(or change imbalance_mount in the bench file)"
+        )
     if target.kind == "weak_value" and len(names) < 2:
-        raise InputError("a complex weak-value target needs two mounts: set phase_mount in the "
-                         "bench file or free a waveplate mount with --free MOUNT")
+        raise InputError(
+            "a complex weak-value target needs two mounts: set phase_mount in the "
+            "bench file or free a waveplate mount with --free MOUNT"
+        )
     return tuple(names)
 
 
@@ -382,8 +418,9 @@ def _readings(names: Sequence[str], x: Real, fixed: Mapping[str, float]) -> dict
     return {**fixed, **{name: x[..., k] for k, name in enumerate(names)}}
 
 
-def _solve_one_mount(bench: Bench, target: Target, name: str,
-                     fixed: Mapping[str, float]) -> Solution:
+def _solve_one_mount(
+    bench: Bench, target: Target, name: str, fixed: Mapping[str, float]
+) -> Solution:
     """Roots along the imbalance mount alone: a bracket on each side of every null."""
     from scipy.optimize.elementwise import find_root
 
@@ -422,20 +459,32 @@ def _solve_one_mount(bench: Bench, target: Target, name: str,
         return _residual_scalar(target, observe(bench, _with(fixed, name, c + d * s)), v, 1)
 
     v_arr = np.array(values, complex)
-    res = find_root(along, (np.array(starts), np.array(ends)), args=(c, d, v_arr),
-                    tolerances={"xatol": 1e-13, "xrtol": 1e-14})
+    res = find_root(
+        along,
+        (np.array(starts), np.array(ends)),
+        args=(c, d, v_arr),
+        tolerances={"xatol": 1e-13, "xrtol": 1e-14},
+    )
     x = c + d * res.x
     resid = np.abs(along(res.x, c, d, v_arr))
-    roots = tuple(Root((float(x[k]),), (float(c[k]),), bool(meta[k][2]), float(resid[k]),
-                       complex(v_arr[k])) for k in range(len(meta)) if res.success[k])
+    roots = tuple(
+        Root((float(x[k]),), (float(c[k]),), bool(meta[k][2]), float(resid[k]), complex(v_arr[k]))
+        for k in range(len(meta))
+        if res.success[k]
+    )
     return Solution((name,), roots, peak, sum(s.null is not None for s in segs))
 
 
 #: Period (deg) of each element type in its element angle, as an optical setting. A polarizer's
 #: projector and a retarder's Jones matrix repeat after 180 deg; a rotator's Jones matrix changes
 #: sign after 180 deg (a global phase: the same density matrix, the same Stokes vector).
-ELEMENT_PERIOD_DEG = {"polarizer": 180.0, "hwp": 180.0, "qwp": 180.0, "retarder": 180.0,
-                      "rotator": 180.0}
+ELEMENT_PERIOD_DEG = {
+    "polarizer": 180.0,
+    "hwp": 180.0,
+    "qwp": 180.0,
+    "retarder": 180.0,
+    "rotator": 180.0,
+}
 PERIOD_DEG = 180.0  # the period of every element type above
 
 
@@ -507,8 +556,9 @@ def _wrap(d: Real) -> Real:
     return np.mod(d + PERIOD_DEG / 2, PERIOD_DEG) - PERIOD_DEG / 2
 
 
-def _ray_directions(bench: Bench, names: Sequence[str], fixed: Mapping[str, float],
-                    centres: Real, values: Real) -> Real:
+def _ray_directions(
+    bench: Bench, names: Sequence[str], fixed: Mapping[str, float], centres: Real, values: Real
+) -> Real:
     """Unit search directions (deg space) from each null towards the target, from the ideal
     closed form: the extinction-free ``1/A_w`` is linear near a null, ``1/A_w ~ J dx``, so the
     target weak value ``T`` lies along ``dx = J^+ (1/T)`` (``eps = arccot X`` in the crossed
@@ -526,8 +576,14 @@ def _ray_directions(bench: Bench, names: Sequence[str], fixed: Mapping[str, floa
     return dx / dist[:, None], dist
 
 
-def _polish(bench: Bench, target: Target, names: Sequence[str], fixed: Mapping[str, float],
-            x0: Real, values: Real) -> tuple[Real, Real]:
+def _polish(
+    bench: Bench,
+    target: Target,
+    names: Sequence[str],
+    fixed: Mapping[str, float],
+    x0: Real,
+    values: Real,
+) -> tuple[Real, Real]:
     """Gauss-Newton on ``(w(x) - T)/|T|`` for all roots at once (one forward call per step,
     forward-difference Jacobian); ``scipy.optimize.least_squares`` for any that stall."""
     from scipy.optimize import least_squares
@@ -552,8 +608,13 @@ def _polish(bench: Bench, target: Target, names: Sequence[str], fixed: Mapping[s
             break
     res = np.linalg.norm(residuals(x, values, scale[:, 0]), axis=-1)
     for k in np.nonzero(~(res < 1e-9))[0]:
-        fit = least_squares(lambda y, k=k: residuals(y, values[k], scale[k, 0]), x0[k],
-                            xtol=1e-15, ftol=1e-15, gtol=1e-15)
+        fit = least_squares(
+            lambda y, k=k: residuals(y, values[k], scale[k, 0]),
+            x0[k],
+            xtol=1e-15,
+            ftol=1e-15,
+            gtol=1e-15,
+        )
         x[k], res[k] = fit.x, np.linalg.norm(fit.fun)
     return x, res
 
@@ -573,8 +634,9 @@ def _translations(x: Real, names: Sequence[str], bench: Bench) -> list[Real]:
     return list(np.stack([g.ravel() for g in grid], axis=-1))
 
 
-def _solve_many_mounts(bench: Bench, target: Target, names: tuple[str, ...],
-                       fixed: Mapping[str, float]) -> Solution:
+def _solve_many_mounts(
+    bench: Bench, target: Target, names: tuple[str, ...], fixed: Mapping[str, float]
+) -> Solution:
     """Roots in several mounts: ray searches from each null, then a joint polish."""
     from scipy.optimize.elementwise import find_root
 
@@ -609,11 +671,16 @@ def _solve_many_mounts(bench: Bench, target: Target, names: tuple[str, ...],
     def along(s: Real, r: Real) -> Real:
         r = r.astype(int)
         x = c_ray[r] + s[..., None] * direction[r]
-        return _residual_scalar(target, observe(bench, _readings(names, x, fixed)), v_ray[r],
-                                len(names))
+        return _residual_scalar(
+            target, observe(bench, _readings(names, x, fixed)), v_ray[r], len(names)
+        )
 
-    res = find_root(along, (np.array(starts), np.array(ends)), args=(rays.astype(float),),
-                    tolerances={"xatol": 1e-12, "xrtol": 1e-13})
+    res = find_root(
+        along,
+        (np.array(starts), np.array(ends)),
+        args=(rays.astype(float),),
+        tolerances={"xatol": 1e-12, "xrtol": 1e-13},
+    )
     x0 = c_ray[rays] + res.x[:, None] * direction[rays]
     x, resid = _polish(bench, target, names, fixed, x0, v_ray[rays])
     roots: list[Root] = []
@@ -623,8 +690,15 @@ def _solve_many_mounts(bench: Bench, target: Target, names: tuple[str, ...],
         null = c_ray[rays[k]]
         for y in _translations(x[k], names, bench):
             shift = y - x[k]
-            roots.append(Root(tuple(float(v) for v in y), tuple(float(v) for v in null + shift),
-                              meta[k][1], float(resid[k]), complex(v_ray[rays[k]])))
+            roots.append(
+                Root(
+                    tuple(float(v) for v in y),
+                    tuple(float(v) for v in null + shift),
+                    meta[k][1],
+                    float(resid[k]),
+                    complex(v_ray[rays[k]]),
+                )
+            )
     return Solution(names, tuple(roots), peak, count)
 
 
@@ -646,7 +720,7 @@ def pointer_cap(bench: Bench) -> float:
     """Largest exact amplification a Gaussian pointer allows for a real weak value,
     ``1/sqrt(1 - exp(-g^2/sigma^2))`` (about ``sigma/g``; physics.md, all-orders response)."""
     c = bench.coupling
-    return float(1.0 / np.sqrt(-np.expm1(-(c.strength / c.pointer_sigma) ** 2)))
+    return float(1.0 / np.sqrt(-np.expm1(-((c.strength / c.pointer_sigma) ** 2))))
 
 
 def infeasible(bench: Bench, target: Target, solution: Solution) -> InfeasibleTarget:
@@ -658,21 +732,27 @@ def infeasible(bench: Bench, target: Target, solution: Solution) -> InfeasibleTa
             f"the null (crossed setting) of mounts {names} lies outside their travel, so "
             f"{target.describe()} cannot be reached"
             + ("" if best is None else f" (at most {best:.4g} inside the travel)")
-            + "; widen travel_deg in the bench file or re-mount the optic", limit="travel",
-            achievable=best)
+            + "; widen travel_deg in the bench file or re-mount the optic",
+            limit="travel",
+            achievable=best,
+        )
     if solution.nulls == 0:
         return InfeasibleTarget(
             f"mounts {names} cannot bring the post-selection orthogonal to the pre-selection "
             "(no null inside their travel), so no amplification can be planned; check the "
-            "element angles and the travel limits in the bench file", limit="geometry")
+            "element angles and the travel limits in the bench file",
+            limit="geometry",
+        )
     if target.kind == "leak_rate":
         return _leak_infeasible(bench, target, solution.unknowns[0])
     wanted = abs(target.value)
     if solution.peak >= wanted:
         return InfeasibleTarget(
             f"{target.describe()} is reachable only with mounts {names} outside their travel; "
-            "widen travel_deg in the bench file or re-mount the optic", limit="travel",
-            achievable=solution.peak)
+            "widen travel_deg in the bench file or re-mount the optic",
+            limit="travel",
+            achievable=solution.peak,
+        )
     an, src = bench.analyzer.extinction_ratio, bench.source.extinction_ratio
     d_a, d_s = 1.0 / an, 1.0 / src  # leak of each polarizer (0 for a perfect one)
     with np.errstate(divide="ignore"):
@@ -684,13 +764,22 @@ def infeasible(bench: Bench, target: Target, solution: Solution) -> InfeasibleTa
             f"exceed about one pointer width, so the exact amplification peaks near "
             f"{solution.peak:.4g} here (sigma/g = "
             f"{bench.coupling.pointer_sigma / bench.coupling.strength:.4g}); use a wider "
-            "pointer (larger pointer_sigma) or a weaker coupling", limit="pointer",
-            achievable=solution.peak)
+            "pointer (larger pointer_sigma) or a weaker coupling",
+            limit="pointer",
+            achievable=solution.peak,
+        )
     worse = "analyzer" if d_a >= d_s else "source polarizer"
-    arm = [e.key for e in (*bench.pre, *bench.post)
-           if e.type == "polarizer" and np.isfinite(e.extinction_ratio)]
-    also = (f"; the leak of the polarizer(s) {', '.join(arm)} in the arms adds to the floor and "
-            "is not in that estimate" if arm else "")
+    arm = [
+        e.key
+        for e in (*bench.pre, *bench.post)
+        if e.type == "polarizer" and np.isfinite(e.extinction_ratio)
+    ]
+    also = (
+        f"; the leak of the polarizer(s) {', '.join(arm)} in the arms adds to the floor and "
+        "is not in that estimate"
+        if arm
+        else ""
+    )
     return InfeasibleTarget(
         f"{target.describe()} is beyond the extinction limit: light leaking through the source "
         f"polarizer (extinction ratio {src:.3g}, leak d_s = 1/ER = {d_s:.3g}) and the analyzer "
@@ -698,14 +787,21 @@ def infeasible(bench: Bench, target: Target, solution: Solution) -> InfeasibleTa
         f"post-selection, which caps the amplification at {solution.peak:.4g} on this bench "
         f"(for ideal states about 1/(2 sqrt(d_a + d_s)) = {ideal_cap:.4g}, with the combined "
         f"leak d_a + d_s = {d_a + d_s:.3g}){also}; the {worse} leaks more: use one with a "
-        "higher extinction ratio", limit="extinction", achievable=solution.peak)
+        "higher extinction ratio",
+        limit="extinction",
+        achievable=solution.peak,
+    )
 
 
 def _null_beyond_travel(bench: Bench, names: Sequence[str]) -> bool:
     """Would the mounts reach a null if their travel were a full turn?"""
-    wide = {n: replace(bench.mounts[n], travel_deg=(bench.mounts[n].reading_deg - 180.0,
-                                                    bench.mounts[n].reading_deg + 180.0))
-            for n in names}
+    wide = {
+        n: replace(
+            bench.mounts[n],
+            travel_deg=(bench.mounts[n].reading_deg - 180.0, bench.mounts[n].reading_deg + 180.0),
+        )
+        for n in names
+    }
     fixed = {k: v for k, v in bench.readings().items() if k not in names}
     free_bench = bench.with_mounts(**wide)
     if len(names) == 1:
@@ -733,58 +829,87 @@ def _leak_infeasible(bench: Bench, target: Target, name: str) -> InfeasibleTarge
         return InfeasibleTarget(
             f"a leak rate of {target.value.real:.3g} is below the floor of {lo:.3g} per photon "
             "set by the extinction of the analyzer and source polarizer; use polarizers with a "
-            "higher extinction ratio", limit="extinction", achievable=lo)
+            "higher extinction ratio",
+            limit="extinction",
+            achievable=lo,
+        )
     return InfeasibleTarget(
         f"a leak rate of {target.value.real:.3g} is above the largest reachable, {hi:.3g} per "
         "photon (analyzer transmission and the optics' losses); lower the target",
-        limit="transmission", achievable=hi)
+        limit="transmission",
+        achievable=hi,
+    )
 
 
 def _distance(root: Root, names: Sequence[str], near: Mapping[str, float]) -> float:
-    return float(np.linalg.norm([r - near[n] for r, n in zip(root.readings, names,
-                                                               strict=True)]))
+    return float(np.linalg.norm([r - near[n] for r, n in zip(root.readings, names, strict=True)]))
 
 
-def preferred(roots: Sequence[Root], names: Sequence[str], near: Mapping[str, float],
-              ) -> list[int]:
+def preferred(
+    roots: Sequence[Root],
+    names: Sequence[str],
+    near: Mapping[str, float],
+) -> list[int]:
     """Root indices in the default order: weak-regime roots (outside the extinction floor)
     first, each group nearest to ``near`` first."""
-    return sorted(range(len(roots)),
-                  key=lambda k: (roots[k].inner, _distance(roots[k], names, near)))
+    return sorted(
+        range(len(roots)), key=lambda k: (roots[k].inner, _distance(roots[k], names, near))
+    )
 
 
-def make_target(amplification: float | None = None, *, axis: str = "re", exact: bool = False,
-                weak_value: complex | None = None, leak_rate: float | None = None) -> Target:
+def make_target(
+    amplification: float | None = None,
+    *,
+    axis: str = "re",
+    exact: bool = False,
+    weak_value: complex | None = None,
+    leak_rate: float | None = None,
+) -> Target:
     """Validate exactly one target and build it (errors name the argument)."""
-    given = [k for k, v in (("amplification", amplification), ("weak_value", weak_value),
-                            ("leak_rate", leak_rate)) if v is not None]
+    given = [
+        k
+        for k, v in (
+            ("amplification", amplification),
+            ("weak_value", weak_value),
+            ("leak_rate", leak_rate),
+        )
+        if v is not None
+    ]
     if len(given) != 1:
-        raise InputError("give exactly one target: amplification, weak_value or leak_rate"
-                         + (f" (got {', '.join(given)})" if given else ""))
+        raise InputError(
+            "give exactly one target: amplification, weak_value or leak_rate"
+            + (f" (got {', '.join(given)})" if given else "")
+        )
     if axis not in ("re", "im"):
         raise InputError(f"axis {axis!r}: allowed are 're' and 'im'")
     if amplification is not None:
         x = float(amplification)
         if not np.isfinite(x) or x <= 0:
-            raise InputError(f"amplification must be a finite number > 0 (its size; both signs "
-                             f"are offered as branches), got {amplification!r}")
+            raise InputError(
+                f"amplification must be a finite number > 0 (its size; both signs "
+                f"are offered as branches), got {amplification!r}"
+            )
         return Target("amplification", complex(x), axis, bool(exact))
     if weak_value is not None:
         w = complex(weak_value)
         if not np.isfinite(w) or w == 0:
-            raise InputError(f"weak_value must be a finite, non-zero complex number, got "
-                             f"{weak_value!r}")
+            raise InputError(
+                f"weak_value must be a finite, non-zero complex number, got {weak_value!r}"
+            )
         return Target("weak_value", w)
     p = float(leak_rate)  # type: ignore[arg-type]
     if not np.isfinite(p) or not 0 < p <= 1:
-        raise InputError(f"leak_rate must be a probability per photon in (0, 1], got "
-                         f"{leak_rate!r}")
+        raise InputError(f"leak_rate must be a probability per photon in (0, 1], got {leak_rate!r}")
     return Target("leak_rate", complex(p))
 
 
-def readings_for_amplification(bench: Bench, amplification: ArrayLike, *,
-                               axis: str | None = None, exact: bool = False,
-                               ) -> dict[str, ArrayLike]:
+def readings_for_amplification(
+    bench: Bench,
+    amplification: ArrayLike,
+    *,
+    axis: str | None = None,
+    exact: bool = False,
+) -> dict[str, ArrayLike]:
     """Readings (deg) of the planner's unknown mounts (the imbalance mount, plus the phase mount
     when the bench has one, which keeps the weak value on ``axis``) for an amplification of
     size ``amplification`` (linear ``Re``/``Im A_w``, or exact pointer response). ``axis``

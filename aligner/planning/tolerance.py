@@ -76,17 +76,30 @@ class Tolerance:
 
     def to_dict(self) -> dict[str, object]:
         def spread(s: Spread) -> dict[str, float]:
-            return {"median": s.median, "range68": [s.low68, s.high68],
-                    "range95": [s.low95, s.high95], "std": s.std}
+            return {
+                "median": s.median,
+                "range68": [s.low68, s.high68],
+                "range95": [s.low95, s.high95],
+                "std": s.std,
+            }
 
-        return {"samples": self.samples, "amplification": spread(self.figure),
-                "leak_rate": spread(self.leak_rate), "by_source": dict(self.by_source),
-                "dominant": self.dominant, "first_order_std": self.first_order_std}
+        return {
+            "samples": self.samples,
+            "amplification": spread(self.figure),
+            "leak_rate": spread(self.leak_rate),
+            "by_source": dict(self.by_source),
+            "dominant": self.dominant,
+            "first_order_std": self.first_order_std,
+        }
 
 
 def _plates(bench: Bench) -> list[tuple[str, int, Element]]:
-    return [(arm, i, e) for arm in ("pre", "post") for i, e in enumerate(getattr(bench, arm))
-            if e.type in _PLATES]
+    return [
+        (arm, i, e)
+        for arm in ("pre", "post")
+        for i, e in enumerate(getattr(bench, arm))
+        if e.type in _PLATES
+    ]
 
 
 def _with_retardance(bench: Bench, shifts: Mapping[tuple[str, int], object]) -> Bench:
@@ -95,12 +108,18 @@ def _with_retardance(bench: Bench, shifts: Mapping[tuple[str, int], object]) -> 
     for arm in ("pre", "post"):
         arms[arm] = tuple(
             replace(e, retardance_waves=e.retardance_waves + shifts[(arm, i)])
-            if (arm, i) in shifts else e for i, e in enumerate(getattr(bench, arm)))
+            if (arm, i) in shifts
+            else e
+            for i, e in enumerate(getattr(bench, arm))
+        )
     return replace(bench, **arms)
 
 
-def _figure_and_leak(bench: Bench, target: Target, readings: Mapping[str, object],
-                     ) -> tuple[Real, Real]:
+def _figure_and_leak(
+    bench: Bench,
+    target: Target,
+    readings: Mapping[str, object],
+) -> tuple[Real, Real]:
     obs = observe(bench, readings)
     return np.asarray(target.figure(obs), float), obs.leak_rate
 
@@ -121,19 +140,26 @@ def error_items(bench: Bench) -> list[tuple[str, str, object]]:
     return items
 
 
-def _sample(bench: Bench, target: Target, settings: Mapping[str, float],
-            items: list[tuple[str, str, object]], samples: int, rng: np.random.Generator,
-            ) -> tuple[Real, Real]:
+def _sample(
+    bench: Bench,
+    target: Target,
+    settings: Mapping[str, float],
+    items: list[tuple[str, str, object]],
+    samples: int,
+    rng: np.random.Generator,
+) -> tuple[Real, Real]:
     readings: dict[str, Real] = {n: np.full(samples, settings[n]) for n in bench.mounts}
     shifts: dict[tuple[str, int], object] = {}
     for _, source, key in items:
         if source == "repeatability":
             readings[key] = readings[key] + rng.normal(
-                0.0, bench.mounts[key].repeatability_deg, samples)
+                0.0, bench.mounts[key].repeatability_deg, samples
+            )
         elif source == "offset":
             # element angle = sense*(reading - offset): an offset error acts as a reading error
-            readings[key] = readings[key] - rng.normal(0.0, bench.mounts[key].offset_err_deg,
-                                                       samples)
+            readings[key] = readings[key] - rng.normal(
+                0.0, bench.mounts[key].offset_err_deg, samples
+            )
         else:
             arm, i = key
             tol = getattr(bench, arm)[i].retardance_tol_waves
@@ -159,15 +185,22 @@ def first_order_std(bench: Bench, target: Target, settings: Mapping[str, float])
     for arm, i, e in _plates(bench):
         if e.retardance_tol_waves > 0:
             shift = np.array([_STEP_WAVES, -_STEP_WAVES])
-            fp, _ = _figure_and_leak(_with_retardance(bench, {(arm, i): shift}), target,
-                                     dict(settings))
+            fp, _ = _figure_and_leak(
+                _with_retardance(bench, {(arm, i): shift}), target, dict(settings)
+            )
             d = (fp[0] - fp[1]) / (2 * _STEP_WAVES)
             var += d**2 * e.retardance_tol_waves**2 / 3.0
     return float(np.sqrt(var))
 
 
-def tolerance_budget(bench: Bench, target: Target, settings: Mapping[str, float], *,
-                     samples: int = 100_000, seed: int = 0) -> Tolerance:
+def tolerance_budget(
+    bench: Bench,
+    target: Target,
+    settings: Mapping[str, float],
+    *,
+    samples: int = 100_000,
+    seed: int = 0,
+) -> Tolerance:
     """Monte Carlo tolerance budget at ``settings`` (readings, deg; missing mounts at the file
     readings): all errors together, then each alone to find the dominant one."""
     full = {**bench.readings(), **settings}
@@ -175,8 +208,16 @@ def tolerance_budget(bench: Bench, target: Target, settings: Mapping[str, float]
     items = error_items(bench)
     fig, leak = _sample(bench, target, full, items, samples, rng)
     alone = max(samples // 4, 1000)  # enough to rank the errors
-    by_source = {item[0]: Spread.of(_sample(bench, target, full, [item], alone, rng)[0]
-                                    ).half_width68 for item in items}
+    by_source = {
+        item[0]: Spread.of(_sample(bench, target, full, [item], alone, rng)[0]).half_width68
+        for item in items
+    }
     dominant = max(by_source, key=lambda k: by_source[k]) if by_source else None
-    return Tolerance(samples, Spread.of(fig), Spread.of(leak), by_source, dominant,
-                     first_order_std(bench, target, full))
+    return Tolerance(
+        samples,
+        Spread.of(fig),
+        Spread.of(leak),
+        by_source,
+        dominant,
+        first_order_std(bench, target, full),
+    )

@@ -64,8 +64,15 @@ class MovePlan:
 class DetectorGuard:
     """Plans safe moves and checks count rates for one bench (see the module docstring)."""
 
-    def __init__(self, bench: Bench, *, has_shutter: bool, headroom: float = 0.5,
-                 step_deg: float = 0.1, overshoot_deg: float | None = None) -> None:
+    def __init__(
+        self,
+        bench: Bench,
+        *,
+        has_shutter: bool,
+        headroom: float = 0.5,
+        step_deg: float = 0.1,
+        overshoot_deg: float | None = None,
+    ) -> None:
         if not 0 < headroom <= 1:
             raise InputError(f"guard headroom must be in (0, 1], got {headroom:g}")
         if not step_deg > 0:
@@ -90,12 +97,17 @@ class DetectorGuard:
 
         return np.asarray(predict(self.bench, readings).exposure_rate, float)
 
-    def _table(self, readings: Mapping[str, float], mount: str,
-               ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    def _table(
+        self,
+        readings: Mapping[str, float],
+        mount: str,
+    ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
         """Predicted rate at every ``step_deg`` over the whole travel of ``mount``, the other
         mounts at ``readings`` (computed once per setting of the others)."""
-        key = (mount, tuple(sorted((k, round(float(v), 9)) for k, v in readings.items()
-                                   if k != mount)))
+        key = (
+            mount,
+            tuple(sorted((k, round(float(v), 9)) for k, v in readings.items() if k != mount)),
+        )
         table = self._tables.get(key)
         if table is None:
             low, high = self.bench.mounts[mount].travel_deg
@@ -106,8 +118,9 @@ class DetectorGuard:
             self._tables[key] = table
         return table
 
-    def path_peak(self, readings: Mapping[str, float], mount: str,
-                  waypoints: tuple[float, ...]) -> float:
+    def path_peak(
+        self, readings: Mapping[str, float], mount: str, waypoints: tuple[float, ...]
+    ) -> float:
         """Highest predicted rate (counts/s) along the path of ``mount`` through ``waypoints``
         with the others fixed: the rate at every ``step_deg`` the path covers and at its
         waypoints (interpolated)."""
@@ -131,8 +144,10 @@ class DetectorGuard:
         m = self.bench.mounts[mount]
         low, high = m.travel_deg
         if not low <= target <= high:
-            raise InputError(f"mount {mount!r}: reading {target:g} deg is outside travel_deg "
-                             f"[{low:g}, {high:g}] of the bench file")
+            raise InputError(
+                f"mount {mount!r}: reading {target:g} deg is outside travel_deg "
+                f"[{low:g}, {high:g}] of the bench file"
+            )
         approached = self._approached[mount]
         if approached is not None and math.isclose(approached, start, abs_tol=1e-9):
             if abs(target - start) <= m.resolution_deg / 2:
@@ -141,13 +156,16 @@ class DetectorGuard:
                 return (start, target)
         below = target - self.overshoot_deg(mount)
         if below < low:
-            raise InputError(f"mount {mount!r}: cannot approach {target:g} deg from below "
-                             f"(travel_deg starts at {low:g}); plan readings at least "
-                             f"{self.overshoot_deg(mount):g} deg inside the travel")
+            raise InputError(
+                f"mount {mount!r}: cannot approach {target:g} deg from below "
+                f"(travel_deg starts at {low:g}); plan readings at least "
+                f"{self.overshoot_deg(mount):g} deg inside the travel"
+            )
         return (start, below, target)
 
-    def plan_move(self, readings: Mapping[str, float], mount: str, target: float, *,
-                  shutter_open: bool = True) -> MovePlan:
+    def plan_move(
+        self, readings: Mapping[str, float], mount: str, target: float, *, shutter_open: bool = True
+    ) -> MovePlan:
         """A safe way to bring ``mount`` from ``readings[mount]`` to ``target`` (deg).
 
         ``readings`` are the current readings of every mount. Raises ``GuardTrip`` when no
@@ -161,9 +179,13 @@ class DetectorGuard:
         if peak <= self.limit or not shutter_open:
             return MovePlan(mount, direct, shut_for_move=False, peak_rate=peak)
         if self.has_shutter:
-            return MovePlan(mount, direct, shut_for_move=True, peak_rate=peak,
-                            note=f"shutter shut for the move of {mount}: the path passes "
-                                 f"{peak:.3g} counts/s")
+            return MovePlan(
+                mount,
+                direct,
+                shut_for_move=True,
+                peak_rate=peak,
+                note=f"shutter shut for the move of {mount}: the path passes {peak:.3g} counts/s",
+            )
         m = self.bench.mounts[mount]
         k_low = math.ceil((m.travel_deg[0] - target) / ELEMENT_PERIOD_DEG)
         k_high = math.floor((m.travel_deg[1] - target) / ELEMENT_PERIOD_DEG)
@@ -176,14 +198,20 @@ class DetectorGuard:
                 continue
             alt_peak = self.path_peak(readings, mount, path)
             if alt_peak <= self.limit:
-                return MovePlan(mount, path, shut_for_move=False, peak_rate=alt_peak,
-                                note=f"{mount} moved to {alt:g} deg instead of {target:g} deg "
-                                     "(the same element angle) to keep the detector dark")
+                return MovePlan(
+                    mount,
+                    path,
+                    shut_for_move=False,
+                    peak_rate=alt_peak,
+                    note=f"{mount} moved to {alt:g} deg instead of {target:g} deg "
+                    "(the same element angle) to keep the detector dark",
+                )
         raise GuardTrip(
             f"detector guard: moving {mount} from {start:g} to {target:g} deg would expose the "
             f"detector to about {peak:.3g} counts/s (limit {self.limit:.3g}, {self.headroom:g} x "
             f"safe_rate {self.safe_rate:.3g}) and there is no shutter and no dark way round; "
-            "block the beam and move by hand, or add a shutter")
+            "block the beam and move by hand, or add a shutter"
+        )
 
     def moved(self, mount: str, reached: float) -> None:
         """Record that a planned move (ending upwards) was made and ``mount`` reads ``reached``
@@ -200,10 +228,12 @@ class DetectorGuard:
         """Refuse to expose the detector where the prediction exceeds the limit."""
         if predicted_rate > self.limit:
             where = ", ".join(f"{k} {v:.4g} deg" for k, v in readings.items())
-            raise GuardTrip(f"detector guard: at {where} the predicted rate is "
-                            f"{predicted_rate:.3g} counts/s, above the limit {self.limit:.3g} "
-                            f"({self.headroom:g} x safe_rate {self.safe_rate:.3g}); the point "
-                            "is refused")
+            raise GuardTrip(
+                f"detector guard: at {where} the predicted rate is "
+                f"{predicted_rate:.3g} counts/s, above the limit {self.limit:.3g} "
+                f"({self.headroom:g} x safe_rate {self.safe_rate:.3g}); the point "
+                "is refused"
+            )
 
     def check_counts(self, counts: int, dwell_s: float) -> float:
         """The exposure rate (counts/s) behind a gate's ``counts``; ``GuardTrip`` above
@@ -220,13 +250,16 @@ class DetectorGuard:
         if d.mode == "pulsed" and d.rep_rate_hz is not None:
             p = click_probability_from_rate(counts / dwell_s, d.rep_rate_hz, tau)
             with np.errstate(divide="ignore", invalid="ignore"):
-                mu = mean_photons_from_clicks(np.minimum(p, 1.0), d.efficiency,
-                                              d.gate_dark_probability)
+                mu = mean_photons_from_clicks(
+                    np.minimum(p, 1.0), d.efficiency, d.gate_dark_probability
+                )
             rate = float(d.rep_rate_hz * (d.efficiency * mu + d.gate_dark_probability))
         else:
             rate = float(true_rate(counts / dwell_s, tau))
         if rate > self.safe_rate:
-            raise GuardTrip(f"detector guard: measured {rate:.3g} counts/s, above safe_rate "
-                            f"{self.safe_rate:.3g}; shutter shut and sweep stopped. Check the "
-                            "beam path and the analyzer before resuming")
+            raise GuardTrip(
+                f"detector guard: measured {rate:.3g} counts/s, above safe_rate "
+                f"{self.safe_rate:.3g}; shutter shut and sweep stopped. Check the "
+                "beam path and the analyzer before resuming"
+            )
         return rate

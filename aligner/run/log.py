@@ -103,10 +103,26 @@ CREATE TABLE IF NOT EXISTS events (
 );
 """
 
-_POINT_COLUMNS = ("idx", "target", "commanded_json", "readback_json", "reading_deg", "counts",
-                  "reference", "dwell_s", "leak", "leak_lo", "leak_hi", "predicted_leak",
-                  "predicted_rate", "imbalance_deg", "pointer", "pointer_err", "started_utc",
-                  "ended_utc")
+_POINT_COLUMNS = (
+    "idx",
+    "target",
+    "commanded_json",
+    "readback_json",
+    "reading_deg",
+    "counts",
+    "reference",
+    "dwell_s",
+    "leak",
+    "leak_lo",
+    "leak_hi",
+    "predicted_leak",
+    "predicted_rate",
+    "imbalance_deg",
+    "pointer",
+    "pointer_err",
+    "started_utc",
+    "ended_utc",
+)
 
 
 def utc_now() -> str:
@@ -204,11 +220,13 @@ class RunLog:
             self._db.execute("PRAGMA foreign_keys=ON")
             self._db.executescript(_SCHEMA)
         except sqlite3.DatabaseError as exc:
-            raise DataFileError(f"{self.path}: cannot be used as a run log ({exc}); give another "
-                                "file with --db") from None
+            raise DataFileError(
+                f"{self.path}: cannot be used as a run log ({exc}); give another file with --db"
+            ) from None
         except OSError as exc:
-            raise DataFileError(f"{self.path}: cannot create the run log ({exc}); give another "
-                                "file with --db") from None
+            raise DataFileError(
+                f"{self.path}: cannot create the run log ({exc}); give another file with --db"
+            ) from None
 
     def __enter__(self) -> RunLog:
         return self
@@ -222,28 +240,54 @@ class RunLog:
 
     # -- writing -----------------------------------------------------------------------------
 
-    def create_run(self, *, bench_name: str, bench_path: str | None, bench_toml: str,
-                   schedule: str, plan: Sequence[Mapping[str, Any]], dwell_s: float,
-                   settle_s: float, repeats: int, imbalance_mount: str,
-                   software_version: str) -> int:
+    def create_run(
+        self,
+        *,
+        bench_name: str,
+        bench_path: str | None,
+        bench_toml: str,
+        schedule: str,
+        plan: Sequence[Mapping[str, Any]],
+        dwell_s: float,
+        settle_s: float,
+        repeats: int,
+        imbalance_mount: str,
+        software_version: str,
+    ) -> int:
         """Insert a run with status ``running``; return its id."""
         cur = self._db.execute(
             "INSERT INTO runs (status, bench_name, bench_path, bench_toml, schedule, plan_json, "
             "dwell_s, settle_s, repeats, imbalance_mount, software_version, started_utc) "
             "VALUES ('running', ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
-            (bench_name, bench_path, bench_toml, schedule, json.dumps(list(plan)), dwell_s,
-             settle_s, repeats, imbalance_mount, software_version, utc_now()))
+            (
+                bench_name,
+                bench_path,
+                bench_toml,
+                schedule,
+                json.dumps(list(plan)),
+                dwell_s,
+                settle_s,
+                repeats,
+                imbalance_mount,
+                software_version,
+                utc_now(),
+            ),
+        )
         return int(cur.lastrowid or 0)
 
     def add_point(self, run_id: int, point: LoggedPoint, events: Iterable[Event] = ()) -> None:
         """Write one point and its events in one transaction."""
-        row = {**point.__dict__, "commanded_json": json.dumps(dict(point.commanded)),
-               "readback_json": json.dumps(dict(point.readback))}
+        row = {
+            **point.__dict__,
+            "commanded_json": json.dumps(dict(point.commanded)),
+            "readback_json": json.dumps(dict(point.readback)),
+        }
         with self._transaction():
             self._db.execute(
                 f"INSERT INTO points (run_id, {', '.join(_POINT_COLUMNS)}) VALUES "
                 f"(?, {', '.join('?' * len(_POINT_COLUMNS))})",
-                (run_id, *(row[c] for c in _POINT_COLUMNS)))
+                (run_id, *(row[c] for c in _POINT_COLUMNS)),
+            )
             self._insert_events(run_id, events)
 
     def add_events(self, run_id: int, events: Iterable[Event]) -> None:
@@ -262,13 +306,16 @@ class RunLog:
         """Mark a run ``running``, ``interrupted`` or ``complete`` (with a message)."""
         ended = None if status == "running" else utc_now()
         with self._transaction():
-            self._db.execute("UPDATE runs SET status = ?, ended_utc = ?, message = ? WHERE id = ?",
-                             (status, ended, message, run_id))
+            self._db.execute(
+                "UPDATE runs SET status = ?, ended_utc = ?, message = ? WHERE id = ?",
+                (status, ended, message, run_id),
+            )
 
     def _insert_events(self, run_id: int, events: Iterable[Event]) -> None:
         self._db.executemany(
             "INSERT INTO events (run_id, idx, kind, message, t_utc) VALUES (?, ?, ?, ?, ?)",
-            [(run_id, e.idx, e.kind, e.message, e.t_utc or utc_now()) for e in events])
+            [(run_id, e.idx, e.kind, e.message, e.t_utc or utc_now()) for e in events],
+        )
 
     def _transaction(self) -> _Transaction:
         return _Transaction(self._db)
@@ -281,12 +328,14 @@ class RunLog:
             "SELECT id, status, bench_name, bench_path, bench_toml, schedule, plan_json, dwell_s, "
             "settle_s, repeats, imbalance_mount, software_version, started_utc, ended_utc, "
             "message, (SELECT COUNT(*) FROM points WHERE run_id = runs.id) FROM runs WHERE id = ?",
-            (run_id,)).fetchone()
+            (run_id,),
+        ).fetchone()
         if row is None:
             known = [str(r[0]) for r in self._db.execute("SELECT id FROM runs ORDER BY id")]
             listing = ", ".join(known[-10:]) or "none yet"
-            raise DataFileError(f"{self.path}: no run {run_id} (runs: {listing}); "
-                                "see 'aligner log list'")
+            raise DataFileError(
+                f"{self.path}: no run {run_id} (runs: {listing}); see 'aligner log list'"
+            )
         return self._record(row)
 
     def runs(self) -> list[RunRecord]:
@@ -294,21 +343,39 @@ class RunLog:
         rows = self._db.execute(
             "SELECT id, status, bench_name, bench_path, bench_toml, schedule, plan_json, dwell_s, "
             "settle_s, repeats, imbalance_mount, software_version, started_utc, ended_utc, "
-            "message, (SELECT COUNT(*) FROM points WHERE run_id = runs.id) FROM runs ORDER BY id")
+            "message, (SELECT COUNT(*) FROM points WHERE run_id = runs.id) FROM runs ORDER BY id"
+        )
         return [self._record(r) for r in rows]
 
     @staticmethod
     def _record(row: Sequence[Any]) -> RunRecord:
         plan = tuple(json.loads(row[6]))
-        return RunRecord(row[0], row[1], row[2], row[3], row[4], row[5], plan, row[7], row[8],
-                         row[9], row[10], row[11], row[12], row[13], row[14], row[15])
+        return RunRecord(
+            row[0],
+            row[1],
+            row[2],
+            row[3],
+            row[4],
+            row[5],
+            plan,
+            row[7],
+            row[8],
+            row[9],
+            row[10],
+            row[11],
+            row[12],
+            row[13],
+            row[14],
+            row[15],
+        )
 
     def points(self, run_id: int) -> list[LoggedPoint]:
         """A run's points in index order."""
         self.run(run_id)
         rows = self._db.execute(
             f"SELECT {', '.join(_POINT_COLUMNS)} FROM points WHERE run_id = ? ORDER BY idx",
-            (run_id,))
+            (run_id,),
+        )
         out = []
         for r in rows:
             values = dict(zip(_POINT_COLUMNS, r, strict=True))
@@ -319,14 +386,15 @@ class RunLog:
 
     def done_indices(self, run_id: int) -> set[int]:
         """Indices of the points already logged."""
-        return {r[0] for r in self._db.execute("SELECT idx FROM points WHERE run_id = ?",
-                                               (run_id,))}
+        return {
+            r[0] for r in self._db.execute("SELECT idx FROM points WHERE run_id = ?", (run_id,))
+        }
 
     def events(self, run_id: int) -> list[Event]:
         """A run's events, oldest first."""
         rows = self._db.execute(
-            "SELECT kind, message, idx, t_utc FROM events WHERE run_id = ? ORDER BY id",
-            (run_id,))
+            "SELECT kind, message, idx, t_utc FROM events WHERE run_id = ? ORDER BY id", (run_id,)
+        )
         return [Event(kind, message, idx, t) for kind, message, idx, t in rows]
 
     def integrity_ok(self) -> bool:

@@ -17,9 +17,23 @@ from .log import Event, LoggedPoint, RunRecord
 
 __all__ = ["CSV_COLUMNS", "Report", "export_csv", "write_report"]
 
-CSV_COLUMNS = ("run", "index", "mount", "reading_deg", "counts", "reference", "leak", "leak_lo",
-               "leak_hi", "predicted_leak", "dwell_s", "imbalance_deg", "predicted_rate",
-               "pointer", "pointer_err")
+CSV_COLUMNS = (
+    "run",
+    "index",
+    "mount",
+    "reading_deg",
+    "counts",
+    "reference",
+    "leak",
+    "leak_lo",
+    "leak_hi",
+    "predicted_leak",
+    "dwell_s",
+    "imbalance_deg",
+    "predicted_rate",
+    "pointer",
+    "pointer_err",
+)
 INSTALL_HINT = 'the plot needs matplotlib: pip install "aligner[report]"'
 
 
@@ -33,8 +47,9 @@ class Report:
     note: str = ""
 
 
-def export_csv(record: RunRecord, points: Sequence[LoggedPoint], path: str | Path, *,
-               overwrite: bool = False) -> int:
+def export_csv(
+    record: RunRecord, points: Sequence[LoggedPoint], path: str | Path, *, overwrite: bool = False
+) -> int:
     """Write a run's points as CSV (header row, :data:`CSV_COLUMNS`; ``mount`` names the
     imbalance mount whose reading ``reading_deg`` is); return the row count. Empty cells stand
     for a missing reference or pointer reading. An existing file is kept unless
@@ -44,17 +59,29 @@ def export_csv(record: RunRecord, points: Sequence[LoggedPoint], path: str | Pat
             writer = csv.writer(handle)
             writer.writerow(CSV_COLUMNS)
             for p in points:
-                writer.writerow([record.id, p.idx, record.imbalance_mount,
-                                 f"{p.reading_deg:.6f}", p.counts,
-                                 "" if p.reference is None else p.reference, repr(p.leak),
-                                 repr(p.leak_lo), repr(p.leak_hi), repr(p.predicted_leak),
-                                 repr(p.dwell_s), f"{p.imbalance_deg:.6f}",
-                                 repr(p.predicted_rate),
-                                 "" if p.pointer is None else repr(p.pointer),
-                                 "" if p.pointer_err is None else repr(p.pointer_err)])
+                writer.writerow(
+                    [
+                        record.id,
+                        p.idx,
+                        record.imbalance_mount,
+                        f"{p.reading_deg:.6f}",
+                        p.counts,
+                        "" if p.reference is None else p.reference,
+                        repr(p.leak),
+                        repr(p.leak_lo),
+                        repr(p.leak_hi),
+                        repr(p.predicted_leak),
+                        repr(p.dwell_s),
+                        f"{p.imbalance_deg:.6f}",
+                        repr(p.predicted_rate),
+                        "" if p.pointer is None else repr(p.pointer),
+                        "" if p.pointer_err is None else repr(p.pointer_err),
+                    ]
+                )
     except FileExistsError:
-        raise InputError(f"--csv {path}: the file exists; choose another name or add --force "
-                         "to replace it") from None
+        raise InputError(
+            f"--csv {path}: the file exists; choose another name or add --force to replace it"
+        ) from None
     except OSError as exc:
         raise InputError(f"--csv {path}: cannot be written ({exc})") from None
     return len(points)
@@ -73,8 +100,12 @@ def _plot(record: RunRecord, points: Sequence[LoggedPoint], path: Path) -> None:
     order = np.argsort(x)
     fig, ax = plt.subplots(figsize=(6.4, 4.2))
     ax.errorbar(x, leak, yerr=err, fmt="o", ms=4, capsize=2, label="measured (68 % interval)")
-    ax.plot(x[order], np.array([p.predicted_leak for p in points])[order], "-",
-            label="predicted at read-back")
+    ax.plot(
+        x[order],
+        np.array([p.predicted_leak for p in points])[order],
+        "-",
+        label="predicted at read-back",
+    )
     ax.set_xlabel(f"{record.imbalance_mount} reading (deg)")
     ax.set_ylabel("leak rate (per incident photon)")
     ax.set_yscale("log")
@@ -98,57 +129,81 @@ def fitted_offset(record: RunRecord, points: Sequence[LoggedPoint]) -> str:
     if len(points) < 4:
         return "not fitted (fewer than 4 points)"
     has_ref = all(p.reference for p in points)
-    scan = CountScan(np.array([p.reading_deg for p in points]),
-                     np.array([float(p.counts) for p in points]),
-                     np.array([p.dwell_s for p in points]),
-                     np.array([float(p.reference) for p in points]) if has_ref else None,
-                     f"run {record.id}")
+    scan = CountScan(
+        np.array([p.reading_deg for p in points]),
+        np.array([float(p.counts) for p in points]),
+        np.array([p.dwell_s for p in points]),
+        np.array([float(p.reference) for p in points]) if has_ref else None,
+        f"run {record.id}",
+    )
     try:
         fit = fit_leak_curve(resume_plan(record)[0], scan, record.imbalance_mount)
     except AlignerError as exc:
         return f"not fitted ({exc})"
-    return (f"{fit.imbalance_offset_deg:+.4f} +/- {fit.imbalance_offset_err_deg:.4f} deg "
-            f"(leak floor {fit.leak_floor:.3g} +/- {fit.leak_floor_err:.2g}, bench predicts "
-            f"{fit.predicted_floor:.3g}; {fit.verdict.text})")
+    return (
+        f"{fit.imbalance_offset_deg:+.4f} +/- {fit.imbalance_offset_err_deg:.4f} deg "
+        f"(leak floor {fit.leak_floor:.3g} +/- {fit.leak_floor_err:.2g}, bench predicts "
+        f"{fit.predicted_floor:.3g}; {fit.verdict.text})"
+    )
 
 
-def _markdown(record: RunRecord, points: Sequence[LoggedPoint], events: Sequence[Event],
-              plot: Path | None, note: str) -> str:
-    lines = [f"# Run {record.id}: {record.bench_name or 'bench'}", "",
-             f"- status: {record.status} ({len(points)} of {record.planned} points)"
-             + (f" -- {record.message}" if record.message else ""),
-             f"- schedule: `{record.schedule}`, {record.repeats} pass(es), dwell "
-             f"{record.dwell_s:g} s, settle {record.settle_s:g} s",
-             f"- bench file: {record.bench_path} (snapshot kept in the run log)",
-             f"- started {record.started_utc}, ended {record.ended_utc or '-'} (UTC)",
-             f"- software: aligner {record.software_version}",
-             f"- fitted imbalance offset: {fitted_offset(record, points)}", ""]
+def _markdown(
+    record: RunRecord,
+    points: Sequence[LoggedPoint],
+    events: Sequence[Event],
+    plot: Path | None,
+    note: str,
+) -> str:
+    lines = [
+        f"# Run {record.id}: {record.bench_name or 'bench'}",
+        "",
+        f"- status: {record.status} ({len(points)} of {record.planned} points)"
+        + (f" -- {record.message}" if record.message else ""),
+        f"- schedule: `{record.schedule}`, {record.repeats} pass(es), dwell "
+        f"{record.dwell_s:g} s, settle {record.settle_s:g} s",
+        f"- bench file: {record.bench_path} (snapshot kept in the run log)",
+        f"- started {record.started_utc}, ended {record.ended_utc or '-'} (UTC)",
+        f"- software: aligner {record.software_version}",
+        f"- fitted imbalance offset: {fitted_offset(record, points)}",
+        "",
+    ]
     if plot is not None:
         lines += [f"![measured and predicted leak rate]({plot.name})", ""]
     elif note:
         lines += [f"_No plot: {note}._", ""]
     if points:
-        lines += ["| # | reading (deg) | imbalance (deg) | counts | leak | 68 % interval "
-                  "| predicted | measured/predicted |",
-                  "|---|---|---|---|---|---|---|---|"]
+        lines += [
+            "| # | reading (deg) | imbalance (deg) | counts | leak | 68 % interval "
+            "| predicted | measured/predicted |",
+            "|---|---|---|---|---|---|---|---|",
+        ]
         for p in points:
             ratio = f"{p.leak / p.predicted_leak:.3g}" if p.predicted_leak > 0 else "-"
-            lines.append(f"| {p.idx} | {p.reading_deg:.4f} | {p.imbalance_deg:+.3f} | "
-                         f"{p.counts} | {p.leak:.3e} | {p.leak_lo:.3e} - {p.leak_hi:.3e} | "
-                         f"{p.predicted_leak:.3e} | {ratio} |")
+            lines.append(
+                f"| {p.idx} | {p.reading_deg:.4f} | {p.imbalance_deg:+.3f} | "
+                f"{p.counts} | {p.leak:.3e} | {p.leak_lo:.3e} - {p.leak_hi:.3e} | "
+                f"{p.predicted_leak:.3e} | {ratio} |"
+            )
         lines.append("")
     if events:
         lines += ["## Events", ""]
-        lines += [f"- {e.t_utc} {e.kind}" + (f" (point {e.idx})" if e.idx is not None else "")
-                  + f": {e.message}" for e in events]
+        lines += [
+            f"- {e.t_utc} {e.kind}"
+            + (f" (point {e.idx})" if e.idx is not None else "")
+            + f": {e.message}"
+            for e in events
+        ]
         lines.append("")
-    lines += ["Laser safety: follow your local laser-safety rules and your laser safety "
-              "officer.", ""]
+    lines += [
+        "Laser safety: follow your local laser-safety rules and your laser safety officer.",
+        "",
+    ]
     return "\n".join(lines)
 
 
-def write_report(record: RunRecord, points: Sequence[LoggedPoint], events: Sequence[Event],
-                 out_dir: str | Path) -> Report:
+def write_report(
+    record: RunRecord, points: Sequence[LoggedPoint], events: Sequence[Event], out_dir: str | Path
+) -> Report:
     """Write ``run-<id>.md`` and ``run-<id>-leak.svg`` into ``out_dir`` (created)."""
     out = Path(out_dir)
     try:

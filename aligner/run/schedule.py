@@ -30,8 +30,7 @@ __all__ = ["FORMS", "PlannedPoint", "Schedule", "parse_schedule", "plan_points"]
 #: schedule form -> (quantity stepped, help text)
 FORMS: Mapping[str, tuple[str, str]] = {
     "linear": ("imbalance_deg", "linear:START:STOP:N  N imbalances (deg) evenly spaced"),
-    "amplification": ("amplification",
-                      "amplification:START:STOP:N  N amplifications, log-spaced"),
+    "amplification": ("amplification", "amplification:START:STOP:N  N amplifications, log-spaced"),
     "list": ("imbalance_deg", "list:V1,V2,...  explicit imbalances (deg)"),
     "outback": ("imbalance_deg", "outback:START:STOP:N  N imbalances out, then the same back"),
 }
@@ -96,8 +95,9 @@ def _range(spec: str, fields: list[str]) -> tuple[float, float, int]:
     return start, stop, n
 
 
-def parse_schedule(spec: str, *, repeats: int = 1, dwell_s: float = 1.0,
-                   settle_s: float = 0.0) -> Schedule:
+def parse_schedule(
+    spec: str, *, repeats: int = 1, dwell_s: float = 1.0, settle_s: float = 0.0
+) -> Schedule:
     """Parse a one-word schedule (see the module docstring); bad input raises ``InputError``."""
     import numpy as np
 
@@ -127,8 +127,15 @@ def parse_schedule(spec: str, *, repeats: int = 1, dwell_s: float = 1.0,
                 targets = targets + targets[::-1]
     if len(targets) * repeats > MAX_POINTS:
         raise _error(spec, f"{len(targets) * repeats} points is more than {MAX_POINTS}")
-    return Schedule(spec.strip(), form, FORMS[form][0], tuple(float(t) for t in targets),
-                    repeats, float(dwell_s), float(settle_s))
+    return Schedule(
+        spec.strip(),
+        form,
+        FORMS[form][0],
+        tuple(float(t) for t in targets),
+        repeats,
+        float(dwell_s),
+        float(settle_s),
+    )
 
 
 def plan_points(bench: Bench, schedule: Schedule) -> tuple[PlannedPoint, ...]:
@@ -149,5 +156,8 @@ def plan_points(bench: Bench, schedule: Schedule) -> tuple[PlannedPoint, ...]:
         near = readings[bench.imbalance_mount]
         one_pass.append(readings)
     n = len(one_pass)
-    return tuple(PlannedPoint(p * n + i, p, schedule.targets[i], one_pass[i])
-                 for p in range(schedule.repeats) for i in range(n))
+    return tuple(
+        PlannedPoint(p * n + i, p, schedule.targets[i], one_pass[i])
+        for p in range(schedule.repeats)
+        for i in range(n)
+    )

@@ -59,9 +59,17 @@ def _true_plate(element: Element, error_waves: float, wavelength_nm: float) -> E
         base = NOMINAL_WAVES[element.type]
     else:
         pl = element.plate
-        base = float(plate_retardance_waves(NOMINAL_WAVES[element.type], pl.material, pl.kind,
-                                            pl.design_nm, wavelength_nm, order=pl.order,
-                                            thickness_um=pl.thickness_um))
+        base = float(
+            plate_retardance_waves(
+                NOMINAL_WAVES[element.type],
+                pl.material,
+                pl.kind,
+                pl.design_nm,
+                wavelength_nm,
+                order=pl.order,
+                thickness_um=pl.thickness_um,
+            )
+        )
     if element.type in ("hwp", "qwp", "retarder"):
         return replace(element, retardance_waves=base + error_waves)
     return element
@@ -71,17 +79,22 @@ def true_bench(bench: Bench) -> Bench:
     """The bench as the simulation really is: the file with the ``[simulation]`` truth put in
     (absolute true offsets and extinction ratios, plate retardance errors)."""
     sim = bench.simulation
-    mounts = {name: replace(m, offset_deg=sim.true_offset_deg.get(name, m.offset_deg))
-              for name, m in bench.mounts.items()}
+    mounts = {
+        name: replace(m, offset_deg=sim.true_offset_deg.get(name, m.offset_deg))
+        for name, m in bench.mounts.items()
+    }
     true_er = sim.true_extinction
     lam = bench.wavelength_nm
     return replace(
         bench,
         mounts=mounts,
-        source=replace(bench.source, extinction_ratio=true_er.get(
-            "source", bench.source.extinction_ratio)),
-        analyzer=replace(bench.analyzer, extinction_ratio=true_er.get(
-            "analyzer", bench.analyzer.extinction_ratio)),
+        source=replace(
+            bench.source, extinction_ratio=true_er.get("source", bench.source.extinction_ratio)
+        ),
+        analyzer=replace(
+            bench.analyzer,
+            extinction_ratio=true_er.get("analyzer", bench.analyzer.extinction_ratio),
+        ),
         pre=tuple(_true_plate(e, sim.retardance_error_waves, lam) for e in bench.pre),
         post=tuple(_true_plate(e, sim.retardance_error_waves, lam) for e in bench.post),
     )
@@ -101,8 +114,14 @@ class SimBench:
     ``bench.simulation.seed``.
     """
 
-    def __init__(self, bench: Bench, *, seed: int | None = None, realtime: bool = False,
-                 reference_fraction: float = REFERENCE_FRACTION) -> None:
+    def __init__(
+        self,
+        bench: Bench,
+        *,
+        seed: int | None = None,
+        realtime: bool = False,
+        reference_fraction: float = REFERENCE_FRACTION,
+    ) -> None:
         self.bench = bench
         self.truth = true_bench(bench)
         self.realtime = realtime
@@ -113,10 +132,16 @@ class SimBench:
         self.rng = np.random.default_rng(mount_seeds[-1])
         self.mounts: dict[str, RotationMount] = {
             name: SimMount(
-                name, resolution_deg=m.resolution_deg, backlash_deg=m.backlash_deg,
-                speed_deg_s=m.speed_deg_s, travel_deg=m.travel_deg,
+                name,
+                resolution_deg=m.resolution_deg,
+                backlash_deg=m.backlash_deg,
+                speed_deg_s=m.speed_deg_s,
+                travel_deg=m.travel_deg,
                 noise_rms_deg=m.repeatability_deg,
-                seed=int(s.generate_state(1)[0]), realtime=realtime, start_deg=m.reading_deg)
+                seed=int(s.generate_state(1)[0]),
+                realtime=realtime,
+                start_deg=m.reading_deg,
+            )
             for (name, m), s in zip(bench.mounts.items(), mount_seeds, strict=False)
         }
         self.shutter: Shutter = SimShutter("sim-shutter")
@@ -143,12 +168,21 @@ class SimBench:
         from ..physics.detection import expected_rates
 
         d = self.truth.detector
-        rates = expected_rates(self.truth.source.photon_rate, self.reference_fraction,
-                               d.efficiency, d.dark_rate, d.dead_time_ns * 1e-9)
+        rates = expected_rates(
+            self.truth.source.photon_rate,
+            self.reference_fraction,
+            d.efficiency,
+            d.dark_rate,
+            d.dead_time_ns * 1e-9,
+        )
         return float(rates.measured_rate)
 
-    def draw_counts(self, dwell_s: float, readings: Mapping[str, float] | None = None,
-                    exposed: bool | None = None) -> tuple[int, int]:
+    def draw_counts(
+        self,
+        dwell_s: float,
+        readings: Mapping[str, float] | None = None,
+        exposed: bool | None = None,
+    ) -> tuple[int, int]:
         """One gate of ``dwell_s`` s: (post-selected, reference) counts at ``readings`` (default:
         the mounts' true readings), the detector ``exposed`` (default: the shutter is open)."""
         from ..physics.detection import measured_rate
@@ -196,18 +230,29 @@ class DeviceSet:
 
     def close(self) -> None:
         """Release every device (errors while closing are ignored: the link may be gone)."""
-        for device in {id(d): d for d in (*self.mounts.values(), self.counter, self.shutter,
-                                          self.pointer) if d is not None}.values():
+        for device in {
+            id(d): d
+            for d in (*self.mounts.values(), self.counter, self.shutter, self.pointer)
+            if d is not None
+        }.values():
             try:
                 device.close()
             except DeviceError:
                 continue
 
 
-def open_devices(bench: Bench, *, counter: str = "sim", counter_profile: str | None = None,
-                 shutter: str = "sim", shutter_profile: str | None = None,
-                 pointer: str = "sim", pointer_profile: str | None = None,
-                 realtime: bool = False, seed: int | None = None) -> DeviceSet:
+def open_devices(
+    bench: Bench,
+    *,
+    counter: str = "sim",
+    counter_profile: str | None = None,
+    shutter: str = "sim",
+    shutter_profile: str | None = None,
+    pointer: str = "sim",
+    pointer_profile: str | None = None,
+    realtime: bool = False,
+    seed: int | None = None,
+) -> DeviceSet:
     """Open every mount from its bench entry (``driver`` spec and ``profile``) and the counter,
     shutter and pointer from their specs.
 
@@ -232,12 +277,25 @@ def open_devices(bench: Bench, *, counter: str = "sim", counter_profile: str | N
                 except InputError as exc:  # name the bench key that led here
                     raise InputError(f"{bench.path}: mounts.{name}: {exc}") from None
                 sim.mounts[name] = keep(mount)
-        chosen_counter = (sim.counter if counter == "sim"
-                          else keep(open_counter(counter, profile=counter_profile)))
-        chosen_shutter = (None if shutter == "none" else sim.shutter if shutter == "sim"
-                          else keep(open_shutter(shutter, profile=shutter_profile)))
-        chosen_pointer = (None if pointer == "none" else sim.pointer if pointer == "sim"
-                          else keep(open_pointer(pointer, profile=pointer_profile)))
+        chosen_counter = (
+            sim.counter
+            if counter == "sim"
+            else keep(open_counter(counter, profile=counter_profile))
+        )
+        chosen_shutter = (
+            None
+            if shutter == "none"
+            else sim.shutter
+            if shutter == "sim"
+            else keep(open_shutter(shutter, profile=shutter_profile))
+        )
+        chosen_pointer = (
+            None
+            if pointer == "none"
+            else sim.pointer
+            if pointer == "sim"
+            else keep(open_pointer(pointer, profile=pointer_profile))
+        )
     except BaseException:
         for device in opened:
             device.close()
@@ -245,6 +303,11 @@ def open_devices(bench: Bench, *, counter: str = "sim", counter_profile: str | N
     if chosen_shutter is not None:
         sim.shutter = chosen_shutter
     all_sim = not opened or all(isinstance(d, SimMount) for d in opened)
-    return DeviceSet(dict(sim.mounts), chosen_counter, chosen_shutter, chosen_pointer,
-                     sim if chosen_counter is sim.counter else None,
-                     simulated_time=not realtime and all_sim and counter == "sim")
+    return DeviceSet(
+        dict(sim.mounts),
+        chosen_counter,
+        chosen_shutter,
+        chosen_pointer,
+        sim if chosen_counter is sim.counter else None,
+        simulated_time=not realtime and all_sim and counter == "sim",
+    )

@@ -94,31 +94,49 @@ def measured_leak(bench: Bench, counts: int, dwell_s: float) -> MeasuredLeak:
 
     d = bench.detector
     pulsed = d.mode == "pulsed"
-    m = measure_leak(counts, dwell_s, reference_rate=bench.source.photon_rate * d.efficiency,
-                     dark_rate=d.dark_rate, dead_time_s=d.dead_time_ns * 1e-9,
-                     efficiency=d.efficiency, rep_rate_hz=d.rep_rate_hz if pulsed else None,
-                     dark_probability=d.gate_dark_probability)
+    m = measure_leak(
+        counts,
+        dwell_s,
+        reference_rate=bench.source.photon_rate * d.efficiency,
+        dark_rate=d.dark_rate,
+        dead_time_s=d.dead_time_ns * 1e-9,
+        efficiency=d.efficiency,
+        rep_rate_hz=d.rep_rate_hz if pulsed else None,
+        dark_probability=d.gate_dark_probability,
+    )
     return MeasuredLeak(float(m.leak or 0.0), float(m.leak_low or 0.0), float(m.leak_high or 0.0))
 
 
 def _bench_text(bench: Bench) -> str:
     if bench.path is None:
-        raise InputError("the bench has no file; a run log keeps the bench file's text, so load "
-                         "the bench with load_bench(path)")
+        raise InputError(
+            "the bench has no file; a run log keeps the bench file's text, so load "
+            "the bench with load_bench(path)"
+        )
     return snapshot_text(bench)
 
 
-def start_run(log: RunLog, bench: Bench, schedule: Schedule, plan: Sequence[PlannedPoint],
-              ) -> int:
+def start_run(
+    log: RunLog,
+    bench: Bench,
+    schedule: Schedule,
+    plan: Sequence[PlannedPoint],
+) -> int:
     """Create the run (status ``running``) with the bench snapshot and the plan; return its id."""
     from .. import __version__
 
     return log.create_run(
-        bench_name=bench.name, bench_path=str(bench.path), bench_toml=_bench_text(bench),
+        bench_name=bench.name,
+        bench_path=str(bench.path),
+        bench_toml=_bench_text(bench),
         schedule=schedule.spec,
         plan=plan_rows(plan),
-        dwell_s=schedule.dwell_s, settle_s=schedule.settle_s, repeats=schedule.repeats,
-        imbalance_mount=bench.imbalance_mount, software_version=__version__)
+        dwell_s=schedule.dwell_s,
+        settle_s=schedule.settle_s,
+        repeats=schedule.repeats,
+        imbalance_mount=bench.imbalance_mount,
+        software_version=__version__,
+    )
 
 
 def resume_plan(record: RunRecord) -> tuple[Bench, tuple[PlannedPoint, ...]]:
@@ -127,9 +145,15 @@ def resume_plan(record: RunRecord) -> tuple[Bench, tuple[PlannedPoint, ...]]:
 
     where = record.bench_path or f"run {record.id}"
     bench = parse_bench(tomlkit.parse(record.bench_toml).unwrap(), where)
-    plan = tuple(PlannedPoint(int(p["index"]), int(p["pass"]), float(p["target"]),
-                              {k: float(v) for k, v in p["readings"].items()})
-                 for p in record.plan)
+    plan = tuple(
+        PlannedPoint(
+            int(p["index"]),
+            int(p["pass"]),
+            float(p["target"]),
+            {k: float(v) for k, v in p["readings"].items()},
+        )
+        for p in record.plan
+    )
     return bench, plan
 
 
@@ -139,15 +163,28 @@ PointCallback = Callable[[LoggedPoint, int, int], None]
 class _Sweep:
     """State of one sweep (see :func:`run_sweep`)."""
 
-    def __init__(self, bench: Bench, devices: DeviceSet, log: RunLog, run_id: int,
-                 plan: Sequence[PlannedPoint], dwell_s: float, settle_s: float,
-                 options: SweepOptions, on_point: PointCallback | None,
-                 stop: Callable[[], bool] | None) -> None:
+    def __init__(
+        self,
+        bench: Bench,
+        devices: DeviceSet,
+        log: RunLog,
+        run_id: int,
+        plan: Sequence[PlannedPoint],
+        dwell_s: float,
+        settle_s: float,
+        options: SweepOptions,
+        on_point: PointCallback | None,
+        stop: Callable[[], bool] | None,
+    ) -> None:
         self.bench, self.devices, self.log, self.run_id = bench, devices, log, run_id
         self.plan, self.dwell_s, self.settle_s = plan, dwell_s, settle_s
         self.options, self.on_point, self.stop = options, on_point, stop
-        self.guard = DetectorGuard(bench, has_shutter=devices.shutter is not None,
-                                   headroom=options.headroom, step_deg=options.step_deg)
+        self.guard = DetectorGuard(
+            bench,
+            has_shutter=devices.shutter is not None,
+            headroom=options.headroom,
+            step_deg=options.step_deg,
+        )
         self.pending: list[Event] = []
         self.positions: dict[str, float | None] = dict.fromkeys(devices.mounts)
         self.commanded: dict[str, float] = {}
@@ -161,8 +198,7 @@ class _Sweep:
             try:
                 return fn()
             except RETRYABLE as exc:
-                self.pending.append(Event("fault", f"{what}: {exc} (attempt {n} of {tries})",
-                                          idx))
+                self.pending.append(Event("fault", f"{what}: {exc} (attempt {n} of {tries})", idx))
                 self.positions = dict.fromkeys(self.positions)
                 self.guard.forget()
                 if n == tries:
@@ -184,8 +220,11 @@ class _Sweep:
         shutter = self.devices.shutter
         if shutter is None or shutter.is_open() == want_open:
             return
-        self.attempt("opening the shutter" if want_open else "shutting the shutter", idx,
-                     shutter.open if want_open else shutter.shut)
+        self.attempt(
+            "opening the shutter" if want_open else "shutting the shutter",
+            idx,
+            shutter.open if want_open else shutter.shut,
+        )
 
     def move(self, name: str, target: float, idx: int) -> None:
         readings = {n: self.position(n, idx) for n in self.devices.mounts}
@@ -228,8 +267,11 @@ class _Sweep:
         started = utc_now()
         self.commanded = dict(p.readings)
         for name, target in p.readings.items():
-            self.attempt(f"point {p.index}: moving {name} to {target:.4f} deg", p.index,
-                         lambda n=name, t=target: self.move(n, t, p.index))
+            self.attempt(
+                f"point {p.index}: moving {name} to {target:.4f} deg",
+                p.index,
+                lambda n=name, t=target: self.move(n, t, p.index),
+            )
         self.devices.wait(self.settle_s)
         self.positions = dict.fromkeys(self.positions)
         readback = {n: self.position(n, p.index) for n in self.devices.mounts}
@@ -238,21 +280,34 @@ class _Sweep:
         pred = predict(self.bench, readback)
         self.guard.check_point(float(pred.detector_rate), readback)
         self.set_shutter(True, p.index)
-        post, ref = self.attempt(f"point {p.index}: counting", p.index,
-                                 lambda: self.count(p.index))
+        post, ref = self.attempt(f"point {p.index}: counting", p.index, lambda: self.count(p.index))
         pointer = pointer_err = None
         if self.devices.pointer is not None:
             reader = self.devices.pointer
-            pointer, pointer_err = self.attempt(f"point {p.index}: reading the pointer",
-                                                p.index, lambda: reader.read(self.dwell_s))
+            pointer, pointer_err = self.attempt(
+                f"point {p.index}: reading the pointer", p.index, lambda: reader.read(self.dwell_s)
+            )
         leak = measured_leak(self.bench, post, self.dwell_s)
         return LoggedPoint(
-            idx=p.index, target=p.target, commanded=dict(self.commanded), readback=readback,
-            reading_deg=readback[self.bench.imbalance_mount], counts=post, reference=ref,
-            dwell_s=self.dwell_s, leak=leak.leak, leak_lo=leak.low, leak_hi=leak.high,
-            predicted_leak=float(pred.leak_rate), predicted_rate=float(pred.measured_rate),
-            imbalance_deg=float(pred.imbalance_deg), pointer=pointer, pointer_err=pointer_err,
-            started_utc=started, ended_utc=utc_now())
+            idx=p.index,
+            target=p.target,
+            commanded=dict(self.commanded),
+            readback=readback,
+            reading_deg=readback[self.bench.imbalance_mount],
+            counts=post,
+            reference=ref,
+            dwell_s=self.dwell_s,
+            leak=leak.leak,
+            leak_lo=leak.low,
+            leak_hi=leak.high,
+            predicted_leak=float(pred.leak_rate),
+            predicted_rate=float(pred.measured_rate),
+            imbalance_deg=float(pred.imbalance_deg),
+            pointer=pointer,
+            pointer_err=pointer_err,
+            started_utc=started,
+            ended_utc=utc_now(),
+        )
 
     # -- the loop -----------------------------------------------------------------------------
 
@@ -276,10 +331,12 @@ class _Sweep:
         if rates[worst] > self.guard.limit:
             p = todo[worst]
             where = ", ".join(f"{k} {v:.4g} deg" for k, v in p.readings.items())
-            raise GuardTrip(f"detector guard: point {p.index} ({where}) is predicted at "
-                            f"{rates[worst]:.3g} counts/s, above the limit "
-                            f"{self.guard.limit:.3g} ({self.guard.headroom:g} x safe_rate "
-                            f"{self.guard.safe_rate:.3g}); choose a schedule nearer the null")
+            raise GuardTrip(
+                f"detector guard: point {p.index} ({where}) is predicted at "
+                f"{rates[worst]:.3g} counts/s, above the limit "
+                f"{self.guard.limit:.3g} ({self.guard.headroom:g} x safe_rate "
+                f"{self.guard.safe_rate:.3g}); choose a schedule nearer the null"
+            )
 
     def pause(self, message: str, reason: str) -> SweepResult:
         for name, mount in self.devices.mounts.items():
@@ -293,15 +350,15 @@ class _Sweep:
             try:
                 self.attempt("shutting the shutter", None, shutter.shut)
             except DeviceError as exc:
-                message += (f"; the shutter did not confirm it is shut ({exc}): block the beam "
-                            "by hand")
+                message += (
+                    f"; the shutter did not confirm it is shut ({exc}): block the beam by hand"
+                )
         kind = "guard" if reason == "guard" else "pause"
         self.pending.append(Event(kind, message))
         self.log.add_events(self.run_id, self.pending)
         self.pending = []
         self.log.set_status(self.run_id, "interrupted", message)
-        return SweepResult(self.run_id, "interrupted", self.done, len(self.plan), message,
-                           reason)
+        return SweepResult(self.run_id, "interrupted", self.done, len(self.plan), message, reason)
 
     def run(self) -> SweepResult:
         finished = self.log.done_indices(self.run_id)
@@ -313,8 +370,10 @@ class _Sweep:
             self.log.set_status(self.run_id, "interrupted", f"refused before any move: {exc}")
             raise
         if finished:
-            self.log.add_events(self.run_id, [Event("resume", f"resumed with {len(todo)} of "
-                                                              f"{len(self.plan)} points left")])
+            self.log.add_events(
+                self.run_id,
+                [Event("resume", f"resumed with {len(todo)} of {len(self.plan)} points left")],
+            )
         self.log.set_status(self.run_id, "running")
         try:
             self.set_shutter(False, None)
@@ -339,22 +398,42 @@ class _Sweep:
         return SweepResult(self.run_id, "complete", self.done, len(self.plan))
 
 
-def run_sweep(bench: Bench, devices: DeviceSet, log: RunLog, run_id: int,
-              plan: Sequence[PlannedPoint], *, dwell_s: float, settle_s: float = 0.0,
-              options: SweepOptions | None = None,
-              on_point: PointCallback | None = None,
-              stop: Callable[[], bool] | None = None) -> SweepResult:
+def run_sweep(
+    bench: Bench,
+    devices: DeviceSet,
+    log: RunLog,
+    run_id: int,
+    plan: Sequence[PlannedPoint],
+    *,
+    dwell_s: float,
+    settle_s: float = 0.0,
+    options: SweepOptions | None = None,
+    on_point: PointCallback | None = None,
+    stop: Callable[[], bool] | None = None,
+) -> SweepResult:
     """Measure every planned point of run ``run_id`` not yet in the log (so the same call
     resumes an interrupted run). ``dwell_s`` and ``settle_s`` in s. ``on_point(point, done,
     total)`` is called after each point is committed; ``stop()`` is asked before each point and
     True pauses the sweep there. Returns how the sweep ended; a pause leaves the mounts
     stopped, the shutter shut and the run ``interrupted``."""
-    sweep = _Sweep(bench, devices, log, run_id, plan, dwell_s, settle_s,
-                   options or SweepOptions(), on_point, stop)
+    sweep = _Sweep(
+        bench,
+        devices,
+        log,
+        run_id,
+        plan,
+        dwell_s,
+        settle_s,
+        options or SweepOptions(),
+        on_point,
+        stop,
+    )
     return sweep.run()
 
 
 def plan_rows(plan: Sequence[PlannedPoint]) -> list[Mapping[str, Any]]:
     """Planned points as plain rows (for JSON output)."""
-    return [{"index": p.index, "pass": p.pass_index, "target": p.target,
-             "readings": dict(p.readings)} for p in plan]
+    return [
+        {"index": p.index, "pass": p.pass_index, "target": p.target, "readings": dict(p.readings)}
+        for p in plan
+    ]

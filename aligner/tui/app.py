@@ -29,8 +29,12 @@ class DeskApp(App[int]):
     CSS_PATH: ClassVar = ["desk.tcss"]
     TITLE = "aligner desk"
     ENABLE_COMMAND_PALETTE = False
-    MODES: ClassVar = {"bench": BenchScreen, "plan": PlanScreen, "sweep": SweepScreen,
-                       "log": LogScreen}
+    MODES: ClassVar = {
+        "bench": BenchScreen,
+        "plan": PlanScreen,
+        "sweep": SweepScreen,
+        "log": LogScreen,
+    }
     DEFAULT_MODE = "bench"
     BINDINGS: ClassVar[list[BindingType]] = [
         Binding("f1", "switch_mode('bench')", "Bench", priority=True),
@@ -75,8 +79,9 @@ class DeskApp(App[int]):
         self.backend.close()
 
 
-def make_app(bench: str | Path = "demo", *, db: str | Path | None = None,
-             realtime: bool = False) -> DeskApp:
+def make_app(
+    bench: str | Path = "demo", *, db: str | Path | None = None, realtime: bool = False
+) -> DeskApp:
     """The desk for a bench file (or ``"demo"``) with its run log ``db`` (default: the user
     data folder). ``realtime`` makes simulated devices take real time to move and count."""
     from ..bench import load_bench

@@ -44,9 +44,14 @@ class DeskBackend:
     ``realtime``). Devices are opened at the first sweep and kept until :meth:`close`.
     """
 
-    def __init__(self, bench: Bench, *, db_path: str | Path | None = None,
-                 device_factory: Callable[[Bench], DeviceSet] | None = None,
-                 realtime: bool = False) -> None:
+    def __init__(
+        self,
+        bench: Bench,
+        *,
+        db_path: str | Path | None = None,
+        device_factory: Callable[[Bench], DeviceSet] | None = None,
+        realtime: bool = False,
+    ) -> None:
         from ..run.log import default_db_path
 
         self.bench = bench
@@ -64,11 +69,16 @@ class DeskBackend:
         """The bench with its mounts' readings (deg) replaced by ``readings``."""
         unknown = sorted(set(readings) - set(self.bench.mounts))
         if unknown:
-            raise InputError(f"unknown mount(s) {', '.join(unknown)}; the bench has "
-                             f"{', '.join(self.bench.mounts)}")
-        return self.bench.with_mounts(**{
-            name: replace(self.bench.mounts[name], reading_deg=float(value))
-            for name, value in readings.items()})
+            raise InputError(
+                f"unknown mount(s) {', '.join(unknown)}; the bench has "
+                f"{', '.join(self.bench.mounts)}"
+            )
+        return self.bench.with_mounts(
+            **{
+                name: replace(self.bench.mounts[name], reading_deg=float(value))
+                for name, value in readings.items()
+            }
+        )
 
     def predict(self, readings: Mapping[str, float]) -> Any:
         """:func:`aligner.prediction.predict` at ``readings`` (deg)."""
@@ -115,8 +125,9 @@ class DeskBackend:
                 self._devices = open_devices(bench, realtime=self.realtime)
         return self._devices
 
-    def unmoved_differences(self, readings: Mapping[str, float],
-                            moved: set[str]) -> dict[str, tuple[float, float]]:
+    def unmoved_differences(
+        self, readings: Mapping[str, float], moved: set[str]
+    ) -> dict[str, tuple[float, float]]:
         """Mounts a sweep will not move whose device reads other than ``readings`` by more
         than one resolution step: ``{mount: (device reading, desk reading)}`` (deg)."""
         devices = self.devices(readings)
@@ -131,8 +142,9 @@ class DeskBackend:
 
     def hardware_mounts(self) -> tuple[str, ...]:
         """Mounts whose driver is not a simulation (their moves are real), bench order."""
-        return tuple(name for name, m in self.bench.mounts.items()
-                     if m.driver.partition(":")[0] != "sim")
+        return tuple(
+            name for name, m in self.bench.mounts.items() if m.driver.partition(":")[0] != "sim"
+        )
 
     def preview(self, spec: str, dwell_s: float, readings: Mapping[str, float]) -> SweepPreview:
         """Parse and plan a sweep without touching any device (bad input: ``InputError``)."""
@@ -141,19 +153,32 @@ class DeskBackend:
         bench = self.bench_at(readings)
         schedule = parse_schedule(spec, dwell_s=dwell_s)
         points = tuple(plan_points(bench, schedule))
-        moves = tuple(name for name, m in bench.mounts.items()
-                      if any(abs(p.readings[name] - m.reading_deg) > m.resolution_deg
-                             for p in points if name in p.readings))
+        moves = tuple(
+            name
+            for name, m in bench.mounts.items()
+            if any(
+                abs(p.readings[name] - m.reading_deg) > m.resolution_deg
+                for p in points
+                if name in p.readings
+            )
+        )
         return SweepPreview(bench, schedule, points, moves)
 
     def request_stop(self) -> None:
         """Ask a running sweep to pause after the point it is taking."""
         self._stop.set()
 
-    def sweep(self, spec: str, dwell_s: float, readings: Mapping[str, float], *,
-              on_point: PointHook,
-              on_start: Callable[[int, Sequence[Any], RunLog], None] | None = None,
-              resume_run: int | None = None, planned: SweepPreview | None = None) -> Any:
+    def sweep(
+        self,
+        spec: str,
+        dwell_s: float,
+        readings: Mapping[str, float],
+        *,
+        on_point: PointHook,
+        on_start: Callable[[int, Sequence[Any], RunLog], None] | None = None,
+        resume_run: int | None = None,
+        planned: SweepPreview | None = None,
+    ) -> Any:
         """Plan and run a sweep (or resume run ``resume_run``); blocking, for a worker thread.
 
         ``spec`` is a one-word schedule (:func:`aligner.run.schedule.parse_schedule`),
@@ -166,15 +191,20 @@ class DeskBackend:
         self._stop.clear()
         self.sweeping = True
         try:
-            return self._sweep(spec, dwell_s, readings, on_point, on_start, resume_run,
-                               planned)
+            return self._sweep(spec, dwell_s, readings, on_point, on_start, resume_run, planned)
         finally:
             self.sweeping = False
 
-    def _sweep(self, spec: str, dwell_s: float, readings: Mapping[str, float],
-               on_point: PointHook,
-               on_start: Callable[[int, Sequence[Any], RunLog], None] | None,
-               resume_run: int | None, planned: SweepPreview | None) -> Any:
+    def _sweep(
+        self,
+        spec: str,
+        dwell_s: float,
+        readings: Mapping[str, float],
+        on_point: PointHook,
+        on_start: Callable[[int, Sequence[Any], RunLog], None] | None,
+        resume_run: int | None,
+        planned: SweepPreview | None,
+    ) -> Any:
         from ..run.sweep import resume_plan, run_sweep, start_run
 
         devices = self.devices(readings)  # before the run exists: a device fault logs no run
@@ -195,8 +225,17 @@ class DeskBackend:
             def hook(point: LoggedPoint, done: int, total: int) -> None:
                 on_point(point, done, total, log)
 
-            return run_sweep(bench, devices, log, run_id, points, dwell_s=dwell_s,
-                             settle_s=settle_s, on_point=hook, stop=self._stop.is_set)
+            return run_sweep(
+                bench,
+                devices,
+                log,
+                run_id,
+                points,
+                dwell_s=dwell_s,
+                settle_s=settle_s,
+                on_point=hook,
+                stop=self._stop.is_set,
+            )
 
     # -- the run log --------------------------------------------------------------------------
 

@@ -20,8 +20,11 @@ bench = load_bench("demo")
 truth = true_bench(bench)
 r = np.linspace(131.0, 139.0, 721)
 dwell = 0.01
-counts = np.random.default_rng(0).poisson(
-    detected_rate(truth, {"analyzer": r}, truth.source.photon_rate) * dwell).astype(float)
+counts = (
+    np.random.default_rng(0)
+    .poisson(detected_rate(truth, {"analyzer": r}, truth.source.photon_rate) * dwell)
+    .astype(float)
+)
 scan = CountScan(r, counts, None, None, "bench")
 
 
@@ -42,18 +45,24 @@ def median_ms(fn, repeats=15):
 
 ml = median_ms(lambda: fit_null(bench, scan, dwell_s=dwell))
 start = [0.0, np.log(bench.analyzer.extinction_ratio), 0.0]
-ls = median_ms(lambda: curve_fit(curve, r, counts, p0=start,
-                                 sigma=np.sqrt(np.maximum(counts, 1))))
+ls = median_ms(lambda: curve_fit(curve, r, counts, p0=start, sigma=np.sqrt(np.maximum(counts, 1))))
 print(f"721-point null fit (Poisson ML): median {ml:.1f} ms (target < 50 ms)")
 print(f"curve_fit of the same model:      median {ls:.1f} ms; ratio ML/curve_fit = {ml / ls:.2f}")
 
 reads = []
 for seed in range(5):
     sim = SimBench(bench, seed=seed)
-    res = search_null(bench, sim.mounts["analyzer"], sim.counter,
-                      DetectorGuard(bench, has_shutter=True), shutter=sim.shutter)
+    res = search_null(
+        bench,
+        sim.mounts["analyzer"],
+        sim.counter,
+        DetectorGuard(bench, has_shutter=True),
+        shutter=sim.shutter,
+    )
     reads.append(res.counter_reads)
-    print(f"null search seed {seed}: {res.counter_reads} counter reads, {res.rounds} rounds, "
-          f"converged={res.converged}, error {res.null_reading_err_deg:.4f} deg "
-          f"(resolution {bench.mounts['analyzer'].resolution_deg} deg)")
+    print(
+        f"null search seed {seed}: {res.counter_reads} counter reads, {res.rounds} rounds, "
+        f"converged={res.converged}, error {res.null_reading_err_deg:.4f} deg "
+        f"(resolution {bench.mounts['analyzer'].resolution_deg} deg)"
+    )
 print(f"null search: median {statistics.median(reads)} counter reads")

@@ -57,8 +57,11 @@ def main() -> None:
     runs = []
     for _ in range(3):
         start = time.perf_counter()
-        subprocess.run([sys.executable, "-m", "aligner", "predict", "demo", "--json"],
-                       check=True, capture_output=True)
+        subprocess.run(
+            [sys.executable, "-m", "aligner", "predict", "demo", "--json"],
+            check=True,
+            capture_output=True,
+        )
         runs.append(time.perf_counter() - start)
     print(f"aligner predict demo --json: best of 3 {min(runs):.3f} s wall time")
 

@@ -37,10 +37,18 @@ def sweep_ms(physics: bool, durable: bool) -> float:
     plan = plan_points(bench, schedule)
     devices = open_devices(bench, pointer="sim" if physics else "none")
     if not physics:
-        devices = DeviceSet(devices.mounts, poisson_counter((300.0, 2500.0), seed=1),
-                            devices.shutter, None, None, simulated_time=True)
-    with tempfile.TemporaryDirectory() as tmp, RunLog(Path(tmp) / "bench.sqlite",
-                                                               durable=durable) as log:
+        devices = DeviceSet(
+            devices.mounts,
+            poisson_counter((300.0, 2500.0), seed=1),
+            devices.shutter,
+            None,
+            None,
+            simulated_time=True,
+        )
+    with (
+        tempfile.TemporaryDirectory() as tmp,
+        RunLog(Path(tmp) / "bench.sqlite", durable=durable) as log,
+    ):
         run = start_run(log, bench, schedule, plan)
         t0 = time.perf_counter()
         result = run_sweep(bench, devices, log, run, plan, dwell_s=schedule.dwell_s)
@@ -74,15 +82,21 @@ def main() -> None:
     for durable in (False, True):
         plain = sweep_ms(physics=False, durable=durable)
         sync = "FULL (disk sync per point)" if durable else "NORMAL (WAL, crash-safe)"
-        print(f"sweep loop, zero-delay sim devices, synchronous={sync}: {plain:.3f} ms/point "
-              f"(target {TARGET_MS} ms; ratio {plain / TARGET_MS:.2f})")
+        print(
+            f"sweep loop, zero-delay sim devices, synchronous={sync}: {plain:.3f} ms/point "
+            f"(target {TARGET_MS} ms; ratio {plain / TARGET_MS:.2f})"
+        )
     full = sweep_ms(physics=True, durable=False)
-    print(f"sweep on the physics-driven simulated bench (+ model counter and pointer): "
-          f"{full:.3f} ms/point (ratio {full / TARGET_MS:.2f} of the loop target)")
+    print(
+        f"sweep on the physics-driven simulated bench (+ model counter and pointer): "
+        f"{full:.3f} ms/point (ratio {full / TARGET_MS:.2f} of the loop target)"
+    )
     query, move = serial_round_trip_ms()
-    print(f"serial round trip via pty emulator: query {query:.3f} ms, whole move "
-          f"(GO, BUSY?, AT?) {move:.3f} ms; per-point loop overhead / one query = "
-          f"{plain / query:.2f}")
+    print(
+        f"serial round trip via pty emulator: query {query:.3f} ms, whole move "
+        f"(GO, BUSY?, AT?) {move:.3f} ms; per-point loop overhead / one query = "
+        f"{plain / query:.2f}"
+    )
 
 
 if __name__ == "__main__":

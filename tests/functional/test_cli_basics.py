@@ -10,8 +10,13 @@ import pytest
 
 
 def aligner(*args: str, cwd=None) -> subprocess.CompletedProcess:
-    return subprocess.run([sys.executable, "-m", "aligner", *args], capture_output=True,
-                          text=True, timeout=120, cwd=cwd)
+    return subprocess.run(
+        [sys.executable, "-m", "aligner", *args],
+        capture_output=True,
+        text=True,
+        timeout=120,
+        cwd=cwd,
+    )
 
 
 def test_help_exits_zero():
@@ -32,13 +37,16 @@ def _assert_one_line_error(done: subprocess.CompletedProcess, *needles: str) -> 
         assert needle in lines[0]
 
 
-@pytest.mark.parametrize(("old", "new", "key"), [
-    ("photon_rate = 1.0e6", "photon_rat = 1.0e6", "source.photon_rat"),
-    ("efficiency = 0.5", "efficiency = 1.5", "detector.efficiency"),
-    ("extinction_ratio = 1e4", "extinction_ratio = nan", "analyzer.extinction_ratio"),
-    ('mount = "hwp"', 'mount = "hwq"', "pre[0].mount"),
-    ("reading_deg = 22.5", "reading_deg = 22.5\nsense = 2", "mounts.hwp.sense"),
-])
+@pytest.mark.parametrize(
+    ("old", "new", "key"),
+    [
+        ("photon_rate = 1.0e6", "photon_rat = 1.0e6", "source.photon_rat"),
+        ("efficiency = 0.5", "efficiency = 1.5", "detector.efficiency"),
+        ("extinction_ratio = 1e4", "extinction_ratio = nan", "analyzer.extinction_ratio"),
+        ('mount = "hwp"', 'mount = "hwq"', "pre[0].mount"),
+        ("reading_deg = 22.5", "reading_deg = 22.5\nsense = 2", "mounts.hwp.sense"),
+    ],
+)
 def test_predict_on_bad_bench_is_one_line_exit_2(write_bench, bench_text, old, new, key):
     path = write_bench(bench_text.replace(old, new))
     _assert_one_line_error(aligner("predict", str(path)), "aligner predict:", str(path), key)

@@ -14,10 +14,13 @@ from aligner.run.simbench import true_bench
 def _null_csv(path):
     truth = true_bench(load_bench("demo"))
     r = np.linspace(131.0, 139.0, 81)
-    n = np.random.default_rng(4).poisson(detected_rate(truth, {"analyzer": r},
-                                                       truth.source.photon_rate) * 0.05)
-    path.write_text("reading_deg,counts,dwell_s\n" +
-                    "".join(f"{a},{b},0.05\n" for a, b in zip(r, n, strict=True)))
+    n = np.random.default_rng(4).poisson(
+        detected_rate(truth, {"analyzer": r}, truth.source.photon_rate) * 0.05
+    )
+    path.write_text(
+        "reading_deg,counts,dwell_s\n"
+        + "".join(f"{a},{b},0.05\n" for a, b in zip(r, n, strict=True))
+    )
 
 
 def test_fit_null_json_and_write(tmp_path, capsys):
@@ -27,8 +30,12 @@ def test_fit_null_json_and_write(tmp_path, capsys):
     shutil.copy(DEMO_BENCH, bench)
     assert main(["fit", "null", str(csv), "--bench", str(bench), "--json", "--write"]) == 0
     doc = json.loads(capsys.readouterr().out)
-    for key in ("null_reading_deg", "null_reading_err_deg", "extinction_ratio",
-                "extinction_ratio_err"):
+    for key in (
+        "null_reading_deg",
+        "null_reading_err_deg",
+        "extinction_ratio",
+        "extinction_ratio_err",
+    ):
         assert isinstance(doc[key], float)
     text = bench.read_text()
     assert "# Demo bench" in text  # comments kept

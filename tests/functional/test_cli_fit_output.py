@@ -14,13 +14,16 @@ from aligner.run.simbench import true_bench
 def _scan(path, scale_odd=1.0, mount=None):
     truth = true_bench(load_bench("demo"))
     r = np.linspace(131.0, 139.0, 81)
-    n = np.random.default_rng(4).poisson(detected_rate(truth, {"analyzer": r},
-                                                       truth.source.photon_rate) * 0.05)
+    n = np.random.default_rng(4).poisson(
+        detected_rate(truth, {"analyzer": r}, truth.source.photon_rate) * 0.05
+    )
     n = (n * np.where(np.arange(n.size) % 2, scale_odd, 1.0)).astype(int)
     extra = "" if mount is None else ",mount"
     cell = "" if mount is None else f",{mount}"
-    path.write_text(f"reading_deg,counts,dwell_s{extra}\n" +
-                    "".join(f"{a},{b},0.05{cell}\n" for a, b in zip(r, n, strict=True)))
+    path.write_text(
+        f"reading_deg,counts,dwell_s{extra}\n"
+        + "".join(f"{a},{b},0.05{cell}\n" for a, b in zip(r, n, strict=True))
+    )
     return path
 
 
@@ -61,12 +64,19 @@ def test_coupling_table_compares_with_the_bench_file(tmp_path, capsys):
     bench = load_bench("demo")
     r = np.linspace(135.3, 137.0, 18)
     fwd = forward(bench, {"analyzer": r})
-    q = pointer_response(fwd.rho, fwd.effect, coupling_observable(bench),
-                         bench.coupling.strength, bench.coupling.pointer_sigma).position
+    q = pointer_response(
+        fwd.rho,
+        fwd.effect,
+        coupling_observable(bench),
+        bench.coupling.strength,
+        bench.coupling.pointer_sigma,
+    ).position
     err = 1e-2 * float(np.max(np.abs(q)))
     csv = tmp_path / "p.csv"
-    csv.write_text("reading_deg,pointer,pointer_err\n" +
-                   "".join(f"{a},{b},{err}\n" for a, b in zip(r, q, strict=True)))
+    csv.write_text(
+        "reading_deg,pointer,pointer_err\n"
+        + "".join(f"{a},{b},{err}\n" for a, b in zip(r, q, strict=True))
+    )
     assert main(["fit", "coupling", str(csv), "--bench", "demo"]) == 0
     out = capsys.readouterr().out
     assert "coupling.strength" in out and "fitted - bench file" in out

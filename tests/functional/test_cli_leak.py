@@ -25,15 +25,48 @@ def test_leak_bad_counts(capsys):
 
 
 def test_leak_below_dark_prints_an_upper_limit(capsys):
-    assert main(["leak", "--counts", "50", "--dwell", "1", "--reference-rate", "2.28e6",
-                 "--dark", "140", "--dark-dwell", "1"]) == 0
+    assert (
+        main(
+            [
+                "leak",
+                "--counts",
+                "50",
+                "--dwell",
+                "1",
+                "--reference-rate",
+                "2.28e6",
+                "--dark",
+                "140",
+                "--dark-dwell",
+                "1",
+            ]
+        )
+        == 0
+    )
     out = capsys.readouterr().out
     assert "upper limit" in out and "below" in out and "0 to 0" not in out
 
 
 def test_leak_bright_reference_above_safe_rate_warns(capsys):
-    assert main(["leak", "--counts", "300", "--dwell", "1", "--reference", "4000000",
-                 "--reference-dwell", "1", "--bench", "demo", "--json"]) == 0
+    assert (
+        main(
+            [
+                "leak",
+                "--counts",
+                "300",
+                "--dwell",
+                "1",
+                "--reference",
+                "4000000",
+                "--reference-dwell",
+                "1",
+                "--bench",
+                "demo",
+                "--json",
+            ]
+        )
+        == 0
+    )
     doc = json.loads(capsys.readouterr().out)
     assert len(doc["warnings"]) == 1 and "safe rate" in doc["warnings"][0]
     assert "laser safety officer" in doc["warnings"][0]
@@ -43,8 +76,22 @@ def test_leak_bright_reference_above_safe_rate_warns(capsys):
 
 
 def test_leak_table_shows_dead_time_and_dark_rows(capsys):
-    assert main(["leak", "--counts", "1000000", "--dwell", "1", "--dead-time-ns", "50",
-                 "--bench", "demo"]) == 0
+    assert (
+        main(
+            [
+                "leak",
+                "--counts",
+                "1000000",
+                "--dwell",
+                "1",
+                "--dead-time-ns",
+                "50",
+                "--bench",
+                "demo",
+            ]
+        )
+        == 0
+    )
     out = capsys.readouterr().out
     assert "raw rate" in out and "after dead-time correction (50 ns)" in out
     assert "1.053e+06" in out and "dark rate subtracted" in out

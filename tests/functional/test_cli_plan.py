@@ -13,8 +13,9 @@ import pytest
 
 
 def aligner(*args: str) -> subprocess.CompletedProcess:
-    return subprocess.run([sys.executable, "-m", "aligner", *args], capture_output=True,
-                          text=True, timeout=300)
+    return subprocess.run(
+        [sys.executable, "-m", "aligner", *args], capture_output=True, text=True, timeout=300
+    )
 
 
 def test_plan_json_document() -> None:
@@ -44,28 +45,47 @@ def test_plan_readable_output() -> None:
     assert "solution branches" in done.stdout
 
 
-@pytest.mark.parametrize(("edits", "args", "limit"), [
-    ({}, ("--amplification", "80"), "extinction"),
-    ({"travel_deg = [-10.0, 350.0]": "travel_deg = [-10.0, 350.0]\nresolution_deg = 0.3"},
-     ("--amplification", "40"), "resolution"),
-    ({"pointer_sigma = 100.0": "pointer_sigma = 10.0", "extinction_ratio = 1e4":
-      "extinction_ratio = 1e9", "extinction_ratio = 1e5": "extinction_ratio = 1e9"},
-     ("--amplification", "20", "--exact"), "pointer"),
-    ({"travel_deg = [-10.0, 350.0]": "travel_deg = [135.5, 137.0]"},
-     ("--amplification", "5"), "travel"),
-    ({}, ("--leak-rate", "1e-9"), "extinction"),
-    ({}, ("--leak-rate", "0.99"), "transmission"),
-])
-def test_infeasible_targets_exit_2(write_bench: Callable[[str], Path], bench_text: str,
-                                   edits: dict[str, str], args: tuple[str, ...],
-                                   limit: str) -> None:
+@pytest.mark.parametrize(
+    ("edits", "args", "limit"),
+    [
+        ({}, ("--amplification", "80"), "extinction"),
+        (
+            {"travel_deg = [-10.0, 350.0]": "travel_deg = [-10.0, 350.0]\nresolution_deg = 0.3"},
+            ("--amplification", "40"),
+            "resolution",
+        ),
+        (
+            {
+                "pointer_sigma = 100.0": "pointer_sigma = 10.0",
+                "extinction_ratio = 1e4": "extinction_ratio = 1e9",
+                "extinction_ratio = 1e5": "extinction_ratio = 1e9",
+            },
+            ("--amplification", "20", "--exact"),
+            "pointer",
+        ),
+        (
+            {"travel_deg = [-10.0, 350.0]": "travel_deg = [135.5, 137.0]"},
+            ("--amplification", "5"),
+            "travel",
+        ),
+        ({}, ("--leak-rate", "1e-9"), "extinction"),
+        ({}, ("--leak-rate", "0.99"), "transmission"),
+    ],
+)
+def test_infeasible_targets_exit_2(
+    write_bench: Callable[[str], Path],
+    bench_text: str,
+    edits: dict[str, str],
+    args: tuple[str, ...],
+    limit: str,
+) -> None:
     text = bench_text
     for old, new in edits.items():
         assert old in text
         text = text.replace(old, new)
     done = aligner("plan", str(write_bench(text)), *args, "--samples", "0")
     assert done.returncode == 2, done.stdout + done.stderr
-    line, = done.stderr.strip().splitlines()
+    (line,) = done.stderr.strip().splitlines()
     assert limit in line and "Traceback" not in done.stderr
     assert done.stdout == ""
 
@@ -86,12 +106,15 @@ def test_extinction_message_names_both_polarizers_with_json(bench_file: Path) ->
     assert "equivalent" in text
 
 
-@pytest.mark.parametrize(("args", "needle"), [
-    (("--weak-value", "abc"), "--weak-value"),
-    (("--amplification", "10", "--branch", "99"), "branch"),
-    (("--amplification", "10", "--free", "nope"), "unknown mount"),
-    (("--amplification", "10", "--samples", "-3"), "--samples"),
-])
+@pytest.mark.parametrize(
+    ("args", "needle"),
+    [
+        (("--weak-value", "abc"), "--weak-value"),
+        (("--amplification", "10", "--branch", "99"), "branch"),
+        (("--amplification", "10", "--free", "nope"), "unknown mount"),
+        (("--amplification", "10", "--samples", "-3"), "--samples"),
+    ],
+)
 def test_bad_arguments_exit_2(bench_file: Path, args: tuple[str, ...], needle: str) -> None:
     done = aligner("plan", str(bench_file), *args)
     assert done.returncode == 2
@@ -104,8 +127,9 @@ def test_write_refuses_the_demo() -> None:
 
 
 def test_write_stores_rounded_readings_and_keeps_comments(bench_file: Path) -> None:
-    done = aligner("plan", str(bench_file), "--amplification", "25", "--json", "--write",
-                   "--samples", "0")
+    done = aligner(
+        "plan", str(bench_file), "--amplification", "25", "--json", "--write", "--samples", "0"
+    )
     assert done.returncode == 0, done.stderr
     doc = json.loads(done.stdout)
     text = bench_file.read_text()
@@ -114,7 +138,8 @@ def test_write_stores_rounded_readings_and_keeps_comments(bench_file: Path) -> N
     assert f"reading_deg = {reading}" in text
     again = aligner("predict", str(bench_file), "--json")
     assert json.loads(again.stdout)["amplification"]["linear"] == pytest.approx(
-        doc["quantized"]["value"], rel=1e-9)
+        doc["quantized"]["value"], rel=1e-9
+    )
 
 
 def test_derive_plain_and_latex(bench_file: Path) -> None:

@@ -37,17 +37,27 @@ def test_readable_output_has_units_and_caution(capsys):
     code, out, _ = run(capsys, "demo")
     assert code == 0
     out = " ".join(out.split())  # the table wraps to the terminal width
-    for text in ("counts/s", "per source photon", "deg", "um", "laser safety officer",
-                 "where the amplification stops", "Limited by"):
+    for text in (
+        "counts/s",
+        "per source photon",
+        "deg",
+        "um",
+        "laser safety officer",
+        "where the amplification stops",
+        "Limited by",
+    ):
         assert text in out
 
 
-@pytest.mark.parametrize(("setting", "message"), [
-    ("nomount=3", "unknown mount 'nomount'"),
-    ("analyzer=abc", "must be a number"),
-    ("analyzer", "expected MOUNT=READING_DEG"),
-    ("analyzer=999", "outside the mount's travel"),
-])
+@pytest.mark.parametrize(
+    ("setting", "message"),
+    [
+        ("nomount=3", "unknown mount 'nomount'"),
+        ("analyzer=abc", "must be a number"),
+        ("analyzer", "expected MOUNT=READING_DEG"),
+        ("analyzer=999", "outside the mount's travel"),
+    ],
+)
 def test_bad_set_exits_2_with_a_clear_message(capsys, setting, message):
     code, out, err = run(capsys, "demo", "--set", setting)
     assert code == 2
@@ -61,9 +71,23 @@ def test_missing_bench_file(capsys, tmp_path):
 
 
 def test_console_entry_point():
-    done = subprocess.run([sys.executable, "-m", "aligner", "predict", "demo", "--json"],
-                          capture_output=True, text=True, timeout=60, check=False)
+    done = subprocess.run(
+        [sys.executable, "-m", "aligner", "predict", "demo", "--json"],
+        capture_output=True,
+        text=True,
+        timeout=60,
+        check=False,
+    )
     assert done.returncode == 0, done.stderr
     assert set(json.loads(done.stdout)) == {
-        "angles_deg", "imbalance_deg", "weak_value", "leak_rate", "amplification",
-        "pointer_shift", "units", "detector", "limit", "snr_per_sqrt_s"}
+        "angles_deg",
+        "imbalance_deg",
+        "weak_value",
+        "leak_rate",
+        "amplification",
+        "pointer_shift",
+        "units",
+        "detector",
+        "limit",
+        "snr_per_sqrt_s",
+    }

@@ -9,15 +9,25 @@ import pytest
 
 
 def _cli(*args):
-    return subprocess.run([sys.executable, "-m", "aligner", *args], capture_output=True,
-                          text=True, timeout=60)
+    return subprocess.run(
+        [sys.executable, "-m", "aligner", *args], capture_output=True, text=True, timeout=60
+    )
 
 
 @pytest.fixture(scope="module")
 def db(tmp_path_factory):
     path = tmp_path_factory.mktemp("log") / "runs.sqlite"
-    out = _cli("sweep", "demo", "--schedule", "linear:0.2:2.0:6", "--dwell", "0.5",
-               "--db", str(path), "--json")
+    out = _cli(
+        "sweep",
+        "demo",
+        "--schedule",
+        "linear:0.2:2.0:6",
+        "--dwell",
+        "0.5",
+        "--db",
+        str(path),
+        "--json",
+    )
     assert out.returncode == 0, out.stderr
     return str(path)
 
@@ -34,8 +44,17 @@ def test_export_csv_has_the_issue_columns(db, tmp_path):
     assert _cli("log", "export", "1", "--csv", str(target), "--db", db).returncode == 0
     rows = list(csv.DictReader(target.open()))
     assert len(rows) == 6
-    assert {"run", "index", "reading_deg", "counts", "reference", "leak", "leak_lo", "leak_hi",
-            "predicted_leak"} <= set(rows[0])
+    assert {
+        "run",
+        "index",
+        "reading_deg",
+        "counts",
+        "reference",
+        "leak",
+        "leak_lo",
+        "leak_hi",
+        "predicted_leak",
+    } <= set(rows[0])
     assert all(float(r["leak_lo"]) <= float(r["leak"]) <= float(r["leak_hi"]) for r in rows)
     # the export reads back as a count scan for the fits
     from aligner.fit.csvdata import load_count_scan
@@ -68,8 +87,10 @@ def test_note_and_report(db, tmp_path):
 
 
 def test_errors_are_one_line(db, tmp_path):
-    for args, words in ((["show", "5"], "no run 5"), (["note", "1", " "], "empty"),
-                        (["export", "1", "--csv", str(tmp_path / "no" / "such" / "x.csv")],
-                         "cannot be written")):
+    for args, words in (
+        (["show", "5"], "no run 5"),
+        (["note", "1", " "], "empty"),
+        (["export", "1", "--csv", str(tmp_path / "no" / "such" / "x.csv")], "cannot be written"),
+    ):
         out = _cli("log", *args, "--db", db)
         assert out.returncode == 2 and words in out.stderr and "Traceback" not in out.stderr

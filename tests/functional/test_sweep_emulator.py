@@ -24,8 +24,10 @@ STEPS_PER_DEG = 1000  # drivers/profiles/example-mount.toml
 def bench():
     b = load_bench("demo")
     # the example profile's travel is [-170, 170] deg; the analyzer works near 135 deg
-    mounts = {**b.mounts, "analyzer": dataclasses.replace(b.mounts["analyzer"],
-                                                          travel_deg=(-170.0, 170.0))}
+    mounts = {
+        **b.mounts,
+        "analyzer": dataclasses.replace(b.mounts["analyzer"], travel_deg=(-170.0, 170.0)),
+    }
     return dataclasses.replace(b, mounts=mounts)
 
 
@@ -36,26 +38,26 @@ class Rig:
     def __init__(self, bench, mount_faults=None, counter_faults=None, timeout=0.5, retries=2):
         self.sim = SimBench(bench, seed=5)
         self.mount_emu = Emulator(faults=mount_faults, seed=1).__enter__()
-        self.counter_emu = Emulator(faults=counter_faults, counts_fn=self.counts, seed=2
-                                    ).__enter__()
+        self.counter_emu = Emulator(
+            faults=counter_faults, counts_fn=self.counts, seed=2
+        ).__enter__()
         options = {"timeout": timeout, "retries": retries}
         try:
-            self.mount = open_mount(self.mount_emu.port, profile="example-mount",
-                                    name="analyzer", **options)
-            self.counter = open_counter(self.counter_emu.port, profile="example-counter",
-                                        **options)
-            self.shutter = open_shutter(self.counter_emu.port, profile="example-counter",
-                                        **options)
+            self.mount = open_mount(
+                self.mount_emu.port, profile="example-mount", name="analyzer", **options
+            )
+            self.counter = open_counter(self.counter_emu.port, profile="example-counter", **options)
+            self.shutter = open_shutter(self.counter_emu.port, profile="example-counter", **options)
         except BaseException:
             self.close()
             raise
         mounts = {**self.sim.mounts, "analyzer": self.mount}
-        self.devices = DeviceSet(mounts, self.counter, self.shutter, None, None,
-                                 simulated_time=True)
+        self.devices = DeviceSet(
+            mounts, self.counter, self.shutter, None, None, simulated_time=True
+        )
 
     def counts(self, dwell_s):
-        readings = {n: m.true_angle_deg() for n, m in self.sim.mounts.items()
-                    if n != "analyzer"}
+        readings = {n: m.true_angle_deg() for n, m in self.sim.mounts.items() if n != "analyzer"}
         readings["analyzer"] = self.mount_emu.position_steps / STEPS_PER_DEG
         return self.sim.draw_counts(dwell_s, readings, exposed=self.counter_emu.beam_on)
 
@@ -89,7 +91,7 @@ def test_fifty_points_through_the_emulator(tmp_path, bench):
         while moves[i] != target:
             i += 1
         previous = moves[i - 1] if i else 0
-        assert previous < target, (i, moves[max(0, i - 3):i + 1])
+        assert previous < target, (i, moves[max(0, i - 3) : i + 1])
         i += 1
     assert i == len(moves)
 
@@ -120,8 +122,9 @@ def test_fault_drill_200_faults(tmp_path, bench):
         while True:
             rounds += 1
             assert rounds < 60, "the drill does not converge"
-            faults = {k: Faults(script=tuple(v), only=only[k], stall_s=0.03)
-                      for k, v in remaining.items()}
+            faults = {
+                k: Faults(script=tuple(v), only=only[k], stall_s=0.03) for k, v in remaining.items()
+            }
             rig = Rig(bench, faults["mount"], faults["counter"], timeout=0.05, retries=0)
             try:
                 result = run_sweep(bench, rig.devices, log, run, plan, dwell_s=0.05)
@@ -141,23 +144,31 @@ def test_fault_drill_200_faults(tmp_path, bench):
     assert not any(f for v in remaining.values() for f in v), "some faults were never injected"
     assert injected == 200
     assert [p.idx for p in points] == list(range(120))
-    assert np.allclose([p.reading_deg for p in points],
-                       np.round([p.readings["analyzer"] * STEPS_PER_DEG for p in plan]) / 1000)
+    assert np.allclose(
+        [p.reading_deg for p in points],
+        np.round([p.readings["analyzer"] * STEPS_PER_DEG for p in plan]) / 1000,
+    )
     fault_events = [e for e in events if e.kind == "fault"]
     pauses = [e for e in events if e.kind == "pause"]
     # every injected fault reached the engine as one failed attempt (a disconnect pauses)
     assert len(fault_events) + len(pauses) >= injected
     assert all(e.message and "Traceback" not in e.message for e in events)
-    assert all("analyzer" in e.message or "example-counter" in e.message
-               or "counter" in e.message for e in fault_events)
+    assert all(
+        "analyzer" in e.message or "example-counter" in e.message or "counter" in e.message
+        for e in fault_events
+    )
     assert "device" in reasons  # the disconnects paused the run; resume finished it
 
 
 def test_a_stalled_motor_is_caught_and_the_move_retried(tmp_path, bench):
     schedule = parse_schedule("list:0.5,1.0", dwell_s=0.05)
     plan = plan_points(bench, schedule)
-    rig = Rig(bench, Faults(script=("offset", None, None, "offset"), only=frozenset({"GO"})),
-              timeout=0.1, retries=0)
+    rig = Rig(
+        bench,
+        Faults(script=("offset", None, None, "offset"), only=frozenset({"GO"})),
+        timeout=0.1,
+        retries=0,
+    )
     try:
         with RunLog(tmp_path / "runs.sqlite") as log:
             run = start_run(log, bench, schedule, plan)

@@ -23,15 +23,30 @@ def _interrupted_run(tmp_path: Path) -> tuple[Path, Path]:
     with RunLog(db) as log:
         run = start_run(log, bench, schedule, points)
         calls = iter(range(100))
-        result = run_sweep(bench, open_devices(bench), log, run, points, dwell_s=0.2,
-                           stop=lambda: next(calls) >= 2)
+        result = run_sweep(
+            bench, open_devices(bench), log, run, points, dwell_s=0.2, stop=lambda: next(calls) >= 2
+        )
     assert result.status == "interrupted" and result.points_done == 2
     return bench_file, db
 
 
 def _resume(bench_file: Path, db: Path) -> subprocess.CompletedProcess[str]:
-    return subprocess.run([sys.executable, "-m", "aligner", "sweep", str(bench_file), "--resume",
-                           "1", "--db", str(db)], capture_output=True, text=True, timeout=120)
+    return subprocess.run(
+        [
+            sys.executable,
+            "-m",
+            "aligner",
+            "sweep",
+            str(bench_file),
+            "--resume",
+            "1",
+            "--db",
+            str(db),
+        ],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
 
 
 def test_unchanged_bench_resumes_without_a_note(tmp_path: Path) -> None:
@@ -44,8 +59,7 @@ def test_unchanged_bench_resumes_without_a_note(tmp_path: Path) -> None:
 def test_a_stricter_safe_rate_in_the_file_is_honoured(tmp_path: Path) -> None:
     bench_file, db = _interrupted_run(tmp_path)
     text = bench_file.read_text(encoding="utf-8")
-    bench_file.write_text(text.replace("safe_rate = 1.5e6", "safe_rate = 500.0"),
-                          encoding="utf-8")
+    bench_file.write_text(text.replace("safe_rate = 1.5e6", "safe_rate = 500.0"), encoding="utf-8")
     out = _resume(bench_file, db)
     assert "differs from the bench logged with run 1" in out.stderr
     # the remaining points are predicted at ~1e3 counts/s: above half of 500, so refused

@@ -16,8 +16,9 @@ from aligner.run.sweep import run_sweep, start_run
 
 
 def _cli(*args, timeout=60):
-    return subprocess.run([sys.executable, "-m", "aligner", *args], capture_output=True,
-                          text=True, timeout=timeout)
+    return subprocess.run(
+        [sys.executable, "-m", "aligner", *args], capture_output=True, text=True, timeout=timeout
+    )
 
 
 def test_fifty_points_on_sim_devices(tmp_path):
@@ -63,18 +64,30 @@ def test_quick_start_command(tmp_path):
 
 def test_json_output_and_bad_input(tmp_path):
     db = str(tmp_path / "runs.sqlite")
-    out = _cli("sweep", "demo", "--schedule", "list:0.5,1.0", "--dwell", "0.3", "--db", db,
-               "--json")
+    out = _cli(
+        "sweep", "demo", "--schedule", "list:0.5,1.0", "--dwell", "0.3", "--db", db, "--json"
+    )
     assert out.returncode == 0, out.stderr
     doc = json.loads(out.stdout)
     assert doc["status"] == "complete" and doc["points_done"] == 2 == len(doc["points"])
-    assert {"reading_deg", "counts", "reference", "leak", "leak_lo", "leak_hi",
-            "predicted_leak", "pointer", "pointer_err"} <= set(doc["points"][0])
-    for args, words in ((["--schedule", "lin:1:2:3"], "unknown form"),
-                        (["--schedule", "linear:0.2:1:3", "--resume", "1"], "not both"),
-                        (["--resume", "1"], "already complete"),
-                        (["--schedule", "list:0.5", "--dwell", "-1"], "--dwell"),
-                        (["--resume", "9"], "no run 9")):
+    assert {
+        "reading_deg",
+        "counts",
+        "reference",
+        "leak",
+        "leak_lo",
+        "leak_hi",
+        "predicted_leak",
+        "pointer",
+        "pointer_err",
+    } <= set(doc["points"][0])
+    for args, words in (
+        (["--schedule", "lin:1:2:3"], "unknown form"),
+        (["--schedule", "linear:0.2:1:3", "--resume", "1"], "not both"),
+        (["--resume", "1"], "already complete"),
+        (["--schedule", "list:0.5", "--dwell", "-1"], "--dwell"),
+        (["--resume", "9"], "no run 9"),
+    ):
         bad = _cli("sweep", "demo", "--db", db, *args)
         assert bad.returncode == 2, (args, bad.stderr)
         assert words in bad.stderr and "Traceback" not in bad.stderr

@@ -53,7 +53,7 @@ def text_of(app: DeskApp, selector: str) -> str:
 def shown_in(app: DeskApp, selector: str) -> str:
     """The words on the screen inside a widget's region, its children's included."""
     region = app.screen.query_one(selector).region
-    strips = app.screen._compositor.render_strips()[region.y:region.bottom]
+    strips = app.screen._compositor.render_strips()[region.y : region.bottom]
     lines = [strip.crop(region.x, region.right).text for strip in strips]
     return " ".join(" ".join(lines).translate(_BOX).split())
 
@@ -84,8 +84,7 @@ async def test_every_screen_has_the_safety_line_and_its_own_bar(bench, tmp_path)
 # -- bench ---------------------------------------------------------------------------------------
 
 
-async def test_bench_shows_the_engine_prediction_and_steps_by_the_mount_resolution(bench,
-                                                                                     tmp_path):
+async def test_bench_shows_the_engine_prediction_and_steps_by_the_mount_resolution(bench, tmp_path):
     app = desk(bench, tmp_path)
     async with app.run_test(size=SIZE) as pilot:
         await settle(pilot)
@@ -178,8 +177,7 @@ async def test_plan_shows_the_engine_plan_and_applies_it_to_the_bench(bench, tmp
         assert app.current_mode == "bench"
         for name, reading in expected.quantized.settings.items():
             assert app.readings[name] == pytest.approx(reading)
-            assert app.screen.query_one(f"#reading-{name}", Input).value == \
-                f"{reading:.{3}f}"
+            assert app.screen.query_one(f"#reading-{name}", Input).value == f"{reading:.{3}f}"
 
 
 async def test_plan_infeasible_target_shows_the_engine_message(bench, tmp_path):
@@ -236,8 +234,7 @@ async def test_plan_for_the_axis_the_readout_does_not_see_says_so(bench, tmp_pat
         await pilot.press("ctrl+a")
         await settle(pilot)
         p = predict(bench, app.readings)
-        assert p.axis == "re" and abs(complex(p.weak_value).imag) > abs(
-            complex(p.weak_value).real)
+        assert p.axis == "re" and abs(complex(p.weak_value).imag) > abs(complex(p.weak_value).real)
         assert app.readings["analyzer"] == pytest.approx(expected.quantized.settings["analyzer"])
         shown = text_of(app, "#prediction-numbers")
         assert f"ampl. (Re A_w) linear {num(p.amplification_linear, 5)}" in shown
@@ -300,8 +297,11 @@ def hardware_desk(bench, tmp_path: Path) -> DeskApp:
     """The demo bench with its analyzer on a (generic line-protocol) driver; the devices are
     the simulated ones, so nothing real is opened."""
     real = bench.with_mounts(analyzer=replace(bench.mounts["analyzer"], driver="line:/dev/null"))
-    return DeskApp(DeskBackend(real, db_path=tmp_path / "runs.sqlite",
-                               device_factory=lambda b: open_devices(bench)))
+    return DeskApp(
+        DeskBackend(
+            real, db_path=tmp_path / "runs.sqlite", device_factory=lambda b: open_devices(bench)
+        )
+    )
 
 
 async def test_sweep_with_real_mounts_asks_first(bench, tmp_path):
@@ -369,7 +369,8 @@ async def test_sweep_pause_leaves_the_bench_safe_and_resume_completes(bench, tmp
         status = text_of(app, "#sweep-status")
         assert "paused as you asked" in status and "shutter shut" in status
         assert "operator:" not in status and not app.screen.query_one(
-            "#sweep-status", Static).has_class("problem")
+            "#sweep-status", Static
+        ).has_class("problem")
         events = text_of(app, "#sweep-events")
         assert "paused by the operator" in events and "paused: paused" not in events
         devices = app.backend.devices(app.readings)

@@ -11,14 +11,17 @@ from aligner.cli import build_parser, main
 
 
 def _python(code: str) -> subprocess.CompletedProcess[str]:
-    return subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
-                          timeout=60, check=False)
+    return subprocess.run(
+        [sys.executable, "-c", code], capture_output=True, text=True, timeout=60, check=False
+    )
 
 
 def test_desk_is_registered_without_importing_textual():
-    out = _python("import sys; from aligner.cli import build_parser; "
-                  "p = build_parser(); p.parse_args(['desk', 'demo', '--db', 'x.sqlite']); "
-                  "print('textual' in sys.modules)")
+    out = _python(
+        "import sys; from aligner.cli import build_parser; "
+        "p = build_parser(); p.parse_args(['desk', 'demo', '--db', 'x.sqlite']); "
+        "print('textual' in sys.modules)"
+    )
     assert out.returncode == 0, out.stderr
     assert out.stdout.strip() == "False"
 
@@ -34,8 +37,13 @@ def test_desk_help_names_the_keys_and_the_safety_rules(capsys):
 
 def test_desk_with_a_missing_bench_file_is_one_plain_error(tmp_path):
     missing = tmp_path / "no-such-bench.toml"
-    out = subprocess.run([sys.executable, "-m", "aligner", "desk", str(missing)],
-                         capture_output=True, text=True, timeout=60, check=False)
+    out = subprocess.run(
+        [sys.executable, "-m", "aligner", "desk", str(missing)],
+        capture_output=True,
+        text=True,
+        timeout=60,
+        check=False,
+    )
     assert out.returncode == 2
     assert "Traceback" not in out.stderr
     assert str(missing) in out.stderr and len(out.stderr.strip().splitlines()) == 1
@@ -53,8 +61,11 @@ def test_desk_runs_the_app_built_by_the_factory(monkeypatch, tmp_path):
 
     monkeypatch.setattr(DeskApp, "run", fake_run)
     assert main(["desk", "demo", "--db", str(tmp_path / "runs.sqlite")]) == 0
-    assert seen == {"bench": "demo walk-off readout, 830 nm", "db": tmp_path / "runs.sqlite",
-                    "realtime": True}
+    assert seen == {
+        "bench": "demo walk-off readout, 830 nm",
+        "db": tmp_path / "runs.sqlite",
+        "realtime": True,
+    }
 
 
 def test_desk_with_an_unusable_run_log_is_refused_before_the_ui_starts(tmp_path, capsys):

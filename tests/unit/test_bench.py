@@ -12,96 +12,276 @@ from aligner.errors import BenchFileError, InputError
 from aligner.physics.materials import plate_retardance_waves
 
 HWP = 'type = "hwp"\nmount = "hwp"'
-DETECTOR_TABLE = ("[detector]\nefficiency = 0.5\ndark_rate = 10.0\ndead_time_ns = 20.0\n"
-                  "safe_rate = 1.0e6\n")
-ANALYZER_TABLE = ('[analyzer]\nmount = "ana"              # crossed with D at 135 deg\n'
-                  "extinction_ratio = 1e4\ntransmission = 0.9\n")
+DETECTOR_TABLE = (
+    "[detector]\nefficiency = 0.5\ndark_rate = 10.0\ndead_time_ns = 20.0\nsafe_rate = 1.0e6\n"
+)
+ANALYZER_TABLE = (
+    '[analyzer]\nmount = "ana"              # crossed with D at 135 deg\n'
+    "extinction_ratio = 1e4\ntransmission = 0.9\n"
+)
 
 # (case id, text to replace in the minimal bench, replacement, key the message must name,
 #  further text the message must contain)
 BAD_FILES = [
-    ("unknown-top-key", "wavelength_nm = 800.0", "wavelenght_nm = 800.0", "wavelenght_nm",
-     "did you mean 'wavelength_nm'"),
-    ("unknown-source-key", "photon_rate = 1.0e6", "photon_rat = 1.0e6", "source.photon_rat",
-     "did you mean 'photon_rate'"),
-    ("unknown-element-key", HWP, HWP + "\nretardance_wave = 0.5", "pre[0].retardance_wave",
-     "did you mean 'retardance_waves'"),
-    ("unknown-mount-key", "reading_deg = 22.5", "reading_dg = 22.5", "mounts.hwp.reading_dg",
-     "did you mean 'reading_deg'"),
-    ("unknown-plate-key", HWP, HWP + '\nplate = { materal = "quartz" }', "pre[0].plate.materal",
-     "did you mean 'material'"),
-    ("unknown-detector-key", "dark_rate = 10.0", "dark_rates = 10.0", "detector.dark_rates",
-     "did you mean 'dark_rate'"),
+    (
+        "unknown-top-key",
+        "wavelength_nm = 800.0",
+        "wavelenght_nm = 800.0",
+        "wavelenght_nm",
+        "did you mean 'wavelength_nm'",
+    ),
+    (
+        "unknown-source-key",
+        "photon_rate = 1.0e6",
+        "photon_rat = 1.0e6",
+        "source.photon_rat",
+        "did you mean 'photon_rate'",
+    ),
+    (
+        "unknown-element-key",
+        HWP,
+        HWP + "\nretardance_wave = 0.5",
+        "pre[0].retardance_wave",
+        "did you mean 'retardance_waves'",
+    ),
+    (
+        "unknown-mount-key",
+        "reading_deg = 22.5",
+        "reading_dg = 22.5",
+        "mounts.hwp.reading_dg",
+        "did you mean 'reading_deg'",
+    ),
+    (
+        "unknown-plate-key",
+        HWP,
+        HWP + '\nplate = { materal = "quartz" }',
+        "pre[0].plate.materal",
+        "did you mean 'material'",
+    ),
+    (
+        "unknown-detector-key",
+        "dark_rate = 10.0",
+        "dark_rates = 10.0",
+        "detector.dark_rates",
+        "did you mean 'dark_rate'",
+    ),
     ("nan-wavelength", "wavelength_nm = 800.0", "wavelength_nm = nan", "wavelength_nm", "finite"),
-    ("nan-extinction", "extinction_ratio = 1e5", "extinction_ratio = nan",
-     "source.extinction_ratio", "finite"),
-    ("inf-photon-rate", "photon_rate = 1.0e6", "photon_rate = inf", "source.photon_rate",
-     "finite"),
-    ("inf-offset", "reading_deg = 22.5", "reading_deg = 22.5\noffset_deg = inf",
-     "mounts.hwp.offset_deg", "finite"),
-    ("inf-travel", "travel_deg = [-10.0, 350.0]", "travel_deg = [-10.0, inf]",
-     "mounts.ana.travel_deg", "finite"),
-    ("negative-photon-rate", "photon_rate = 1.0e6", "photon_rate = -1.0e6",
-     "source.photon_rate", "greater than 0"),
-    ("negative-dark-rate", "dark_rate = 10.0", "dark_rate = -10.0", "detector.dark_rate",
-     "at least 0"),
-    ("negative-dead-time", "dead_time_ns = 20.0", "dead_time_ns = -1.0", "detector.dead_time_ns",
-     "at least 0"),
-    ("negative-safe-rate", "safe_rate = 1.0e6", "safe_rate = -inf", "detector.safe_rate",
-     "greater than 0"),
-    ("zero-efficiency", "efficiency = 0.5", "efficiency = 0.0", "detector.efficiency",
-     "greater than 0"),
-    ("efficiency-above-one", "efficiency = 0.5", "efficiency = 1.2", "detector.efficiency",
-     "at most 1"),
-    ("transmission-above-one", "transmission = 0.9", "transmission = 1.5",
-     "analyzer.transmission", "at most 1"),
-    ("extinction-below-one", "extinction_ratio = 1e4", "extinction_ratio = 0.5",
-     "analyzer.extinction_ratio", "at least 1"),
-    ("source-extinction-zero", "extinction_ratio = 1e5", "extinction_ratio = 0",
-     "source.extinction_ratio", "at least 1"),
-    ("element-extinction-below-one", HWP, 'type = "polarizer"\nangle_deg = 10.0\n'
-     "extinction_ratio = 0.9", "pre[0].extinction_ratio", "at least 1"),
-    ("unknown-element-mount", 'mount = "hwp"', 'mount = "hwpp"', "pre[0].mount",
-     "did you mean 'hwp'"),
-    ("unknown-analyzer-mount", 'mount = "ana" ', 'mount = "anna" ', "analyzer.mount",
-     "did you mean 'ana'"),
-    ("unknown-imbalance-mount", 'imbalance_mount = "ana"', 'imbalance_mount = "anna"',
-     "imbalance_mount", "did you mean 'ana'"),
-    ("imbalance-mount-holds-nothing", 'imbalance_mount = "ana"', 'imbalance_mount = "spare"',
-     "imbalance_mount", "holds no element"),
-    ("unknown-simulation-mount", "[mounts.hwp]",
-     "[simulation]\ntrue_offset_deg = { nope = 0.1 }\n\n[mounts.hwp]",
-     "simulation.true_offset_deg.nope", "unknown key"),
-    ("sense-zero", "reading_deg = 22.5", "reading_deg = 22.5\nsense = 0", "mounts.hwp.sense",
-     "+1 or -1"),
-    ("sense-text", "reading_deg = 22.5", 'reading_deg = 22.5\nsense = "cw"', "mounts.hwp.sense",
-     "must be a number"),
-    ("sense-bool", "reading_deg = 22.5", "reading_deg = 22.5\nsense = true", "mounts.hwp.sense",
-     "must be a number"),
-    ("travel-reversed", "travel_deg = [-10.0, 350.0]", "travel_deg = [350.0, -10.0]",
-     "mounts.ana.travel_deg", "low < high"),
-    ("travel-three-numbers", "travel_deg = [-10.0, 350.0]", "travel_deg = [-10.0, 0.0, 350.0]",
-     "mounts.ana.travel_deg", "list of 2"),
-    ("reading-outside-travel", "reading_deg = 136.0", "reading_deg = 400.0",
-     "mounts.ana.reading_deg", "outside travel_deg"),
+    (
+        "nan-extinction",
+        "extinction_ratio = 1e5",
+        "extinction_ratio = nan",
+        "source.extinction_ratio",
+        "finite",
+    ),
+    ("inf-photon-rate", "photon_rate = 1.0e6", "photon_rate = inf", "source.photon_rate", "finite"),
+    (
+        "inf-offset",
+        "reading_deg = 22.5",
+        "reading_deg = 22.5\noffset_deg = inf",
+        "mounts.hwp.offset_deg",
+        "finite",
+    ),
+    (
+        "inf-travel",
+        "travel_deg = [-10.0, 350.0]",
+        "travel_deg = [-10.0, inf]",
+        "mounts.ana.travel_deg",
+        "finite",
+    ),
+    (
+        "negative-photon-rate",
+        "photon_rate = 1.0e6",
+        "photon_rate = -1.0e6",
+        "source.photon_rate",
+        "greater than 0",
+    ),
+    (
+        "negative-dark-rate",
+        "dark_rate = 10.0",
+        "dark_rate = -10.0",
+        "detector.dark_rate",
+        "at least 0",
+    ),
+    (
+        "negative-dead-time",
+        "dead_time_ns = 20.0",
+        "dead_time_ns = -1.0",
+        "detector.dead_time_ns",
+        "at least 0",
+    ),
+    (
+        "negative-safe-rate",
+        "safe_rate = 1.0e6",
+        "safe_rate = -inf",
+        "detector.safe_rate",
+        "greater than 0",
+    ),
+    (
+        "zero-efficiency",
+        "efficiency = 0.5",
+        "efficiency = 0.0",
+        "detector.efficiency",
+        "greater than 0",
+    ),
+    (
+        "efficiency-above-one",
+        "efficiency = 0.5",
+        "efficiency = 1.2",
+        "detector.efficiency",
+        "at most 1",
+    ),
+    (
+        "transmission-above-one",
+        "transmission = 0.9",
+        "transmission = 1.5",
+        "analyzer.transmission",
+        "at most 1",
+    ),
+    (
+        "extinction-below-one",
+        "extinction_ratio = 1e4",
+        "extinction_ratio = 0.5",
+        "analyzer.extinction_ratio",
+        "at least 1",
+    ),
+    (
+        "source-extinction-zero",
+        "extinction_ratio = 1e5",
+        "extinction_ratio = 0",
+        "source.extinction_ratio",
+        "at least 1",
+    ),
+    (
+        "element-extinction-below-one",
+        HWP,
+        'type = "polarizer"\nangle_deg = 10.0\nextinction_ratio = 0.9',
+        "pre[0].extinction_ratio",
+        "at least 1",
+    ),
+    (
+        "unknown-element-mount",
+        'mount = "hwp"',
+        'mount = "hwpp"',
+        "pre[0].mount",
+        "did you mean 'hwp'",
+    ),
+    (
+        "unknown-analyzer-mount",
+        'mount = "ana" ',
+        'mount = "anna" ',
+        "analyzer.mount",
+        "did you mean 'ana'",
+    ),
+    (
+        "unknown-imbalance-mount",
+        'imbalance_mount = "ana"',
+        'imbalance_mount = "anna"',
+        "imbalance_mount",
+        "did you mean 'ana'",
+    ),
+    (
+        "imbalance-mount-holds-nothing",
+        'imbalance_mount = "ana"',
+        'imbalance_mount = "spare"',
+        "imbalance_mount",
+        "holds no element",
+    ),
+    (
+        "unknown-simulation-mount",
+        "[mounts.hwp]",
+        "[simulation]\ntrue_offset_deg = { nope = 0.1 }\n\n[mounts.hwp]",
+        "simulation.true_offset_deg.nope",
+        "unknown key",
+    ),
+    (
+        "sense-zero",
+        "reading_deg = 22.5",
+        "reading_deg = 22.5\nsense = 0",
+        "mounts.hwp.sense",
+        "+1 or -1",
+    ),
+    (
+        "sense-text",
+        "reading_deg = 22.5",
+        'reading_deg = 22.5\nsense = "cw"',
+        "mounts.hwp.sense",
+        "must be a number",
+    ),
+    (
+        "sense-bool",
+        "reading_deg = 22.5",
+        "reading_deg = 22.5\nsense = true",
+        "mounts.hwp.sense",
+        "must be a number",
+    ),
+    (
+        "travel-reversed",
+        "travel_deg = [-10.0, 350.0]",
+        "travel_deg = [350.0, -10.0]",
+        "mounts.ana.travel_deg",
+        "low < high",
+    ),
+    (
+        "travel-three-numbers",
+        "travel_deg = [-10.0, 350.0]",
+        "travel_deg = [-10.0, 0.0, 350.0]",
+        "mounts.ana.travel_deg",
+        "list of 2",
+    ),
+    (
+        "reading-outside-travel",
+        "reading_deg = 136.0",
+        "reading_deg = 400.0",
+        "mounts.ana.reading_deg",
+        "outside travel_deg",
+    ),
     ("missing-detector-table", DETECTOR_TABLE, "", "[detector]", "required"),
     ("missing-analyzer-table", ANALYZER_TABLE, "", "[analyzer]", "required"),
     ("missing-required-key", "strength = 1.0\n", "", "coupling.strength", "required"),
-    ("text-for-number", "wavelength_nm = 800.0", 'wavelength_nm = "800"', "wavelength_nm",
-     "must be a number"),
-    ("unknown-element-type", 'type = "hwp"', 'type = "hwpp"', "pre[0].type",
-     "did you mean 'hwp'"),
+    (
+        "text-for-number",
+        "wavelength_nm = 800.0",
+        'wavelength_nm = "800"',
+        "wavelength_nm",
+        "must be a number",
+    ),
+    ("unknown-element-type", 'type = "hwp"', 'type = "hwpp"', "pre[0].type", "did you mean 'hwp'"),
     ("angle-and-mount", HWP, HWP + "\nangle_deg = 3.0", "pre[0].angle_deg", "not both"),
-    ("retarder-without-retardance", 'type = "hwp"', 'type = "retarder"',
-     "pre[0].retardance_waves", "required"),
-    ("negative-retardance", HWP, HWP + "\nretardance_waves = -0.5", "pre[0].retardance_waves",
-     "at least 0"),
-    ("plate-outside-dispersion-fit", HWP, HWP + "\nplate = { design_nm = 3000.0 }",
-     "pre[0].plate.design_nm", "outside the quartz dispersion fit"),
-    ("unknown-observable", 'observable = "HV"', 'observable = "XY"', "coupling.observable",
-     "must be one of"),
-    ("source-not-a-table", "[source]\nangle_deg = 0.0\nextinction_ratio = 1e5\n"
-     "photon_rate = 1.0e6\n", "source = 5\n", "source", "must be a table"),
+    (
+        "retarder-without-retardance",
+        'type = "hwp"',
+        'type = "retarder"',
+        "pre[0].retardance_waves",
+        "required",
+    ),
+    (
+        "negative-retardance",
+        HWP,
+        HWP + "\nretardance_waves = -0.5",
+        "pre[0].retardance_waves",
+        "at least 0",
+    ),
+    (
+        "plate-outside-dispersion-fit",
+        HWP,
+        HWP + "\nplate = { design_nm = 3000.0 }",
+        "pre[0].plate.design_nm",
+        "outside the quartz dispersion fit",
+    ),
+    (
+        "unknown-observable",
+        'observable = "HV"',
+        'observable = "XY"',
+        "coupling.observable",
+        "must be one of",
+    ),
+    (
+        "source-not-a-table",
+        "[source]\nangle_deg = 0.0\nextinction_ratio = 1e5\nphoton_rate = 1.0e6\n",
+        "source = 5\n",
+        "source",
+        "must be a table",
+    ),
 ]
 
 
@@ -113,8 +293,11 @@ def _bad_text(text: str, old: str, new: str) -> str:
     return out
 
 
-@pytest.mark.parametrize(("old", "new", "key", "extra"),
-                         [case[1:] for case in BAD_FILES], ids=[case[0] for case in BAD_FILES])
+@pytest.mark.parametrize(
+    ("old", "new", "key", "extra"),
+    [case[1:] for case in BAD_FILES],
+    ids=[case[0] for case in BAD_FILES],
+)
 def test_bad_bench_file_names_the_key(write_bench, bench_text, old, new, key, extra):
     # Requirement (foundation issue): every error names the file, the key with its table and
     # what is allowed; one line; an InputError (exit status 2).
@@ -148,8 +331,9 @@ def test_demo_bench_loads_by_name():
 
 
 def test_toml_infinity_is_an_ideal_extinction(write_bench, bench_text):
-    bench = load_bench(write_bench(bench_text.replace("extinction_ratio = 1e4",
-                                                      "extinction_ratio = inf")))
+    bench = load_bench(
+        write_bench(bench_text.replace("extinction_ratio = 1e4", "extinction_ratio = inf"))
+    )
     assert math.isinf(bench.analyzer.extinction_ratio)
 
 
@@ -170,13 +354,15 @@ def test_file_missing(tmp_path):
 
 def test_mount_angle_mapping_round_trips(write_bench, bench_text):
     # Convention (foundation issue): element angle = sense * (reading - offset).
-    text = bench_text.replace("reading_deg = 22.5", "reading_deg = 22.5\nsense = -1\n"
-                              "offset_deg = 10.0")
+    text = bench_text.replace(
+        "reading_deg = 22.5", "reading_deg = 22.5\nsense = -1\noffset_deg = 10.0"
+    )
     mount = load_bench(write_bench(text)).mounts["hwp"]
     assert mount.element_angle_deg(22.5) == pytest.approx(-12.5)
     readings = np.linspace(-100, 100, 7)
-    np.testing.assert_allclose(mount.reading_for_angle_deg(mount.element_angle_deg(readings)),
-                               readings)
+    np.testing.assert_allclose(
+        mount.reading_for_angle_deg(mount.element_angle_deg(readings)), readings
+    )
 
 
 def test_plate_retardance_resolved_at_bench_wavelength(write_bench, bench_text):
@@ -211,15 +397,20 @@ def test_write_values_keeps_comments_and_stores_values(bench_file):
     assert not list(bench_file.parent.glob("*.tmp"))
 
 
-@pytest.mark.parametrize(("update", "key"), [
-    ({"mounts.ana.sense": 3}, "mounts.ana.sense"),
-    ({"mounts.ana.reading_deg": 400.0}, "mounts.ana.reading_deg"),
-    ({"mounts.ana.offset_deg": float("nan")}, "mounts.ana.offset_deg"),
-    ({"detector.efficiency": 0.0}, "detector.efficiency"),
-    ({"mounts.ana.reading_deg": 135.0, "analyzer.extinction_ratio": 0.1},
-     "analyzer.extinction_ratio"),
-    ({"nosuch.key": 1.0}, "nosuch"),
-])
+@pytest.mark.parametrize(
+    ("update", "key"),
+    [
+        ({"mounts.ana.sense": 3}, "mounts.ana.sense"),
+        ({"mounts.ana.reading_deg": 400.0}, "mounts.ana.reading_deg"),
+        ({"mounts.ana.offset_deg": float("nan")}, "mounts.ana.offset_deg"),
+        ({"detector.efficiency": 0.0}, "detector.efficiency"),
+        (
+            {"mounts.ana.reading_deg": 135.0, "analyzer.extinction_ratio": 0.1},
+            "analyzer.extinction_ratio",
+        ),
+        ({"nosuch.key": 1.0}, "nosuch"),
+    ],
+)
 def test_write_values_refuses_invalid_update_without_touching_file(bench_file, update, key):
     before = bench_file.read_bytes()
     with pytest.raises(BenchFileError) as info:
@@ -259,8 +450,7 @@ def test_rotator_on_a_mount_is_refused(write_bench, bench_text):
 
 
 def test_gate_dark_probability_must_leave_room_for_light(write_bench, bench_text):
-    text = bench_text.replace("safe_rate = 1.0e6",
-                              "safe_rate = 1.0e6\ngate_dark_probability = 1.0")
+    text = bench_text.replace("safe_rate = 1.0e6", "safe_rate = 1.0e6\ngate_dark_probability = 1.0")
     with pytest.raises(BenchFileError, match=r"detector\.gate_dark_probability"):
         load_bench(write_bench(text))
 

@@ -38,8 +38,12 @@ PAULI4 = np.array([np.eye(2), J.PAULI["HV"], J.PAULI["DA"], J.PAULI["RL"]])
 def mueller_of(channel) -> np.ndarray:
     """Mueller matrix of a channel, from its action on density matrices:
     M_ij = Tr(sigma_i Phi(sigma_j)) / 2."""
-    return np.array([[np.real(np.trace(si @ C.push_forward_state(sj, [channel]))) / 2
-                      for sj in PAULI4] for si in PAULI4])
+    return np.array(
+        [
+            [np.real(np.trace(si @ C.push_forward_state(sj, [channel]))) / 2 for sj in PAULI4]
+            for si in PAULI4
+        ]
+    )
 
 
 # ------------------------------------------------------------------------------------------
@@ -138,8 +142,9 @@ def test_stokes_through_finite_extinction_chain_equals_pypol_mueller(trial):
         else:
             element = _pypol_incoherent_polarizer(theta, x, t)
         light = element * light
-    ours = J.stokes_from_density(C.push_forward_state(J.density_from_stokes(s_in),
-                                                      _our_channels(chain)))
+    ours = J.stokes_from_density(
+        C.push_forward_state(J.density_from_stokes(s_in), _our_channels(chain))
+    )
     np.testing.assert_allclose(ours, light.M.ravel(), atol=1e-10)
 
 
@@ -194,13 +199,17 @@ def test_stokes_channels_equal_jones_conjugation():
     theta = RNG.uniform(-np.pi, np.pi, (3, 4))
     delta = RNG.uniform(0, 2 * np.pi, (3, 4))
     rho = J.density_from_stokes(np.array([1.0, 0.3, -0.5, 0.6]))
-    for channel, matrix in ((C.Retarder(theta, delta), J.retarder(theta, delta)),
-                            (C.Rotator(theta), J.rotator(theta))):
+    for channel, matrix in (
+        (C.Retarder(theta, delta), J.retarder(theta, delta)),
+        (C.Rotator(theta), J.rotator(theta)),
+    ):
         adj = J.adjoint(matrix)
-        np.testing.assert_allclose(C.push_forward_state(rho, [channel]),
-                                   matrix @ rho @ adj, atol=1e-14)
-        np.testing.assert_allclose(C.pull_back_effect(rho, [channel]),
-                                   adj @ rho @ matrix, atol=1e-14)
+        np.testing.assert_allclose(
+            C.push_forward_state(rho, [channel]), matrix @ rho @ adj, atol=1e-14
+        )
+        np.testing.assert_allclose(
+            C.pull_back_effect(rho, [channel]), adj @ rho @ matrix, atol=1e-14
+        )
 
 
 def test_polarizer_channel_equals_its_definition():
@@ -211,8 +220,9 @@ def test_polarizer_channel_equals_its_definition():
     p = J.linear_projector(theta)
     q = np.eye(2) - p
     expected = t[..., None, None] * (p @ rho @ p + q @ rho @ q / er[..., None, None])
-    np.testing.assert_allclose(C.push_forward_state(rho, [C.Polarizer(theta, er, t)]), expected,
-                               atol=1e-14)
+    np.testing.assert_allclose(
+        C.push_forward_state(rho, [C.Polarizer(theta, er, t)]), expected, atol=1e-14
+    )
 
 
 # ------------------------------------------------------------------------------------------
@@ -231,9 +241,11 @@ def test_malus_law_with_finite_extinction():
     np.testing.assert_allclose(prob, expected, rtol=1e-12)
     # crossed: the leak is T/ER; unpolarized light: T (1 + 1/ER) / 2
     assert np.trace(C.analyzer_effect(0.0, er, t) @ J.projector(J.named_vector("V"))).real == (
-        pytest.approx(t / er, rel=1e-12))
+        pytest.approx(t / er, rel=1e-12)
+    )
     assert np.trace(C.analyzer_effect(0.3, er, t) @ np.eye(2) / 2).real == pytest.approx(
-        t * (1 + 1 / er) / 2, rel=1e-12)
+        t * (1 + 1 / er) / 2, rel=1e-12
+    )
 
 
 def test_source_state_degree_of_polarization():
@@ -270,8 +282,11 @@ def test_channels_broadcast_over_settings():
     rho = C.source_state(0.2, 1e4)
     out = C.push_forward_state(rho, chain)
     assert out.shape == (3, 4, 2, 2)
-    single = [C.Polarizer(theta[1, 2], er[1, 2], 0.9), C.Retarder(theta[1, 0], delta[2]),
-              C.Rotator(theta[1, 2])]
+    single = [
+        C.Polarizer(theta[1, 2], er[1, 2], 0.9),
+        C.Retarder(theta[1, 0], delta[2]),
+        C.Rotator(theta[1, 2]),
+    ]
     np.testing.assert_allclose(out[1, 2], C.push_forward_state(rho, single), atol=1e-15)
 
 
@@ -282,8 +297,12 @@ angles = st.floats(-2 * np.pi, 2 * np.pi, allow_nan=False)
 element = st.one_of(
     st.tuples(st.just("retarder"), angles, st.floats(0, 2 * np.pi)),
     st.tuples(st.just("rotator"), angles, st.just(0.0)),
-    st.tuples(st.just("polarizer"), angles,
-              st.one_of(st.floats(1.0, 1e9), st.just(np.inf)), st.floats(1e-3, 1.0)),
+    st.tuples(
+        st.just("polarizer"),
+        angles,
+        st.one_of(st.floats(1.0, 1e9), st.just(np.inf)),
+        st.floats(1e-3, 1.0),
+    ),
 )
 chains = st.lists(element, min_size=0, max_size=8)
 stokes_in = st.tuples(st.floats(0.0, 1.0), st.floats(-1, 1), st.floats(-1, 1), st.floats(-1, 1))

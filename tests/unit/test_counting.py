@@ -30,8 +30,10 @@ def test_clopper_pearson_check_values():
     assert clopper_pearson(0, 10, 0.95)[1] == pytest.approx(0.308497, abs=1e-6)
 
 
-@pytest.mark.parametrize(("k", "expected"), [(0, (0.0, 3.688879)), (5, (1.623486, 11.668332)),
-                                             (10, (4.795389, 18.390356))])
+@pytest.mark.parametrize(
+    ("k", "expected"),
+    [(0, (0.0, 3.688879)), (5, (1.623486, 11.668332)), (10, (4.795389, 18.390356))],
+)
 def test_garwood_check_values(k, expected):
     # Garwood, Biometrika 28, 437 (1936); check values from physics.md (95 %).
     assert garwood(k, 0.95) == pytest.approx(expected, abs=1e-6)

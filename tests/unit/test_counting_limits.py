@@ -15,8 +15,7 @@ def test_no_background_is_the_one_sided_garwood_bound(k, cl):
     # Garwood, Biometrika 28, 437 (1936): one-sided upper bound chi2(cl; 2k+2)/2; with b = 0
     # the flat-prior limit equals it (Helene, Nucl. Instrum. Methods 212, 319 (1983); citation
     # from memory). Reference values from scipy.stats.chi2.
-    assert poisson_upper_limit(k, 0.0, cl) == pytest.approx(chi2.ppf(cl, 2 * k + 2) / 2,
-                                                            rel=1e-9)
+    assert poisson_upper_limit(k, 0.0, cl) == pytest.approx(chi2.ppf(cl, 2 * k + 2) / 2, rel=1e-9)
 
 
 @pytest.mark.parametrize("b", [0.5, 3.0, 140.0])

@@ -17,38 +17,62 @@ from aligner.prediction import predict
 
 def crossed(*, ana_er: float = math.inf, src_er: float = math.inf, mount: str = "ana") -> Any:
     """Invented test bench: H source, HWP at 22.5 deg (-> D), A = HV, analyzer on a mount."""
-    return parse_bench({
-        "wavelength_nm": 800.0, "imbalance_mount": mount,
-        "source": {"angle_deg": 0.0, "photon_rate": 1e6, "extinction_ratio": src_er},
-        "pre": [{"type": "hwp", "angle_deg": 22.5}],
-        "coupling": {"observable": "HV", "pointer_sigma": 50.0, "strength": 2.0},
-        "analyzer": {"mount": mount, "extinction_ratio": ana_er},
-        "detector": {},
-        "mounts": {mount: {"reading_deg": 136.0, "travel_deg": [-10.0, 350.0]}},
-    })
+    return parse_bench(
+        {
+            "wavelength_nm": 800.0,
+            "imbalance_mount": mount,
+            "source": {"angle_deg": 0.0, "photon_rate": 1e6, "extinction_ratio": src_er},
+            "pre": [{"type": "hwp", "angle_deg": 22.5}],
+            "coupling": {"observable": "HV", "pointer_sigma": 50.0, "strength": 2.0},
+            "analyzer": {"mount": mount, "extinction_ratio": ana_er},
+            "detector": {},
+            "mounts": {mount: {"reading_deg": 136.0, "travel_deg": [-10.0, 350.0]}},
+        }
+    )
 
 
 def mixed_bench() -> Any:
     """Invented test bench with every element kind: a leaky polarizer, a plate on a mount and a
     free retarder of odd retardance before the coupling, a rotator after it, an axis observable
     with unequal eigenvalues, offsets and a reversed mount."""
-    return parse_bench({
-        "wavelength_nm": 633.0, "imbalance_mount": "ana", "phase_mount": "ret",
-        "source": {"angle_deg": 0.0, "photon_rate": 1e6, "extinction_ratio": 3e4},
-        "pre": [{"type": "polarizer", "angle_deg": 0.0, "extinction_ratio": 2e3,
-                 "transmission": 0.8},
+    return parse_bench(
+        {
+            "wavelength_nm": 633.0,
+            "imbalance_mount": "ana",
+            "phase_mount": "ret",
+            "source": {"angle_deg": 0.0, "photon_rate": 1e6, "extinction_ratio": 3e4},
+            "pre": [
+                {
+                    "type": "polarizer",
+                    "angle_deg": 0.0,
+                    "extinction_ratio": 2e3,
+                    "transmission": 0.8,
+                },
                 {"type": "hwp", "mount": "hwp"},
-                {"type": "retarder", "mount": "ret", "retardance_waves": 0.375}],
-        "coupling": {"observable": "axis", "axis": [0.0, 0.0, 1.0], "eigenvalues": [1.0, -0.5],
-                     "pointer_sigma": 3.0, "strength": 0.4},
-        "post": [{"type": "rotator", "angle_deg": 22.5}],
-        "analyzer": {"mount": "ana", "extinction_ratio": 5e4, "transmission": 0.93},
-        "detector": {},
-        "mounts": {"ana": {"reading_deg": 140.0, "offset_deg": 2.5, "sense": -1,
-                           "travel_deg": [-200.0, 200.0]},
-                   "hwp": {"reading_deg": 21.5, "offset_deg": -1.0},
-                   "ret": {"reading_deg": 40.0}},
-    })
+                {"type": "retarder", "mount": "ret", "retardance_waves": 0.375},
+            ],
+            "coupling": {
+                "observable": "axis",
+                "axis": [0.0, 0.0, 1.0],
+                "eigenvalues": [1.0, -0.5],
+                "pointer_sigma": 3.0,
+                "strength": 0.4,
+            },
+            "post": [{"type": "rotator", "angle_deg": 22.5}],
+            "analyzer": {"mount": "ana", "extinction_ratio": 5e4, "transmission": 0.93},
+            "detector": {},
+            "mounts": {
+                "ana": {
+                    "reading_deg": 140.0,
+                    "offset_deg": 2.5,
+                    "sense": -1,
+                    "travel_deg": [-200.0, 200.0],
+                },
+                "hwp": {"reading_deg": 21.5, "offset_deg": -1.0},
+                "ret": {"reading_deg": 40.0},
+            },
+        }
+    )
 
 
 def _evaluate(d: Any, bench: Any, angles: dict[str, float]) -> tuple[complex, float]:
@@ -68,8 +92,9 @@ def test_closed_forms_equal_numeric_core(which: str) -> None:
     rng = np.random.default_rng(3)
     for _ in range(5):
         readings = {m: float(rng.uniform(-90, 90)) for m in d.angles}
-        angles = {m: math.radians(bench.mounts[m].element_angle_deg(r))
-                  for m, r in readings.items()}
+        angles = {
+            m: math.radians(bench.mounts[m].element_angle_deg(r)) for m, r in readings.items()
+        }
         wv, leak = _evaluate(d, bench, angles)
         p = predict(bench, readings)
         assert wv == pytest.approx(complex(p.weak_value), rel=1e-10, abs=1e-12)
@@ -115,8 +140,9 @@ def test_series_close_to_exact_near_the_null() -> None:
     d = derive(bench)
     eps = d.offsets["analyzer"]
     for e in (2e-3, 5e-3):
-        series = complex(sp.N(d.weak_value_series.subs({**d.values, eps: e,
-                                                        d.offsets["pre_qwp"]: 0}), 20))
+        series = complex(
+            sp.N(d.weak_value_series.subs({**d.values, eps: e, d.offsets["pre_qwp"]: 0}), 20)
+        )
         angle = d.null_deg["analyzer"] + math.degrees(e)
         exact = complex(predict(bench, {"analyzer": angle, "pre_qwp": 45.0}).weak_value)
         assert series == pytest.approx(exact, rel=5 * e)
@@ -179,8 +205,15 @@ def test_json_document() -> None:
     assert set(doc) == {"symbols", "angles", "offsets", "null_deg", "expressions"}
     assert doc["symbols"]["T_a"]["value"] == pytest.approx(0.92)
     assert doc["symbols"]["theta_pre_qwp"]["latex"] == r"\theta_{\mathrm{pre\_qwp}}"
-    for key in ("weak_value", "numerator", "denominator", "leak_rate", "weak_value_series",
-                "leak_rate_series", "floor"):
+    for key in (
+        "weak_value",
+        "numerator",
+        "denominator",
+        "leak_rate",
+        "weak_value_series",
+        "leak_rate_series",
+        "floor",
+    ):
         assert doc["expressions"][key]["text"] and doc["expressions"][key]["latex"]
     assert doc["expressions"]["floor"]["text"] == sp.sstr(d.floor)
 

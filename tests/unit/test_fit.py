@@ -64,8 +64,11 @@ def test_null_fit_coverage_of_the_null_reading():
     assert 0.62 <= null_cover <= 0.74
 
 
-@pytest.mark.xfail(reason="open: ln ER interval over-covers (about 83 % on this design); "
-                   "strict, so a fix shows up as a failure to remove this mark", strict=True)
+@pytest.mark.xfail(
+    reason="open: ln ER interval over-covers (about 83 % on this design); "
+    "strict, so a fix shows up as a failure to remove this mark",
+    strict=True,
+)
 def test_null_fit_coverage_of_log_extinction():
     _, _, er_cover = _coverage()
     assert 0.62 <= er_cover <= 0.74
@@ -151,16 +154,19 @@ def test_leak_verdicts():
     assert measure_leak(205, 1.0, predicted_rate=200.0).verdict.status == "consistent"
 
 
-@pytest.mark.parametrize(("text", "fragment"), [
-    ("", "empty"),
-    ("reading_deg,dwell_s\n1,2\n", "lacks column(s) counts"),
-    ("reading_deg,counts\n1,2\n", "needs at least"),
-    ("reading_deg,counts\n1,2\n2,x\n3,4\n4,5\n", "row 3, column 'counts'"),
-    ("reading_deg,counts\n1,2\n2,-3\n3,4\n4,5\n", "row 3, column 'counts'"),
-    ("reading_deg,counts\n1,2\n2,2.5\n3,4\n4,5\n", "whole numbers"),
-    ("reading_deg,counts,dwell_s\n1,2,0.1\n2,3,0\n3,4,1\n4,5,1\n", "column 'dwell_s'"),
-    ("reading_deg,counts\n1,2\n2\n3,4\n4,5\n", "row 3, column 'counts': the value is missing"),
-])
+@pytest.mark.parametrize(
+    ("text", "fragment"),
+    [
+        ("", "empty"),
+        ("reading_deg,dwell_s\n1,2\n", "lacks column(s) counts"),
+        ("reading_deg,counts\n1,2\n", "needs at least"),
+        ("reading_deg,counts\n1,2\n2,x\n3,4\n4,5\n", "row 3, column 'counts'"),
+        ("reading_deg,counts\n1,2\n2,-3\n3,4\n4,5\n", "row 3, column 'counts'"),
+        ("reading_deg,counts\n1,2\n2,2.5\n3,4\n4,5\n", "whole numbers"),
+        ("reading_deg,counts,dwell_s\n1,2,0.1\n2,3,0\n3,4,1\n4,5,1\n", "column 'dwell_s'"),
+        ("reading_deg,counts\n1,2\n2\n3,4\n4,5\n", "row 3, column 'counts': the value is missing"),
+    ],
+)
 def test_malformed_csv_gives_clear_errors(tmp_path, text, fragment):
     path = tmp_path / "scan.csv"
     path.write_text(text)

@@ -73,8 +73,7 @@ def test_rates_above_the_safe_rate_warn():
     m = measure_leak(300, 1.0, reference=4_000_000, reference_dwell_s=1.0, safe_rate=1.5e6)
     assert len(m.warnings) == 1 and "reference" in m.warnings[0]
     assert "laser safety officer" in m.warnings[0] and "attenuation" in m.warnings[0]
-    computed = measure_leak(300, 1.0, reference_rate=4e6, reference_measured=False,
-                            safe_rate=1.5e6)
+    computed = measure_leak(300, 1.0, reference_rate=4e6, reference_measured=False, safe_rate=1.5e6)
     assert computed.warnings == ()
     assert measure_leak(300, 1.0, reference=1000, safe_rate=1.5e6).warnings == ()
 
@@ -102,8 +101,10 @@ def test_a_bad_fit_is_warned_about():
 def _write_scan(path, header_extra="", row_extra=lambda i: ""):
     readings, counts = _null_counts()
     rows = enumerate(zip(readings, counts, strict=True))
-    path.write_text(f"reading_deg,counts,dwell_s{header_extra}\n" + "".join(
-        f"{r},{int(c)},0.05{row_extra(i)}\n" for i, (r, c) in rows))
+    path.write_text(
+        f"reading_deg,counts,dwell_s{header_extra}\n"
+        + "".join(f"{r},{int(c)},0.05{row_extra(i)}\n" for i, (r, c) in rows)
+    )
     return path
 
 
@@ -119,8 +120,7 @@ def test_scan_mount_column_is_checked(tmp_path):
 
 
 def test_run_export_without_mount_column_is_the_imbalance_mount(tmp_path):
-    path = _write_scan(tmp_path / "e.csv", ",run,index,imbalance_deg",
-                       lambda i: f",1,{i},0.0")
+    path = _write_scan(tmp_path / "e.csv", ",run,index,imbalance_deg", lambda i: f",1,{i},0.0")
     scan = load_count_scan(path)
     assert scan.mount is None and scan.run_export
     with pytest.raises(InputError, match="run export"):
@@ -128,8 +128,7 @@ def test_run_export_without_mount_column_is_the_imbalance_mount(tmp_path):
 
 
 def test_mixed_mount_column_is_refused(tmp_path):
-    path = _write_scan(tmp_path / "m.csv", ",mount",
-                       lambda i: ",analyzer" if i else ",pre_qwp")
+    path = _write_scan(tmp_path / "m.csv", ",mount", lambda i: ",analyzer" if i else ",pre_qwp")
     with pytest.raises(DataFileError, match="row 3, column 'mount'"):
         load_count_scan(path)
 
@@ -147,25 +146,30 @@ def test_coupling_fit_is_compared_with_the_bench_strength():
     readings = np.linspace(135.3, 137.0, 18)
     fwd = forward(BENCH, {"analyzer": readings})
     c = BENCH.coupling
-    q = pointer_response(fwd.rho, fwd.effect, coupling_observable(BENCH), g,
-                         c.pointer_sigma).position
+    q = pointer_response(
+        fwd.rho, fwd.effect, coupling_observable(BENCH), g, c.pointer_sigma
+    ).position
     err = np.full(q.shape, 1e-3 * float(np.max(np.abs(q))))
     fit = fit_coupling(BENCH, PointerScan(readings, q, err, "sim"))
     assert fit.strength == pytest.approx(g, rel=1e-4)
     assert fit.bench_strength == c.strength
-    assert fit.bench_difference_sigma == pytest.approx((fit.strength - c.strength)
-                                                       / fit.strength_err)
+    assert fit.bench_difference_sigma == pytest.approx(
+        (fit.strength - c.strength) / fit.strength_err
+    )
     assert "differ" in fit.bench_comparison
     doc = fit.to_json()
     assert doc["bench_strength"] == c.strength and "bench_difference_sigma" in doc
 
 
-@pytest.mark.parametrize(("options", "words"), [
-    ({"span_deg": -1.0}, ("span_deg", "--span", "> 0")),
-    ({"points": 2}, ("points", "--points", ">= 5")),
-    ({"max_rounds": 0}, ("max_rounds", "--rounds")),
-    ({"dwell_s": 0.0}, ("dwell_s", "--dwell")),
-])
+@pytest.mark.parametrize(
+    ("options", "words"),
+    [
+        ({"span_deg": -1.0}, ("span_deg", "--span", "> 0")),
+        ({"points": 2}, ("points", "--points", ">= 5")),
+        ({"max_rounds": 0}, ("max_rounds", "--rounds")),
+        ({"dwell_s": 0.0}, ("dwell_s", "--dwell")),
+    ],
+)
 def test_null_search_names_the_bad_option(options, words):
     with pytest.raises(InputError) as info:
         search_null(BENCH, None, None, None, **options)
@@ -178,7 +182,8 @@ def test_coupling_linear_statement_has_no_signed_zero():
     readings = np.linspace(135.3, 137.0, 18)
     bench = replace(BENCH, coupling=replace(BENCH.coupling, strength=1e-3))
     fwd = forward(bench, {"analyzer": readings})
-    q = pointer_response(fwd.rho, fwd.effect, coupling_observable(bench), 1e-3,
-                         bench.coupling.pointer_sigma).position
+    q = pointer_response(
+        fwd.rho, fwd.effect, coupling_observable(bench), 1e-3, bench.coupling.pointer_sigma
+    ).position
     fit = fit_coupling(bench, PointerScan(readings, q, np.full(q.shape, 1.0), "sim"))
     assert "-0.0" not in fit.statement

@@ -24,7 +24,8 @@ import json, sys
 print(json.dumps(sorted({{m.split('.')[0] for m in sys.modules}} & set({PROBE!r}))))
 """
 
-_HELP = """
+_HELP = (
+    """
 import contextlib, io, sys
 from aligner.cli import main
 with contextlib.redirect_stdout(io.StringIO()):
@@ -32,12 +33,15 @@ with contextlib.redirect_stdout(io.StringIO()):
         main(sys.argv[1:])
     except SystemExit:
         pass
-""" + _REPORT
+"""
+    + _REPORT
+)
 
 
 def _loaded(code: str, *args: str) -> set[str]:
-    done = subprocess.run([sys.executable, "-c", code, *args], capture_output=True, text=True,
-                          timeout=60, check=True)
+    done = subprocess.run(
+        [sys.executable, "-c", code, *args], capture_output=True, text=True, timeout=60, check=True
+    )
     return set(json.loads(done.stdout.strip().splitlines()[-1]))
 
 

@@ -23,8 +23,10 @@ SYMPY_JONES_VECTOR = sp.lambdify((PSI, CHI), spol.jones_vector(PSI, CHI), "numpy
 def _elementwise(reference, *arrays: np.ndarray) -> np.ndarray:
     """Evaluate a scalar sympy-lambdified matrix at every point of broadcast arrays."""
     arrays = np.broadcast_arrays(*arrays)
-    flat = [np.asarray(reference(*(float(a.flat[i]) for a in arrays)), complex)
-            for i in range(arrays[0].size)]
+    flat = [
+        np.asarray(reference(*(float(a.flat[i]) for a in arrays)), complex)
+        for i in range(arrays[0].size)
+    ]
     return np.array(flat).reshape(arrays[0].shape + flat[0].shape)
 
 
@@ -52,18 +54,21 @@ def test_retarder_broadcasts_angle_against_retardance():
 def test_waveplates_equal_sympy(reference, delta, shape):
     # Source: sympy.physics.optics.polarization.half_wave_retarder / quarter_wave_retarder.
     theta = RNG.uniform(-np.pi, np.pi, shape)
-    np.testing.assert_allclose(J.retarder(theta, delta), _elementwise(reference, theta),
-                               rtol=0, atol=1e-12)
+    np.testing.assert_allclose(
+        J.retarder(theta, delta), _elementwise(reference, theta), rtol=0, atol=1e-12
+    )
 
 
 @pytest.mark.parametrize("shape", [(), (3, 4)])
 def test_linear_projector_equals_sympy_linear_polarizer(shape):
     # Source: sympy.physics.optics.polarization.linear_polarizer.
     theta = RNG.uniform(-np.pi, np.pi, shape)
-    np.testing.assert_allclose(J.linear_projector(theta), _elementwise(SYMPY_POLARIZER, theta),
-                               rtol=0, atol=1e-12)
-    np.testing.assert_allclose(J.projector(J.linear_vector(theta)), J.linear_projector(theta),
-                               rtol=0, atol=1e-12)
+    np.testing.assert_allclose(
+        J.linear_projector(theta), _elementwise(SYMPY_POLARIZER, theta), rtol=0, atol=1e-12
+    )
+    np.testing.assert_allclose(
+        J.projector(J.linear_vector(theta)), J.linear_projector(theta), rtol=0, atol=1e-12
+    )
 
 
 @pytest.mark.parametrize("shape", [(), (3, 4)])
@@ -75,10 +80,17 @@ def test_azimuth_ellipticity_vector_equals_sympy_jones_vector(shape):
     np.testing.assert_allclose(J.vector_from_azimuth_ellipticity(psi, chi), ref, rtol=0, atol=1e-12)
 
 
-@pytest.mark.parametrize(("name", "psi", "chi"), [
-    ("H", 0, 0), ("V", sp.pi / 2, 0), ("D", sp.pi / 4, 0), ("A", -sp.pi / 4, 0),
-    ("R", 0, sp.pi / 4), ("L", 0, -sp.pi / 4),
-])
+@pytest.mark.parametrize(
+    ("name", "psi", "chi"),
+    [
+        ("H", 0, 0),
+        ("V", sp.pi / 2, 0),
+        ("D", sp.pi / 4, 0),
+        ("A", -sp.pi / 4, 0),
+        ("R", 0, sp.pi / 4),
+        ("L", 0, -sp.pi / 4),
+    ],
+)
 def test_named_vectors_have_sympy_handedness(name, psi, chi):
     # Source: sympy.physics.optics.polarization.jones_vector; R = jones_vector(0, pi/4).
     ref = np.array(spol.jones_vector(psi, chi).evalf(), dtype=complex)[:, 0]
@@ -106,8 +118,12 @@ def test_stokes_of_sympy_stokes_vector_round_trips():
     # Source: sympy.physics.optics.polarization.stokes_vector(psi, chi, p, I).
     psi, chi = RNG.uniform(-1.5, 1.5, 5), RNG.uniform(-0.78, 0.78, 5)
     p, intensity = RNG.uniform(0.05, 1.0, 5), RNG.uniform(0.1, 3.0, 5)
-    ref = np.array([[float(x) for x in spol.stokes_vector(*args)]
-                    for args in zip(psi, chi, p, intensity, strict=True)])
+    ref = np.array(
+        [
+            [float(x) for x in spol.stokes_vector(*args)]
+            for args in zip(psi, chi, p, intensity, strict=True)
+        ]
+    )
     az, ell = J.azimuth_ellipticity_from_stokes(ref)
     np.testing.assert_allclose(az, psi, atol=1e-12)
     np.testing.assert_allclose(ell, chi, atol=1e-12)
@@ -121,13 +137,15 @@ def test_stokes_jones_azimuth_round_trips():
     # Derived from the definitions: Jones -> Stokes -> Jones is the identity up to a global phase.
     vectors = RNG.normal(size=(50, 2)) + 1j * RNG.normal(size=(50, 2))
     back = J.jones_from_stokes(J.stokes_from_jones(vectors))
-    np.testing.assert_allclose(np.abs(J.overlap(back, vectors)),
-                               np.sum(np.abs(vectors) ** 2, axis=-1), rtol=1e-12)
+    np.testing.assert_allclose(
+        np.abs(J.overlap(back, vectors)), np.sum(np.abs(vectors) ** 2, axis=-1), rtol=1e-12
+    )
     np.testing.assert_allclose(J.stokes_from_jones(back), J.stokes_from_jones(vectors), atol=1e-12)
     psi = RNG.uniform(-np.pi / 2 + 1e-6, np.pi / 2, 50)
     chi = RNG.uniform(-np.pi / 4 + 1e-6, np.pi / 4 - 1e-6, 50)
     az, ell = J.azimuth_ellipticity_from_stokes(
-        J.stokes_from_jones(J.vector_from_azimuth_ellipticity(psi, chi)))
+        J.stokes_from_jones(J.vector_from_azimuth_ellipticity(psi, chi))
+    )
     np.testing.assert_allclose(az, psi, atol=1e-10)
     np.testing.assert_allclose(ell, chi, atol=1e-10)
 
@@ -165,8 +183,9 @@ def test_fidelity_of_pure_states_is_squared_overlap():
     b = J.vector_from_azimuth_ellipticity(RNG.uniform(-1, 1, 10), RNG.uniform(-0.7, 0.7, 10))
     f = J.fidelity(J.density_from_vector(a), J.density_from_vector(b))
     np.testing.assert_allclose(f, np.abs(J.overlap(a, b)) ** 2, atol=1e-12)
-    np.testing.assert_allclose(J.overlap(a, b), [np.vdot(x, y) for x, y in zip(a, b, strict=True)],
-                               atol=1e-15)
+    np.testing.assert_allclose(
+        J.overlap(a, b), [np.vdot(x, y) for x, y in zip(a, b, strict=True)], atol=1e-15
+    )
 
 
 def test_hwp_turns_linear_polarization_by_twice_its_angle():

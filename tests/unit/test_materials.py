@@ -21,10 +21,13 @@ def ghosh_index(ray: str, wavelength_nm: np.ndarray) -> np.ndarray:
     return np.sqrt(a + b / (1 - c / l2) + d / (1 - e / l2))
 
 
-@pytest.mark.parametrize(("wavelength", "n_o", "n_e"), [
-    (589.3, 1.544206, 1.553306),  # Ghosh 1999, values as listed in physics.md
-    (632.8, 1.542606, 1.551651),
-])
+@pytest.mark.parametrize(
+    ("wavelength", "n_o", "n_e"),
+    [
+        (589.3, 1.544206, 1.553306),  # Ghosh 1999, values as listed in physics.md
+        (632.8, 1.542606, 1.551651),
+    ],
+)
 def test_quartz_indices_match_ghosh(wavelength, n_o, n_e):
     ordinary, extraordinary = MATERIALS["quartz"]
     assert ordinary.index(wavelength) == pytest.approx(n_o, abs=1e-6)

@@ -46,8 +46,10 @@ def test_demo_leak_near_crossed_is_malus_with_extinction(demo):
 
 def _jones_route(bench, readings):
     """Density-matrix route, element by element with the sympy-checked Jones matrices."""
-    angles = {name: np.deg2rad(mount.element_angle_deg(readings[name]))
-              for name, mount in bench.mounts.items()}
+    angles = {
+        name: np.deg2rad(mount.element_angle_deg(readings[name]))
+        for name, mount in bench.mounts.items()
+    }
 
     def angle(item):
         return angles[item.mount] if item.mount else np.deg2rad(item.angle_deg)
@@ -127,8 +129,9 @@ def test_imbalance_sign_follows_the_mount(demo):
     got = imbalance_deg(demo, {demo.imbalance_mount: crossed + eps})
     np.testing.assert_allclose(got, eps, atol=1e-9)
     # a mount turning the other way: same statement in terms of its readings
-    mount = replace(demo.mounts[demo.imbalance_mount], sense=-1, offset_deg=0.0,
-                    travel_deg=(-360.0, 360.0))
+    mount = replace(
+        demo.mounts[demo.imbalance_mount], sense=-1, offset_deg=0.0, travel_deg=(-360.0, 360.0)
+    )
     flipped = demo.with_mounts(**{demo.imbalance_mount: mount})
     null = float(mount.reading_for_angle_deg(135.0))
     got = imbalance_deg(flipped, {demo.imbalance_mount: null + eps})
@@ -138,8 +141,10 @@ def test_imbalance_sign_follows_the_mount(demo):
 def test_imbalance_magnitude_for_elliptical_states(demo):
     # Definition: arcsin |<f|i>| with |i>, |f> the dominant eigenvectors of rho and E.
     for _ in range(5):
-        readings = {demo.phase_mount: RNG.uniform(0, 90),
-                    demo.imbalance_mount: _crossed_reading(demo) + RNG.uniform(-3, 3)}
+        readings = {
+            demo.phase_mount: RNG.uniform(0, 90),
+            demo.imbalance_mount: _crossed_reading(demo) + RNG.uniform(-3, 3),
+        }
         fwd = forward(demo, readings)
         i = np.linalg.eigh(fwd.rho)[1][:, -1]
         f = np.linalg.eigh(fwd.effect)[1][:, -1]

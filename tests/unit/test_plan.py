@@ -17,34 +17,54 @@ from aligner.planning import plan, readings_for_amplification
 from aligner.prediction import predict
 
 
-def make_bench(*, hwp: float = 22.5, qwp: float | None = None, ana_er: float = 1e5,
-               src_er: float = 1e6, sigma: float = 100.0, g: float = 0.01,
-               resolution: float = 1e-4, offset: float = 0.0,
-               travel: tuple[float, float] = (-10.0, 350.0), readout: str = "position",
-               repeatability: float = 0.0, retardance_tol: float = 0.0,
-               offset_err: float = 0.0) -> Any:
+def make_bench(
+    *,
+    hwp: float = 22.5,
+    qwp: float | None = None,
+    ana_er: float = 1e5,
+    src_er: float = 1e6,
+    sigma: float = 100.0,
+    g: float = 0.01,
+    resolution: float = 1e-4,
+    offset: float = 0.0,
+    travel: tuple[float, float] = (-10.0, 350.0),
+    readout: str = "position",
+    repeatability: float = 0.0,
+    retardance_tol: float = 0.0,
+    offset_err: float = 0.0,
+) -> Any:
     """An invented test bench: H source, half-wave plate (fixed, at ``hwp``), optional
     quarter-wave plate on mount ``qwp`` (the phase mount), HV coupling, analyzer on a mount."""
-    pre: list[dict[str, Any]] = [{"type": "hwp", "angle_deg": hwp,
-                                  "retardance_tol_waves": retardance_tol}]
-    mounts: dict[str, Any] = {"ana": {  # 1 deg past crossed
-        "reading_deg": min(max(2 * hwp + 91.0 + offset, travel[0]), travel[1]),
-        "offset_deg": offset, "travel_deg": list(travel), "resolution_deg": resolution,
-        "repeatability_deg": repeatability, "offset_err_deg": offset_err}}
+    pre: list[dict[str, Any]] = [
+        {"type": "hwp", "angle_deg": hwp, "retardance_tol_waves": retardance_tol}
+    ]
+    mounts: dict[str, Any] = {
+        "ana": {  # 1 deg past crossed
+            "reading_deg": min(max(2 * hwp + 91.0 + offset, travel[0]), travel[1]),
+            "offset_deg": offset,
+            "travel_deg": list(travel),
+            "resolution_deg": resolution,
+            "repeatability_deg": repeatability,
+            "offset_err_deg": offset_err,
+        }
+    }
     doc: dict[str, Any] = {
-        "wavelength_nm": 800.0, "imbalance_mount": "ana",
+        "wavelength_nm": 800.0,
+        "imbalance_mount": "ana",
         "source": {"angle_deg": 0.0, "photon_rate": 1e6, "extinction_ratio": src_er},
         "pre": pre,
-        "coupling": {"observable": "HV", "pointer_sigma": sigma, "strength": g,
-                     "readout": readout},
+        "coupling": {"observable": "HV", "pointer_sigma": sigma, "strength": g, "readout": readout},
         "analyzer": {"mount": "ana", "extinction_ratio": ana_er, "transmission": 0.9},
         "detector": {"efficiency": 0.6, "dark_rate": 10.0},
         "mounts": mounts,
     }
     if qwp is not None:
         pre.append({"type": "qwp", "mount": "qwp", "retardance_tol_waves": retardance_tol})
-        mounts["qwp"] = {"reading_deg": qwp, "resolution_deg": resolution,
-                         "repeatability_deg": repeatability}
+        mounts["qwp"] = {
+            "reading_deg": qwp,
+            "resolution_deg": resolution,
+            "repeatability_deg": repeatability,
+        }
         doc["phase_mount"] = "qwp"
     return parse_bench(doc)
 
@@ -60,7 +80,8 @@ def test_notebook_api_functions_stay_functions() -> None:
     b = aligner.plan(bench, 30, samples=0, predict=False)
     assert callable(aligner.predict) and not isinstance(aligner.predict, type(aligner))
     assert float(aligner.predict(bench, a.settings).amplification_linear) == pytest.approx(
-        30, rel=0.01)
+        30, rel=0.01
+    )
     assert isinstance(a, aligner.Plan)
     assert a.settings == b.settings
 
@@ -70,10 +91,14 @@ def test_round_trip_random_benches() -> None:
     target within the rounding error the plan reports."""
     rng = np.random.default_rng(11)
     for _ in range(6):
-        bench = make_bench(hwp=float(rng.uniform(15, 30)), ana_er=10 ** rng.uniform(4.5, 6),
-                           src_er=10 ** rng.uniform(4.5, 7), offset=float(rng.uniform(-3, 3)),
-                           resolution=float(rng.choice([1e-4, 1e-3])),
-                           qwp=None if rng.random() < 0.5 else 45.0)
+        bench = make_bench(
+            hwp=float(rng.uniform(15, 30)),
+            ana_er=10 ** rng.uniform(4.5, 6),
+            src_er=10 ** rng.uniform(4.5, 7),
+            offset=float(rng.uniform(-3, 3)),
+            resolution=float(rng.choice([1e-4, 1e-3])),
+            qwp=None if rng.random() < 0.5 else 45.0,
+        )
         for exact in (False, True):
             x = float(rng.uniform(3, 25))  # well inside the extinction cap
             p = plan(bench, x, exact=exact, samples=0, predict=False)
@@ -134,22 +159,30 @@ def test_sensitivity_one_percent() -> None:
     bench = make_bench()
     p = plan(bench, 20, samples=0, predict=False)
     s = {x.mount: x for x in p.sensitivity}["ana"]
-    moved = predict(bench, {"ana": p.settings["ana"] + math.copysign(s.reading_for_1pct_deg,
-                                                                     s.derivative)})
+    moved = predict(
+        bench, {"ana": p.settings["ana"] + math.copysign(s.reading_for_1pct_deg, s.derivative)}
+    )
     assert float(moved.amplification_linear) == pytest.approx(20 * 1.01, rel=2e-4)
 
 
-@pytest.mark.parametrize(("bench_kw", "target", "limit"), [
-    ({"ana_er": 1e4, "src_er": 1e8}, {"amplification": 80.0}, "extinction"),
-    ({"ana_er": 1e9, "src_er": 1e9, "sigma": 20.0, "g": 1.0}, {"amplification": 30.0,
-                                                               "exact": True}, "pointer"),
-    ({"resolution": 0.2}, {"amplification": 40.0}, "resolution"),
-    ({"travel": (136.5, 137.5)}, {"amplification": 10.0}, "travel"),
-    ({"ana_er": 1e4}, {"leak_rate": 1e-7}, "extinction"),
-    ({}, {"leak_rate": 0.99}, "transmission"),
-])
-def test_infeasible_targets_name_the_limit(bench_kw: dict[str, Any], target: dict[str, Any],
-                                           limit: str) -> None:
+@pytest.mark.parametrize(
+    ("bench_kw", "target", "limit"),
+    [
+        ({"ana_er": 1e4, "src_er": 1e8}, {"amplification": 80.0}, "extinction"),
+        (
+            {"ana_er": 1e9, "src_er": 1e9, "sigma": 20.0, "g": 1.0},
+            {"amplification": 30.0, "exact": True},
+            "pointer",
+        ),
+        ({"resolution": 0.2}, {"amplification": 40.0}, "resolution"),
+        ({"travel": (136.5, 137.5)}, {"amplification": 10.0}, "travel"),
+        ({"ana_er": 1e4}, {"leak_rate": 1e-7}, "extinction"),
+        ({}, {"leak_rate": 0.99}, "transmission"),
+    ],
+)
+def test_infeasible_targets_name_the_limit(
+    bench_kw: dict[str, Any], target: dict[str, Any], limit: str
+) -> None:
     bench = make_bench(**bench_kw)
     with pytest.raises(InfeasibleTarget) as err:
         plan(bench, samples=0, predict=False, **target)
@@ -185,15 +218,21 @@ def test_monte_carlo_agrees_with_first_order_for_small_errors() -> None:
     """For small errors the Monte Carlo standard deviation equals linear propagation of
     uncertainty (JCGM 100:2008, Guide to the expression of uncertainty in measurement, law of
     propagation of uncertainty; a uniform error of half-width a has variance a^2/3)."""
-    bench = make_bench(qwp=45.0, repeatability=2e-4, offset_err=1e-4, retardance_tol=2e-5,
-                       resolution=1e-5)
+    bench = make_bench(
+        qwp=45.0, repeatability=2e-4, offset_err=1e-4, retardance_tol=2e-5, resolution=1e-5
+    )
     p = plan(bench, 20, samples=100_000, predict=False)
     tol = p.tolerance
     assert tol is not None
     assert tol.figure.std == pytest.approx(tol.first_order_std, rel=0.02)
     assert tol.figure.median == pytest.approx(p.branch.value, rel=1e-3)
-    assert set(tol.by_source) == {"ana repeatability", "ana offset", "qwp repeatability",
-                                  "pre[0] plate retardance", "qwp plate retardance"}
+    assert set(tol.by_source) == {
+        "ana repeatability",
+        "ana offset",
+        "qwp repeatability",
+        "pre[0] plate retardance",
+        "qwp plate retardance",
+    }
     assert tol.dominant == max(tol.by_source, key=tol.by_source.get)
     assert tol.figure.low95 < tol.figure.low68 < tol.figure.median < tol.figure.high68
     assert tol.figure.high68 < tol.figure.high95
@@ -238,9 +277,9 @@ def test_branches_fold_readings_180_deg_apart() -> None:
         first = b.equivalent_readings[0]
         assert first == dict(b.settings)
         assert b.distance_deg == min(
-            math.dist([r[n] for n in p.unknowns], [bench.mounts[n].reading_deg
-                                                   for n in p.unknowns])
-            for r in b.equivalent_readings)
+            math.dist([r[n] for n in p.unknowns], [bench.mounts[n].reading_deg for n in p.unknowns])
+            for r in b.equivalent_readings
+        )
         w = complex(predict(bench, first).weak_value)
         for r in b.equivalent_readings[1:]:
             steps = [(r[n] - first[n]) / 180.0 for n in p.unknowns]
@@ -250,8 +289,7 @@ def test_branches_fold_readings_180_deg_apart() -> None:
     qwp = {round(b.settings["qwp"] % 180.0, 6) for b in p.branches}
     assert qwp == {45.0, 135.0}
     # distinct branches are never 180-deg copies of one another
-    keys = {(b.regime, *(round(b.settings[n] % 180.0, 6) for n in p.unknowns))
-            for b in p.branches}
+    keys = {(b.regime, *(round(b.settings[n] % 180.0, 6) for n in p.unknowns)) for b in p.branches}
     assert len(keys) == len(p.branches)
     assert len(readings) > len(p.branches)
     doc = p.to_dict()
@@ -266,6 +304,7 @@ def test_mount_period_guard() -> None:
 
     bench = make_bench(qwp=45.0)
     assert mount_period_deg(bench, "ana") == 180.0 and mount_period_deg(bench, "qwp") == 180.0
-    odd = replace(bench, pre=tuple(replace(e, type="mystery") if e.mount == "qwp" else e
-                                   for e in bench.pre))
+    odd = replace(
+        bench, pre=tuple(replace(e, type="mystery") if e.mount == "qwp" else e for e in bench.pre)
+    )
     assert mount_period_deg(odd, "qwp") == 360.0

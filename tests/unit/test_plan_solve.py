@@ -15,8 +15,12 @@ from aligner.planning import readings_for_amplification, readings_for_imbalance
 from aligner.planning.solve import Target, observe, solve
 
 
-def crossed_bench(*, extinction: float = math.inf, travel: tuple[float, float] = (-10.0, 350.0),
-                  reading: float = 136.0) -> object:
+def crossed_bench(
+    *,
+    extinction: float = math.inf,
+    travel: tuple[float, float] = (-10.0, 350.0),
+    reading: float = 136.0,
+) -> object:
     """Ideal crossed linear case: H source, half-wave plate at 22.5 deg (-> D), A = HV,
     analyzer crossed at 135 deg (an invented test bench)."""
     doc = {
@@ -27,8 +31,9 @@ def crossed_bench(*, extinction: float = math.inf, travel: tuple[float, float] =
         "coupling": {"observable": "HV", "pointer_sigma": 100.0, "strength": 0.01},
         "analyzer": {"mount": "ana", "extinction_ratio": extinction},
         "detector": {},
-        "mounts": {"ana": {"reading_deg": reading, "travel_deg": list(travel),
-                           "resolution_deg": 1e-4}},
+        "mounts": {
+            "ana": {"reading_deg": reading, "travel_deg": list(travel), "resolution_deg": 1e-4}
+        },
     }
     return parse_bench(doc)
 
@@ -104,8 +109,10 @@ def test_extinction_cap_is_infeasible() -> None:
 
 def test_other_readings_untouched() -> None:
     bench = load_bench("demo")
-    moved = replace(bench, mounts={**bench.mounts,
-                                   "pre_hwp": replace(bench.mounts["pre_hwp"], reading_deg=22.0)})
+    moved = replace(
+        bench,
+        mounts={**bench.mounts, "pre_hwp": replace(bench.mounts["pre_hwp"], reading_deg=22.0)},
+    )
     # pre-selection at 44 deg through the QWP at 45 deg is elliptical: the analyzer alone
     # cannot cross it, the imbalance never falls below 1 deg
     r = readings_for_imbalance(moved, 3.0)

@@ -35,13 +35,19 @@ BASE = {
     "imbalance_mount": "analyzer",
     "source": {"angle_deg": 0.0, "photon_rate": 1.0e6},
     "pre": [{"type": "hwp", "mount": "hwp", "retardance_waves": 0.5}],
-    "coupling": {"observable": "HV", "readout": "position", "pointer_sigma": 1.0,
-                 "strength": 1e-5, "units": "um"},
+    "coupling": {
+        "observable": "HV",
+        "readout": "position",
+        "pointer_sigma": 1.0,
+        "strength": 1e-5,
+        "units": "um",
+    },
     "analyzer": {"mount": "analyzer"},
     "detector": {},
-    "mounts": {"hwp": {"reading_deg": 22.5},
-               "analyzer": {"reading_deg": 136.0, "resolution_deg": 1e-7,
-                            "travel_deg": [0.0, 350.0]}},
+    "mounts": {
+        "hwp": {"reading_deg": 22.5},
+        "analyzer": {"reading_deg": 136.0, "resolution_deg": 1e-7, "travel_deg": [0.0, 350.0]},
+    },
 }
 
 
@@ -78,27 +84,44 @@ def test_textbook_case_through_the_bench():
 
 
 @settings(max_examples=20, deadline=None)
-@given(st.lists(st.floats(130.0, 140.0), min_size=1, max_size=5),
-       st.lists(st.floats(0.0, 45.0), min_size=1, max_size=4))
+@given(
+    st.lists(st.floats(130.0, 140.0), min_size=1, max_size=5),
+    st.lists(st.floats(0.0, 45.0), min_size=1, max_size=4),
+)
 def test_vectorized_predict_matches_single_readings(analyzer, hwp):
     bench = load_bench("demo")
     a = np.array(analyzer)[:, None]
     h = np.array(hwp)[None, :]
     p = predict(bench, {"analyzer": a, "pre_hwp": h})
     assert p.leak_rate.shape == (len(analyzer), len(hwp))
-    for field in ("weak_value", "leak_rate", "amplification_exact", "detector_rate",
-                  "measured_rate", "imbalance_deg", "snr_per_sqrt_s", "saturated"):
+    for field in (
+        "weak_value",
+        "leak_rate",
+        "amplification_exact",
+        "detector_rate",
+        "measured_rate",
+        "imbalance_deg",
+        "snr_per_sqrt_s",
+        "saturated",
+    ):
         assert getattr(p, field).shape == p.leak_rate.shape, field
     one = predict(bench, {"analyzer": analyzer[-1], "pre_hwp": hwp[0]})
     for field in ("weak_value", "leak_rate", "amplification_exact", "snr_per_sqrt_s"):
-        assert getattr(p, field)[-1, 0] == pytest.approx(getattr(one, field), rel=1e-9,
-                                                         abs=1e-12), field
+        assert getattr(p, field)[-1, 0] == pytest.approx(
+            getattr(one, field), rel=1e-9, abs=1e-12
+        ), field
 
 
 def test_detector_rates_and_dead_time():
     # Non-paralyzable dead time m = n/(1 + n tau) (Knoll, Radiation Detection and Measurement).
-    bench = make_bench(**{"detector.efficiency": 0.6, "detector.dark_rate": 200.0,
-                          "detector.dead_time_ns": 40.0, "detector.safe_rate": 1e5})
+    bench = make_bench(
+        **{
+            "detector.efficiency": 0.6,
+            "detector.dark_rate": 200.0,
+            "detector.dead_time_ns": 40.0,
+            "detector.safe_rate": 1e5,
+        }
+    )
     p = predict(bench, {"analyzer": np.array([135.5, 170.0])})
     expected = 1e6 * p.leak_rate * 0.6 + 200.0
     np.testing.assert_allclose(p.detector_rate, expected)
@@ -112,9 +135,15 @@ def test_detector_rates_and_dead_time():
 def test_pulsed_detector():
     # Threshold detector: P(click) = 1 - (1 - p_d) exp(-eta mu) (physics.md; Lee et al.,
     # J. Mod. Opt. 51, 1517 (2004)).
-    bench = make_bench(**{"detector.mode": "pulsed", "detector.rep_rate_hz": 1e6,
-                          "detector.efficiency": 0.5, "detector.gate_dark_probability": 1e-4,
-                          "source.photon_rate": 2e6})
+    bench = make_bench(
+        **{
+            "detector.mode": "pulsed",
+            "detector.rep_rate_hz": 1e6,
+            "detector.efficiency": 0.5,
+            "detector.gate_dark_probability": 1e-4,
+            "source.photon_rate": 2e6,
+        }
+    )
     p = predict(bench, {"analyzer": np.array([137.0, 200.0])})
     mu = 2.0 * p.leak_rate
     np.testing.assert_allclose(p.detector_rate, 1e6 * (1 - (1 - 1e-4) * np.exp(-0.5 * mu)))
@@ -125,10 +154,15 @@ def test_momentum_readout_measures_the_imaginary_part():
     # Momentum readout: <p> = 2 g Var(p) Im A_w in the linear regime (Jozsa, PRA 76, 044103
     # (2007)); exact pure-state form <p> = g/(2 s^2) Im A_w e^{-g^2/2s^2} / D (physics.md).
     g, sigma = 0.2, 1.5
-    bench = make_bench(**{"coupling.readout": "momentum", "coupling.strength": g,
-                          "coupling.pointer_sigma": sigma,
-                          "post": [{"type": "qwp", "mount": "qwp", "retardance_waves": 0.25}],
-                          "mounts.qwp": {"reading_deg": 20.0}})
+    bench = make_bench(
+        **{
+            "coupling.readout": "momentum",
+            "coupling.strength": g,
+            "coupling.pointer_sigma": sigma,
+            "post": [{"type": "qwp", "mount": "qwp", "retardance_waves": 0.25}],
+            "mounts.qwp": {"reading_deg": 20.0},
+        }
+    )
     p = predict(bench, {"analyzer": 136.0})
     aw = complex(p.weak_value)
     assert abs(aw.imag) > 1.0
@@ -149,8 +183,16 @@ def test_momentum_readout_measures_the_imaginary_part():
 def test_phase_readout_uses_probe_phase_spread():
     # Phase pointer: coherent probe of N photons, phase spread 1/(2 sqrt N) (common practice).
     n = 1e4
-    phase = make_bench(**{"coupling": {"observable": "HV", "readout": "phase",
-                                       "probe_photons": n, "strength": 2e-3}})
+    phase = make_bench(
+        **{
+            "coupling": {
+                "observable": "HV",
+                "readout": "phase",
+                "probe_photons": n,
+                "strength": 2e-3,
+            }
+        }
+    )
     a = predict(phase, {"analyzer": 135.2})
     # the base bench is ideal (pure states, A^2 = 1): the all-orders response with
     # sigma = 1/(2 sqrt N) (physics.md; Kofman et al., Phys. Rep. 520, 43 (2012))
@@ -194,8 +236,9 @@ def test_pointer_limited_peak():
     g, sigma = 0.02, 1.0
     lim = limits(make_bench(**{"coupling.strength": g}))
     ptr = lim.mechanisms["pointer"]
-    assert ptr.max_amplification == pytest.approx(1 / np.sqrt(1 - np.exp(-(g**2) / sigma**2)),
-                                                  rel=1e-7)
+    assert ptr.max_amplification == pytest.approx(
+        1 / np.sqrt(1 - np.exp(-(g**2) / sigma**2)), rel=1e-7
+    )
     assert ptr.max_amplification == pytest.approx(sigma / g, rel=1e-3)
     aw_star = np.sqrt(1 / np.tanh(g**2 / (4 * sigma**2)))
     assert np.tan(np.deg2rad(ptr.at_imbalance_deg)) == pytest.approx(1 / aw_star, rel=1e-3)
@@ -210,7 +253,8 @@ def test_dark_count_cap():
     rate, dark = 1e6 * 0.5, 500.0
     lim = limits(bench)
     assert lim.mechanisms["dark counts"].max_amplification == pytest.approx(
-        rate / (2 * np.sqrt(dark * (rate + dark))), rel=1e-7)
+        rate / (2 * np.sqrt(dark * (rate + dark))), rel=1e-7
+    )
     assert lim.limited_by == "dark counts"
 
 
@@ -230,10 +274,13 @@ def test_unreachable_null_is_limited_by_the_setting():
     # linear analyzer: the closest approach is an imbalance chi = 0.5 deg. Derived here, small
     # angles: A_w ~ 1/(eps + i chi), so Re A_w peaks at 1/(2 chi) = 57.3 where eps = chi, an
     # imbalance of sqrt(2) chi, whatever the optics.
-    pre = [{"type": "hwp", "mount": "hwp", "retardance_waves": 0.5},
-           {"type": "qwp", "mount": "qwp", "retardance_waves": 0.25}]
-    bench = make_bench(**{"pre": pre, "mounts.qwp": {"reading_deg": 45.5},
-                          "analyzer.extinction_ratio": 1e9})
+    pre = [
+        {"type": "hwp", "mount": "hwp", "retardance_waves": 0.5},
+        {"type": "qwp", "mount": "qwp", "retardance_waves": 0.25},
+    ]
+    bench = make_bench(
+        **{"pre": pre, "mounts.qwp": {"reading_deg": 45.5}, "analyzer.extinction_ratio": 1e9}
+    )
     lim = limits(bench)
     chi = np.deg2rad(0.5)
     assert lim.limited_by == "setting" and "cannot reach a null" in lim.explanation
@@ -253,8 +300,13 @@ def test_demo_limits_are_consistent():
 
 
 def test_find_null_respects_offsets_and_sense():
-    bench = make_bench(**{"mounts.analyzer.offset_deg": 2.0, "mounts.analyzer.sense": -1,
-                          "mounts.analyzer.reading_deg": 40.0})
+    bench = make_bench(
+        **{
+            "mounts.analyzer.offset_deg": 2.0,
+            "mounts.analyzer.sense": -1,
+            "mounts.analyzer.reading_deg": 40.0,
+        }
+    )
     # Element angle -(reading - 2) crossed at -45 deg (mod 180) -> reading 47 deg
     assert find_null(bench) == pytest.approx(47.0, abs=1e-9)
 
@@ -296,9 +348,15 @@ def test_technical_jitter_favours_post_selection():
 
 
 def test_best_snr_imbalance_respects_the_safe_rate():
-    bench = make_bench(**{"coupling.strength": 1e-3, "coupling.jitter_rms": 1e-4,
-                          "detector.safe_rate": 2e4, "detector.dark_rate": 50.0,
-                          "analyzer.extinction_ratio": 1e5})
+    bench = make_bench(
+        **{
+            "coupling.strength": 1e-3,
+            "coupling.jitter_rms": 1e-4,
+            "detector.safe_rate": 2e4,
+            "detector.dark_rate": 50.0,
+            "analyzer.extinction_ratio": 1e5,
+        }
+    )
     choice = best_snr_imbalance(bench)
     assert choice.feasible
     assert choice.detector_rate <= 2e4
@@ -318,13 +376,27 @@ def test_best_snr_infeasible_when_every_point_is_too_bright():
 
 
 def test_prediction_block_keys_and_element_angles():
-    bench = make_bench(**{"mounts.analyzer.offset_deg": 0.5, "mounts.analyzer.sense": -1,
-                          "mounts.analyzer.reading_deg": -134.0,
-                          "mounts.analyzer.travel_deg": [-350.0, 0.0]})
+    bench = make_bench(
+        **{
+            "mounts.analyzer.offset_deg": 0.5,
+            "mounts.analyzer.sense": -1,
+            "mounts.analyzer.reading_deg": -134.0,
+            "mounts.analyzer.travel_deg": [-350.0, 0.0],
+        }
+    )
     block = prediction_block(bench, {"analyzer": -134.2})
-    assert list(block) == ["angles_deg", "imbalance_deg", "weak_value", "leak_rate",
-                           "amplification", "pointer_shift", "units", "detector", "limit",
-                           "snr_per_sqrt_s"]
+    assert list(block) == [
+        "angles_deg",
+        "imbalance_deg",
+        "weak_value",
+        "leak_rate",
+        "amplification",
+        "pointer_shift",
+        "units",
+        "detector",
+        "limit",
+        "snr_per_sqrt_s",
+    ]
     assert set(block["weak_value"]) == {"re", "im"}
     assert set(block["amplification"]) == {"linear", "exact"}
     assert set(block["detector"]) == {"rate", "measured_rate", "saturated", "over_safe_rate"}

@@ -69,9 +69,14 @@ def test_unknown_recipe_suggests_a_bundled_one() -> None:
 
 def test_set_amplification_runs_on_the_demo_bench(tmp_path: Path) -> None:
     lines: list[str] = []
-    result = run_recipe(find_recipe("set-amplification"), load_bench("demo"),
-                        confirm=lambda _text: True, report=lines.append,
-                        db=str(tmp_path / "runs.sqlite"), seed=3)
+    result = run_recipe(
+        find_recipe("set-amplification"),
+        load_bench("demo"),
+        confirm=lambda _text: True,
+        report=lines.append,
+        db=str(tmp_path / "runs.sqlite"),
+        seed=3,
+    )
     assert result.completed, result.message
     kinds = [o.do for o in result.outcomes]
     assert kinds == ["confirm", "plan", "predict", "sweep", "say"]
@@ -82,8 +87,13 @@ def test_set_amplification_runs_on_the_demo_bench(tmp_path: Path) -> None:
 
 
 def test_find_null_finds_the_simulated_true_null(tmp_path: Path) -> None:
-    result = run_recipe(find_recipe("find-null"), load_bench("demo"),
-                        confirm=lambda _text: True, report=lambda _t: None, seed=5)
+    result = run_recipe(
+        find_recipe("find-null"),
+        load_bench("demo"),
+        confirm=lambda _text: True,
+        report=lambda _t: None,
+        seed=5,
+    )
     assert result.completed
     null = next(o for o in result.outcomes if o.do == "null").values
     assert null["converged"]
@@ -101,8 +111,12 @@ def test_find_null_finds_the_simulated_true_null(tmp_path: Path) -> None:
 
 
 def test_refusing_a_check_stops_before_any_engine_step() -> None:
-    result = run_recipe(find_recipe("find-null"), load_bench("demo"),
-                        confirm=lambda _text: False, report=lambda _t: None)
+    result = run_recipe(
+        find_recipe("find-null"),
+        load_bench("demo"),
+        confirm=lambda _text: False,
+        report=lambda _t: None,
+    )
     assert not result.completed
     assert result.outcomes == ()
     assert "step 1" in result.message
@@ -110,10 +124,16 @@ def test_refusing_a_check_stops_before_any_engine_step() -> None:
 
 def test_cli_refuses_yes_on_a_real_bench(tmp_path: Path, bench_text: str) -> None:
     bench = tmp_path / "real.toml"
-    bench.write_text(bench_text.replace('[mounts.ana]\n', '[mounts.ana]\ndriver = "/dev/ttyX"\n'),
-                     encoding="utf-8")
-    out = subprocess.run([sys.executable, "-m", "aligner", "recipe", "run", "find-null",
-                          str(bench), "--yes"], capture_output=True, text=True, timeout=60)
+    bench.write_text(
+        bench_text.replace("[mounts.ana]\n", '[mounts.ana]\ndriver = "/dev/ttyX"\n'),
+        encoding="utf-8",
+    )
+    out = subprocess.run(
+        [sys.executable, "-m", "aligner", "recipe", "run", "find-null", str(bench), "--yes"],
+        capture_output=True,
+        text=True,
+        timeout=60,
+    )
     assert out.returncode == 2
     assert "--yes is only for simulated benches" in out.stderr
     assert "Traceback" not in out.stderr

@@ -18,8 +18,12 @@ def bench():
 
 
 def _samples(waypoints, step):
-    return np.concatenate([np.linspace(a, b, max(2, int(abs(b - a) / step) + 2))
-                           for a, b in itertools.pairwise(waypoints)])
+    return np.concatenate(
+        [
+            np.linspace(a, b, max(2, int(abs(b - a) / step) + 2))
+            for a, b in itertools.pairwise(waypoints)
+        ]
+    )
 
 
 def _dense_peak(bench, readings, mount, waypoints, step=0.01):
@@ -76,7 +80,8 @@ def test_count_check_uses_the_dead_time_corrected_rate(bench):
     with pytest.raises(GuardTrip, match="safe_rate"):
         guard.check_counts(int(measured * 0.1), 0.1)
     assert guard.check_counts(int(0.5 * safe * 0.1), 0.1) == pytest.approx(
-        0.5 * safe / (1 - 0.5 * safe * tau), rel=1e-4)
+        0.5 * safe / (1 - 0.5 * safe * tau), rel=1e-4
+    )
 
 
 def test_no_planned_path_exposes_the_detector(bench):
@@ -93,8 +98,11 @@ def test_no_planned_path_exposes_the_detector(bench):
         for _ in range(250):
             # half the moves near a null (dark paths), half anywhere in travel
             near = rng.random() < 0.5
-            start, target = (rng.normal(rng.choice([135.0, 315.0]), 3, 2).clip(low + 1, high)
-                             if near else rng.uniform(low + 1, high, 2))
+            start, target = (
+                rng.normal(rng.choice([135.0, 315.0]), 3, 2).clip(low + 1, high)
+                if near
+                else rng.uniform(low + 1, high, 2)
+            )
             readings = {**bench.readings(), **others, "analyzer": float(start)}
             try:
                 plan = guard.plan_move(readings, "analyzer", float(target))
@@ -122,8 +130,9 @@ def test_no_planned_path_exposes_the_detector(bench):
 def test_headroom_and_step_are_checked(bench):
     with pytest.raises(InputError, match="headroom"):
         DetectorGuard(bench, has_shutter=True, headroom=0)
-    bright = dataclasses.replace(bench, detector=dataclasses.replace(bench.detector,
-                                                                     safe_rate=10.0))
+    bright = dataclasses.replace(
+        bench, detector=dataclasses.replace(bench.detector, safe_rate=10.0)
+    )
     guard = DetectorGuard(bright, has_shutter=True)
     with pytest.raises(GuardTrip, match="refused"):
         guard.check_point(100.0, {"analyzer": 136.0})
@@ -134,12 +143,12 @@ def test_pulsed_guard_limits_photons_not_clicks(bench_text, write_bench):
     so the guard must compare the photon exposure R (eta mu + p_d) with safe_rate."""
     from aligner.physics.detection import click_probability, pulsed_measured_rate
 
-    text = bench_text.replace("safe_rate = 1.0e6",
-                              'safe_rate = 2.0e6\nmode = "pulsed"\nrep_rate_hz = 1.0e6')
+    text = bench_text.replace(
+        "safe_rate = 1.0e6", 'safe_rate = 2.0e6\nmode = "pulsed"\nrep_rate_hz = 1.0e6'
+    )
     bench = load_bench(write_bench(text))
     # the analyzer turned to transmission with a 1e8 photons/s source: far above safe_rate
-    bright = dataclasses.replace(bench, source=dataclasses.replace(bench.source,
-                                                                   photon_rate=1.0e8))
+    bright = dataclasses.replace(bench, source=dataclasses.replace(bench.source, photon_rate=1.0e8))
     p = predict(bright, {"ana": 45.0})
     assert float(p.detector_rate) <= 1.0e6  # clicks never exceed the repetition rate
     assert float(p.exposure_rate) > 2.0e6 and bool(p.over_safe_rate)

@@ -10,17 +10,41 @@ from aligner.run.log import Event, LoggedPoint, RunLog, read_run
 
 
 def _point(idx: int) -> LoggedPoint:
-    return LoggedPoint(idx, 0.1 * idx, {"a": 1.0 + idx}, {"a": 1.0005 + idx}, 1.0005 + idx,
-                       100 + idx, None if idx % 2 else 2000, 0.5, 1e-4, 0.9e-4, 1.1e-4, 1.05e-4,
-                       210.0, 0.1 * idx, 3.0 if idx % 2 else None, 0.2 if idx % 2 else None,
-                       "t0", "t1")
+    return LoggedPoint(
+        idx,
+        0.1 * idx,
+        {"a": 1.0 + idx},
+        {"a": 1.0005 + idx},
+        1.0005 + idx,
+        100 + idx,
+        None if idx % 2 else 2000,
+        0.5,
+        1e-4,
+        0.9e-4,
+        1.1e-4,
+        1.05e-4,
+        210.0,
+        0.1 * idx,
+        3.0 if idx % 2 else None,
+        0.2 if idx % 2 else None,
+        "t0",
+        "t1",
+    )
 
 
 def _run(log: RunLog) -> int:
-    return log.create_run(bench_name="b", bench_path="b.toml", bench_toml="x = 1\n",
-                          schedule="list:0,0.1", plan=[{"index": 0}, {"index": 1}],
-                          dwell_s=0.5, settle_s=0.0, repeats=1, imbalance_mount="a",
-                          software_version="0")
+    return log.create_run(
+        bench_name="b",
+        bench_path="b.toml",
+        bench_toml="x = 1\n",
+        schedule="list:0,0.1",
+        plan=[{"index": 0}, {"index": 1}],
+        dwell_s=0.5,
+        settle_s=0.0,
+        repeats=1,
+        imbalance_mount="a",
+        software_version="0",
+    )
 
 
 def test_round_trip_and_wal(tmp_path):
@@ -39,7 +63,9 @@ def test_round_trip_and_wal(tmp_path):
     assert points == [_point(0), _point(1)]
     with RunLog(db) as log:
         assert [(e.kind, e.message, e.idx) for e in log.events(run)] == [
-            ("fault", "retry", 0), ("note", "iris checked", None)]
+            ("fault", "retry", 0),
+            ("note", "iris checked", None),
+        ]
 
 
 def test_duplicate_point_is_refused_and_rolled_back(tmp_path):

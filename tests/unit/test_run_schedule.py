@@ -26,11 +26,19 @@ def test_amplification_is_log_spaced():
     assert s.targets[-1] == pytest.approx(60)
 
 
-@pytest.mark.parametrize("spec, words", [
-    ("lin:0:1:3", "unknown form"), ("linear:0:1", "START:STOP:N"), ("linear:a:1:3", "START"),
-    ("linear:0:1:x", "whole number"), ("amplification:0:10:3", "> 0"), ("list:", "at least"),
-    ("linear:0:1:0", "N must be"), ("linear:0:inf:3", "finite"),
-])
+@pytest.mark.parametrize(
+    "spec, words",
+    [
+        ("lin:0:1:3", "unknown form"),
+        ("linear:0:1", "START:STOP:N"),
+        ("linear:a:1:3", "START"),
+        ("linear:0:1:x", "whole number"),
+        ("amplification:0:10:3", "> 0"),
+        ("list:", "at least"),
+        ("linear:0:1:0", "N must be"),
+        ("linear:0:inf:3", "finite"),
+    ],
+)
 def test_bad_schedules_name_the_problem(spec, words):
     with pytest.raises(InputError, match="--schedule") as info:
         parse_schedule(spec)
@@ -38,8 +46,11 @@ def test_bad_schedules_name_the_problem(spec, words):
 
 
 def test_bad_dwell_settle_repeats():
-    for kwargs, word in (({"dwell_s": 0}, "--dwell"), ({"settle_s": -1}, "--settle"),
-                         ({"repeats": 0}, "--repeats")):
+    for kwargs, word in (
+        ({"dwell_s": 0}, "--dwell"),
+        ({"settle_s": -1}, "--settle"),
+        ({"repeats": 0}, "--repeats"),
+    ):
         with pytest.raises(InputError, match=word):
             parse_schedule("linear:0.2:1:3", **kwargs)
 

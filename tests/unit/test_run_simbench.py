@@ -23,7 +23,8 @@ def test_true_bench_applies_the_simulation_table(bench):
     assert truth.analyzer.extinction_ratio == sim.true_extinction["analyzer"]
     assert truth.source.extinction_ratio == sim.true_extinction["source"]
     assert truth.pre[0].retardance_waves == pytest.approx(
-        bench.pre[0].retardance_waves + sim.retardance_error_waves)
+        bench.pre[0].retardance_waves + sim.retardance_error_waves
+    )
 
 
 def test_writing_a_calibration_does_not_move_the_truth(bench, tmp_path):
@@ -31,8 +32,14 @@ def test_writing_a_calibration_does_not_move_the_truth(bench, tmp_path):
 
     copy = tmp_path / "bench.toml"
     copy.write_text(bench.path.read_text(encoding="utf-8"), encoding="utf-8")
-    write_values(copy, {"mounts.analyzer.offset_deg": -0.16, "analyzer.extinction_ratio": 8e3,
-                        "pre[1].retardance_waves": 0.26})
+    write_values(
+        copy,
+        {
+            "mounts.analyzer.offset_deg": -0.16,
+            "analyzer.extinction_ratio": 8e3,
+            "pre[1].retardance_waves": 0.26,
+        },
+    )
     before, after = true_bench(bench), true_bench(load_bench(copy))
     assert after.mounts == before.mounts
     assert after.analyzer == before.analyzer
@@ -52,8 +59,9 @@ def test_counts_follow_the_model_at_the_true_angles(bench):
     draws = np.array([sim.draw_counts(0.01)[0] for _ in range(400)])
     # Poisson mean test on the sum (scipy.stats reference): sum of 400 draws ~ Poisson(400 m t)
     total = draws.sum()
-    p = 2 * min(stats.poisson.cdf(total, 400 * mean * 0.01),
-                stats.poisson.sf(total - 1, 400 * mean * 0.01))
+    p = 2 * min(
+        stats.poisson.cdf(total, 400 * mean * 0.01), stats.poisson.sf(total - 1, 400 * mean * 0.01)
+    )
     assert p > 1e-3
     assert sim.clock_s == pytest.approx(4.0)  # simulated time, nothing slept
     # with the shutter shut only dark counts (dead time from Knoll, 4th ed., non-paralyzable)
@@ -70,8 +78,9 @@ def test_backlash_shifts_the_true_angle_and_the_counts(bench):
     mount.move_to(136.0)  # from the file reading 136 downward-free: no motion
     mount.move_to(137.0)
     mount.move_to(136.0)  # approached from above: the element stays high by the play
-    assert mount.true_angle_deg() - 136.0 == pytest.approx(bench.mounts["analyzer"].backlash_deg,
-                                                            abs=0.005)
+    assert mount.true_angle_deg() - 136.0 == pytest.approx(
+        bench.mounts["analyzer"].backlash_deg, abs=0.005
+    )
 
 
 def test_measured_leak_interval_matches_garwood(bench):

@@ -45,8 +45,15 @@ def test_complete_run_logs_every_point(tmp_path, bench, plan):
     log, run = _start(tmp_path, bench, plan)
     devices = open_devices(bench)
     seen = []
-    result = run_sweep(bench, devices, log, run, plan, dwell_s=0.5,
-                       on_point=lambda p, done, total: seen.append((p.idx, done, total)))
+    result = run_sweep(
+        bench,
+        devices,
+        log,
+        run,
+        plan,
+        dwell_s=0.5,
+        on_point=lambda p, done, total: seen.append((p.idx, done, total)),
+    )
     assert result.status == "complete" and result.points_done == 6
     assert seen == [(i, i + 1, 6) for i in range(6)]
     points = log.points(run)
@@ -89,8 +96,7 @@ def test_timeouts_are_retried_then_pause(tmp_path, bench, plan):
     devices = open_devices(bench)
     mount = devices.mounts["analyzer"]
     mount.move_to = Flaky(mount.move_to, {2, 3}, DeviceTimeout("analyzer: no reply"))
-    result = run_sweep(bench, devices, log, run, plan, dwell_s=0.5,
-                       options=SweepOptions(retries=2))
+    result = run_sweep(bench, devices, log, run, plan, dwell_s=0.5, options=SweepOptions(retries=2))
     assert result.status == "complete"
     faults = [e for e in log.events(run) if e.kind == "fault"]
     assert len(faults) == 2 and "no reply" in faults[0].message and faults[0].idx is not None
@@ -99,8 +105,9 @@ def test_timeouts_are_retried_then_pause(tmp_path, bench, plan):
     devices = open_devices(bench)
     mount = devices.mounts["analyzer"]
     mount.move_to = Flaky(mount.move_to, set(range(5, 100)), DeviceTimeout("analyzer: silent"))
-    result = run_sweep(bench, devices, log2, run2, plan, dwell_s=0.5,
-                       options=SweepOptions(retries=1))
+    result = run_sweep(
+        bench, devices, log2, run2, plan, dwell_s=0.5, options=SweepOptions(retries=1)
+    )
     assert (result.status, result.reason) == ("interrupted", "device")
     assert "silent" in result.message and not devices.shutter.is_open()
     assert len([e for e in log2.events(run2) if e.kind == "fault"]) == 2  # 1 try + 1 retry
@@ -135,8 +142,13 @@ def test_a_bright_point_is_refused_before_anything_moves(tmp_path, bench, plan):
 def test_without_shutter_the_guard_keeps_far_moves_dark(tmp_path, bench):
     # start the simulated analyzer half a turn away: without a shutter the guard must route
     # the move to the equivalent reading or refuse; the counter never sees a bright gate
-    far = dataclasses.replace(bench, mounts={**bench.mounts, "analyzer": dataclasses.replace(
-        bench.mounts["analyzer"], reading_deg=316.0)})
+    far = dataclasses.replace(
+        bench,
+        mounts={
+            **bench.mounts,
+            "analyzer": dataclasses.replace(bench.mounts["analyzer"], reading_deg=316.0),
+        },
+    )
     plan = plan_points(bench, parse_schedule("list:0.5", dwell_s=0.5))
     log, run = _start(tmp_path, bench, plan)
     devices = open_devices(far, shutter="none")
@@ -171,8 +183,9 @@ def test_run_snapshot_keeps_in_memory_readings(tmp_path, bench, plan):
     from aligner.bench import with_values
     from aligner.run.sweep import resume_plan
 
-    moved = with_values(bench, {"mounts.pre_qwp.reading_deg": 45.25,
-                                "mounts.analyzer.offset_deg": 0.04})
+    moved = with_values(
+        bench, {"mounts.pre_qwp.reading_deg": 45.25, "mounts.analyzer.offset_deg": 0.04}
+    )
     log = RunLog(tmp_path / "runs.sqlite")
     run = start_run(log, moved, parse_schedule("linear:0.3:1.5:6", dwell_s=0.5), plan)
     snapshot, _ = resume_plan(log.run(run))

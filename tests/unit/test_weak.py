@@ -84,8 +84,9 @@ def final_state_for(aw):
 D_STATE = density_from_vector(named_vector("D"))
 
 
-@pytest.mark.parametrize(("aw", "q", "p"), [(10, 0.470882, None), (40, 1.000625, None),
-                                            (3 + 2j, 0.148884, 0.049566)])
+@pytest.mark.parametrize(
+    ("aw", "q", "p"), [(10, 0.470882, None), (40, 1.000625, None), (3 + 2j, 0.148884, 0.049566)]
+)
 def test_pointer_check_values(aw, q, p):
     # physics.md check values (g = 0.05, sigma = 1) of the all-orders pure-state response
     # (Kofman, Ashhab, Nori, Phys. Rep. 520, 43 (2012); Duck, Stevenson, Sudarshan, PRD 40, 2112).
@@ -150,8 +151,9 @@ def test_coupling_unitary_matches_expm():
     rng = np.random.default_rng(3)
     a = random_hermitian(rng)
     gp = np.array([-3.0, -0.2, 0.0, 0.7, 5.0])
-    np.testing.assert_allclose(coupling_unitary(a, gp), expm(-1j * gp[:, None, None] * a),
-                               atol=1e-12)
+    np.testing.assert_allclose(
+        coupling_unitary(a, gp), expm(-1j * gp[:, None, None] * a), atol=1e-12
+    )
 
 
 def test_grid_integration_detects_a_wrong_response():
@@ -207,10 +209,12 @@ def test_textbook_case_cot_eps():
     eps = np.array([1e-4, 1e-3, 0.01, 0.1, 0.5])
     rho = density_from_vector(linear_vector(np.pi / 4))
     effect = density_from_vector(linear_vector(-np.pi / 4 + eps))
-    np.testing.assert_allclose(weak_value(rho, effect, observable_matrix("HV")),
-                               1 / np.tan(eps), rtol=1e-9)
-    np.testing.assert_allclose(pointer_response(rho, effect, SIGMA_Z, 1e-9, 1.0).probability,
-                               np.sin(eps) ** 2, rtol=1e-7)
+    np.testing.assert_allclose(
+        weak_value(rho, effect, observable_matrix("HV")), 1 / np.tan(eps), rtol=1e-9
+    )
+    np.testing.assert_allclose(
+        pointer_response(rho, effect, SIGMA_Z, 1e-9, 1.0).probability, np.sin(eps) ** 2, rtol=1e-7
+    )
 
 
 @pytest.mark.parametrize("delta", [1e-1, 1e-2, 1e-3, 1e-4])
@@ -239,10 +243,12 @@ def test_extinction_cap_check_value():
 
     eps = np.logspace(-5, -1, 50)
     d = 1 / er
-    np.testing.assert_allclose(np.abs(aw(eps)), (1 - d) * np.tan(eps) / (np.tan(eps) ** 2 + d),
-                               rtol=1e-9)
-    best = minimize_scalar(lambda e: -abs(aw(e)), bounds=(1e-4, 1e-2), method="bounded",
-                           options={"xatol": 1e-12})
+    np.testing.assert_allclose(
+        np.abs(aw(eps)), (1 - d) * np.tan(eps) / (np.tan(eps) ** 2 + d), rtol=1e-9
+    )
+    best = minimize_scalar(
+        lambda e: -abs(aw(e)), bounds=(1e-4, 1e-2), method="bounded", options={"xatol": 1e-12}
+    )
     assert -best.fun == pytest.approx(158.1123, abs=1e-4)
     assert best.x == pytest.approx(3.1623e-3, abs=1e-7)
     assert -best.fun == pytest.approx(np.sqrt(er) / 2, rel=1e-4)
@@ -250,7 +256,6 @@ def test_extinction_cap_check_value():
 
 def test_observable_from_axis_matches_named_observables():
     np.testing.assert_allclose(observable_from_axis((0, 0, 2)), PAULI["RL"])
-    np.testing.assert_allclose(observable_from_axis((1, 0, 0), (1.0, 0.0)),
-                               observable_matrix("H"))
+    np.testing.assert_allclose(observable_from_axis((1, 0, 0), (1.0, 0.0)), observable_matrix("H"))
     with pytest.raises(ValueError, match="allowed"):
         observable_matrix("XY")

@@ -22,8 +22,10 @@ from .base import DeskScreen
 
 __all__ = ["BenchScreen"]
 
-WHAT_IF = ("These readings are a what-if for the model: nothing moves from this screen. "
-           "Sweeps start from them (F3); the planner starts from them too (F2).")
+WHAT_IF = (
+    "These readings are a what-if for the model: nothing moves from this screen. "
+    "Sweeps start from them (F3); the planner starts from them too (F2)."
+)
 
 
 class BenchScreen(DeskScreen):

@@ -72,8 +72,9 @@ class LogScreen(DeskScreen):
             except AlignerError as exc:
                 self.query_one(EventList).show((), extra=str(exc))
                 return
-            title = (f"Points of run {run_id} · {record.schedule} · {record.status}"
-                     + (f" · {record.message}" if record.message else ""))
+            title = f"Points of run {run_id} · {record.schedule} · {record.status}" + (
+                f" · {record.message}" if record.message else ""
+            )
         table = self.query_one(PointsTable)
         table.reset()
         table.show(points)

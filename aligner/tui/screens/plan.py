@@ -26,8 +26,10 @@ TYPING_PAUSE_S = 0.4
 #: The axis choices, each stated in words (the choice reads the same without colour).
 AXES = (("axis: re (position)", "re"), ("axis: im (momentum)", "im"))
 #: Which readouts see which part of A_w, and where the other part shows up instead.
-SEEN_BY = {"re": ("Re A_w", "a real weak value", "a position or phase readout"),
-           "im": ("Im A_w", "an imaginary weak value", "a momentum readout")}
+SEEN_BY = {
+    "re": ("Re A_w", "a real weak value", "a position or phase readout"),
+    "im": ("Im A_w", "an imaginary weak value", "a momentum readout"),
+}
 
 
 def exact_label(on: bool) -> str:
@@ -42,9 +44,11 @@ def axis_note(readout: str, readout_axis: str, planned_axis: str) -> str:
         return ""
     seen, _, _ = SEEN_BY[readout_axis]
     wanted, what, where = SEEN_BY[planned_axis]
-    return (f"This bench has a {readout} readout, which measures {seen}; {what} "
-            f"({wanted}) shows up in {where}. The Bench screen keeps showing the amplification "
-            f"along {seen}, so after Ctrl+A it will be small there.")
+    return (
+        f"This bench has a {readout} readout, which measures {seen}; {what} "
+        f"({wanted}) shows up in {where}. The Bench screen keeps showing the amplification "
+        f"along {seen}, so after Ctrl+A it will be small there."
+    )
 
 
 class PlanScreen(DeskScreen):
@@ -93,8 +97,11 @@ class PlanScreen(DeskScreen):
             self.status("target amplification: give a finite number other than 0", error=True)
             return None
         axis = str(self.query_one("#axis", Select).value)
-        return {"amplification": value, "axis": axis,
-                "exact": self.query_one("#exact", Checkbox).value}
+        return {
+            "amplification": value,
+            "axis": axis,
+            "exact": self.query_one("#exact", Checkbox).value,
+        }
 
     @on(Input.Changed, "#target")
     def target_typed(self) -> None:
@@ -119,9 +126,12 @@ class PlanScreen(DeskScreen):
 
         bench = self.backend.bench
         self.query_one("#plan-axis-note", Static).update(
-            axis_note(bench.coupling.readout, readout_axis(bench), request["axis"]))
-        self.status(f"planning amplification {request['amplification']:g} on axis "
-                    f"{request['axis']}{' (exact)' if request['exact'] else ''}…")
+            axis_note(bench.coupling.readout, readout_axis(bench), request["axis"])
+        )
+        self.status(
+            f"planning amplification {request['amplification']:g} on axis "
+            f"{request['axis']}{' (exact)' if request['exact'] else ''}…"
+        )
         self.plan_worker(request, dict(self.desk.readings))
 
     @work(thread=True, exclusive=True, group="plan")
@@ -142,8 +152,11 @@ class PlanScreen(DeskScreen):
         panel = self.query_one(PlanResult)
         if event.error:
             self.result = None
-            title = f"cannot plan this target (limited by {event.limit})" if event.limit \
+            title = (
+                f"cannot plan this target (limited by {event.limit})"
+                if event.limit
                 else "cannot plan this target"
+            )
             self.status(title, error=True)
             panel.failed(event.error)
             return

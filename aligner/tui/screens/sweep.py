@@ -24,10 +24,12 @@ __all__ = ["SweepScreen"]
 DEFAULT_SCHEDULE = "amplification:5:60:8"
 IDLE = "idle: Ctrl+S starts a new run; Enter in a field only checks it"
 #: How each kind of pause reads in the status line, and whether it is a problem.
-PAUSED = {"operator": ("paused as you asked", False),
-          "interrupt": ("paused by Ctrl-C", False),
-          "guard": ("STOPPED BY THE DETECTOR GUARD", True),
-          "device": ("STOPPED BY A DEVICE FAULT", True)}
+PAUSED = {
+    "operator": ("paused as you asked", False),
+    "interrupt": ("paused by Ctrl-C", False),
+    "guard": ("STOPPED BY THE DETECTOR GUARD", True),
+    "device": ("STOPPED BY A DEVICE FAULT", True),
+}
 #: Readings of the prediction curve, and the margin (share of the span) added either side.
 CURVE_POINTS, CURVE_MARGIN = 240, 0.1
 
@@ -87,15 +89,19 @@ class SweepScreen(DeskScreen):
         try:
             dwell = float(text)
         except ValueError:
-            self.status(f"dwell: {text!r} is not a number; give the count time per point in "
-                        "seconds, e.g. 1", error=True)
+            self.status(
+                f"dwell: {text!r} is not a number; give the count time per point in "
+                "seconds, e.g. 1",
+                error=True,
+            )
             return
         self.status(f"checking {spec}…")
         self.check_worker(spec, dwell, dict(self.desk.readings), start)
 
     @work(thread=True, exclusive=True, group="sweep-check")
-    def check_worker(self, spec: str, dwell: float, readings: dict[str, float],
-                     start: bool) -> None:
+    def check_worker(
+        self, spec: str, dwell: float, readings: dict[str, float], start: bool
+    ) -> None:
         try:
             message = SweepChecked(start, preview=self.backend.preview(spec, dwell, readings))
         except AlignerError as exc:
@@ -114,17 +120,23 @@ class SweepScreen(DeskScreen):
         preview = event.preview
         moves = ", ".join(preview.moves) or "none"
         if not event.start:
-            self.status(f"checked: {len(preview.points)} points, mounts that move: {moves}. "
-                        "Ctrl+S starts the run.")
+            self.status(
+                f"checked: {len(preview.points)} points, mounts that move: {moves}. "
+                "Ctrl+S starts the run."
+            )
             return
         hardware = self.backend.hardware_mounts()
         if not hardware:
             self.begin(preview)
             return
-        question = (f"Start sweep: {len(preview.points)} points, mounts {moves} will move; "
-                    "beam blocks in place?")
-        detail = (f"Real devices on this bench: {', '.join(hardware)}. Follow your local "
-                  "laser-safety rules and your laser safety officer.")
+        question = (
+            f"Start sweep: {len(preview.points)} points, mounts {moves} will move; "
+            "beam blocks in place?"
+        )
+        detail = (
+            f"Real devices on this bench: {', '.join(hardware)}. Follow your local "
+            "laser-safety rules and your laser safety officer."
+        )
 
         def answered(start: bool | None) -> None:
             if start:
@@ -138,8 +150,11 @@ class SweepScreen(DeskScreen):
         if self.running:
             return
         if self.paused_run is None:
-            self.status("nothing to resume here: no run was paused on this screen "
-                        "(resume older runs with 'aligner sweep --resume RUN')", error=True)
+            self.status(
+                "nothing to resume here: no run was paused on this screen "
+                "(resume older runs with 'aligner sweep --resume RUN')",
+                error=True,
+            )
             return
         self.begin(None, self.paused_run)
 
@@ -160,34 +175,49 @@ class SweepScreen(DeskScreen):
         self.sweep_worker(preview, dict(self.desk.readings), resume_run)
 
     @work(thread=True, exclusive=True, group="sweep")
-    def sweep_worker(self, preview: Any, readings: dict[str, float],
-                     resume_run: int | None) -> None:
+    def sweep_worker(
+        self, preview: Any, readings: dict[str, float], resume_run: int | None
+    ) -> None:
         points: list[Any] = []
         started: dict[str, int] = {}
 
         def on_start(run_id: int, plan: Any, log: Any) -> None:
             started["run"] = run_id
             points.extend(log.points(run_id))
-            target = [p.readings[self.backend.bench.imbalance_mount] for p in plan
-                      if self.backend.bench.imbalance_mount in p.readings]
+            target = [
+                p.readings[self.backend.bench.imbalance_mount]
+                for p in plan
+                if self.backend.bench.imbalance_mount in p.readings
+            ]
             self.post_message(SweepStarted(run_id, len(plan), tuple(target), tuple(points)))
             moved = {name for p in plan for name in p.readings}
-            for name, (here, wanted) in self.backend.unmoved_differences(readings,
-                                                                         moved).items():
+            for name, (here, wanted) in self.backend.unmoved_differences(readings, moved).items():
                 self.app.call_from_thread(
-                    self.notify, f"{name} reads {here:.4f}° on the bench but {wanted:.4f}° on "
-                    "the bench screen; this sweep does not move it", severity="warning",
-                    timeout=10)
+                    self.notify,
+                    f"{name} reads {here:.4f}° on the bench but {wanted:.4f}° on "
+                    "the bench screen; this sweep does not move it",
+                    severity="warning",
+                    timeout=10,
+                )
 
         def on_point(point: Any, done: int, total: int, log: Any) -> None:
             points.append(point)
-            self.post_message(SweepProgress(started["run"], done, total, tuple(points),
-                                            tuple(log.events(started["run"]))))
+            self.post_message(
+                SweepProgress(
+                    started["run"], done, total, tuple(points), tuple(log.events(started["run"]))
+                )
+            )
 
         try:
-            result = self.backend.sweep("", 0.0, readings, on_point=on_point,
-                                        on_start=on_start, resume_run=resume_run,
-                                        planned=preview)
+            result = self.backend.sweep(
+                "",
+                0.0,
+                readings,
+                on_point=on_point,
+                on_start=on_start,
+                resume_run=resume_run,
+                planned=preview,
+            )
         except AlignerError as exc:
             self.post_message(SweepEnded(error=str(exc)))
             return
@@ -203,8 +233,9 @@ class SweepScreen(DeskScreen):
         self.curve = self.prediction_curve(event.imbalance_readings)
         self.query_one(LeakPlot).show(event.points, self.curve)
         self.query_one(PointsTable).show(event.points)
-        self.status(f"run {event.run_id}: {len(event.points)} of {event.total} points; "
-                    "Ctrl+B pauses")
+        self.status(
+            f"run {event.run_id}: {len(event.points)} of {event.total} points; Ctrl+B pauses"
+        )
 
     @on(SweepProgress)
     def sweep_progress(self, event: SweepProgress) -> None:
@@ -213,8 +244,10 @@ class SweepScreen(DeskScreen):
         self.query_one(PointsTable).show(event.points)
         self.query_one(EventList).show(event.events)
         last = event.points[-1]
-        self.status(f"run {event.run_id}: point {event.done} of {event.total}, imbalance "
-                    f"{last.imbalance_deg:+.4f}°, {last.counts} counts; Ctrl+B pauses")
+        self.status(
+            f"run {event.run_id}: point {event.done} of {event.total}, imbalance "
+            f"{last.imbalance_deg:+.4f}°, {last.counts} counts; Ctrl+B pauses"
+        )
 
     @on(SweepEnded)
     def sweep_ended(self, event: SweepEnded) -> None:
@@ -228,8 +261,10 @@ class SweepScreen(DeskScreen):
             events = log.events(r.run_id)
         self.query_one(EventList).show(events)
         if r.status == "complete":
-            self.status(f"run {r.run_id} complete: {r.points_done} of {r.points_total} points "
-                        "logged; shutter shut")
+            self.status(
+                f"run {r.run_id} complete: {r.points_done} of {r.points_total} points "
+                "logged; shutter shut"
+            )
             return
         self.paused_run = r.run_id
         why, problem = PAUSED.get(r.reason, (f"stopped ({r.reason})", True))
@@ -237,9 +272,11 @@ class SweepScreen(DeskScreen):
         extra = r.message.partition("; ")[2]
         detail = f": {r.message}" if problem else f"; {extra}" if extra else ""
         safe = "Mounts stopped" + ("" if extra else ", shutter shut")
-        self.status(f"run {r.run_id} {why}{detail}. {safe}; {r.points_done} of "
-                    f"{r.points_total} points logged. Ctrl+R resumes.",
-                    error=problem or bool(extra))
+        self.status(
+            f"run {r.run_id} {why}{detail}. {safe}; {r.points_done} of "
+            f"{r.points_total} points logged. Ctrl+R resumes.",
+            error=problem or bool(extra),
+        )
 
     # -- helpers -------------------------------------------------------------------------------
 

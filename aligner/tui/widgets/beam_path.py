@@ -12,8 +12,13 @@ from ..format import deg, num
 
 __all__ = ["BeamPath"]
 
-_KIND = {"hwp": "half-wave", "qwp": "quarter-wave", "retarder": "retarder",
-         "rotator": "rotator", "polarizer": "polarizer"}
+_KIND = {
+    "hwp": "half-wave",
+    "qwp": "quarter-wave",
+    "retarder": "retarder",
+    "rotator": "rotator",
+    "polarizer": "polarizer",
+}
 
 
 def _element_rows(bench: Bench) -> list[tuple[str, str | None, float | None, str]]:
@@ -22,8 +27,7 @@ def _element_rows(bench: Bench) -> list[tuple[str, str | None, float | None, str
     rows = [("source polarizer", s.mount, s.angle_deg, f"ER {num(s.extinction_ratio, 2)}")]
     for e in bench.pre:
         rows.append((f"{_KIND.get(e.type, e.type)} {e.key}", e.mount, e.angle_deg, _detail(e)))
-    rows.append((f"coupling ({c.observable})", None, None,
-                 f"{c.readout}"))
+    rows.append((f"coupling ({c.observable})", None, None, f"{c.readout}"))
     for e in bench.post:
         rows.append((f"{_KIND.get(e.type, e.type)} {e.key}", e.mount, e.angle_deg, _detail(e)))
     rows.append(("analyzer", a.mount, a.angle_deg, f"ER {num(a.extinction_ratio, 2)}"))

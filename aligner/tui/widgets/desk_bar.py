@@ -8,8 +8,12 @@ from textual.widgets import Static
 __all__ = ["SCREENS", "DeskBar"]
 
 #: (mode name, key, label) in the order the bar shows them.
-SCREENS = (("bench", "F1", "Bench"), ("plan", "F2", "Plan"), ("sweep", "F3", "Sweep"),
-           ("log", "F4", "Log"))
+SCREENS = (
+    ("bench", "F1", "Bench"),
+    ("plan", "F2", "Plan"),
+    ("sweep", "F3", "Sweep"),
+    ("log", "F4", "Log"),
+)
 
 
 class DeskBar(Static):

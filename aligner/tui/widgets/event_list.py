@@ -10,10 +10,20 @@ from textual.widgets import Static
 
 __all__ = ["EventList"]
 
-_STYLE = {"fault": "bold red", "guard": "bold red", "pause": "yellow", "resume": "green",
-          "note": ""}
-_LABEL = {"fault": "DEVICE FAULT", "guard": "DETECTOR GUARD", "pause": "paused",
-          "resume": "resumed", "note": "note"}
+_STYLE = {
+    "fault": "bold red",
+    "guard": "bold red",
+    "pause": "yellow",
+    "resume": "green",
+    "note": "",
+}
+_LABEL = {
+    "fault": "DEVICE FAULT",
+    "guard": "DETECTOR GUARD",
+    "pause": "paused",
+    "resume": "resumed",
+    "note": "note",
+}
 
 
 class EventList(Static):
@@ -27,7 +37,7 @@ class EventList(Static):
     def show(self, events: Sequence[Any], extra: str = "") -> None:
         """Show the last ``limit`` events, then ``extra`` (an error to state plainly)."""
         text = Text()
-        for e in list(events)[-self.limit:]:
+        for e in list(events)[-self.limit :]:
             where = f" (point {e.idx})" if e.idx is not None else ""
             label, style = _LABEL.get(e.kind, e.kind), _STYLE.get(e.kind, "")
             if e.message.lower().startswith(label.lower()):

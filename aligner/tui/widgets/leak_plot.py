@@ -28,8 +28,9 @@ class LeakPlot(PlotextPlot):
         super().on_mount()
         self._draw()
 
-    def show(self, points: Sequence[Any], curve: tuple[Sequence[float], Sequence[float]] | None
-             = None) -> None:
+    def show(
+        self, points: Sequence[Any], curve: tuple[Sequence[float], Sequence[float]] | None = None
+    ) -> None:
         """Plot logged points (``imbalance_deg``, ``leak``, ``leak_lo``, ``leak_hi``,
         ``predicted_leak``) and optionally a prediction ``curve`` (imbalance deg, leak)."""
         self._points = tuple(points)
@@ -47,15 +48,28 @@ class LeakPlot(PlotextPlot):
             plt.plot(list(x), list(y), marker="braille", color="cyan", label="predicted")
         elif self._points:
             ordered = sorted(self._points, key=lambda p: p.imbalance_deg)
-            plt.plot([p.imbalance_deg for p in ordered], [p.predicted_leak for p in ordered],
-                     marker="braille", color="cyan", label="predicted")
+            plt.plot(
+                [p.imbalance_deg for p in ordered],
+                [p.predicted_leak for p in ordered],
+                marker="braille",
+                color="cyan",
+                label="predicted",
+            )
         if self._points:
             for p in self._points[-MAX_BARS:]:
-                plt.plot([p.imbalance_deg, p.imbalance_deg], [p.leak_lo, p.leak_hi],
-                         marker="braille", color="orange")
-            plt.scatter([p.imbalance_deg for p in self._points],
-                        [p.leak for p in self._points], marker="●", color="orange+",
-                        label="measured")
+                plt.plot(
+                    [p.imbalance_deg, p.imbalance_deg],
+                    [p.leak_lo, p.leak_hi],
+                    marker="braille",
+                    color="orange",
+                )
+            plt.scatter(
+                [p.imbalance_deg for p in self._points],
+                [p.leak for p in self._points],
+                marker="●",
+                color="orange+",
+                label="measured",
+            )
         if self._curve is None and not self._points:
             plt.title("no points yet")
         self.refresh()

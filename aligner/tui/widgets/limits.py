@@ -38,10 +38,10 @@ class LimitsPanel(Static):
         head = Table.grid(padding=(0, 2))
         head.add_column(style="bold", no_wrap=True)
         head.add_column()
-        head.add_row("largest amplification", f"{num(lim.max_amplification, 4)} "
-                                             f"(axis {lim.axis})")
-        head.add_row("at imbalance", f"{lim.at_imbalance_deg:+.4f}° (reading "
-                                     f"{lim.at_reading_deg:.4f}°)")
+        head.add_row("largest amplification", f"{num(lim.max_amplification, 4)} (axis {lim.axis})")
+        head.add_row(
+            "at imbalance", f"{lim.at_imbalance_deg:+.4f}° (reading {lim.at_reading_deg:.4f}°)"
+        )
         head.add_row("null at", f"{lim.null_reading_deg:.4f}° ({self.mount})")
         head.add_row("limited by", lim.limited_by)
         alone = Table(box=None, padding=(0, 1), show_edge=False, header_style="bold")
@@ -50,6 +50,7 @@ class LimitsPanel(Static):
         alone.add_column("at imbalance", justify="right")
         for name, m in lim.mechanisms.items():
             mark = "▶ " if name == lim.limited_by else "  "
-            alone.add_row(f"{mark}{name}", num(m.max_amplification, 4),
-                          f"{m.at_imbalance_deg:+.4f}°")
+            alone.add_row(
+                f"{mark}{name}", num(m.max_amplification, 4), f"{m.at_imbalance_deg:+.4f}°"
+            )
         self.update(Group(head, Text(lim.explanation, style="italic"), alone))

@@ -41,9 +41,15 @@ class PlanResult(Static):
 
     def failed(self, message: str) -> None:
         """The engine's explanation of why the target cannot be reached."""
-        self.update(Group(Text("Infeasible target", style="bold red"), Text(""),
-                          Text(message), Text(""),
-                          Text("Readings on the bench screen are unchanged.", style="dim")))
+        self.update(
+            Group(
+                Text("Infeasible target", style="bold red"),
+                Text(""),
+                Text(message),
+                Text(""),
+                Text("Readings on the bench screen are unchanged.", style="dim"),
+            )
+        )
 
     def show(self, plan: Any) -> None:
         """Settings (rounded to the mounts' steps), branches, sensitivity, tolerance and the
@@ -51,14 +57,23 @@ class PlanResult(Static):
         q = plan.quantized
         settings = _table("mount", "reading", "exact solution", "step")
         for name, reading in q.settings.items():
-            settings.add_row(name, f"{float(reading):.4f}°",
-                             f"{float(plan.settings[name]):.5f}°",
-                             f"{self.bench.mounts[name].resolution_deg:g}°")
-        reached = Text(f"reached at the rounded readings: {num(q.value, 6)} "
-                       f"({q.relative_error * 100:+.2g} % from the exact solution); one step of "
-                       f"{self.bench.imbalance_mount} changes it by {q.step_change * 100:.2g} %")
-        parts: list[Any] = [_heading(f"Set the mounts to (rounded to their steps) for the "
-                                     f"{plan.quantity}"), settings, reached, Text("")]
+            settings.add_row(
+                name,
+                f"{float(reading):.4f}°",
+                f"{float(plan.settings[name]):.5f}°",
+                f"{self.bench.mounts[name].resolution_deg:g}°",
+            )
+        reached = Text(
+            f"reached at the rounded readings: {num(q.value, 6)} "
+            f"({q.relative_error * 100:+.2g} % from the exact solution); one step of "
+            f"{self.bench.imbalance_mount} changes it by {q.step_change * 100:.2g} %"
+        )
+        parts: list[Any] = [
+            _heading(f"Set the mounts to (rounded to their steps) for the {plan.quantity}"),
+            settings,
+            reached,
+            Text(""),
+        ]
         parts += self._branches(plan) + self._sensitivity(plan) + self._tolerance(plan)
         for warning in plan.warnings:
             parts.append(Text(f"⚠ {warning}", style="yellow"))
@@ -70,22 +85,40 @@ class PlanResult(Static):
         table = _table("#", *names, "side", "regime", "imbalance", "ampl. exact", "leak rate")
         for b in plan.branches[:MAX_BRANCHES]:
             mark = "▶" if b.index == plan.chosen else " "
-            table.add_row(f"{mark}{b.index}", *(f"{b.settings[n]:.4f}°" for n in names),
-                          b.side, b.regime, f"{b.imbalance_deg:+.4f}°",
-                          num(b.amplification_exact, 5), sci(b.leak_rate))
+            table.add_row(
+                f"{mark}{b.index}",
+                *(f"{b.settings[n]:.4f}°" for n in names),
+                b.side,
+                b.regime,
+                f"{b.imbalance_deg:+.4f}°",
+                num(b.amplification_exact, 5),
+                sci(b.leak_rate),
+            )
         more = len(plan.branches) - MAX_BRANCHES
-        extra = [Text(f"  … {more} more branches (other nulls and plate orientations)",
-                      style="dim")] if more > 0 else []
-        return [_heading(f"Branches: {len(plan.branches)}"), Text(f"chosen {plan.reason}"),
-                table, *extra, Text("")]
+        extra = (
+            [Text(f"  … {more} more branches (other nulls and plate orientations)", style="dim")]
+            if more > 0
+            else []
+        )
+        return [
+            _heading(f"Branches: {len(plan.branches)}"),
+            Text(f"chosen {plan.reason}"),
+            table,
+            *extra,
+            Text(""),
+        ]
 
     def _sensitivity(self, plan: Any) -> list[Any]:
         table = _table("mount", "d(value)/d(reading)", "change for 1 %")
         for s in plan.sensitivity:
             change = s.reading_for_1pct_deg
-            table.add_row(s.mount, f"{num(s.derivative, 4)} per deg",
-                          f"{num(change, 3)}°" if change <= FULL_TURN_DEG
-                          else "more than a turn (no practical effect)")
+            table.add_row(
+                s.mount,
+                f"{num(s.derivative, 4)} per deg",
+                f"{num(change, 3)}°"
+                if change <= FULL_TURN_DEG
+                else "more than a turn (no practical effect)",
+            )
         return [_heading("Sensitivity"), table, Text("")]
 
     def _tolerance(self, plan: Any) -> list[Any]:
@@ -93,13 +126,21 @@ class PlanResult(Static):
         if tol is None:
             return []
         table = _table("quantity", "median", "68 % range", "95 % range")
-        for label, s, fmt in (("target value", tol.figure, num),
-                              ("leak rate", tol.leak_rate, sci)):
-            table.add_row(label, fmt(s.median), f"{fmt(s.low68)} … {fmt(s.high68)}",
-                          f"{fmt(s.low95)} … {fmt(s.high95)}")
+        for label, s, fmt in (("target value", tol.figure, num), ("leak rate", tol.leak_rate, sci)):
+            table.add_row(
+                label,
+                fmt(s.median),
+                f"{fmt(s.low68)} … {fmt(s.high68)}",
+                f"{fmt(s.low95)} … {fmt(s.high95)}",
+            )
         by = _table("error source", "68 % half-width alone")
         for name, width in tol.by_source.items():
             mark = "  ◀ dominant" if name == tol.dominant else ""
             by.add_row(name, f"{num(width, 3)}{mark}")
-        return [_heading(f"Tolerance budget ({tol.samples} Monte Carlo samples)"), table,
-                Text(""), by, Text("")]
+        return [
+            _heading(f"Tolerance budget ({tol.samples} Monte Carlo samples)"),
+            table,
+            Text(""),
+            by,
+            Text(""),
+        ]

@@ -35,11 +35,18 @@ class PointsTable(DataTable):
         if len(points) < self._shown:
             self.clear()
             self._shown = 0
-        for p in points[self._shown:]:
-            self.add_row(str(p.idx), num(p.target, 4), f"{p.reading_deg:.4f}",
-                         f"{p.imbalance_deg:+.4f}", str(p.counts),
-                         sci(p.leak), f"{sci(p.leak_lo)} … {sci(p.leak_hi)}",
-                         sci(p.predicted_leak), key=str(p.idx))
+        for p in points[self._shown :]:
+            self.add_row(
+                str(p.idx),
+                num(p.target, 4),
+                f"{p.reading_deg:.4f}",
+                f"{p.imbalance_deg:+.4f}",
+                str(p.counts),
+                sci(p.leak),
+                f"{sci(p.leak_lo)} … {sci(p.leak_hi)}",
+                sci(p.predicted_leak),
+                key=str(p.idx),
+            )
         if len(points) > self._shown:
             self.move_cursor(row=len(points) - 1)
         self._shown = len(points)

@@ -46,14 +46,17 @@ class PredictionPanel(Vertical):
         t.add_row("weak value A_w", f"{wv.real:.5g} {sign} {abs(wv.imag):.4g} i")
         t.add_row("leak rate", f"{sci(p.leak_rate)} per source photon")
         axis = _AXIS[p.axis]
-        t.add_row(f"ampl. ({axis})",
-                  f"linear {num(p.amplification_linear, 5)} · exact "
-                  f"{num(p.amplification_exact, 5)}")
+        t.add_row(
+            f"ampl. ({axis})",
+            f"linear {num(p.amplification_linear, 5)} · exact {num(p.amplification_exact, 5)}",
+        )
         seen, unseen = (wv.real, wv.imag) if p.axis == "re" else (wv.imag, wv.real)
         if abs(unseen) > abs(seen):
             other = "imaginary" if p.axis == "re" else "real"
-            t.add_row("", f"A_w is mostly {other}; a {self.bench.coupling.readout} readout "
-                          f"sees {axis} only")
+            t.add_row(
+                "",
+                f"A_w is mostly {other}; a {self.bench.coupling.readout} readout sees {axis} only",
+            )
         t.add_row("pointer shift", f"{num(p.pointer_shift, 4)} {p.units}")
         t.add_row("SNR", f"{num(p.snr_per_sqrt_s, 4)} per √s of counting")
         self.query_one("#prediction-numbers", Static).update(t)
@@ -67,11 +70,11 @@ class PredictionPanel(Vertical):
         t.add_row("detector", f"{rate(p.detector_rate)} true, {rate(p.measured_rate)} counted")
         t.add_row("safe rate", rate(d.safe_rate))
         if over or saturated:
-            why = " and ".join(w for w, on in (("ABOVE THE SAFE RATE", over),
-                                              ("SATURATED", saturated)) if on)
+            why = " and ".join(
+                w for w, on in (("ABOVE THE SAFE RATE", over), ("SATURATED", saturated)) if on
+            )
             t.add_row("⚠ DANGER", why)
-            t.add_row("", "keep the shutter shut or the beam blocked before exposing the "
-                          "detector")
+            t.add_row("", "keep the shutter shut or the beam blocked before exposing the detector")
         else:
             t.add_row("", "below the safe rate, not saturated")
         box = self.query_one("#detector-status", Static)

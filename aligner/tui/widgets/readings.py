@@ -38,8 +38,9 @@ class _InTravel(Validator):
         if not math.isfinite(x):
             return self.failure(f"{self.mount.name}: the reading must be finite")
         if not low <= x <= high:
-            return self.failure(f"{self.mount.name}: {x:g} deg is outside its travel "
-                                f"[{low:g}, {high:g}] deg")
+            return self.failure(
+                f"{self.mount.name}: {x:g} deg is outside its travel [{low:g}, {high:g}] deg"
+            )
         return self.success()
 
 
@@ -56,8 +57,12 @@ class ReadingInput(Input):
     def __init__(self, mount: Mount, reading: float) -> None:
         self.mount = mount
         self.decimals = _decimals(mount.resolution_deg)
-        super().__init__(self.format(reading), id=f"reading-{mount.name}",
-                         validators=[_InTravel(mount)], classes="reading-input")
+        super().__init__(
+            self.format(reading),
+            id=f"reading-{mount.name}",
+            validators=[_InTravel(mount)],
+            classes="reading-input",
+        )
 
     def format(self, reading: float) -> str:
         """The reading with as many decimals as the mount resolves."""
@@ -78,8 +83,9 @@ class ReadingsEditor(Vertical):
     """One row per mount: name, reading input, step and travel. Posts ``ReadingsChanged``
     with every mount's reading whenever a valid reading changes."""
 
-    def __init__(self, mounts: Mapping[str, Mount], readings: Mapping[str, float],
-                 **kwargs: object) -> None:
+    def __init__(
+        self, mounts: Mapping[str, Mount], readings: Mapping[str, float], **kwargs: object
+    ) -> None:
         super().__init__(**kwargs)
         self.mounts = dict(mounts)
         self.readings = {k: float(v) for k, v in readings.items()}
@@ -90,8 +96,10 @@ class ReadingsEditor(Vertical):
                 yield Label(name, classes="reading-name")
                 yield ReadingInput(mount, self.readings[name])
                 low, high = mount.travel_deg
-                yield Label(f"step {mount.resolution_deg:g}°, travel {low:g}…{high:g}°",
-                            classes="reading-step")
+                yield Label(
+                    f"step {mount.resolution_deg:g}°, travel {low:g}…{high:g}°",
+                    classes="reading-step",
+                )
         yield Static("", id="reading-problem", classes="problem")
 
     def set_readings(self, readings: Mapping[str, float]) -> None:

@@ -26,8 +26,14 @@ class RunList(DataTable):
         keep = self.selected_run()
         self.clear()
         for r in runs:
-            self.add_row(str(r.id), r.status, f"{r.points}/{r.planned}", r.schedule,
-                         r.started_utc[5:16].replace("T", " "), key=str(r.id))
+            self.add_row(
+                str(r.id),
+                r.status,
+                f"{r.points}/{r.planned}",
+                r.schedule,
+                r.started_utc[5:16].replace("T", " "),
+                key=str(r.id),
+            )
         if keep is not None and str(keep) in self.rows:
             self.move_cursor(row=self.get_row_index(str(keep)))
         elif runs:

@@ -6,9 +6,11 @@ from textual.widgets import Static
 
 __all__ = ["SAFETY_TEXT", "SafetyLine"]
 
-SAFETY_TEXT = ("⚠ LASER  Protect your eyes, keep beam blocks in place, never let a bright beam "
-               "reach the detector.\n         Local laser-safety rules and your laser safety "
-               "officer come first.")
+SAFETY_TEXT = (
+    "⚠ LASER  Protect your eyes, keep beam blocks in place, never let a bright beam "
+    "reach the detector.\n         Local laser-safety rules and your laser safety "
+    "officer come first."
+)
 
 
 class SafetyLine(Static):
