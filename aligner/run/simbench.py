@@ -2,7 +2,7 @@
 
 :class:`SimBench` builds a *true* bench from the bench file and its ``[simulation]`` table
 (:func:`true_bench`: offset errors added to the mount offsets, analyzer and source extinction
-scaled, every waveplate's retardance shifted) and simulated mounts (``drivers.sim.SimMount``)
+scaled, every waveplate's retardance shifted) and simulated mounts (opened as ``sim`` devices)
 with the file's resolution, backlash, speed, travel and repeatability. Its counter draws, for a
 dwell ``t``:
 
@@ -36,7 +36,6 @@ import numpy as np
 
 from drivers.open import open_counter, open_mount, open_pointer, open_shutter
 from drivers.protocols import Counter, PointerReader, RotationMount, Shutter
-from drivers.sim import FunctionCounter, SimMount, SimPointer, SimShutter
 
 from ..bench import Bench, Element
 from ..errors import DeviceError, InputError
@@ -131,22 +130,23 @@ class SimBench:
         mount_seeds = seeds.spawn(len(bench.mounts) + 1)
         self.rng = np.random.default_rng(mount_seeds[-1])
         self.mounts: dict[str, RotationMount] = {
-            name: SimMount(
-                name,
-                resolution_deg=m.resolution_deg,
-                backlash_deg=m.backlash_deg,
-                speed_deg_s=m.speed_deg_s,
-                travel_deg=m.travel_deg,
-                noise_rms_deg=m.repeatability_deg,
+            name: open_mount(
+                "sim",
+                name=name,
+                resolution=m.resolution_deg,
+                backlash=m.backlash_deg,
+                speed=m.speed_deg_s,
+                travel=m.travel_deg,
+                noise=m.repeatability_deg,
                 seed=int(s.generate_state(1)[0]),
                 realtime=realtime,
-                start_deg=m.reading_deg,
+                start=m.reading_deg,
             )
             for (name, m), s in zip(bench.mounts.items(), mount_seeds, strict=False)
         }
-        self.shutter: Shutter = SimShutter("sim-shutter")
-        self.counter = FunctionCounter(self.draw_counts, channels=2, name="sim-counter")
-        self.pointer = SimPointer(self.draw_pointer, name="sim-pointer")
+        self.shutter: Shutter = open_shutter("sim", name="sim-shutter")
+        self.counter = open_counter("sim", fn=self.draw_counts, channels=2, name="sim-counter")
+        self.pointer = open_pointer("sim", fn=self.draw_pointer, name="sim-pointer")
 
     def true_readings(self) -> dict[str, float]:
         """Every mount's true element reading (deg)."""
@@ -302,7 +302,8 @@ def open_devices(
         raise
     if chosen_shutter is not None:
         sim.shutter = chosen_shutter
-    all_sim = not opened or all(isinstance(d, SimMount) for d in opened)
+    # mounts opened from "sim:?..." specs are simulated too (no real time passes for them)
+    all_sim = all(m.driver.startswith("sim") for m in bench.mounts.values())
     return DeviceSet(
         dict(sim.mounts),
         chosen_counter,

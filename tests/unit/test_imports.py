@@ -79,3 +79,36 @@ def test_console_script_lists_every_command():
     for command in COMMANDS_PRESENT:
         assert f"\n    {command} " in done.stdout
     assert "laser safety officer" in " ".join(done.stdout.split())
+
+
+def _imports(path):
+    import ast
+
+    tree = ast.parse(path.read_text(encoding="utf-8"))
+    for node in ast.walk(tree):
+        if isinstance(node, ast.Import):
+            yield from (alias.name for alias in node.names)
+        elif isinstance(node, ast.ImportFrom) and node.level == 0 and node.module:
+            yield node.module
+
+
+def test_dependencies_point_one_way():
+    """physics imports only numpy/scipy (and itself); the engine reaches drivers only through
+    their protocols and the opening functions; nothing outside tui/ and cli/ imports textual."""
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[2] / "aligner"
+    stdlib_ok = {"__future__", "collections", "dataclasses", "math", "typing", "functools"}
+    for path in (root / "physics").rglob("*.py"):
+        for name in _imports(path):
+            top = name.split(".")[0]
+            assert top in {"numpy", "scipy"} | stdlib_ok, f"{path.name} imports {name}"
+    for path in root.rglob("*.py"):
+        part = path.relative_to(root).parts[0]
+        for name in _imports(path):
+            if name.startswith("drivers"):
+                assert name in ("drivers", "drivers.open", "drivers.protocols"), (
+                    f"{path} imports {name}"
+                )
+            if name.split(".")[0] == "textual":
+                assert part in ("tui", "cli"), f"{path} imports {name}"
