@@ -59,6 +59,7 @@ __all__ = [
     "detector_flags",
     "detector_rates",
     "find_null",
+    "format_weak_value",
     "limits",
     "predict",
     "prediction_block",
@@ -253,6 +254,15 @@ class Prediction:
     angles_deg: Mapping[str, Real]
     axis: str
     units: str
+
+
+def format_weak_value(value: complex, digits: int = 6) -> str:
+    """``A_w`` for people: parts below 1e-9 of ``|A_w|`` are rounding noise and show as 0."""
+    z = complex(value)
+    tiny = 1e-9 * abs(z)
+    re, im = (0.0 if abs(x) <= tiny else x for x in (z.real, z.imag))
+    sign = "-" if im < 0 else "+"
+    return f"{re:.{digits}g} {sign} {abs(im):.{digits}g}i"
 
 
 def readout_units(bench: Bench) -> str:

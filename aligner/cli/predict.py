@@ -79,6 +79,8 @@ def _print_tables(
     from rich.console import Console
     from rich.table import Table
 
+    from ..prediction import format_weak_value
+
     console = Console()
     axis = "Re A_w" if lim.axis == "re" else "Im A_w"
     mounts = Table(title=f"{bench.name or 'bench'}: mounts")
@@ -92,7 +94,7 @@ def _print_tables(
     wv = block["weak_value"]
     rows = [
         ("imbalance", f"{block['imbalance_deg']:.5g}", "deg"),
-        ("weak value A_w", f"{wv['re']:.6g} {wv['im']:+.6g}i", ""),
+        ("weak value A_w", format_weak_value(complex(wv["re"], wv["im"])), ""),
         ("leak rate", f"{block['leak_rate']:.5g}", "per source photon"),
         (f"amplification, linear ({axis})", f"{block['amplification']['linear']:.5g}", ""),
         ("amplification, exact", f"{block['amplification']['exact']:.5g}", ""),

@@ -10,6 +10,7 @@ from textual.containers import Vertical
 from textual.widgets import Static
 
 from ...bench import Bench
+from ...prediction import format_weak_value
 from ..format import num, rate, sci
 
 __all__ = ["PredictionPanel"]
@@ -40,10 +41,9 @@ class PredictionPanel(Vertical):
     def show(self, p: Any) -> None:
         """Show a scalar :class:`aligner.prediction.Prediction`."""
         wv = complex(p.weak_value)
-        sign = "+" if wv.imag >= 0 else "−"
         t = _grid()
         t.add_row("imbalance", f"{float(p.imbalance_deg):+.4f}° from the null")
-        t.add_row("weak value A_w", f"{wv.real:.5g} {sign} {abs(wv.imag):.4g} i")
+        t.add_row("weak value A_w", format_weak_value(wv, 5))
         t.add_row("leak rate", f"{sci(p.leak_rate)} per source photon")
         axis = _AXIS[p.axis]
         t.add_row(
