@@ -88,12 +88,18 @@ class Element:
 
 @dataclass(frozen=True)
 class Source:
-    """The source polarizer and the photon rate leaving it (photons/s)."""
+    """The source polarizer and the photon rate leaving it (photons/s).
+
+    ``monitor_fraction``: counts in the reference channel per source photon (pick-off share
+    times monitor efficiency); when given, sweeps normalise measured leak rates by the
+    reference counts instead of the nominal ``photon_rate``, so source drift cancels.
+    """
 
     photon_rate: float
     angle_deg: float = 0.0
     mount: str | None = None
     extinction_ratio: float = INF
+    monitor_fraction: float | None = None
 
 
 @dataclass(frozen=True)
@@ -622,10 +628,15 @@ def parse_bench(doc: Mapping[str, Any], path: str = "<bench>") -> Bench:
         path,
         "source",
         top.table_of("source"),
-        ("angle_deg", "mount", "extinction_ratio", "photon_rate"),
+        ("angle_deg", "mount", "extinction_ratio", "photon_rate", "monitor_fraction"),
     )
     s_angle, s_mount = _angle_or_mount(sr, mounts)
-    source = Source(sr.number("photon_rate", above=0.0), s_angle, s_mount, _extinction(sr))
+    monitor = (
+        sr.number("monitor_fraction", above=0.0, maximum=1.0)
+        if sr.has("monitor_fraction")
+        else None
+    )
+    source = Source(sr.number("photon_rate", above=0.0), s_angle, s_mount, _extinction(sr), monitor)
 
     ar = _Reader(
         path,

@@ -231,6 +231,7 @@ def measure_leak(
     level: float = DEFAULT_LEVEL,
     predicted_rate: float | None = None,
     safe_rate: float = math.inf,
+    reference_dark_rate: float = 0.0,
 ) -> LeakMeasurement:
     """Leak from counts (see the module docstring). Rates in counts/s, times in s; in pulsed
     mode (``rep_rate_hz`` given) ``dark``/``dark_probability`` are per gate.
@@ -341,9 +342,17 @@ def measure_leak(
         if ref_corrected <= 0:
             raise InputError("--reference is 0 counts: a reference needs light on it")
         warnings.append(_exposure_warning("reference", ref_corrected, safe_rate))
+        # the reference detector's own dark counts (point estimate), taken off its rate
+        if reference_dark_rate >= ref_corrected:
+            raise InputError(
+                f"the reference rate {ref_corrected:.4g} counts/s is not above its "
+                f"dark rate {reference_dark_rate:.4g} counts/s: no light on it"
+            )
+        ref_light = ref_corrected / (ref_corrected - reference_dark_rate)
         if below:
             # the signal's limit over the reference's lower bound (same tail): conservative
             ref_low = float(true_rate(garwood(k_ref, level)[0] / t_ref, tau))
+            ref_low -= reference_dark_rate
             ratio = np.array([0.0, 0.0, rates[2] / ref_low if ref_low > 0 else math.inf])
             ratio = ratio / relative_efficiency
             method += "; leak limit over the reference's lower Garwood bound"
@@ -352,7 +361,9 @@ def measure_leak(
             measured = np.array([r_low, k / max(k_ref, 1e-300), r_high]) * t_ref / t
             factor = (corrected / raw if k else 1.0) / (ref_corrected / ref_raw)
             ratio = (
-                np.maximum(measured * factor - dark_used / ref_corrected, 0.0) / relative_efficiency
+                np.maximum(measured * factor - dark_used / ref_corrected, 0.0)
+                * ref_light
+                / relative_efficiency
             )
             method += "; leak by Clopper-Pearson on the count ratio"
         leak_b = ratio / (1 + ratio) if reference_kind == "port" else ratio

@@ -12,7 +12,8 @@ dwell ``t``:
   repeatability included), dark counts included; with the shutter shut only dark counts;
 * channel 2 (reference port): a monitor pick-off of the source ahead of the interferometer,
   Poisson of mean ``t`` times the dead-time-limited rate of
-  ``reference_fraction * photon_rate * efficiency + dark_rate``.
+  ``monitor_fraction * photon_rate + dark_rate`` (``[source] monitor_fraction``, counts per
+  source photon; without it :data:`REFERENCE_FRACTION` times the detector efficiency).
 
 Poisson draws at the dead-time-limited mean slightly overstate the spread of a real
 non-paralyzable counter (its counts are sub-Poisson); the sweep's interval is then
@@ -42,7 +43,8 @@ from ..errors import DeviceError, InputError
 
 __all__ = ["DeviceSet", "SimBench", "open_devices", "true_bench"]
 
-#: Share of the source's photons the reference monitor sees (an invented demo value).
+#: Share of the source's photons the reference monitor sees when the bench gives no
+#: ``monitor_fraction`` (an invented demo value).
 REFERENCE_FRACTION = 1e-3
 
 
@@ -119,12 +121,15 @@ class SimBench:
         *,
         seed: int | None = None,
         realtime: bool = False,
-        reference_fraction: float = REFERENCE_FRACTION,
     ) -> None:
         self.bench = bench
         self.truth = true_bench(bench)
         self.realtime = realtime
-        self.reference_fraction = reference_fraction
+        monitor = bench.source.monitor_fraction
+        #: reference-channel counts per source photon
+        self.monitor_fraction = (
+            REFERENCE_FRACTION * bench.detector.efficiency if monitor is None else monitor
+        )
         self.clock_s = 0.0
         seeds = np.random.SeedSequence(bench.simulation.seed if seed is None else seed)
         mount_seeds = seeds.spawn(len(bench.mounts) + 1)
@@ -170,8 +175,8 @@ class SimBench:
         d = self.truth.detector
         rates = expected_rates(
             self.truth.source.photon_rate,
-            self.reference_fraction,
-            d.efficiency,
+            self.monitor_fraction,
+            1.0,
             d.dark_rate,
             d.dead_time_ns * 1e-9,
         )

@@ -85,25 +85,47 @@ class MeasuredLeak:
     high: float
 
 
-def measured_leak(bench: Bench, counts: int, dwell_s: float) -> MeasuredLeak:
+def measured_leak(
+    bench: Bench, counts: int, dwell_s: float, reference: int | None = None
+) -> MeasuredLeak:
     """Leak rate per source photon from ``counts`` of the post-selected port in ``dwell_s`` s,
-    with its exact 68.3 % interval (:func:`aligner.fit.counts.measure_leak`: Garwood on the
-    counts, or Clopper-Pearson on clicks per pulse in pulsed mode; dead time undone, the
-    bench's dark rate removed; reference = photon rate times detector efficiency)."""
+    with its exact 68.3 % interval (:func:`aligner.fit.counts.measure_leak`: dead time undone,
+    the bench's dark rate removed; Clopper-Pearson on clicks per pulse in pulsed mode).
+
+    The denominator: with ``[source] monitor_fraction`` and ``reference`` counts, the reference
+    channel (exact interval on the count ratio, its dark removed, so source drift cancels);
+    otherwise the nominal ``photon_rate`` times the detector efficiency (Garwood on the counts).
+    """
     from ..fit.counts import measure_leak
 
     d = bench.detector
     pulsed = d.mode == "pulsed"
-    m = measure_leak(
-        counts,
-        dwell_s,
-        reference_rate=bench.source.photon_rate * d.efficiency,
-        dark_rate=d.dark_rate,
-        dead_time_s=d.dead_time_ns * 1e-9,
-        efficiency=d.efficiency,
-        rep_rate_hz=d.rep_rate_hz if pulsed else None,
-        dark_probability=d.gate_dark_probability,
-    )
+    common = {
+        "dark_rate": d.dark_rate,
+        "dead_time_s": d.dead_time_ns * 1e-9,
+        "efficiency": d.efficiency,
+        "rep_rate_hz": d.rep_rate_hz if pulsed else None,
+        "dark_probability": d.gate_dark_probability,
+    }
+    monitor = bench.source.monitor_fraction
+    if monitor is not None and reference is not None and reference > 0 and not pulsed:
+        m = measure_leak(
+            counts,
+            dwell_s,
+            reference=reference,
+            reference_kind="bright",
+            relative_efficiency=d.efficiency / monitor,
+            reference_dark_rate=d.dark_rate,
+            **common,
+        )
+    else:
+        m = measure_leak(
+            counts,
+            dwell_s,
+            reference_rate=bench.source.photon_rate * d.efficiency,
+            reference_measured=False,
+            **common,
+        )
     return MeasuredLeak(float(m.leak or 0.0), float(m.leak_low or 0.0), float(m.leak_high or 0.0))
 
 
@@ -287,7 +309,7 @@ class _Sweep:
             pointer, pointer_err = self.attempt(
                 f"point {p.index}: reading the pointer", p.index, lambda: reader.read(self.dwell_s)
             )
-        leak = measured_leak(self.bench, post, self.dwell_s)
+        leak = measured_leak(self.bench, post, self.dwell_s, ref)
         return LoggedPoint(
             idx=p.index,
             target=p.target,

@@ -192,3 +192,26 @@ def test_run_snapshot_keeps_in_memory_readings(tmp_path, bench, plan):
     assert snapshot.mounts["pre_qwp"].reading_deg == 45.25
     assert snapshot.mounts["analyzer"].offset_deg == 0.04
     assert "# Demo bench" in log.run(run).bench_toml  # comments kept
+
+
+def test_leak_is_normalised_by_the_reference_monitor(bench):
+    """With [source] monitor_fraction the leak is S / (R / f) per source photon: a source that
+    dims by half halves both channels and leaves the leak alone."""
+    from aligner.run.sweep import measured_leak
+
+    d = bench.detector
+    f = bench.source.monitor_fraction
+    dwell, leak_true = 1.0, 4e-4
+    for photon_rate in (4.0e6, 2.0e6):  # the file says 4e6; the source dims to 2e6
+        post = round(photon_rate * leak_true * d.efficiency + d.dark_rate)  # no dead time here
+        ref = round(photon_rate * f + d.dark_rate)
+        m = measured_leak(
+            dataclasses.replace(bench, detector=dataclasses.replace(d, dead_time_ns=0.0)),
+            post,
+            dwell,
+            ref,
+        )
+        assert m.low < leak_true < m.high
+        assert m.leak == pytest.approx(leak_true, rel=0.01)
+    nominal = measured_leak(bench, post, dwell)  # without the reference: the file's photon rate
+    assert nominal.leak == pytest.approx(leak_true / 2, rel=0.05)
