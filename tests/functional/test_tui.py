@@ -441,8 +441,12 @@ async def test_quit_during_a_sweep_pauses_it_first(bench, tmp_path):
             if app.screen.query_one("#sweep-points").row_count:
                 break
         await pilot.press("ctrl+q")
+        # the desk waits for the sweep to pause after its current point, then exits
+        for _ in range(200):
+            await pilot.pause(0.05)
+            if not app.backend.sweeping:
+                break
         await settle(pilot)
-        await pilot.pause(0.2)
     assert app.return_code == 0
     with RunLog(tmp_path / "runs.sqlite") as log:
         (run,) = log.runs()
