@@ -107,7 +107,7 @@ def register(sub: argparse._SubParsersAction) -> None:
 def _line(point: Any, done: int, total: int, mount: str) -> str:
     ratio = point.leak / point.predicted_leak if point.predicted_leak > 0 else float("nan")
     return (
-        f"{done:>4}/{total}  {mount} {point.reading_deg:9.4f} deg  imbalance "
+        f"#{point.idx:<3} ({done}/{total})  {mount} {point.reading_deg:9.4f} deg  imbalance "
         f"{point.imbalance_deg:+7.3f} deg  counts {point.counts:>7}  leak {point.leak:.3e} "
         f"[{point.leak_lo:.3e}, {point.leak_hi:.3e}]  predicted {point.predicted_leak:.3e}  "
         f"ratio {ratio:.2f}"

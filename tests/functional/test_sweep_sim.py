@@ -55,7 +55,7 @@ def test_quick_start_command(tmp_path):
     out = _cli("sweep", "demo", "--schedule", "amplification:5:60:8", "--db", str(db))
     assert out.returncode == 0, out.stderr
     assert out.stderr.count("laser safety officer") == 1 and "Traceback" not in out.stderr
-    lines = [line for line in out.stdout.splitlines() if "/8 " in line and "predicted" in line]
+    lines = [line for line in out.stdout.splitlines() if "/8)" in line and "predicted" in line]
     assert len(lines) == 8
     assert "complete" in out.stdout and "aligner log report 1" in out.stdout
     with RunLog(db) as log:
