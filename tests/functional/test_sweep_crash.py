@@ -26,7 +26,7 @@ SWEEP = [
     "0.01",
     "--realtime",
 ]
-ACK = re.compile(r"^\s*(\d+)/(\d+)\s")
+ACK = re.compile(r"^#(\d+)\s+\((\d+)/(\d+)\)")  # "#index (done/total)" of a logged point
 
 
 def _trial(db, kill_after, extra_delay):
@@ -45,7 +45,7 @@ def _trial(db, kill_after, extra_delay):
         if run_id is None and (m := re.match(r"run (\d+):", line)):
             run_id = int(m.group(1))
         if m := ACK.match(line):
-            acked.append(int(m.group(1)) - 1)  # done count -> index of the point just logged
+            acked.append(int(m.group(1)))  # the index of the point just logged
         if len(acked) >= kill_after:
             break
     time.sleep(extra_delay)
