@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import sys
+from functools import partial
 from typing import Any
 
 from .common import add_bench_argument, add_json_flag
@@ -174,17 +175,19 @@ def run(args: argparse.Namespace) -> int:
             if run_id is None:
                 run_id = start_run(log, bench, schedule, plan)
             options = SweepOptions(retries=args.retries)
+            sweep = partial(
+                run_sweep,
+                bench,
+                devices,
+                log,
+                run_id,
+                plan,
+                dwell_s=dwell,
+                settle_s=settle,
+                options=options,
+            )
             if args.json:
-                result = run_sweep(
-                    bench,
-                    devices,
-                    log,
-                    run_id,
-                    plan,
-                    dwell_s=dwell,
-                    settle_s=settle,
-                    options=options,
-                )
+                result = sweep()
             else:
                 console = Console(highlight=False, soft_wrap=True)
                 console.print(
@@ -207,17 +210,7 @@ def run(args: argparse.Namespace) -> int:
                         progress.update(task, completed=done)
                         sys.stdout.flush()
 
-                    result = run_sweep(
-                        bench,
-                        devices,
-                        log,
-                        run_id,
-                        plan,
-                        dwell_s=dwell,
-                        settle_s=settle,
-                        options=options,
-                        on_point=show,
-                    )
+                    result = sweep(on_point=show)
         finally:
             devices.close()
         points = log.points(run_id)
