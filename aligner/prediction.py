@@ -56,6 +56,7 @@ __all__ = [
     "SnrChoice",
     "amplification",
     "best_snr_imbalance",
+    "block_of",
     "detector_flags",
     "detector_rates",
     "find_null",
@@ -668,8 +669,12 @@ def prediction_block(
 ) -> dict[str, Any]:
     """The stable JSON block of ``aligner predict`` (plain floats; single readings only)."""
     r = _scalar_readings(bench, readings)
-    p = predict(bench, r)
-    lim = limits(bench, r)
+    return block_of(predict(bench, r), limits(bench, r))
+
+
+def block_of(p: Prediction, lim: Limits) -> dict[str, Any]:
+    """The JSON block of a scalar prediction and the bench's limits (see
+    :func:`prediction_block`)."""
     wv = complex(p.weak_value)
     return {
         "angles_deg": {k: float(v) for k, v in p.angles_deg.items()},

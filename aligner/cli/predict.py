@@ -48,23 +48,17 @@ def run(args: argparse.Namespace) -> int:
             raise InputError(
                 f"--set {name}={value:g}: outside the mount's travel [{low:g}, {high:g}] deg"
             )
-    from ..prediction import best_snr_imbalance, limits, predict, prediction_block
+    from ..prediction import best_snr_imbalance, block_of, limits, predict
 
-    block = prediction_block(bench, settings)
+    readings = {**bench.readings(), **settings}
+    prediction, lim = predict(bench, readings), limits(bench, readings)
+    block = block_of(prediction, lim)
     if args.json:
         emit_json(block)
         return 0
 
-    readings = {**bench.readings(), **settings}
-    diluted = float(predict(bench, settings).signal_fraction) * block["amplification"]["exact"]
-    _print_tables(
-        bench,
-        readings,
-        block,
-        diluted,
-        limits(bench, settings),
-        best_snr_imbalance(bench, settings),
-    )
+    diluted = float(prediction.signal_fraction) * block["amplification"]["exact"]
+    _print_tables(bench, readings, block, diluted, lim, best_snr_imbalance(bench, settings))
     return 0
 
 
