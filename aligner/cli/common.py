@@ -11,7 +11,23 @@ from typing import Any
 
 from ..errors import InputError
 
-__all__ = ["add_bench_argument", "add_json_flag", "emit_json", "parse_settings", "to_jsonable"]
+__all__ = [
+    "add_bench_argument",
+    "add_json_flag",
+    "emit_json",
+    "laser_safety",
+    "parse_settings",
+    "to_jsonable",
+]
+
+
+def laser_safety(advice: str) -> str:
+    """The laser-safety line of a command's help: local rules and the laser safety officer
+    first, then the command's own ``advice``."""
+    return (
+        "Laser safety: follow your local laser-safety rules and your laser safety officer; "
+        + advice
+    )
 
 
 def add_bench_argument(parser: argparse.ArgumentParser, *, optional: bool = False) -> None:

@@ -11,13 +11,10 @@ import argparse
 from collections.abc import Iterable
 from typing import Any
 
-from .common import add_json_flag
+from .common import add_json_flag, laser_safety
 
 KINDS = ("null", "waveplate", "leak", "coupling")
-SAFETY = (
-    "Laser safety: follow your local laser-safety rules and your laser safety officer; "
-    "never expose a single-photon detector to a bright beam."
-)
+SAFETY = laser_safety("never expose a single-photon detector to a bright beam.")
 
 
 def print_table(title: str, rows: Iterable[tuple[str, str]], notes: Iterable[str] = ()) -> None:

@@ -8,12 +8,9 @@ import argparse
 import math
 from typing import Any
 
-from .common import add_bench_argument, emit_json
+from .common import add_bench_argument, emit_json, laser_safety
 
-SAFETY = (
-    "Laser safety: follow your local laser-safety rules and your laser safety officer; "
-    "check the expected detector rate before exposing a single-photon detector."
-)
+SAFETY = laser_safety("check the expected detector rate before exposing a single-photon detector.")
 
 
 def register(sub: argparse._SubParsersAction) -> None:

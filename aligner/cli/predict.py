@@ -7,10 +7,16 @@ from __future__ import annotations
 import argparse
 from typing import Any
 
-from .common import add_bench_argument, add_json_flag, add_set_argument, emit_json, parse_settings
+from .common import (
+    add_bench_argument,
+    add_json_flag,
+    add_set_argument,
+    emit_json,
+    laser_safety,
+    parse_settings,
+)
 
-SAFETY = (
-    "Laser safety: follow your local laser-safety rules and your laser safety officer; "
+SAFETY = laser_safety(
     "block the beam before exposing a single-photon detector to a rate near its limit."
 )
 

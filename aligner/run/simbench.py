@@ -274,6 +274,12 @@ def open_devices(
         opened.append(device)
         return device
 
+    def optional(spec: str, simulated: Any, opener: Callable[..., Any], profile: str | None) -> Any:
+        """``none`` -> no device, ``sim`` -> the simulated bench's, else opened from ``spec``."""
+        if spec == "none":
+            return None
+        return simulated if spec == "sim" else keep(opener(spec, profile=profile))
+
     try:
         for name, m in bench.mounts.items():
             if m.driver != "sim":
@@ -287,20 +293,8 @@ def open_devices(
             if counter == "sim"
             else keep(open_counter(counter, profile=counter_profile))
         )
-        chosen_shutter = (
-            None
-            if shutter == "none"
-            else sim.shutter
-            if shutter == "sim"
-            else keep(open_shutter(shutter, profile=shutter_profile))
-        )
-        chosen_pointer = (
-            None
-            if pointer == "none"
-            else sim.pointer
-            if pointer == "sim"
-            else keep(open_pointer(pointer, profile=pointer_profile))
-        )
+        chosen_shutter = optional(shutter, sim.shutter, open_shutter, shutter_profile)
+        chosen_pointer = optional(pointer, sim.pointer, open_pointer, pointer_profile)
     except BaseException:
         for device in opened:
             device.close()
