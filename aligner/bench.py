@@ -451,7 +451,7 @@ def _mount(path: str, name: str, table: Any) -> Mount:
         raise r.error("reading_deg", f"{reading:g} is outside travel_deg {list(travel)}")
     driver = r.text("driver", "sim")
     if driver != "sim":
-        from drivers.open import check_spec
+        from aligner_drivers.open import check_spec
 
         try:
             check_spec(driver)

@@ -84,7 +84,7 @@ class Recipe:
 
 def bundled_dir() -> Path:
     """The folder of bundled recipes (the top-level ``recipes`` package)."""
-    import recipes
+    import aligner_recipes as recipes
 
     return Path(recipes.__file__).parent
 

@@ -1,56 +1,57 @@
 """Hardware adapters: device protocols, simulated, manual and line-protocol devices.
 
+Installed as ``aligner_drivers`` (the repository keeps it in the top-level ``drivers/`` folder).
 No optics here. The engine talks to devices only through the protocols in
-``drivers.protocols`` and opens them with ``open_mount`` / ``open_counter`` /
-``open_shutter`` / ``open_pointer``. Every device error is an ``aligner.errors.DeviceError``.
-The pty emulator (POSIX only) is imported on its own: ``from drivers.emulator import Emulator``.
+``aligner_drivers.protocols`` and opens them with ``open_mount`` / ``open_counter`` /
+``open_shutter`` / ``open_pointer`` from ``aligner_drivers.open``. Every device error is an
+``aligner.errors.DeviceError``. The names below are imported on first use, so importing the
+protocols does not import every driver (or pyserial).
 """
 
 from __future__ import annotations
 
-from .lineproto import PROFILE_DIR, DeviceProfile, LineChannel, SerialLike, load_profile
-from .manual import ManualCounter, ManualPointer
-from .open import check_spec, open_counter, open_mount, open_pointer, open_shutter
-from .protocols import MOUNT_CAPABILITIES, Counter, PointerReader, RotationMount, Shutter
-from .serial_counter import LineCounter
-from .serial_mount import LineMount
-from .serial_pointer import LinePointer
-from .serial_shutter import LineShutter
-from .sim import (
-    FunctionCounter,
-    MoveRecord,
-    SimMount,
-    SimPointer,
-    SimShutter,
-    poisson_counter,
-)
+import importlib
+from typing import Any
 
-__all__ = [
-    "MOUNT_CAPABILITIES",
-    "PROFILE_DIR",
-    "Counter",
-    "DeviceProfile",
-    "FunctionCounter",
-    "LineChannel",
-    "LineCounter",
-    "LineMount",
-    "LinePointer",
-    "LineShutter",
-    "ManualCounter",
-    "ManualPointer",
-    "MoveRecord",
-    "PointerReader",
-    "RotationMount",
-    "SerialLike",
-    "Shutter",
-    "SimMount",
-    "SimPointer",
-    "SimShutter",
-    "check_spec",
-    "load_profile",
-    "open_counter",
-    "open_mount",
-    "open_pointer",
-    "open_shutter",
-    "poisson_counter",
-]
+# public name -> submodule that defines it
+_LAZY = {
+    "MOUNT_CAPABILITIES": "protocols",
+    "Counter": "protocols",
+    "PointerReader": "protocols",
+    "RotationMount": "protocols",
+    "Shutter": "protocols",
+    "PROFILE_DIR": "lineproto",
+    "DeviceProfile": "lineproto",
+    "LineChannel": "lineproto",
+    "SerialLike": "lineproto",
+    "load_profile": "lineproto",
+    "ManualCounter": "manual",
+    "ManualPointer": "manual",
+    "check_spec": "open",
+    "open_counter": "open",
+    "open_mount": "open",
+    "open_pointer": "open",
+    "open_shutter": "open",
+    "LineCounter": "serial_counter",
+    "LineMount": "serial_mount",
+    "LinePointer": "serial_pointer",
+    "LineShutter": "serial_shutter",
+    "FunctionCounter": "sim",
+    "MoveRecord": "sim",
+    "SimMount": "sim",
+    "SimPointer": "sim",
+    "SimShutter": "sim",
+    "poisson_counter": "sim",
+}
+
+__all__ = sorted(_LAZY)
+
+
+def __getattr__(name: str) -> Any:
+    if name in _LAZY:
+        return getattr(importlib.import_module(f"{__name__}.{_LAZY[name]}"), name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def __dir__() -> list[str]:
+    return __all__

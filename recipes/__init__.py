@@ -1,1 +1,2 @@
-"""Bundled alignment recipes (TOML files in this folder); see aligner.recipes for the format."""
+"""Bundled alignment recipes (TOML files in this folder), installed as ``aligner_recipes``;
+see ``aligner.recipes`` for the format."""

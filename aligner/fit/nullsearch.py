@@ -22,7 +22,7 @@ from typing import Any, Protocol
 
 import numpy as np
 
-from drivers.protocols import Counter, RotationMount, Shutter
+from aligner_drivers.protocols import Counter, RotationMount, Shutter
 
 from ..bench import Bench
 from ..errors import GuardTrip, InputError

@@ -35,8 +35,8 @@ from typing import Any
 
 import numpy as np
 
-from drivers.open import open_counter, open_mount, open_pointer, open_shutter
-from drivers.protocols import Counter, PointerReader, RotationMount, Shutter
+from aligner_drivers.open import open_counter, open_mount, open_pointer, open_shutter
+from aligner_drivers.protocols import Counter, PointerReader, RotationMount, Shutter
 
 from ..bench import Bench, Element
 from ..errors import DeviceError, InputError

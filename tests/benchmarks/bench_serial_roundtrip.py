@@ -15,8 +15,8 @@ import time
 
 import serial
 
-from drivers import open_mount
-from drivers.emulator import Emulator
+from aligner_drivers import open_mount
+from aligner_drivers.emulator import Emulator
 
 EXCHANGES = 4
 

@@ -25,7 +25,7 @@ from aligner.run.log import RunLog
 from aligner.run.schedule import parse_schedule, plan_points
 from aligner.run.simbench import DeviceSet, open_devices
 from aligner.run.sweep import run_sweep, start_run
-from drivers.sim import poisson_counter
+from aligner_drivers.sim import poisson_counter
 
 TARGET_MS = 2.0
 N = 1000
@@ -58,8 +58,8 @@ def sweep_ms(physics: bool, durable: bool) -> float:
 
 
 def serial_round_trip_ms(n: int = 300) -> tuple[float, float]:
-    from drivers.emulator import Emulator
-    from drivers.open import open_mount
+    from aligner_drivers.emulator import Emulator
+    from aligner_drivers.open import open_mount
 
     with Emulator() as emu:
         mount = open_mount(emu.port, profile="example-mount", name="bench")

@@ -18,8 +18,15 @@ from dataclasses import dataclass
 import pytest
 
 from aligner.errors import DeviceError
-from drivers import LineCounter, LineMount, load_profile, open_counter, open_mount, open_shutter
-from drivers.emulator import Emulator
+from aligner_drivers import (
+    LineCounter,
+    LineMount,
+    load_profile,
+    open_counter,
+    open_mount,
+    open_shutter,
+)
+from aligner_drivers.emulator import Emulator
 
 REAL_PORT = os.environ.get("ALIGNER_TEST_PORT")
 REAL_PROFILE = os.environ.get("ALIGNER_TEST_PROFILE", "example-mount")

@@ -19,8 +19,8 @@ from aligner.errors import (
     Disconnected,
     InputError,
 )
-from drivers import LineCounter, LineMount, load_profile, open_counter, open_mount
-from drivers.emulator import Emulator, Faults
+from aligner_drivers import LineCounter, LineMount, load_profile, open_counter, open_mount
+from aligner_drivers.emulator import Emulator, Faults
 
 TIMEOUT_S = 0.1
 STALL_S = 0.15  # longer than one reply timeout, shorter than two

@@ -12,8 +12,8 @@ from aligner.run.log import RunLog
 from aligner.run.schedule import parse_schedule, plan_points
 from aligner.run.simbench import DeviceSet, SimBench
 from aligner.run.sweep import run_sweep, start_run
-from drivers.emulator import Emulator, Faults
-from drivers.open import open_counter, open_mount, open_shutter
+from aligner_drivers.emulator import Emulator, Faults
+from aligner_drivers.open import open_counter, open_mount, open_shutter
 
 pytestmark = pytest.mark.skipif(sys.platform == "win32", reason="pty emulator is POSIX only")
 

@@ -9,10 +9,10 @@ import pytest
 import serial
 
 from aligner.errors import BadReply, DeviceRefused, DeviceTimeout, Disconnected, InputError
-from drivers.lineproto import PROFILE_DIR, DeviceProfile, LineChannel, load_profile
-from drivers.serial_counter import LineCounter
-from drivers.serial_mount import LineMount
-from drivers.serial_pointer import LinePointer
+from aligner_drivers.lineproto import PROFILE_DIR, DeviceProfile, LineChannel, load_profile
+from aligner_drivers.serial_counter import LineCounter
+from aligner_drivers.serial_mount import LineMount
+from aligner_drivers.serial_pointer import LinePointer
 
 MOUNT_DATA = tomllib.loads((PROFILE_DIR / "example-mount.toml").read_text())
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import pytest
 
 from aligner.errors import Disconnected, InputError
-from drivers.manual import ManualCounter, ManualPointer
+from aligner_drivers.manual import ManualCounter, ManualPointer
 
 
 class Operator:

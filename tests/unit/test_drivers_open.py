@@ -5,7 +5,7 @@ from __future__ import annotations
 import pytest
 
 from aligner.errors import BadReply, Disconnected, InputError
-from drivers import (
+from aligner_drivers import (
     FunctionCounter,
     LineMount,
     ManualCounter,

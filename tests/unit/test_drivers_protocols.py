@@ -8,8 +8,8 @@ import sys
 
 import pytest
 
-import drivers
-from drivers import (
+import aligner_drivers as drivers
+from aligner_drivers import (
     Counter,
     DeviceProfile,
     FunctionCounter,
@@ -92,22 +92,26 @@ def test_a_counter_is_not_a_mount():
 
 
 def test_all_is_sorted_and_complete():
-    def ruff_order(name: str) -> tuple[int, str]:  # constants, then classes, then functions
-        return (0 if name.isupper() else 1 if name[0].isupper() else 2, name)
-
-    assert drivers.__all__ == sorted(drivers.__all__, key=ruff_order)
+    assert sorted(drivers.__all__) == drivers.__all__
     assert len(set(drivers.__all__)) == len(drivers.__all__)
     for name in drivers.__all__:
         assert getattr(drivers, name) is not None
-    public = {n for n in vars(drivers) if not n.startswith("_")} - {"annotations"}
-    modules = {n for n in public if inspect.ismodule(getattr(drivers, n))}
-    assert public - modules == set(drivers.__all__)
+    assert set(dir(drivers)) == set(drivers.__all__)
+
+
+def test_importing_the_protocols_imports_no_driver():
+    code = (
+        "import sys, aligner_drivers.protocols; "
+        "print(sorted(m for m in sys.modules if m.startswith(('aligner_drivers.', 'serial'))))"
+    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "['aligner_drivers.protocols']"
 
 
 def test_drivers_import_no_other_aligner_module_and_no_ui():
     code = (
-        "import sys, drivers, drivers.emulator; "
-        "bad = sorted(m for m in sys.modules if (m.startswith('aligner') and m not in "
+        "import sys, aligner_drivers.open, aligner_drivers.emulator; "
+        "bad = sorted(m for m in sys.modules if (m.split('.')[0] == 'aligner' and m not in "
         "('aligner', 'aligner.errors')) or m.split('.')[0] in ('textual', 'sympy', 'scipy'));"
         "print(bad)"
     )

@@ -10,7 +10,7 @@ import pytest
 from scipy import stats
 
 from aligner.errors import BadReply, DeviceError, Disconnected, InputError
-from drivers.sim import FunctionCounter, SimMount, SimPointer, SimShutter, poisson_counter
+from aligner_drivers.sim import FunctionCounter, SimMount, SimPointer, SimShutter, poisson_counter
 
 
 def test_positive_approach_leaves_element_at_drive():

@@ -106,8 +106,8 @@ def test_dependencies_point_one_way():
     for path in root.rglob("*.py"):
         part = path.relative_to(root).parts[0]
         for name in _imports(path):
-            if name.startswith("drivers"):
-                assert name in ("drivers", "drivers.open", "drivers.protocols"), (
+            if name.startswith("aligner_drivers"):
+                assert name in ("aligner_drivers.open", "aligner_drivers.protocols"), (
                     f"{path} imports {name}"
                 )
             if name.split(".")[0] == "textual":

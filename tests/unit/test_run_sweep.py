@@ -10,7 +10,7 @@ from aligner.run.log import RunLog
 from aligner.run.schedule import PlannedPoint, parse_schedule, plan_points
 from aligner.run.simbench import open_devices
 from aligner.run.sweep import SweepOptions, run_sweep, start_run
-from drivers.sim import FunctionCounter
+from aligner_drivers.sim import FunctionCounter
 
 
 @pytest.fixture(scope="module")
