@@ -11,16 +11,47 @@ Units and conventions, once for all drivers:
 Every method either does what it says or raises an ``aligner.errors.DeviceError`` subclass
 (or ``InputError`` for an argument out of range); none raises a pyserial or OS error.
 The classes are ``runtime_checkable``, so ``isinstance(dev, RotationMount)`` checks the shape.
+
+Optional parts a driver may add (the engine asks for them with ``isinstance``/``capabilities``):
+
+- :class:`Identifies`: ``identify()`` returns the identity string the device reports (model,
+  serial number, firmware), recorded with every run; "" when the device has no such query;
+- mount capability ``needs_home``: the axis must be homed after power-up before it accepts
+  moves; the engine homes it, with the shutter shut, when the device is opened;
+- shutter capability ``readback``: ``is_open()`` asks the device for its state rather than
+  repeating the last command, so the engine can confirm that the shutter is shut.
+
+The *kind* of a device (real, simulated or typed in by the operator) is not the driver's to
+say: the engine takes it from the spec the device was opened from.
 """
 
 from __future__ import annotations
 
 from typing import Protocol, runtime_checkable
 
-__all__ = ["MOUNT_CAPABILITIES", "Counter", "PointerReader", "RotationMount", "Shutter"]
+__all__ = [
+    "MOUNT_CAPABILITIES",
+    "SHUTTER_CAPABILITIES",
+    "Counter",
+    "Identifies",
+    "PointerReader",
+    "RotationMount",
+    "Shutter",
+]
 
 #: Optional mount features a driver may declare in ``RotationMount.capabilities``.
-MOUNT_CAPABILITIES = frozenset({"home", "stop", "readback", "status"})
+MOUNT_CAPABILITIES = frozenset({"home", "stop", "readback", "status", "needs_home"})
+#: Optional shutter features a driver may declare in ``Shutter.capabilities``.
+SHUTTER_CAPABILITIES = frozenset({"readback"})
+
+
+@runtime_checkable
+class Identifies(Protocol):
+    """A device that can say what it is."""
+
+    def identify(self) -> str:
+        """The identity string the device reports (model, serial number, firmware), or ""."""
+        ...
 
 
 @runtime_checkable
@@ -76,6 +107,9 @@ class Counter(Protocol):
 class Shutter(Protocol):
     """A beam shutter (or a detector gate used as one)."""
 
+    #: subset of ``SHUTTER_CAPABILITIES``.
+    capabilities: frozenset[str]
+
     def open(self) -> None:
         """Open the beam path; return when open."""
         ...
@@ -85,7 +119,8 @@ class Shutter(Protocol):
         ...
 
     def is_open(self) -> bool:
-        """True when the beam path is open."""
+        """True when the beam path is open, or may be: a shutter that cannot read back its
+        state answers from the last acknowledged command and says True when that is unsure."""
         ...
 
     def close(self) -> None:

@@ -14,6 +14,9 @@ class LineShutter:
     safe state) and ``is_open()`` reports the last state the device acknowledged.
     """
 
+    #: profiles have no shutter state query yet: ``is_open`` repeats the last acknowledged state
+    capabilities: frozenset[str] = frozenset()
+
     def __init__(self, channel: LineChannel, *, name: str | None = None) -> None:
         channel.profile.require("shutter_open", "shutter_shut", role="shutter")
         self.channel = channel

@@ -204,6 +204,8 @@ class SimMount(_Closable):
 class SimShutter(_Closable):
     """A simulated shutter; ``history`` lists every state it was put in (True = open)."""
 
+    capabilities = frozenset({"readback"})
+
     def __init__(self, name: str = "sim-shutter", *, start_open: bool = False) -> None:
         self.name = name
         self._open = bool(start_open)
