@@ -33,9 +33,11 @@ __all__ = [
     "Bench",
     "Coupling",
     "Detector",
+    "Device",
     "Element",
     "Mount",
     "Plate",
+    "Reference",
     "Simulation",
     "Source",
     "ensure_writable",
@@ -53,6 +55,10 @@ ELEMENT_TYPES = ("hwp", "qwp", "retarder", "polarizer", "rotator")
 NOMINAL_WAVES = {"hwp": 0.5, "qwp": 0.25}
 READOUTS = ("position", "momentum", "phase")
 DETECTOR_MODES = ("cw", "pulsed")
+#: Devices besides the mounts that a bench file declares under ``[devices.<role>]``.
+DEVICE_ROLES = ("counter", "shutter", "pointer")
+#: What the counter's second channel sees (``[reference] kind``).
+REFERENCE_KINDS = ("none", "monitor")
 INF = math.inf
 
 
@@ -88,18 +94,27 @@ class Element:
 
 @dataclass(frozen=True)
 class Source:
-    """The source polarizer and the photon rate leaving it (photons/s).
-
-    ``monitor_fraction``: counts in the reference channel per source photon (pick-off share
-    times monitor efficiency); when given, sweeps normalise measured leak rates by the
-    reference counts instead of the nominal ``photon_rate``, so source drift cancels.
-    """
+    """The source polarizer and the photon rate leaving it (photons/s)."""
 
     photon_rate: float
     angle_deg: float = 0.0
     mount: str | None = None
     extinction_ratio: float = INF
-    monitor_fraction: float | None = None
+
+
+@dataclass(frozen=True)
+class Reference:
+    """What the counter's second channel (the reference) sees.
+
+    ``kind``: ``"none"`` (no reference channel: measured leak rates are normalised by the
+    nominal ``photon_rate`` times the detector efficiency) or ``"monitor"`` (a pick-off of the
+    source ahead of the interferometer: ``fraction`` counts per source photon, so source drift
+    cancels). ``dark_rate`` (counts/s) is the reference detector's own dark rate.
+    """
+
+    kind: str = "none"
+    fraction: float | None = None
+    dark_rate: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -138,7 +153,11 @@ class Analyzer:
 
 @dataclass(frozen=True)
 class Detector:
-    """Single-photon detector. Rates in counts/s, dead time in ns, efficiency in (0, 1]."""
+    """Single-photon detector. Rates in counts/s, dead time in ns, efficiency in (0, 1].
+
+    ``safe_rate`` is infinite when the file does not state it: predictions work, but every
+    command that can expose the detector refuses to run (:meth:`require_safe_rate`).
+    """
 
     efficiency: float = 1.0
     dark_rate: float = 0.0
@@ -148,6 +167,36 @@ class Detector:
     rep_rate_hz: float | None = None
     gate_dark_probability: float = 0.0
     saturation_rate: float | None = None
+
+    def require_safe_rate(self, path: Path | str | None) -> float:
+        """``safe_rate`` (counts/s), or :class:`BenchFileError` when the file does not state it:
+        no command may expose the detector without a limit."""
+        if math.isfinite(self.safe_rate):
+            return self.safe_rate
+        raise BenchFileError(
+            str(path or "<bench>"),
+            "detector.safe_rate",
+            "is required before anything can expose the detector (sweeps, null searches, "
+            "recipes, moves from the desk): the count rate in counts/s the detector must never "
+            "see, from its data sheet, e.g. safe_rate = 1.5e6; predict and plan work without it",
+        )
+
+
+@dataclass(frozen=True)
+class Device:
+    """A device the bench opens besides its mounts (``[devices.<role>]``): the ``driver`` spec
+    (``sim``, ``manual``, a serial port or URL, a plug-in spec, or ``none``), its device
+    ``profile``, and whether the file ``declared`` it (an undeclared device is ``sim``)."""
+
+    role: str
+    driver: str = "sim"
+    profile: str | None = None
+    declared: bool = False
+
+    @property
+    def key(self) -> str:
+        """The bench-file key that declares it."""
+        return f"devices.{self.role}.driver"
 
 
 @dataclass(frozen=True)
@@ -166,6 +215,21 @@ class Mount:
     offset_err_deg: float = 0.0
     speed_deg_s: float = 20.0
     profile: str | None = None
+    declared: bool = False
+    readback_tol_deg: float | None = None
+
+    @property
+    def key(self) -> str:
+        """The bench-file key that declares its driver."""
+        return f"mounts.{self.name}.driver"
+
+    @property
+    def readback_tolerance_deg(self) -> float:
+        """Largest |read-back - commanded| (deg) a move may end with: ``readback_tol_deg`` when
+        the file states it, else resolution + backlash + repeatability."""
+        if self.readback_tol_deg is not None:
+            return self.readback_tol_deg
+        return self.resolution_deg + self.backlash_deg + self.repeatability_deg
 
     def element_angle_deg(self, reading_deg: Any) -> Any:
         """Element angle (deg) at a mount reading (deg); broadcasts over arrays."""
@@ -185,10 +249,10 @@ class Simulation:
     ``true_extinction``: true extinction ratio of the ``analyzer`` and/or ``source``;
     ``retardance_error_waves``: added to each plate's nominal or dispersion retardance (a
     calibrated ``retardance_waves`` in the file does not change the truth); ``seed`` for the
-    random draws.
+    random draws (None: a fresh seed for every run, recorded with it).
     """
 
-    seed: int = 2026
+    seed: int | None = None
     true_offset_deg: Mapping[str, float] = field(default_factory=dict)
     true_extinction: Mapping[str, float] = field(default_factory=dict)
     retardance_error_waves: float = 0.0
@@ -212,6 +276,10 @@ class Bench:
     phase_mount: str | None = None
     simulation: Simulation = field(default_factory=Simulation)
     name: str = ""
+    devices: Mapping[str, Device] = field(
+        default_factory=lambda: {role: Device(role) for role in DEVICE_ROLES}
+    )
+    reference: Reference = field(default_factory=Reference)
 
     def readings(self) -> dict[str, float]:
         """Current reading (deg) of every mount, as stored in the file."""
@@ -438,6 +506,7 @@ def _mount(path: str, name: str, table: Any) -> Mount:
         "offset_err_deg",
         "speed_deg_s",
         "profile",
+        "readback_tol_deg",
     )
     r = _Reader(path, key, table, allowed)
     sense = r.number("sense", 1.0)
@@ -449,14 +518,7 @@ def _mount(path: str, name: str, table: Any) -> Mount:
     reading = r.number("reading_deg", 0.0)
     if not travel[0] <= reading <= travel[1]:
         raise r.error("reading_deg", f"{reading:g} is outside travel_deg {list(travel)}")
-    driver = r.text("driver", "sim")
-    if driver != "sim":
-        from aligner_drivers.open import check_spec
-
-        try:
-            check_spec(driver)
-        except InputError as exc:
-            raise r.error("driver", str(exc)) from None
+    driver = _driver(r, manual=False, absent=False)
     return Mount(
         name=name,
         driver=driver,
@@ -470,6 +532,59 @@ def _mount(path: str, name: str, table: Any) -> Mount:
         offset_err_deg=r.number("offset_err_deg", 0.0, minimum=0.0),
         speed_deg_s=r.number("speed_deg_s", 20.0, above=0.0),
         profile=r.text("profile") if r.has("profile") else None,
+        declared=r.has("driver"),
+        readback_tol_deg=(
+            r.number("readback_tol_deg", above=0.0) if r.has("readback_tol_deg") else None
+        ),
+    )
+
+
+def _driver(r: _Reader, *, manual: bool, absent: bool) -> str:
+    """The ``driver`` spec of a table, checked without opening anything: ``sim`` (default),
+    ``manual`` (when ``manual``), ``none`` (when ``absent``) or any spec the drivers accept."""
+    from aligner_drivers.open import check_spec
+
+    driver = r.text("driver", "sim")
+    if driver == "none" and absent:
+        return driver
+    try:
+        check_spec(driver, manual=manual)
+    except InputError as exc:
+        extra = "; or none for no device" if absent else ""
+        raise r.error("driver", f"{exc}{extra}") from None
+    return driver
+
+
+def _devices(path: str, table: Mapping[str, Any]) -> dict[str, Device]:
+    """``[devices.counter]``, ``[devices.shutter]``, ``[devices.pointer]``: driver and profile."""
+    top = _Reader(path, "devices", table, DEVICE_ROLES)
+    out = {}
+    for role in DEVICE_ROLES:
+        r = _Reader(path, f"devices.{role}", top.table_of(role), ("driver", "profile"))
+        driver = _driver(r, manual=role != "shutter", absent=role != "counter")
+        profile = r.text("profile") if r.has("profile") else None
+        out[role] = Device(role, driver, profile, declared=r.has("driver"))
+    return out
+
+
+def _reference(path: str, table: Mapping[str, Any]) -> Reference:
+    r = _Reader(path, "reference", table, ("kind", "fraction", "dark_rate"))
+    kind = r.text("kind", "monitor" if r.has("fraction") else "none", REFERENCE_KINDS)
+    if kind == "monitor" and not r.has("fraction"):
+        raise r.error(
+            "fraction",
+            "is required with kind = 'monitor': reference-channel counts per source photon "
+            "(pick-off share x monitor efficiency), e.g. 6e-4",
+        )
+    if kind == "none" and (r.has("fraction") or r.has("dark_rate")):
+        raise r.error(
+            "fraction" if r.has("fraction") else "dark_rate",
+            "applies only to a reference channel; set kind = 'monitor' or remove it",
+        )
+    return Reference(
+        kind=kind,
+        fraction=r.number("fraction", above=0.0, maximum=1.0) if kind == "monitor" else None,
+        dark_rate=r.number("dark_rate", 0.0, minimum=0.0),
     )
 
 
@@ -575,7 +690,7 @@ def _simulation(path: str, table: Mapping[str, Any], mounts: Mapping[str, Any]) 
         path, "simulation.true_extinction", extinction_table, ("analyzer", "source")
     )
     return Simulation(
-        seed=r.integer("seed", 2026),
+        seed=r.integer("seed", 0) if r.has("seed") else None,
         true_offset_deg={name: offsets.number(name) for name in offsets_table},
         true_extinction={
             name: extinction.number(name, minimum=1.0, allow_inf=True) for name in extinction_table
@@ -596,6 +711,8 @@ _TOP_KEYS = (
     "analyzer",
     "detector",
     "mounts",
+    "devices",
+    "reference",
     "simulation",
 )
 
@@ -624,19 +741,19 @@ def parse_bench(doc: Mapping[str, Any], path: str = "<bench>") -> Bench:
             )
         return name
 
+    source_table = top.table_of("source")
+    if "monitor_fraction" in source_table:
+        raise BenchFileError(
+            path,
+            "source.monitor_fraction",
+            "has moved: write it as [reference] kind = 'monitor', fraction = ... (with the "
+            "reference detector's dark_rate)",
+        )
     sr = _Reader(
-        path,
-        "source",
-        top.table_of("source"),
-        ("angle_deg", "mount", "extinction_ratio", "photon_rate", "monitor_fraction"),
+        path, "source", source_table, ("angle_deg", "mount", "extinction_ratio", "photon_rate")
     )
     s_angle, s_mount = _angle_or_mount(sr, mounts)
-    monitor = (
-        sr.number("monitor_fraction", above=0.0, maximum=1.0)
-        if sr.has("monitor_fraction")
-        else None
-    )
-    source = Source(sr.number("photon_rate", above=0.0), s_angle, s_mount, _extinction(sr), monitor)
+    source = Source(sr.number("photon_rate", above=0.0), s_angle, s_mount, _extinction(sr))
 
     ar = _Reader(
         path,
@@ -671,6 +788,8 @@ def parse_bench(doc: Mapping[str, Any], path: str = "<bench>") -> Bench:
         mounts=mounts,
         simulation=_simulation(path, top.table_of("simulation"), mounts),
         name=top.text("name", ""),
+        devices=_devices(path, top.table_of("devices")),
+        reference=_reference(path, top.table_of("reference")),
     )
     used = {e.mount for e in (*bench.pre, *bench.post)} | {source.mount, analyzer.mount}
     for key in ("imbalance_mount", "phase_mount"):

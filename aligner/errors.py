@@ -11,20 +11,31 @@ wrong and what to do; the CLI prints it to stderr and exits with ``exit_code``.
     │   ├── RecipeError
     │   └── DataFileError           CSV and run-log input
     ├── InfeasibleTarget            a planner target the bench cannot reach (says the limit)
+    ├── StorageError                (exit 3) the run log could not be written (full disk ...)
     └── DeviceError                 (exit 3) raised only by drivers/, converted at the boundary
         ├── DeviceTimeout
         ├── BadReply
         ├── DeviceRefused           the controller answered with an error reply
         ├── Disconnected
+        ├── ReadbackMismatch        a mount read back other than it was sent to
         └── GuardTrip               the detector guard stopped a move or a count
+
+    KeyboardInterrupt
+    └── SignalInterrupt             SIGTERM or SIGHUP, handled like Ctrl-C (exit 128 + signal)
 
 Drivers convert pyserial and OS errors into ``DeviceError`` subclasses; nothing above the
 driver layer catches ``serial.SerialException`` or ``OSError`` from a device.
+
+Exit status of every command (:data:`EXIT_STATUS`): 0 success; 1 an internal error (a bug:
+please report it); 2 bad input or an infeasible request; 3 a device fault, a detector-guard
+stop or a run log that cannot be written; 130 Ctrl-C; 128 + N another signal N (SIGTERM 143,
+SIGHUP 129). A run that stops for any reason has its shutter shut and can be resumed.
 """
 
 from __future__ import annotations
 
 __all__ = [
+    "EXIT_STATUS",
     "AlignerError",
     "BadReply",
     "BenchFileError",
@@ -36,8 +47,21 @@ __all__ = [
     "GuardTrip",
     "InfeasibleTarget",
     "InputError",
+    "ReadbackMismatch",
     "RecipeError",
+    "SignalInterrupt",
+    "StorageError",
 ]
+
+#: Exit status of every command, by meaning (the README's table is generated from the same).
+EXIT_STATUS = {
+    0: "success",
+    1: "internal error (a bug; please report it with the output of --debug)",
+    2: "bad input, or a request the bench cannot meet",
+    3: "device fault, detector-guard stop or run log not writable (the run is resumable)",
+    130: "Ctrl-C (the run is resumable)",
+    143: "SIGTERM; 129 SIGHUP (the run is resumable)",
+}
 
 
 class AlignerError(Exception):
@@ -106,5 +130,29 @@ class Disconnected(DeviceError):
     """The port vanished or could not be opened."""
 
 
+class ReadbackMismatch(DeviceError):
+    """A mount read back a position other than the one it was sent to (beyond its stated
+    tolerance): wrong steps per degree, number format or sense in its profile, or a stall."""
+
+
 class GuardTrip(DeviceError):
     """The detector guard refused a move or stopped a count to protect the detector."""
+
+
+class StorageError(AlignerError):
+    """The run log could not be written (a full disk, a removed or read-only file)."""
+
+    exit_code = 3
+
+
+class SignalInterrupt(KeyboardInterrupt):
+    """SIGTERM or SIGHUP arrived: stop as for Ctrl-C. ``signum`` is the signal number."""
+
+    def __init__(self, signum: int) -> None:
+        self.signum = signum
+        super().__init__(f"signal {signum}")
+
+    @property
+    def exit_code(self) -> int:
+        """128 + the signal number (the shell's convention)."""
+        return 128 + self.signum

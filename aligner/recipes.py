@@ -28,7 +28,7 @@ from .errors import RecipeError
 
 if TYPE_CHECKING:
     from .bench import Bench
-    from .run.simbench import DeviceSet
+    from .run.station import Station
 
 __all__ = [
     "Recipe",
@@ -233,24 +233,24 @@ class _Runner:
         *,
         db: str | None,
         seed: int | None,
-        device_specs: Mapping[str, str | None],
+        overrides: Mapping[str, tuple[str, str | None]],
     ) -> None:
         self.bench, self.confirm, self.report = bench, confirm, report
-        self.db, self.seed, self.device_specs = db, seed, device_specs
-        self.devices: DeviceSet | None = None
+        self.db, self.seed, self.overrides = db, seed, overrides
+        self.station: Station | None = None
 
-    def devices_open(self) -> DeviceSet:
-        from .run.simbench import open_devices
+    def station_open(self) -> Station:
+        from .run.station import Station
 
-        if self.devices is None:
-            self.devices = open_devices(
-                self.bench, pointer="none", seed=self.seed, **self.device_specs
-            )
-        return self.devices
+        if self.station is None:
+            self.station = Station.open(self.bench, overrides=self.overrides, seed=self.seed)
+        else:
+            self.station.use_bench(self.bench)
+        return self.station
 
     def close(self) -> None:
-        if self.devices is not None:
-            self.devices.close()
+        if self.station is not None:
+            self.station.close()
 
     def apply(self, updates: Mapping[str, float]) -> None:
         from .bench import with_values
@@ -297,8 +297,7 @@ class _Runner:
         return text, {"settings": settings}
 
     def null(self, step: Step) -> tuple[str, dict[str, Any]]:
-        from .fit.nullsearch import search_null
-        from .run.guard import DetectorGuard
+        from .run.station import shutter_words
 
         name = step.args.get("mount", self.bench.imbalance_mount)
         if name not in self.bench.mounts:
@@ -306,43 +305,27 @@ class _Runner:
                 f"null step: the bench has no mount {name!r} (it has "
                 f"{', '.join(self.bench.mounts)})"
             )
-        devices = self.devices_open()
-        guard = DetectorGuard(self.bench, has_shutter=devices.shutter is not None)
-        result = search_null(
-            self.bench,
-            devices.mounts[name],
-            devices.counter,
-            guard,
-            mount_name=name,
-            shutter=devices.shutter,
-            dwell_s=float(step.args.get("dwell_s", 0.2)),
-        )
+        station = self.station_open()
+        result = station.null_search(name, dwell_s=float(step.args.get("dwell_s", 0.2)))
         if result.converged:
             self.apply(result.last_fit.bench_updates())
-        self.report(result.message)
-        return result.message, result.to_json()
+        text = (
+            f"{result.message}; null of {name} at {result.null_reading_deg:.4f} +/- "
+            f"{result.null_reading_err_deg:.4f} deg; {shutter_words(result.shutter)}"
+        )
+        self.report(text)
+        return text, result.to_json()
 
     def sweep(self, step: Step) -> tuple[str, dict[str, Any]]:
         from .run.log import RunLog
-        from .run.schedule import parse_schedule, plan_points
-        from .run.sweep import run_sweep, start_run
+        from .run.schedule import parse_schedule
 
         schedule = parse_schedule(
             step.args["schedule"], dwell_s=float(step.args.get("dwell_s", 1.0))
         )
-        points = plan_points(self.bench, schedule)
-        devices = self.devices_open()
+        station = self.station_open()
         with RunLog(self.db) as log:
-            run_id = start_run(log, self.bench, schedule, points)
-            result = run_sweep(
-                self.bench,
-                devices,
-                log,
-                run_id,
-                points,
-                dwell_s=schedule.dwell_s,
-                settle_s=schedule.settle_s,
-            )
+            result = station.start_sweep(log, schedule)
         text = (
             f"run {result.run_id}: {result.status}, {result.points_done} of "
             f"{result.points_total} points. {result.message}".strip()
@@ -364,22 +347,20 @@ def run_recipe(
     report: Report,
     db: str | None = None,
     seed: int | None = None,
-    device_specs: Mapping[str, str | None] | None = None,
+    overrides: Mapping[str, tuple[str, str | None]] | None = None,
 ) -> RecipeResult:
     """Run ``recipe`` on ``bench``: show its cautions, then each step in order.
 
     ``confirm(text)`` asks the operator (False stops the recipe); ``report(text)`` shows a
-    line. Engine steps use the bench's mounts (simulated ones for ``driver = "sim"``) and the
-    counter and shutter named in ``device_specs`` (keywords of
-    :func:`aligner.run.simbench.open_devices`: ``counter``, ``counter_profile``, ``shutter``,
-    ``shutter_profile``; default the simulated bench's); a
+    line. Engine steps use the bench's declared devices through one station (``overrides``
+    replace the counter, shutter or pointer: ``{"counter": (spec, profile)}``); a
     ``plan`` step with ``apply`` and a converged ``null`` step change the readings and offsets
     the following steps use, never the bench file. An engine error stops the recipe and is
     raised after the devices are closed and the steps so far are reported.
     """
     for caution in recipe.cautions:
         report(f"caution: {caution}")
-    runner = _Runner(bench, confirm, report, db=db, seed=seed, device_specs=device_specs or {})
+    runner = _Runner(bench, confirm, report, db=db, seed=seed, overrides=overrides or {})
     outcomes: list[StepOutcome] = []
     try:
         for index, step in enumerate(recipe.steps):

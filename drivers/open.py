@@ -42,7 +42,7 @@ import serial
 
 from aligner.errors import Disconnected, InputError
 
-from .lineproto import PORT_ERRORS, DeviceProfile, LineChannel, load_profile
+from .lineproto import PORT_ERRORS, PROFILE_DIR, DeviceProfile, LineChannel, load_profile
 from .manual import ManualCounter, ManualPointer
 from .protocols import Counter, PointerReader, RotationMount, Shutter
 from .serial_counter import LineCounter
@@ -51,7 +51,14 @@ from .serial_pointer import LinePointer
 from .serial_shutter import LineShutter
 from .sim import FunctionCounter, SimMount, SimPointer, SimShutter, poisson_counter
 
-__all__ = ["check_spec", "open_counter", "open_mount", "open_pointer", "open_shutter"]
+__all__ = [
+    "check_spec",
+    "open_counter",
+    "open_mount",
+    "open_pointer",
+    "open_shutter",
+    "profile_file",
+]
 
 _URL_SCHEMES = ("loop", "rfc2217", "socket", "spy")
 _ALLOWED_SPECS = (
@@ -186,6 +193,17 @@ def check_spec(spec: str, *, manual: bool = False) -> str:
         if close and ":" not in str(spec):
             raise InputError(f"{exc}; did you mean {close[0]!r}?") from None
         raise
+
+
+def profile_file(profile: str | Path, *, base: Path | None = None) -> Path | None:
+    """The file a device profile refers to: a path as given, else relative to the folder
+    ``base`` (a bench file's), else a shipped profile by name; None when none exists."""
+    candidates = [Path(profile)]
+    if base is not None and not Path(profile).is_absolute():
+        candidates.append(base / profile)
+    if not Path(profile).suffix:
+        candidates.append(PROFILE_DIR / f"{Path(profile).name}.toml")
+    return next((p for p in candidates if p.is_file()), None)
 
 
 def _options(

@@ -13,7 +13,10 @@ from ..errors import InputError
 
 __all__ = [
     "add_bench_argument",
+    "add_device_arguments",
     "add_json_flag",
+    "console",
+    "device_overrides",
     "emit_json",
     "laser_safety",
     "parse_settings",
@@ -37,6 +40,44 @@ def add_bench_argument(parser: argparse.ArgumentParser, *, optional: bool = Fals
         parser.add_argument("--bench", metavar="BENCH", help=help_text)
     else:
         parser.add_argument("bench", metavar="BENCH", help=help_text)
+
+
+def add_device_arguments(parser: argparse.ArgumentParser, roles: tuple[str, ...] = ()) -> None:
+    """``--counter SPEC`` / ``--shutter SPEC`` / ``--pointer SPEC`` and their ``--*-profile``:
+    overrides of the bench file's ``[devices.<role>]`` declarations (default: all three)."""
+    for role in roles or ("counter", "shutter", "pointer"):
+        extra = "" if role == "counter" else "; none: the bench has no " + role
+        manual = "" if role == "shutter" else ", manual"
+        parser.add_argument(
+            f"--{role}",
+            metavar="SPEC",
+            help=f"{role} to use instead of the bench file's [devices.{role}]: a port, URL, "
+            f"sim{manual} or a plug-in spec{extra}",
+        )
+        parser.add_argument(
+            f"--{role}-profile", metavar="PROFILE", help=f"device profile of the --{role}"
+        )
+
+
+def device_overrides(args: argparse.Namespace) -> dict[str, tuple[str, str | None]]:
+    """The ``--counter``/``--shutter``/``--pointer`` options given, as station overrides."""
+    out = {}
+    for role in ("counter", "shutter", "pointer"):
+        spec = getattr(args, role, None)
+        profile = getattr(args, f"{role}_profile", None)
+        if spec is None and profile is not None:
+            raise InputError(f"--{role}-profile needs --{role} (the device it describes)")
+        if spec is not None:
+            out[role] = (spec, profile)
+    return out
+
+
+def console(*, stderr: bool = False) -> Any:
+    """A Rich console for command output: no highlighting, no emoji codes (text from files and
+    devices may contain ``:name:``), long lines kept whole."""
+    from rich.console import Console
+
+    return Console(stderr=stderr, highlight=False, emoji=False, soft_wrap=True)
 
 
 def add_json_flag(parser: argparse.ArgumentParser) -> None:

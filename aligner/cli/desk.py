@@ -35,5 +35,8 @@ def run(args: argparse.Namespace) -> int:
     from ..tui.app import make_app
 
     app = make_app(args.bench, db=args.db, realtime=True)
-    app.run()
+    try:
+        app.run()
+    finally:  # a signal or an error ends the desk too: pause a sweep, shut the shutter
+        app.backend.shutdown()
     return int(app.return_code or 0)

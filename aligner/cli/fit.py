@@ -217,7 +217,7 @@ def run(args: argparse.Namespace) -> int:
     doc["written"] = dict(updates) if written else {}
     if args.json:
         emit_json(doc)
-        return 0 if result.fit.success else 1
+        return 0 if result.fit.success else 2
     notes = [
         result.fit.warning,
         doc["mount_basis"],
@@ -241,4 +241,4 @@ def run(args: argparse.Namespace) -> int:
         )
         notes.append(f"nothing written: {why}")
     print_table(f"{args.kind} fit of {label}", _rows(args.kind, doc), [n for n in notes if n])
-    return 0 if result.fit.success else 1
+    return 0 if result.fit.success else 2

@@ -1,6 +1,8 @@
 """Find the crossed reading of a mount in closed loop (coarse scan, Poisson
-fit, backlash-aware move, finer scans) with the bench's mounts and counter, under the detector
-guard. Mounts with 'driver = "sim"' and '--counter sim' use the simulated bench.
+fit, backlash-aware move, finer scans) with the bench's declared devices, under the detector
+guard; the shutter is shut when the search ends, however it ends. Devices declared "sim" use
+the simulated bench. Exit status: 0 converged; 2 bad input or no convergence; 3 a device fault
+or a guard stop; 130 Ctrl-C.
 """
 
 from __future__ import annotations
@@ -8,7 +10,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from .common import add_bench_argument, add_json_flag
+from .common import add_bench_argument, add_device_arguments, add_json_flag
 from .fit import SAFETY
 
 
@@ -19,16 +21,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     add_bench_argument(p)
     p.add_argument("--mount", metavar="M", help="mount to null (default: the analyzer's)")
-    p.add_argument(
-        "--counter",
-        default="sim",
-        metavar="SPEC",
-        help="counter spec (default: sim, the simulated bench)",
-    )
-    p.add_argument("--counter-profile", metavar="NAME", help="line-protocol profile")
-    p.add_argument(
-        "--shutter", default="sim", metavar="SPEC", help="shutter spec, or 'none' (default: sim)"
-    )
+    add_device_arguments(p, ("counter", "shutter"))
     p.add_argument("--dwell", type=float, default=0.2, metavar="S", help="gate per point (s)")
     p.add_argument(
         "--span",
@@ -39,7 +32,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument("--points", type=int, default=21, help="points per scan (default 21)")
     p.add_argument("--rounds", type=int, default=8, help="most scan-and-fit rounds (default 8)")
-    p.add_argument("--seed", type=int, help="seed of the simulated bench")
+    p.add_argument("--seed", type=int, help="seed of the simulated devices (default: fresh)")
     p.add_argument(
         "--write",
         action="store_true",
@@ -53,10 +46,8 @@ def run(args: argparse.Namespace) -> int:
     """Run the search and report."""
     from ..bench import ensure_writable, load_bench, write_values
     from ..errors import InputError
-    from ..fit.nullsearch import search_null
-    from ..run.guard import DetectorGuard
-    from ..run.simbench import open_devices
-    from .common import emit_json
+    from ..run.station import Station, shutter_words
+    from .common import device_overrides, emit_json
     from .fit import print_table
 
     bench = load_bench(args.bench)
@@ -67,39 +58,26 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(
             f"--mount {name!r}: no such mount; the bench has: {', '.join(bench.mounts)}"
         )
+    bench.detector.require_safe_rate(bench.path)
     if not args.json:
         print(SAFETY, file=sys.stderr)
-    devices = open_devices(
-        bench,
-        counter=args.counter,
-        counter_profile=args.counter_profile,
-        shutter=args.shutter,
-        pointer="none",
-        seed=args.seed,
-    )
-    try:
-        guard = DetectorGuard(bench, has_shutter=devices.shutter is not None)
-        result = search_null(
-            bench,
-            devices.mounts[name],
-            devices.counter,
-            guard,
-            mount_name=name,
-            shutter=devices.shutter,
+    overrides = {"pointer": ("none", None), **device_overrides(args)}
+    with Station.open(bench, overrides=overrides, seed=args.seed) as station:
+        result = station.null_search(
+            name,
             dwell_s=args.dwell,
             span_deg=args.span,
             points=args.points,
             max_rounds=args.rounds,
         )
-    finally:
-        devices.close()
+        shutter = shutter_words(result.shutter)
     updates = result.last_fit.bench_updates()
     if args.write and result.converged:
         write_values(bench.path, updates)
     doc = {**result.to_json(), "written": updates if args.write and result.converged else {}}
     if args.json:
         emit_json(doc)
-        return 0 if result.converged else 1
+        return 0 if result.converged else 2
     rows = [
         (
             "null reading",
@@ -112,6 +90,7 @@ def run(args: argparse.Namespace) -> int:
         ),
         ("rounds", str(result.rounds)),
         ("counter reads", str(result.counter_reads)),
+        ("shutter", shutter),
     ]
     notes = [result.message]
     if doc["written"]:
@@ -122,4 +101,4 @@ def run(args: argparse.Namespace) -> int:
     elif args.write:
         notes.append("nothing written: the search did not converge")
     print_table(f"null search of {name}", rows, notes)
-    return 0 if result.converged else 1
+    return 0 if result.converged else 2

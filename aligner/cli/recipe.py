@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from .common import add_json_flag
+from .common import add_device_arguments, add_json_flag
 
 SAFETY = (
     "Safety: recipes move mounts that can send a bright beam onto the detector. Follow your "
@@ -38,13 +38,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     run_p.add_argument("--db", metavar="FILE", help="run-log file for sweep steps")
     run_p.add_argument("--seed", metavar="N", type=int, help="seed of the simulated bench")
-    for device in ("counter", "shutter"):
-        run_p.add_argument(
-            f"--{device}", metavar="SPEC", default="sim", help=f"{device} device spec (default sim)"
-        )
-        run_p.add_argument(
-            f"--{device}-profile", metavar="PROFILE", help=f"device profile of a serial {device}"
-        )
+    add_device_arguments(run_p, ("counter", "shutter"))
     add_json_flag(run_p)
     parser.set_defaults(handler=run)
 
@@ -104,14 +98,12 @@ def _run_recipe(args: argparse.Namespace, recipe: object) -> int:
     from ..bench import load_bench
     from ..errors import InputError
     from ..recipes import run_recipe
-    from .common import emit_json
+    from ..run.devices import choose_devices
+    from .common import device_overrides, emit_json
 
     bench = load_bench(args.bench)
-    simulated = (
-        all(m.driver == "sim" for m in bench.mounts.values())
-        and args.counter == "sim"
-        and args.shutter in ("sim", "none")
-    )
+    overrides = device_overrides(args)
+    simulated = all(c.kind in ("simulated", "absent") for c in choose_devices(bench, overrides))
     if args.yes and not simulated:
         raise InputError(
             "--yes is only for simulated benches; at a real bench confirm each check yourself"
@@ -124,12 +116,6 @@ def _run_recipe(args: argparse.Namespace, recipe: object) -> int:
         if not args.json:
             print(text, flush=True)
 
-    specs = {
-        "counter": args.counter,
-        "counter_profile": args.counter_profile,
-        "shutter": args.shutter,
-        "shutter_profile": args.shutter_profile,
-    }
     result = run_recipe(
         recipe,
         bench,
@@ -137,7 +123,7 @@ def _run_recipe(args: argparse.Namespace, recipe: object) -> int:
         report=report,
         db=args.db,
         seed=args.seed,
-        device_specs=specs,
+        overrides=overrides,
     )
     if args.json:
         emit_json(
@@ -154,4 +140,4 @@ def _run_recipe(args: argparse.Namespace, recipe: object) -> int:
         )
     else:
         print(result.message)
-    return 0 if result.completed else 1
+    return 0 if result.completed else 2

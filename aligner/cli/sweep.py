@@ -4,10 +4,9 @@ from __future__ import annotations
 
 import argparse
 import sys
-from functools import partial
 from typing import Any
 
-from .common import add_bench_argument, add_json_flag
+from .common import add_bench_argument, add_device_arguments, add_json_flag
 
 SAFETY = (
     "Safety: lasers and single-photon detectors can hurt people and equipment. Follow your "
@@ -22,13 +21,16 @@ schedule forms (imbalance in deg, positive on the high-reading side of the null)
   list:V1,V2,...              explicit imbalances, e.g. list:0.3,0.6,1.2
   outback:START:STOP:N        N imbalances out and the same N back (hysteresis check)
 
-Devices: each mount opens from its bench entry (driver = "sim", a serial port or URL with
-profile = ...); --counter/--shutter/--pointer take the same kind of spec. With "sim" devices
-the counts come from the physics model at the simulated mounts' true angles, on simulated
-time (no waiting unless --realtime).
+Devices: every device opens from its declaration in the bench file (each mount's driver,
+[devices.counter], [devices.shutter], [devices.pointer]); --counter/--shutter/--pointer
+override those with a spec of the same kind. A bench with any real device must declare every
+device (driver = "sim" simulates one on purpose). With "sim" devices the counts come from the
+physics model at the simulated mounts' true angles, on simulated time (no waiting unless
+--realtime), and the run is labelled SIMULATED everywhere.
 
-Exit status: 0 complete, 3 paused by a device fault or the detector guard (resumable with
---resume RUN), 130 paused by Ctrl-C, 2 bad input.
+Exit status: 0 complete; 2 bad input; 3 paused by a device fault, the detector guard or a
+run log that cannot be written; 130 Ctrl-C; 143 SIGTERM, 129 SIGHUP. A paused run has its
+shutter shut and resumes with --resume RUN.
 """
 
 
@@ -71,18 +73,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         type=int,
         help="continue an interrupted run (its bench snapshot and schedule)",
     )
-    for device in ("counter", "shutter", "pointer"):
-        parser.add_argument(
-            f"--{device}",
-            metavar="SPEC",
-            default="sim",
-            help=f"{device} device spec (default sim"
-            + ("" if device == "counter" else "; none for no " + device)
-            + ")",
-        )
-        parser.add_argument(
-            f"--{device}-profile", metavar="PROFILE", help=f"device profile of a serial {device}"
-        )
+    add_device_arguments(parser)
     parser.add_argument(
         "--retries",
         metavar="N",
@@ -99,34 +90,40 @@ def register(sub: argparse._SubParsersAction) -> None:
         "--seed",
         metavar="N",
         type=int,
-        help="seed of the simulated bench (default: simulation.seed)",
+        help="seed of the simulated devices (default: [simulation] seed, else a fresh one; "
+        "the seed is logged with the run)",
     )
     add_json_flag(parser)
     parser.set_defaults(handler=run)
 
 
 def _line(point: Any, done: int, total: int, mount: str) -> str:
-    ratio = point.leak / point.predicted_leak if point.predicted_leak > 0 else float("nan")
+    if point.leak is None:
+        measured = f"leak -- ({point.flag})"
+        ratio = ""
+    else:
+        ratio = point.leak / point.predicted_leak if point.predicted_leak > 0 else float("nan")
+        measured = (
+            f"leak {point.leak:.3e} [{point.leak_lo:.3e}, {point.leak_hi:.3e}]  predicted "
+            f"{point.predicted_leak:.3e}"
+        )
+        ratio = f"  ratio {ratio:.2f}"
     return (
         f"#{point.idx:<3} ({done}/{total})  {mount} {point.reading_deg:9.4f} deg  imbalance "
-        f"{point.imbalance_deg:+7.3f} deg  counts {point.counts:>7}  leak {point.leak:.3e} "
-        f"[{point.leak_lo:.3e}, {point.leak_hi:.3e}]  predicted {point.predicted_leak:.3e}  "
-        f"ratio {ratio:.2f}"
+        f"{point.imbalance_deg:+7.3f} deg  counts {point.counts:>7}  {measured}{ratio}"
     )
 
 
 def run(args: argparse.Namespace) -> int:
     """Run (or resume) a sweep."""
-    from rich.console import Console
-    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn
-
     from ..bench import load_bench
     from ..errors import InputError
     from ..run.log import RunLog
-    from ..run.schedule import parse_schedule, plan_points
-    from ..run.simbench import open_devices
-    from ..run.sweep import SweepOptions, resume_plan, run_sweep, start_run
-    from .common import emit_json
+    from ..run.schedule import parse_schedule
+    from ..run.station import Station, StationOptions
+    from ..text import safe_text
+    from .common import console as make_console
+    from .common import device_overrides, emit_json
 
     if (args.schedule is None) == (args.resume is None):
         raise InputError(
@@ -134,129 +131,94 @@ def run(args: argparse.Namespace) -> int:
         )
     if args.retries < 0:
         raise InputError(f"--retries must be 0 or more, got {args.retries}")
-    Console(stderr=True).print(SAFETY, style="yellow", highlight=False)
-    devices_bench = load_bench(args.bench)
-    simulated = (
-        all(m.driver == "sim" for m in devices_bench.mounts.values())
-        and args.counter == "sim"
-        and args.shutter in ("sim", "none")
-        and args.pointer in ("sim", "none")
-    )
-    # with real devices every point is synced to disk; a simulation need not outlive power cuts
-    with RunLog(args.db, durable=not simulated) as log:
-        if args.resume is not None:
-            record = log.run(args.resume)
-            if record.status == "complete":
-                raise InputError(f"run {record.id} is already complete ({record.points} points)")
-            bench, plan = resume_plan(record)
-            bench = _resume_bench(bench, devices_bench, record)
-            dwell, settle = record.dwell_s, record.settle_s
-            run_id = record.id
-        else:
-            schedule = parse_schedule(
-                args.schedule, repeats=args.repeats, dwell_s=args.dwell, settle_s=args.settle
-            )
-            bench = devices_bench
-            plan = plan_points(bench, schedule)
-            dwell, settle = schedule.dwell_s, schedule.settle_s
-            run_id = None
-        devices = open_devices(
-            devices_bench,
-            counter=args.counter,
-            counter_profile=args.counter_profile,
-            shutter=args.shutter,
-            shutter_profile=args.shutter_profile,
-            pointer=args.pointer,
-            pointer_profile=args.pointer_profile,
-            realtime=args.realtime,
-            seed=args.seed,
+    bench = load_bench(args.bench)
+    bench.detector.require_safe_rate(bench.path)
+    schedule = None
+    if args.schedule is not None:
+        schedule = parse_schedule(
+            args.schedule, repeats=args.repeats, dwell_s=args.dwell, settle_s=args.settle
         )
-        try:
-            if run_id is None:
-                run_id = start_run(log, bench, schedule, plan)
-            options = SweepOptions(retries=args.retries)
-            sweep = partial(
-                run_sweep,
-                bench,
-                devices,
-                log,
-                run_id,
-                plan,
-                dwell_s=dwell,
-                settle_s=settle,
-                options=options,
-            )
-            if args.json:
-                result = sweep()
-            else:
-                console = Console(highlight=False, soft_wrap=True)
-                console.print(
-                    f"run {run_id}: {len(plan)} points on {bench.name or args.bench}, "
-                    f"dwell {dwell:g} s, log {log.path}"
+    make_console(stderr=True).print(SAFETY, style="yellow")
+    console = make_console(stderr=args.json)
+    station = Station.open(
+        bench,
+        overrides=device_overrides(args),
+        realtime=args.realtime,
+        seed=args.seed,
+        options=StationOptions(retries=args.retries),
+    )
+    simulated = station.provenance.kinds != {"real"}
+    with station, RunLog(args.db, durable=not simulated) as log:
+        progress = _Progress(console, bench.imbalance_mount, log, station, quiet=args.json)
+        with progress:
+            if schedule is not None:
+                result = station.start_sweep(
+                    log, schedule, on_start=progress.start, on_point=progress.point
                 )
-                with Progress(
-                    TextColumn("sweep"),
-                    BarColumn(),
-                    MofNCompleteColumn(),
-                    console=console,
-                    transient=True,
-                ) as progress:
-                    task = progress.add_task(
-                        "sweep", total=len(plan), completed=len(log.done_indices(run_id))
-                    )
-
-                    def show(point: Any, done: int, total: int) -> None:
-                        progress.console.print(_line(point, done, total, bench.imbalance_mount))
-                        progress.update(task, completed=done)
-                        sys.stdout.flush()
-
-                    result = sweep(on_point=show)
-        finally:
-            devices.close()
-        points = log.points(run_id)
+            else:
+                result = station.resume_sweep(
+                    log, args.resume, on_start=progress.start, on_point=progress.point
+                )
+        record, points = log.run(result.run_id), log.points(result.run_id)
         db_path = log.path
     if args.json:
         emit_json(
             {
-                "run": result.run_id,
-                "status": result.status,
-                "points_done": result.points_done,
-                "points_total": result.points_total,
-                "reason": result.reason,
-                "message": result.message,
+                **result.to_json(),
                 "db": str(db_path),
+                "data": record.data_label,
                 "points": [_point_json(p) for p in points],
             }
         )
     else:
-        _summary(console, result, points, args, db_path)
-    if result.status == "complete":
-        return 0
-    if not args.json:
+        for note in result.notes:
+            make_console(stderr=True).print(f"note: {safe_text(note)}", style="yellow")
+        _summary(console, result, record, points, args, db_path)
+    if result.status != "complete" and not args.json:
         print(f"aligner sweep: paused: {result.message}", file=sys.stderr)
-    return 130 if result.reason == "interrupt" else 3
+    return result.exit_code
 
 
-def _resume_bench(logged: Any, given: Any, record: Any) -> Any:
-    """The bench a resumed run continues with: the one logged at its start (so predictions stay
-    comparable), but never with a laxer detector limit than the bench file given now."""
-    from dataclasses import replace
+class _Progress:
+    """The live lines and the progress bar of a sweep in the terminal (silent with --json)."""
 
-    from rich.console import Console
+    def __init__(self, console: Any, mount: str, log: Any, station: Any, *, quiet: bool) -> None:
+        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn
 
-    from ..bench import snapshot_text
+        self.console, self.mount, self.log, self.station = console, mount, log, station
+        self.quiet = quiet
+        self.bar = Progress(
+            TextColumn("sweep"), BarColumn(), MofNCompleteColumn(), console=console, transient=True
+        )
+        self.task: Any = None
 
-    if snapshot_text(given) == record.bench_toml:
-        return logged
-    safe = min(logged.detector.safe_rate, given.detector.safe_rate)
-    Console(stderr=True).print(
-        f"note: {given.path} differs from the bench logged with run {record.id}; the run "
-        f"continues with the logged bench, and the detector guard uses the lower safe_rate of "
-        f"the two ({safe:.3g} counts/s).",
-        style="yellow",
-        highlight=False,
-    )
-    return replace(logged, detector=replace(logged.detector, safe_rate=safe))
+    def __enter__(self) -> _Progress:
+        if not self.quiet:
+            self.bar.start()
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.bar.stop()
+
+    def start(self, run_id: int, plan: Any) -> None:
+        from ..text import safe_text
+
+        if self.quiet:
+            return
+        kinds = ", ".join(sorted(self.station.provenance.kinds))
+        self.console.print(
+            f"run {run_id}: {len(plan)} points on {safe_text(self.station.bench.name or '')}, "
+            f"devices: {kinds}, log {safe_text(str(self.log.path))}"
+        )
+        done = len(self.log.done_indices(run_id))
+        self.task = self.bar.add_task("sweep", total=len(plan), completed=done)
+
+    def point(self, point: Any, done: int, total: int) -> None:
+        if self.quiet:
+            return
+        self.bar.console.print(_line(point, done, total, self.mount))
+        self.bar.update(self.task, completed=done)
+        sys.stdout.flush()
 
 
 def _point_json(p: Any) -> dict[str, Any]:
@@ -271,6 +233,7 @@ def _point_json(p: Any) -> dict[str, Any]:
         "leak": p.leak,
         "leak_lo": p.leak_lo,
         "leak_hi": p.leak_hi,
+        "flag": p.flag,
         "predicted_leak": p.predicted_leak,
         "predicted_rate": p.predicted_rate,
         "imbalance_deg": p.imbalance_deg,
@@ -280,28 +243,43 @@ def _point_json(p: Any) -> dict[str, Any]:
 
 
 def _summary(
-    console: Any, result: Any, points: list[Any], args: argparse.Namespace, db_path: Any
+    console: Any,
+    result: Any,
+    record: Any,
+    points: list[Any],
+    args: argparse.Namespace,
+    db_path: Any,
 ) -> None:
     import numpy as np
     from rich.table import Table
 
-    table = Table(title=f"run {result.run_id}: {result.status}", show_header=False)
+    from ..run.station import shutter_words
+    from ..text import safe_text
+
+    table = Table(title=f"run {result.run_id}: {result.status} ({record.data_label})")
+    table.show_header = False
     table.add_row("points", f"{result.points_done} of {result.points_total}")
+    measured = [p for p in points if p.leak is not None and p.predicted_leak > 0]
     if points:
-        ratio = np.array([p.leak / p.predicted_leak for p in points if p.predicted_leak > 0])
         lo = min(p.imbalance_deg for p in points)
         hi = max(p.imbalance_deg for p in points)
         table.add_row("imbalance (predicted at read-back)", f"{lo:+.3f} to {hi:+.3f} deg")
-        if ratio.size:
-            spread = f"median {np.median(ratio):.3g} (range {ratio.min():.3g}-{ratio.max():.3g})"
-            table.add_row("measured / predicted leak", spread)
-    table.add_row("run log", str(db_path))
+    if measured:
+        ratio = np.array([p.leak / p.predicted_leak for p in measured])
+        spread = f"median {np.median(ratio):.3g} (range {ratio.min():.3g}-{ratio.max():.3g})"
+        table.add_row("measured / predicted leak", spread)
+    flagged = len(points) - len(measured)
+    if flagged:
+        table.add_row("points without a leak rate", f"{flagged} (see their flags: log show)")
+    table.add_row("shutter", shutter_words(result.shutter))
+    table.add_row("run log", safe_text(str(db_path)))
     console.print(table)
-    db = f" --db {args.db}" if args.db else ""
+    db = f" --db {safe_text(args.db)}" if args.db else ""
+    bench = safe_text(args.bench)
     if result.status == "complete":
         console.print(
             f"next: aligner log report {result.run_id} --out DIR{db}  (summary and "
             "plot for the lab notebook)"
         )
     else:
-        console.print(f"resume: aligner sweep {args.bench} --resume {result.run_id}{db}")
+        console.print(f"resume: aligner sweep {bench} --resume {result.run_id}{db}")

@@ -88,11 +88,14 @@ def _check(path: str, row: int, name: str, text: str, spec: Column) -> float:
 
 
 def _read_table(path: str | Path) -> tuple[str, list[str], list[list[str]]]:
-    """The file's name, its header row (stripped cells) and its non-empty data rows."""
+    """The file's name, its header row (stripped cells) and its non-empty data rows; lines
+    starting with ``#`` (e.g. the header comments of ``aligner log export``) and a byte-order
+    mark are skipped."""
     name = str(path)
     try:
-        with open(path, newline="", encoding="utf-8") as handle:
-            rows = [r for r in csv.reader(handle) if any(cell.strip() for cell in r)]
+        with open(path, newline="", encoding="utf-8-sig") as handle:
+            lines = (line for line in handle if not line.lstrip().startswith("#"))
+            rows = [r for r in csv.reader(lines) if any(cell.strip() for cell in r)]
     except FileNotFoundError:
         raise DataFileError(f"{name}: file not found (give the path of a CSV file)") from None
     except (OSError, UnicodeDecodeError, csv.Error) as exc:

@@ -3,34 +3,42 @@
 Tables:
 
 ``runs``
-    ``id``, ``status`` (``running``, ``interrupted``, ``complete``), ``bench_name``,
+    ``id``, ``kind`` (``sweep``; other kinds of run share the table), ``status`` (``running``,
+    ``interrupted``, ``complete``), ``bench_name``,
     ``bench_path``, ``bench_toml`` (the bench file's text: a snapshot the run can be resumed and
     re-analysed from), ``schedule`` (the one-word spec), ``plan_json`` (the planned points with
     their readings, deg), ``dwell_s``, ``settle_s``, ``repeats``, ``imbalance_mount``,
-    ``software_version``, ``started_utc``, ``ended_utc``, ``message``.
+    ``software_version``, ``started_utc``, ``ended_utc``, ``message``, ``provenance_json``
+    (what every device was: :class:`aligner.run.station.Provenance`, with the bench file's
+    hash and the simulation's seed).
 ``points``
     one row per measured point, key (``run_id``, ``idx``) so a resumed run cannot duplicate a
     point: ``target``, ``commanded_json`` (the readings actually commanded, deg: the plan's,
     or a guard's equivalent reading) / ``readback_json`` (mount -> reading, deg),
     ``reading_deg`` (read-back of the imbalance mount, deg), ``counts`` (post-selected),
     ``reference`` (reference port, NULL with one channel), ``dwell_s``, ``leak`` / ``leak_lo`` /
-    ``leak_hi`` (measured leak rate per incident photon and its interval), ``predicted_leak``,
+    ``leak_hi`` (measured leak rate per incident photon and its interval; NULL when the counts
+    give none, ``flag`` then says why), ``predicted_leak``,
     ``predicted_rate`` (counts/s at the read-back readings, dead time included),
     ``imbalance_deg`` (predicted at the read-back), ``pointer`` / ``pointer_err`` (pointer
-    units, NULL without a pointer channel), ``started_utc``, ``ended_utc``.
+    units, NULL without a pointer channel), ``started_utc``, ``ended_utc``, ``flag``.
 ``events``
-    ``run_id``, ``idx`` (point, may be NULL), ``kind`` (``fault``, ``guard``, ``pause``,
-    ``resume``, ``note``), ``message``, ``t_utc``.
+    ``run_id``, ``idx`` (point, may be NULL), ``kind`` (:data:`EVENT_KINDS`), ``message``,
+    ``t_utc``.
 
 A point and the events raised while taking it are written in one transaction, so a crash
-loses at most the point being counted. Times are UTC ISO 8601 strings.
+loses at most the point being counted. Times are UTC ISO 8601 strings. The file's
+``user_version`` is the schema version (:data:`SCHEMA_VERSION`); older files are upgraded in
+place when opened for writing, newer ones refused. One process at a time may drive a run
+(:meth:`RunLog.claim`).
 """
 
 from __future__ import annotations
 
 import json
 import sqlite3
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Iterable, Iterator, Mapping, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
@@ -51,11 +59,15 @@ __all__ = [
 ]
 
 RUN_STATUSES = ("running", "interrupted", "complete")
-EVENT_KINDS = ("fault", "guard", "pause", "resume", "note")
+#: ``device``: a device's remark that is not a fault (a late reply discarded, a homing).
+EVENT_KINDS = ("fault", "guard", "pause", "resume", "note", "device")
+#: The schema this code writes (the file's ``PRAGMA user_version``); 0 is the first schema.
+SCHEMA_VERSION = 1
 
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS runs (
     id INTEGER PRIMARY KEY AUTOINCREMENT,
+    kind TEXT NOT NULL DEFAULT 'sweep',
     status TEXT NOT NULL CHECK (status IN ('running', 'interrupted', 'complete')),
     bench_name TEXT NOT NULL,
     bench_path TEXT,
@@ -69,7 +81,8 @@ CREATE TABLE IF NOT EXISTS runs (
     software_version TEXT NOT NULL,
     started_utc TEXT NOT NULL,
     ended_utc TEXT,
-    message TEXT NOT NULL DEFAULT ''
+    message TEXT NOT NULL DEFAULT '',
+    provenance_json TEXT NOT NULL DEFAULT '{}'
 );
 CREATE TABLE IF NOT EXISTS points (
     run_id INTEGER NOT NULL REFERENCES runs(id),
@@ -81,9 +94,9 @@ CREATE TABLE IF NOT EXISTS points (
     counts INTEGER NOT NULL,
     reference INTEGER,
     dwell_s REAL NOT NULL,
-    leak REAL NOT NULL,
-    leak_lo REAL NOT NULL,
-    leak_hi REAL NOT NULL,
+    leak REAL,
+    leak_lo REAL,
+    leak_hi REAL,
     predicted_leak REAL NOT NULL,
     predicted_rate REAL NOT NULL,
     imbalance_deg REAL NOT NULL,
@@ -91,16 +104,26 @@ CREATE TABLE IF NOT EXISTS points (
     pointer_err REAL,
     started_utc TEXT NOT NULL,
     ended_utc TEXT NOT NULL,
+    flag TEXT NOT NULL DEFAULT '',
     PRIMARY KEY (run_id, idx)
 );
 CREATE TABLE IF NOT EXISTS events (
     id INTEGER PRIMARY KEY AUTOINCREMENT,
     run_id INTEGER NOT NULL REFERENCES runs(id),
     idx INTEGER,
-    kind TEXT NOT NULL CHECK (kind IN ('fault', 'guard', 'pause', 'resume', 'note')),
+    kind TEXT NOT NULL,
     message TEXT NOT NULL,
     t_utc TEXT NOT NULL
 );
+"""
+
+#: Schema 0 -> 1: run kind and provenance, nullable leak with a flag, event kinds checked in
+#: Python. SQLite cannot relax NOT NULL or CHECK in place, so points and events are rebuilt.
+_UPGRADE_0_TO_1 = """
+ALTER TABLE runs ADD COLUMN kind TEXT NOT NULL DEFAULT 'sweep';
+ALTER TABLE runs ADD COLUMN provenance_json TEXT NOT NULL DEFAULT '{}';
+ALTER TABLE points RENAME TO points_0;
+ALTER TABLE events RENAME TO events_0;
 """
 
 _POINT_COLUMNS = (
@@ -122,6 +145,12 @@ _POINT_COLUMNS = (
     "pointer_err",
     "started_utc",
     "ended_utc",
+    "flag",
+)
+_RUN_COLUMNS = (
+    "id, kind, status, bench_name, bench_path, bench_toml, schedule, plan_json, dwell_s, "
+    "settle_s, repeats, imbalance_mount, software_version, started_utc, ended_utc, message, "
+    "provenance_json, (SELECT COUNT(*) FROM points WHERE run_id = runs.id)"
 )
 
 
@@ -149,7 +178,8 @@ class Event:
 
 @dataclass(frozen=True)
 class LoggedPoint:
-    """One measured point (units as in the module docstring)."""
+    """One measured point (units as in the module docstring). ``leak``, ``leak_lo`` and
+    ``leak_hi`` are None when the counts give no leak rate; ``flag`` then says why."""
 
     idx: int
     target: float
@@ -159,9 +189,9 @@ class LoggedPoint:
     counts: int
     reference: int | None
     dwell_s: float
-    leak: float
-    leak_lo: float
-    leak_hi: float
+    leak: float | None
+    leak_lo: float | None
+    leak_hi: float | None
     predicted_leak: float
     predicted_rate: float
     imbalance_deg: float
@@ -169,13 +199,16 @@ class LoggedPoint:
     pointer_err: float | None
     started_utc: str
     ended_utc: str
+    flag: str = ""
 
 
 @dataclass(frozen=True)
 class RunRecord:
-    """A run's header and how far it got."""
+    """A run's header and how far it got; ``provenance`` is the stored JSON document of
+    :class:`aligner.run.station.Provenance` (empty for runs logged before it existed)."""
 
     id: int
+    kind: str
     status: str
     bench_name: str
     bench_path: str | None
@@ -190,12 +223,33 @@ class RunRecord:
     started_utc: str
     ended_utc: str | None
     message: str
+    provenance: Mapping[str, Any]
     points: int
 
     @property
     def planned(self) -> int:
         """Number of planned points."""
         return len(self.plan)
+
+    @property
+    def device_kinds(self) -> frozenset[str]:
+        """Kinds of the devices that took part (``real``, ``simulated``, ``typed``); empty for
+        a run logged before devices were recorded."""
+        sessions = [self.provenance, *self.provenance.get("resumed", ())]
+        devices = [d for session in sessions for d in session.get("devices") or ()]
+        return frozenset(d.get("kind", "") for d in devices) - {"absent", ""}
+
+    @property
+    def data_label(self) -> str:
+        """What the numbers of the run are, for every output: ``measured`` (real devices only),
+        ``SIMULATED``, ``TYPED IN`` (an operator typed readings), or ``devices not recorded``."""
+        kinds = self.device_kinds
+        if not kinds:
+            return "devices not recorded"
+        words = [w for k, w in (("simulated", "SIMULATED"), ("typed", "TYPED IN")) if k in kinds]
+        if not words:
+            return "measured"
+        return " and ".join(words) + (" (with real devices)" if "real" in kinds else "")
 
 
 class RunLog:
@@ -206,19 +260,27 @@ class RunLog:
     context manager or call :meth:`close`. Not shared between threads.
     """
 
-    def __init__(self, path: str | Path | None = None, *, durable: bool = True) -> None:
+    def __init__(
+        self, path: str | Path | None = None, *, durable: bool = True, create: bool = True
+    ) -> None:
         self.path = Path(path) if path is not None else default_db_path()
         if not isinstance(durable, bool):
             raise InputError(f"durable must be True or False, got {durable!r}")
-        try:
+        if not self.path.exists() and not create:
+            raise DataFileError(
+                f"{self.path}: no run log here (nothing has been logged to it); check the "
+                "path given with --db"
+            )
+        if path is None:  # only the default data folder is made on demand
             self.path.parent.mkdir(parents=True, exist_ok=True)
+        elif not self.path.parent.is_dir():
+            raise DataFileError(
+                f"{self.path}: the folder {self.path.parent} does not exist; check the path "
+                "given with --db"
+            )
+        try:
             self._db = sqlite3.connect(self.path, isolation_level=None)
-            self._db.execute("PRAGMA journal_mode=WAL")
-            # FULL syncs every commit to disk, so a point survives a power cut too; NORMAL (WAL)
-            # survives a crash of the program but may lose the last points to a power cut
-            self._db.execute(f"PRAGMA synchronous={'FULL' if durable else 'NORMAL'}")
-            self._db.execute("PRAGMA foreign_keys=ON")
-            self._db.executescript(_SCHEMA)
+            self._open(durable)
         except sqlite3.DatabaseError as exc:
             raise DataFileError(
                 f"{self.path}: cannot be used as a run log ({exc}); give another file with --db"
@@ -227,6 +289,44 @@ class RunLog:
             raise DataFileError(
                 f"{self.path}: cannot create the run log ({exc}); give another file with --db"
             ) from None
+
+    def _open(self, durable: bool) -> None:
+        self._db.execute("PRAGMA journal_mode=WAL")
+        # FULL syncs every commit to disk, so a point survives a power cut too; NORMAL (WAL)
+        # survives a crash of the program but may lose the last points to a power cut
+        self._db.execute(f"PRAGMA synchronous={'FULL' if durable else 'NORMAL'}")
+        self._db.execute("PRAGMA foreign_keys=ON")
+        version = int(self._db.execute("PRAGMA user_version").fetchone()[0])
+        if version > SCHEMA_VERSION:
+            raise DataFileError(
+                f"{self.path}: written by a newer aligner (run-log schema {version}, this one "
+                f"reads up to {SCHEMA_VERSION}); update aligner to read it"
+            )
+        tables = {r[0] for r in self._db.execute("SELECT name FROM sqlite_master")}
+        if "runs" in tables and version < SCHEMA_VERSION:
+            self._upgrade()
+        self._db.executescript(_SCHEMA)
+        self._db.execute(f"PRAGMA user_version={SCHEMA_VERSION}")
+
+    def _upgrade(self) -> None:
+        """Schema 0 -> 1 in one transaction (the rows are kept; see ``_UPGRADE_0_TO_1``)."""
+        old_points = ", ".join(_POINT_COLUMNS[:-1])
+        with self._transaction():
+            for statement in _UPGRADE_0_TO_1.strip().split(";\n"):
+                self._db.execute(statement.rstrip(";"))
+            for statement in _SCHEMA.split(";")[1:]:
+                if statement.strip():
+                    self._db.execute(statement)
+            self._db.execute(
+                f"INSERT INTO points (run_id, {old_points}) SELECT run_id, {old_points} "
+                "FROM points_0"
+            )
+            self._db.execute(
+                "INSERT INTO events (id, run_id, idx, kind, message, t_utc) SELECT id, run_id, "
+                "idx, kind, message, t_utc FROM events_0"
+            )
+            self._db.execute("DROP TABLE points_0")
+            self._db.execute("DROP TABLE events_0")
 
     def __enter__(self) -> RunLog:
         return self
@@ -253,13 +353,17 @@ class RunLog:
         repeats: int,
         imbalance_mount: str,
         software_version: str,
+        provenance: Mapping[str, Any],
+        kind: str = "sweep",
     ) -> int:
         """Insert a run with status ``running``; return its id."""
         cur = self._db.execute(
-            "INSERT INTO runs (status, bench_name, bench_path, bench_toml, schedule, plan_json, "
-            "dwell_s, settle_s, repeats, imbalance_mount, software_version, started_utc) "
-            "VALUES ('running', ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+            "INSERT INTO runs (kind, status, bench_name, bench_path, bench_toml, schedule, "
+            "plan_json, dwell_s, settle_s, repeats, imbalance_mount, software_version, "
+            "started_utc, provenance_json) "
+            "VALUES (?, 'running', ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
             (
+                kind,
                 bench_name,
                 bench_path,
                 bench_toml,
@@ -271,6 +375,7 @@ class RunLog:
                 imbalance_mount,
                 software_version,
                 utc_now(),
+                json.dumps(dict(provenance)),
             ),
         )
         return int(cur.lastrowid or 0)
@@ -289,6 +394,21 @@ class RunLog:
                 (run_id, *(row[c] for c in _POINT_COLUMNS)),
             )
             self._insert_events(run_id, events)
+
+    def add_session(self, run_id: int, provenance: Mapping[str, Any]) -> None:
+        """Record the devices of a later session of the run (a resume): appended to the run's
+        provenance under ``resumed``, so the run's label covers every device that took part."""
+        with self._transaction():
+            row = self._db.execute(
+                "SELECT provenance_json FROM runs WHERE id = ?", (run_id,)
+            ).fetchone()
+            if row is None:
+                raise DataFileError(f"{self.path}: no run {run_id}")
+            doc = json.loads(row[0])
+            doc.setdefault("resumed", []).append(dict(provenance))
+            self._db.execute(
+                "UPDATE runs SET provenance_json = ? WHERE id = ?", (json.dumps(doc), run_id)
+            )
 
     def add_events(self, run_id: int, events: Iterable[Event]) -> None:
         """Write events (faults, guard trips, notes) in one transaction."""
@@ -312,6 +432,10 @@ class RunLog:
             )
 
     def _insert_events(self, run_id: int, events: Iterable[Event]) -> None:
+        events = list(events)
+        unknown = sorted({e.kind for e in events} - set(EVENT_KINDS))
+        if unknown:
+            raise InputError(f"event kind {unknown[0]!r}; allowed: {', '.join(EVENT_KINDS)}")
         self._db.executemany(
             "INSERT INTO events (run_id, idx, kind, message, t_utc) VALUES (?, ?, ?, ?, ?)",
             [(run_id, e.idx, e.kind, e.message, e.t_utc or utc_now()) for e in events],
@@ -325,10 +449,7 @@ class RunLog:
     def run(self, run_id: int) -> RunRecord:
         """A run's record; an unknown id raises ``DataFileError`` naming the file."""
         row = self._db.execute(
-            "SELECT id, status, bench_name, bench_path, bench_toml, schedule, plan_json, dwell_s, "
-            "settle_s, repeats, imbalance_mount, software_version, started_utc, ended_utc, "
-            "message, (SELECT COUNT(*) FROM points WHERE run_id = runs.id) FROM runs WHERE id = ?",
-            (run_id,),
+            f"SELECT {_RUN_COLUMNS} FROM runs WHERE id = ?", (run_id,)
         ).fetchone()
         if row is None:
             known = [str(r[0]) for r in self._db.execute("SELECT id FROM runs ORDER BY id")]
@@ -340,33 +461,32 @@ class RunLog:
 
     def runs(self) -> list[RunRecord]:
         """All runs, oldest first."""
-        rows = self._db.execute(
-            "SELECT id, status, bench_name, bench_path, bench_toml, schedule, plan_json, dwell_s, "
-            "settle_s, repeats, imbalance_mount, software_version, started_utc, ended_utc, "
-            "message, (SELECT COUNT(*) FROM points WHERE run_id = runs.id) FROM runs ORDER BY id"
-        )
+        rows = self._db.execute(f"SELECT {_RUN_COLUMNS} FROM runs ORDER BY id")
         return [self._record(r) for r in rows]
 
     @staticmethod
     def _record(row: Sequence[Any]) -> RunRecord:
-        plan = tuple(json.loads(row[6]))
+        (run_id, kind, status, name, path, toml, schedule, plan, dwell, settle, repeats,
+         mount, version, started, ended, message, provenance, points) = row  # fmt: skip
         return RunRecord(
-            row[0],
-            row[1],
-            row[2],
-            row[3],
-            row[4],
-            row[5],
-            plan,
-            row[7],
-            row[8],
-            row[9],
-            row[10],
-            row[11],
-            row[12],
-            row[13],
-            row[14],
-            row[15],
+            id=run_id,
+            kind=kind,
+            status=status,
+            bench_name=name,
+            bench_path=path,
+            bench_toml=toml,
+            schedule=schedule,
+            plan=tuple(json.loads(plan)),
+            dwell_s=dwell,
+            settle_s=settle,
+            repeats=repeats,
+            imbalance_mount=mount,
+            software_version=version,
+            started_utc=started,
+            ended_utc=ended,
+            message=message,
+            provenance=json.loads(provenance),
+            points=points,
         )
 
     def points(self, run_id: int) -> list[LoggedPoint]:
@@ -401,6 +521,48 @@ class RunLog:
         """``PRAGMA integrity_check`` says ``ok``."""
         return self._db.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
 
+    @contextmanager
+    def claim(self, run_id: int) -> Iterator[None]:
+        """Hold run ``run_id`` for this process while the block runs: a second process that
+        tries to drive the same run gets :class:`InputError` before it touches a device. The
+        claim is an OS lock on byte ``run_id`` of a lock file beside the log (never deleted, so
+        two processes always lock the same file), released when the process ends in any way."""
+        lock_path = self.path.with_name(f"{self.path.name}.locks")
+        try:
+            handle = open(lock_path, "a+b")  # noqa: SIM115 - held for the whole block
+        except OSError as exc:
+            raise DataFileError(f"{lock_path}: cannot create the runs' lock file ({exc})") from None
+        try:
+            if not _try_lock(handle, run_id):
+                raise InputError(
+                    f"run {run_id} is being driven by another process right now (lock file "
+                    f"{lock_path}); wait for it to end or stop it, then resume"
+                )
+            yield
+        finally:
+            handle.close()
+
+
+def _try_lock(handle: Any, byte: int) -> bool:
+    """Lock byte ``byte`` of an open file for this process (exclusive, non-blocking); False
+    when another process holds it."""
+    try:
+        import fcntl
+    except ImportError:  # Windows
+        import msvcrt
+
+        handle.seek(byte)
+        try:
+            msvcrt.locking(handle.fileno(), msvcrt.LK_NBLCK, 1)
+        except OSError:
+            return False
+        return True
+    try:
+        fcntl.lockf(handle.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB, 1, byte)
+    except OSError:
+        return False
+    return True
+
 
 class _Transaction:
     """``BEGIN IMMEDIATE`` ... ``COMMIT`` (``ROLLBACK`` on error) on an autocommit connection."""
@@ -421,5 +583,5 @@ def read_run(run_id: int, db: str | Path | None = None) -> tuple[RunRecord, list
     Points carry ``pointer`` / ``pointer_err`` (bench pointer units) when the sweep had a
     pointer channel, else None. ``db`` defaults to :func:`default_db_path`.
     """
-    with RunLog(db) as log:
+    with RunLog(db, create=False) as log:
         return log.run(run_id), log.points(run_id)

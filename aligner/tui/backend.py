@@ -16,7 +16,7 @@ from typing import Any
 from ..bench import Bench
 from ..errors import InputError
 from ..run.log import LoggedPoint, RunLog
-from ..run.simbench import DeviceSet
+from ..run.station import Station
 
 __all__ = ["DeskBackend", "PointHook", "SweepPreview"]
 
@@ -39,9 +39,10 @@ class SweepPreview:
 class DeskBackend:
     """The bench, its run log and its devices, and the engine calls the desk makes.
 
-    ``db_path`` is the SQLite run log (default: the user data folder); ``device_factory``
-    opens the devices for a bench (default :func:`aligner.run.simbench.open_devices` with
-    ``realtime``). Devices are opened at the first sweep and kept until :meth:`close`.
+    ``db_path`` is the SQLite run log (default: the user data folder); ``station_factory``
+    opens the station (the bench's declared devices) for a bench (default
+    :meth:`aligner.run.station.Station.open` with ``realtime``). The station is opened at the
+    first sweep and kept until :meth:`close`, which shuts the shutter.
     """
 
     def __init__(
@@ -49,7 +50,7 @@ class DeskBackend:
         bench: Bench,
         *,
         db_path: str | Path | None = None,
-        device_factory: Callable[[Bench], DeviceSet] | None = None,
+        station_factory: Callable[[Bench], Station] | None = None,
         realtime: bool = False,
     ) -> None:
         from ..run.log import default_db_path
@@ -57,9 +58,10 @@ class DeskBackend:
         self.bench = bench
         self.db_path = Path(db_path) if db_path is not None else default_db_path()
         self.realtime = realtime
-        self._device_factory = device_factory
-        self._devices: DeviceSet | None = None
-        self._stop = threading.Event()
+        self._station_factory = station_factory
+        self._station: Station | None = None
+        self._idle = threading.Event()
+        self._idle.set()
         #: True while :meth:`sweep` runs (in its worker thread).
         self.sweeping = False
 
@@ -113,26 +115,25 @@ class DeskBackend:
 
     # -- sweeps -------------------------------------------------------------------------------
 
-    def devices(self, readings: Mapping[str, float]) -> DeviceSet:
-        """The bench's devices, opened on first use with the mounts at ``readings``."""
-        if self._devices is None:
+    def station(self, readings: Mapping[str, float]) -> Station:
+        """The bench's station (its declared devices), opened on first use with the mounts at
+        ``readings``."""
+        if self._station is None:
             bench = self.bench_at(readings)
-            if self._device_factory is not None:
-                self._devices = self._device_factory(bench)
+            if self._station_factory is not None:
+                self._station = self._station_factory(bench)
             else:
-                from ..run.simbench import open_devices
-
-                self._devices = open_devices(bench, realtime=self.realtime)
-        return self._devices
+                self._station = Station.open(bench, realtime=self.realtime)
+        return self._station
 
     def unmoved_differences(
         self, readings: Mapping[str, float], moved: set[str]
     ) -> dict[str, tuple[float, float]]:
         """Mounts a sweep will not move whose device reads other than ``readings`` by more
         than one resolution step: ``{mount: (device reading, desk reading)}`` (deg)."""
-        devices = self.devices(readings)
+        station = self.station(readings)
         out = {}
-        for name, mount in devices.mounts.items():
+        for name, mount in station.devices.mounts.items():
             if name in moved:
                 continue
             here = float(mount.position())
@@ -166,7 +167,8 @@ class DeskBackend:
 
     def request_stop(self) -> None:
         """Ask a running sweep to pause after the point it is taking."""
-        self._stop.set()
+        if self._station is not None:
+            self._station.request_stop()
 
     def sweep(
         self,
@@ -188,12 +190,13 @@ class DeskBackend:
         the engine's ``SweepResult``; a pause asked with :meth:`request_stop` ends it
         ``interrupted``.
         """
-        self._stop.clear()
         self.sweeping = True
+        self._idle.clear()
         try:
             return self._sweep(spec, dwell_s, readings, on_point, on_start, resume_run, planned)
         finally:
             self.sweeping = False
+            self._idle.set()
 
     def _sweep(
         self,
@@ -205,36 +208,23 @@ class DeskBackend:
         resume_run: int | None,
         planned: SweepPreview | None,
     ) -> Any:
-        from ..run.sweep import resume_plan, run_sweep, start_run
+        station = self.station(readings)  # before the run exists: a device fault logs no run
+        with RunLog(self.db_path, durable=station.provenance.kinds != {"simulated"}) as log:
 
-        devices = self.devices(readings)  # before the run exists: a device fault logs no run
-        with RunLog(self.db_path) as log:
-            if resume_run is None:
-                if planned is None:
-                    planned = self.preview(spec, dwell_s, readings)
-                bench, schedule, points = planned.bench, planned.schedule, planned.points
-                run_id = start_run(log, bench, schedule, points)
-                dwell_s, settle_s = schedule.dwell_s, schedule.settle_s
-            else:
-                record = log.run(resume_run)
-                bench, points = resume_plan(record)
-                run_id, dwell_s, settle_s = record.id, record.dwell_s, record.settle_s
-            if on_start is not None:
-                on_start(run_id, points, log)
+            def started(run_id: int, points: Sequence[Any]) -> None:
+                if on_start is not None:
+                    on_start(run_id, points, log)
 
             def hook(point: LoggedPoint, done: int, total: int) -> None:
                 on_point(point, done, total, log)
 
-            return run_sweep(
-                bench,
-                devices,
-                log,
-                run_id,
-                points,
-                dwell_s=dwell_s,
-                settle_s=settle_s,
-                on_point=hook,
-                stop=self._stop.is_set,
+            if resume_run is not None:
+                return station.resume_sweep(log, resume_run, on_start=started, on_point=hook)
+            if planned is None:
+                planned = self.preview(spec, dwell_s, readings)
+            station.use_bench(planned.bench)
+            return station.start_sweep(
+                log, planned.schedule, plan=planned.points, on_start=started, on_point=hook
             )
 
     # -- the run log --------------------------------------------------------------------------
@@ -243,8 +233,15 @@ class DeskBackend:
         """A new connection to the run log (one per thread; close it after use)."""
         return RunLog(self.db_path)
 
+    def shutdown(self, wait_s: float = 60.0) -> None:
+        """However the desk ends (quit, a signal, an error): ask a running sweep to pause, wait
+        up to ``wait_s`` s for it to secure the bench, then shut the shutter and close."""
+        self.request_stop()
+        self._idle.wait(wait_s)
+        self.close()
+
     def close(self) -> None:
-        """Close the devices, if any were opened."""
-        if self._devices is not None:
-            self._devices.close()
-            self._devices = None
+        """Shut the shutter and close the devices, if they were opened."""
+        if self._station is not None:
+            self._station.close()
+            self._station = None

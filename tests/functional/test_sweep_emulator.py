@@ -8,9 +8,11 @@ import numpy as np
 import pytest
 
 from aligner.bench import load_bench
+from aligner.run.devices import DeviceSet
 from aligner.run.log import RunLog
 from aligner.run.schedule import parse_schedule, plan_points
-from aligner.run.simbench import DeviceSet, SimBench
+from aligner.run.simbench import SimBench
+from aligner.run.station import Station
 from aligner.run.sweep import run_sweep, start_run
 from aligner_drivers.emulator import Emulator, Faults
 from aligner_drivers.open import open_counter, open_mount, open_shutter
@@ -55,6 +57,7 @@ class Rig:
         self.devices = DeviceSet(
             mounts, self.counter, self.shutter, None, None, simulated_time=True
         )
+        self.station = Station(bench, self.devices)
 
     def counts(self, dwell_s):
         readings = {n: m.true_angle_deg() for n, m in self.sim.mounts.items() if n != "analyzer"}
@@ -72,8 +75,8 @@ def test_fifty_points_through_the_emulator(tmp_path, bench):
     rig = Rig(bench)
     try:
         with RunLog(tmp_path / "runs.sqlite") as log:
-            run = start_run(log, bench, schedule, plan)
-            result = run_sweep(bench, rig.devices, log, run, plan, dwell_s=0.1)
+            run = start_run(log, rig.station, schedule, plan)
+            result = run_sweep(rig.station, log, run, plan, dwell_s=0.1)
             points = log.points(run)
         moves = list(rig.mount_emu.move_log)
     finally:
@@ -118,7 +121,7 @@ def test_fault_drill_200_faults(tmp_path, bench):
     plan = plan_points(bench, schedule)
     injected, rounds, reasons = 0, 0, []
     with RunLog(tmp_path / "runs.sqlite") as log:
-        run = start_run(log, bench, schedule, plan)
+        run = None
         while True:
             rounds += 1
             assert rounds < 60, "the drill does not converge"
@@ -127,7 +130,9 @@ def test_fault_drill_200_faults(tmp_path, bench):
             }
             rig = Rig(bench, faults["mount"], faults["counter"], timeout=0.05, retries=0)
             try:
-                result = run_sweep(bench, rig.devices, log, run, plan, dwell_s=0.05)
+                if run is None:
+                    run = start_run(log, rig.station, schedule, plan)
+                result = run_sweep(rig.station, log, run, plan, dwell_s=0.05)
             finally:
                 rig.devices.close()
                 rig.close()
@@ -171,8 +176,8 @@ def test_a_stalled_motor_is_caught_and_the_move_retried(tmp_path, bench):
     )
     try:
         with RunLog(tmp_path / "runs.sqlite") as log:
-            run = start_run(log, bench, schedule, plan)
-            result = run_sweep(bench, rig.devices, log, run, plan, dwell_s=0.05)
+            run = start_run(log, rig.station, schedule, plan)
+            result = run_sweep(rig.station, log, run, plan, dwell_s=0.05)
             events = log.events(run)
             points = log.points(run)
     finally:

@@ -8,9 +8,8 @@ from pathlib import Path
 
 from aligner.bench import DEMO_BENCH, load_bench
 from aligner.run.log import RunLog
-from aligner.run.schedule import parse_schedule, plan_points
-from aligner.run.simbench import open_devices
-from aligner.run.sweep import run_sweep, start_run
+from aligner.run.schedule import parse_schedule
+from aligner.run.station import Station
 
 
 def _interrupted_run(tmp_path: Path) -> tuple[Path, Path]:
@@ -18,14 +17,14 @@ def _interrupted_run(tmp_path: Path) -> tuple[Path, Path]:
     bench_file.write_text(DEMO_BENCH.read_text(encoding="utf-8"), encoding="utf-8")
     bench = load_bench(bench_file)
     schedule = parse_schedule("linear:0.3:1.5:6", dwell_s=0.2)
-    points = plan_points(bench, schedule)
     db = tmp_path / "runs.sqlite"
-    with RunLog(db) as log:
-        run = start_run(log, bench, schedule, points)
-        calls = iter(range(100))
-        result = run_sweep(
-            bench, open_devices(bench), log, run, points, dwell_s=0.2, stop=lambda: next(calls) >= 2
-        )
+    with RunLog(db) as log, Station.open(bench) as station:
+
+        def pause_after_two(point, done, total):
+            if done == 2:
+                station.request_stop()
+
+        result = station.start_sweep(log, schedule, on_point=pause_after_two)
     assert result.status == "interrupted" and result.points_done == 2
     return bench_file, db
 

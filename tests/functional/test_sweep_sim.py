@@ -11,8 +11,7 @@ import pytest
 from aligner.bench import load_bench
 from aligner.run.log import RunLog
 from aligner.run.schedule import parse_schedule, plan_points
-from aligner.run.simbench import open_devices
-from aligner.run.sweep import run_sweep, start_run
+from aligner.run.station import Station
 
 
 def _cli(*args, timeout=60):
@@ -25,11 +24,11 @@ def test_fifty_points_on_sim_devices(tmp_path):
     bench = load_bench("demo")
     schedule = parse_schedule("outback:0.2:2.0:25", dwell_s=0.2)
     plan = plan_points(bench, schedule)
-    devices = open_devices(bench)
+    station = Station.open(bench)
+    devices = station.devices
     with RunLog(tmp_path / "runs.sqlite") as log:
-        run = start_run(log, bench, schedule, plan)
-        result = run_sweep(bench, devices, log, run, plan, dwell_s=0.2)
-        points = log.points(run)
+        result = station.start_sweep(log, schedule)
+        points = log.points(result.run_id)
     assert result.status == "complete" and len(points) == 50
     mount = devices.sim.mounts["analyzer"]
     res = bench.mounts["analyzer"].resolution_deg

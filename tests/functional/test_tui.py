@@ -20,7 +20,7 @@ from aligner.planning import plan
 from aligner.prediction import limits, predict
 from aligner.run.log import RunLog
 from aligner.run.schedule import parse_schedule, plan_points
-from aligner.run.simbench import open_devices
+from aligner.run.station import Station
 from aligner.tui.app import DeskApp
 from aligner.tui.backend import DeskBackend
 from aligner.tui.format import num, rate, sci
@@ -299,7 +299,7 @@ def hardware_desk(bench, tmp_path: Path) -> DeskApp:
     real = bench.with_mounts(analyzer=replace(bench.mounts["analyzer"], driver="line:/dev/null"))
     return DeskApp(
         DeskBackend(
-            real, db_path=tmp_path / "runs.sqlite", device_factory=lambda b: open_devices(bench)
+            real, db_path=tmp_path / "runs.sqlite", station_factory=lambda b: Station.open(bench)
         )
     )
 
@@ -353,7 +353,7 @@ async def test_sweep_runs_plots_tables_and_logs_every_point(bench, tmp_path):
         plot = app.screen.query_one("#sweep-plot")
         assert len(plot._points) == 4 and plot._curve is not None
         # the shutter is shut at the end of a sweep
-        assert not app.backend.devices(app.readings).shutter.is_open()
+        assert not app.backend.station(app.readings).devices.shutter.is_open()
 
 
 async def test_sweep_pause_leaves_the_bench_safe_and_resume_completes(bench, tmp_path):
@@ -373,7 +373,7 @@ async def test_sweep_pause_leaves_the_bench_safe_and_resume_completes(bench, tmp
         ).has_class("problem")
         events = text_of(app, "#sweep-events")
         assert "paused by the operator" in events and "paused: paused" not in events
-        devices = app.backend.devices(app.readings)
+        devices = app.backend.station(app.readings).devices
         assert not devices.shutter.is_open()
         assert not any(m.is_moving() for m in devices.mounts.values())
         with RunLog(tmp_path / "runs.sqlite") as log:

@@ -16,12 +16,13 @@ from aligner.fit.counts import compare, format_sigma, measure_leak
 from aligner.fit.coupling import fit_coupling
 from aligner.fit.csvdata import CountScan, PointerScan, load_count_scan
 from aligner.fit.null import fit_null
-from aligner.fit.nullsearch import search_null
 from aligner.fit.scanmodel import detected_rate, mount_statement
 from aligner.fit.waveplate import fit_waveplate
 from aligner.model import coupling_observable, forward
 from aligner.physics.weak import pointer_response
+from aligner.run.nullsearch import search_null
 from aligner.run.simbench import true_bench
+from aligner.run.station import Station
 
 BENCH = load_bench("demo")
 TRUTH = true_bench(BENCH)
@@ -171,8 +172,8 @@ def test_coupling_fit_is_compared_with_the_bench_strength():
     ],
 )
 def test_null_search_names_the_bad_option(options, words):
-    with pytest.raises(InputError) as info:
-        search_null(BENCH, None, None, None, **options)
+    with Station.open(BENCH, seed=1) as station, pytest.raises(InputError) as info:
+        search_null(station, None, **options)
     assert all(w in str(info.value) for w in words)
     others = {"span_deg", "points", "max_rounds", "dwell_s"} - set(options)
     assert not any(f"({o}," in str(info.value) or f" {o} (" in str(info.value) for o in others)

@@ -122,10 +122,25 @@ def test_refusing_a_check_stops_before_any_engine_step() -> None:
     assert "step 1" in result.message
 
 
+#: The counter, shutter and pointer declared (with the half-wave plate's mount declared "sim"),
+#: so a bench with a real analyzer passes the real-bench rule and reaches the recipe's checks.
+DECLARED_SIM = """
+[devices.counter]
+driver = "sim"
+[devices.shutter]
+driver = "sim"
+[devices.pointer]
+driver = "none"
+"""
+
+
 def test_cli_refuses_yes_on_a_real_bench(tmp_path: Path, bench_text: str) -> None:
     bench = tmp_path / "real.toml"
     bench.write_text(
-        bench_text.replace("[mounts.ana]\n", '[mounts.ana]\ndriver = "/dev/ttyX"\n'),
+        bench_text.replace("[mounts.ana]\n", '[mounts.ana]\ndriver = "/dev/ttyX"\n').replace(
+            "[mounts.hwp]\n", '[mounts.hwp]\ndriver = "sim"\n'
+        )
+        + DECLARED_SIM,
         encoding="utf-8",
     )
     out = subprocess.run(

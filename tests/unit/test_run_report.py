@@ -9,8 +9,9 @@ from aligner.run.report import INSTALL_HINT, write_report
 def test_report_without_matplotlib_says_how_to_install(tmp_path, monkeypatch):
     monkeypatch.setitem(sys.modules, "matplotlib", None)  # import fails as if not installed
     record = RunRecord(
-        1, "complete", "b", None, "", "list:1", ({}, {}), 1.0, 0.0, 1, "a", "0", "t0", "t1", "", 2
-    )
+        1, "sweep", "complete", "b", None, "", "list:1", ({}, {}), 1.0, 0.0, 1, "a", "0", "t0",
+        "t1", "", {}, 2,
+    )  # fmt: skip
     points = [
         LoggedPoint(
             i,
@@ -38,3 +39,4 @@ def test_report_without_matplotlib_says_how_to_install(tmp_path, monkeypatch):
     assert report.plot is None and report.note == INSTALL_HINT
     text = report.markdown.read_text()
     assert 'pip install "aligner[report]"' in text and "not fitted" in text
+    assert "devices not recorded" in text

@@ -6,7 +6,8 @@ import pytest
 from aligner.bench import load_bench
 from aligner.physics.detection import measured_rate
 from aligner.prediction import predict
-from aligner.run.simbench import SimBench, open_devices, true_bench
+from aligner.run.devices import open_devices
+from aligner.run.simbench import SimBench, true_bench
 from aligner.run.sweep import measured_leak
 
 
@@ -109,5 +110,7 @@ def test_open_devices_all_sim(bench):
     assert devices.simulated_time and not devices.shutter.is_open()
     devices.wait(2.5)
     assert devices.sim.clock_s == pytest.approx(2.5)
-    assert open_devices(bench, pointer="none", shutter="none").pointer is None
+    none = ("none", None)
+    assert open_devices(bench, overrides={"pointer": none, "shutter": none}).pointer is None
+    assert [r.kind for r in devices.records] == ["simulated"] * 6
     devices.close()

@@ -12,6 +12,8 @@ from textual.containers import Horizontal
 from textual.widgets import Input, Label, ProgressBar, Static
 
 from ...errors import AlignerError
+from ...run.station import shutter_words
+from ...text import safe_text
 from ..messages import SweepChecked, SweepEnded, SweepProgress, SweepStarted
 from ..widgets.event_list import EventList
 from ..widgets.leak_plot import LeakPlot
@@ -263,19 +265,17 @@ class SweepScreen(DeskScreen):
         if r.status == "complete":
             self.status(
                 f"run {r.run_id} complete: {r.points_done} of {r.points_total} points "
-                "logged; shutter shut"
+                f"logged; {shutter_words(r.shutter)}"
             )
             return
         self.paused_run = r.run_id
         why, problem = PAUSED.get(r.reason, (f"stopped ({r.reason})", True))
-        # the engine appends "; the shutter did not confirm it is shut …" when it could not
-        extra = r.message.partition("; ")[2]
-        detail = f": {r.message}" if problem else f"; {extra}" if extra else ""
-        safe = "Mounts stopped" + ("" if extra else ", shutter shut")
+        detail = f": {safe_text(r.message)}" if problem else ""
+        unsafe = r.shutter in ("failed", "none")
         self.status(
-            f"run {r.run_id} {why}{detail}. {safe}; {r.points_done} of "
-            f"{r.points_total} points logged. Ctrl+R resumes.",
-            error=problem or bool(extra),
+            f"run {r.run_id} {why}{detail}. Mounts stopped; {shutter_words(r.shutter)}; "
+            f"{r.points_done} of {r.points_total} points logged. Ctrl+R resumes.",
+            error=problem or unsafe,
         )
 
     # -- helpers -------------------------------------------------------------------------------

@@ -1,54 +1,36 @@
-"""Closed-loop null search with a real or simulated mount and counter.
+"""Closed-loop null search: a run on a station's devices, not a fit.
 
-1. A coarse scan around the bench file's null (counts through the drivers' ``Counter``, moves
-   through the ``RotationMount``, both planned and checked by the detector guard);
+1. A coarse scan around the bench file's null, narrowed to where the guard's prediction stays
+   dark (every move through :meth:`Station.move`, every count through :meth:`Station.count`);
 2. a Poisson fit of every point taken so far (:func:`aligner.fit.null.fit_null`);
-3. a move to the fitted null (the guard makes every move end turning upwards, so backlash is
-   always taken up on the same side);
+3. a move to the fitted null (every move ends turning upwards, so backlash is always taken up
+   on the same side);
 4. a finer scan around it, and again, until the step is below the mount resolution or the
    statistical error of the null, or ``max_rounds`` is reached.
 
-The guard predicts the count rate along every move and at every point and checks every gate;
-a trip stops the search with :class:`~aligner.errors.GuardTrip` (points already taken are kept
-in the exception's ``points`` attribute when it is raised from here).
+However it ends -- converged, a guard trip, a device fault, Ctrl-C -- the shutter is shut
+(:meth:`Station.secure`) before the search returns or raises; the result's ``shutter`` says
+how (:data:`aligner.run.station.SHUTTER_STATES`). A guard trip keeps the points already taken
+in its ``points``.
 """
 
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping
 from dataclasses import dataclass, replace
-from typing import Any, Protocol
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from aligner_drivers.protocols import Counter, RotationMount, Shutter
-
-from ..bench import Bench
 from ..errors import GuardTrip, InputError
-from .csvdata import CountScan
-from .null import NullFit, fit_null
-from .scanmodel import null_reading_deg, require_mount
+from ..fit.csvdata import CountScan
+from ..fit.null import NullFit, fit_null
+from ..fit.scanmodel import null_reading_deg, require_mount
 
-__all__ = ["Guard", "NullSearchResult", "search_null"]
+if TYPE_CHECKING:
+    from .station import Station
 
-
-class Guard(Protocol):
-    """What the search needs of :class:`aligner.run.guard.DetectorGuard`."""
-
-    limit: float
-
-    def rates(self, readings: Mapping[str, Any]) -> Any: ...
-
-    def plan_move(
-        self, readings: Mapping[str, float], mount: str, target: float, *, shutter_open: bool = True
-    ) -> Any: ...
-
-    def moved(self, mount: str, reached: float) -> None: ...
-
-    def check_point(self, predicted_rate: float, readings: Mapping[str, float]) -> None: ...
-
-    def check_counts(self, counts: int, dwell_s: float) -> float: ...
+__all__ = ["NullSearchResult", "search_null"]
 
 
 @dataclass(frozen=True)
@@ -67,6 +49,7 @@ class NullSearchResult:
     converged: bool
     message: str
     last_fit: NullFit
+    shutter: str = "none"
 
     def to_json(self) -> dict[str, Any]:
         """The JSON document of ``aligner null --json``."""
@@ -82,14 +65,14 @@ class NullSearchResult:
             "steps_deg": list(self.steps_deg),
             "converged": self.converged,
             "message": self.message,
+            "shutter": self.shutter,
         }
 
 
-def _safe_span(
-    guard: Guard, readings: Mapping[str, float], name: str, centre: float, largest: float
-) -> float:
+def _safe_span(station: Station, name: str, centre: float, largest: float) -> float:
     """Half-width (deg) around ``centre`` where the predicted rate stays below half the
     guard's limit, at most ``largest``."""
+    guard, readings = station.guard, station.readings()
     offsets = np.linspace(0.0, largest, 201)
     up = guard.rates({**readings, name: centre + offsets})
     down = guard.rates({**readings, name: centre - offsets})
@@ -130,63 +113,49 @@ def _check_options(span_deg: float, points: int, max_rounds: int, dwell_s: float
 
 
 def search_null(
-    bench: Bench,
-    mount: RotationMount,
-    counter: Counter,
-    guard: Guard,
-    *,
+    station: Station,
     mount_name: str | None = None,
-    shutter: Shutter | None = None,
-    readings: Mapping[str, float] | None = None,
+    *,
     dwell_s: float = 0.2,
     span_deg: float = 2.0,
     points: int = 21,
     max_rounds: int = 8,
 ) -> NullSearchResult:
-    """Find the crossed reading of ``mount`` (see the module docstring).
-
-    ``readings`` are the other mounts' readings (default: the bench file's); ``span_deg`` the
-    half-width of the coarse scan (narrowed to where the guard's prediction stays dark).
-    """
+    """Find the crossed reading of mount ``mount_name`` (default: the analyzer's) on the
+    station's devices (see the module docstring); ``span_deg`` is the half-width of the coarse
+    scan (narrowed to where the guard's prediction stays dark)."""
+    bench = station.bench
     name = require_mount(bench, mount_name, bench.analyzer.mount, "null search")
     _check_options(span_deg, points, max_rounds, dwell_s)
-    current = {**bench.readings(), **(readings or {})}
-    current[name] = float(mount.position())
+    try:
+        result = _search(station, name, dwell_s, span_deg, points, max_rounds)
+    finally:
+        shut = station.secure()
+    return replace(result, shutter=shut)
+
+
+def _search(
+    station: Station, name: str, dwell_s: float, span_deg: float, points: int, max_rounds: int
+) -> NullSearchResult:
+    bench = station.bench
+    current = station.readings(fresh=True)
     here = bench.with_mounts(
         **{k: replace(m, reading_deg=current[k]) for k, m in bench.mounts.items()}
     )
     resolution = bench.mounts[name].resolution_deg
     centre = null_reading_deg(here, name, bench.mounts[name].reading_deg, span_deg=10.0)
-    span = _safe_span(guard, current, name, centre, span_deg)
+    span = _safe_span(station, name, centre, span_deg)
     if span < 10 * resolution:
         raise GuardTrip(
             f"null search: the predicted rate near the null of {name} is above "
             "the guard's limit; lower the source power before searching"
         )
     taken: list[tuple[float, int]] = []
-    if shutter is not None and not shutter.is_open():
-        guard.check_point(float(np.asarray(guard.rates(current))), current)
-        shutter.open()
-
-    def go(target: float) -> float:
-        plan = guard.plan_move(current, name, target)
-        if plan.shut_for_move and shutter is not None:
-            shutter.shut()
-        for waypoint in plan.waypoints[1:]:
-            mount.move_to(waypoint)
-        reached = float(mount.position())
-        guard.moved(name, reached)
-        current[name] = reached
-        if plan.shut_for_move and shutter is not None:
-            shutter.open()
-        return reached
 
     def measure(target: float) -> None:
-        reached = go(target)
-        guard.check_point(float(np.asarray(guard.rates(current))), current)
-        counts = counter.count(dwell_s)[0]
-        guard.check_counts(counts, dwell_s)
-        taken.append((reached, counts))
+        reached = station.move(name, target).readback_deg
+        station.expose(station.readings())
+        taken.append((reached, station.count(dwell_s)[0]))
 
     steps: list[float] = []
     fit: NullFit | None = None
@@ -219,16 +188,16 @@ def search_null(
             break
         span = max(4 * error if math.isfinite(error) else span / 4, 5 * resolution, span / 4)
     assert fit is not None
-    final = go(centre)
+    final = station.move(name, centre).readback_deg
     return NullSearchResult(
-        name,
-        fit.null_reading_deg,
-        fit.null_reading_err_deg,
-        final,
-        len(steps),
-        len(taken),
-        tuple(steps),
-        converged,
-        message,
-        fit,
+        mount=name,
+        null_reading_deg=fit.null_reading_deg,
+        null_reading_err_deg=fit.null_reading_err_deg,
+        final_reading_deg=final,
+        rounds=len(steps),
+        counter_reads=len(taken),
+        steps_deg=tuple(steps),
+        converged=converged,
+        message=message,
+        last_fit=fit,
     )
