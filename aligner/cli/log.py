@@ -46,7 +46,9 @@ def register(sub: argparse._SubParsersAction) -> None:
 def _run_json(r: Any) -> dict[str, Any]:
     return {
         "id": r.id,
+        "kind": r.kind,
         "status": r.status,
+        "data": r.data_label,
         "points": r.points,
         "planned": r.planned,
         "bench": r.bench_name,
@@ -59,31 +61,33 @@ def _run_json(r: Any) -> dict[str, Any]:
 
 def run(args: argparse.Namespace) -> int:
     """Carry out one ``log`` action."""
-    from rich.console import Console
     from rich.table import Table
 
     from ..run.log import RunLog
-    from ..run.report import export_csv, write_report
+    from ..run.report import device_lines, export_csv, write_report
+    from ..text import safe_text
+    from .common import console as make_console
     from .common import emit_json
 
-    console = Console(highlight=False, soft_wrap=True)
-    with RunLog(args.db) as log:
+    console = make_console()
+    with RunLog(args.db, create=args.action == "note") as log:
         if args.action == "list":
             runs = log.runs()
             if args.json:
                 emit_json({"db": str(log.path), "runs": [_run_json(r) for r in runs]})
                 return 0
-            table = Table(title=f"runs in {log.path}")
-            for column in ("run", "status", "points", "schedule", "bench", "started (UTC)"):
+            table = Table(title=f"runs in {safe_text(log.path)}")
+            for column in ("run", "status", "data", "points", "schedule", "bench", "started"):
                 table.add_column(column)
             for r in runs:
                 table.add_row(
                     str(r.id),
                     r.status,
+                    r.data_label,
                     f"{r.points}/{r.planned}",
-                    r.schedule,
-                    r.bench_name,
-                    r.started_utc[:19],
+                    safe_text(r.schedule),
+                    safe_text(r.bench_name),
+                    r.started_utc[:19].replace("T", " ") + " UTC",
                 )
             console.print(table)
         elif args.action == "show":
@@ -92,16 +96,22 @@ def run(args: argparse.Namespace) -> int:
                 emit_json(
                     {
                         **_run_json(record),
+                        "provenance": record.provenance,
                         "points_detail": [p.__dict__ for p in points],
                         "events": [e.__dict__ for e in events],
                     }
                 )
                 return 0
             console.print(
-                f"run {record.id}: {record.status}, {record.points}/{record.planned} "
-                f"points, schedule {record.schedule}, bench {record.bench_name}"
-                + (f"\n{record.message}" if record.message else "")
+                safe_text(
+                    f"run {record.id}: {record.status} ({record.data_label}), "
+                    f"{record.points}/{record.planned} points, schedule {record.schedule}, "
+                    f"bench {record.bench_name}"
+                    + (f"\n{record.message}" if record.message else "")
+                )
             )
+            for line in device_lines(record):
+                console.print(f"  {safe_text(line)}")
             table = Table()
             for column in (
                 "#",
@@ -120,15 +130,15 @@ def run(args: argparse.Namespace) -> int:
                     f"{p.imbalance_deg:+.3f}",
                     str(p.counts),
                     "-" if p.reference is None else str(p.reference),
-                    f"{p.leak:.3e}",
+                    safe_text(p.flag) if p.leak is None else f"{p.leak:.3e}",
                     f"{p.predicted_leak:.3e}",
                 )
             console.print(table)
             for e in events:
-                console.print(f"{e.t_utc[:19]} {e.kind}: {e.message}")
+                console.print(f"{e.t_utc[:19]} {e.kind}: {safe_text(e.message)}")
         elif args.action == "export":
             n = export_csv(log.run(args.run), log.points(args.run), args.csv, overwrite=args.force)
-            console.print(f"wrote {n} points of run {args.run} to {args.csv}")
+            console.print(f"wrote {n} points of run {args.run} to {safe_text(args.csv)}")
         elif args.action == "note":
             log.note(args.run, " ".join(args.text))
             console.print(f"note added to run {args.run}")
@@ -137,7 +147,9 @@ def run(args: argparse.Namespace) -> int:
                 log.run(args.run), log.points(args.run), log.events(args.run), args.out
             )
             console.print(
-                f"wrote {report.markdown}"
-                + (f" and {report.plot}" if report.plot else f" ({report.note})")
+                safe_text(
+                    f"wrote {report.markdown}"
+                    + (f" and {report.plot}" if report.plot else f" ({report.note})")
+                )
             )
     return 0
