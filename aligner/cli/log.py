@@ -106,8 +106,7 @@ def run(args: argparse.Namespace) -> int:
                 safe_text(
                     f"run {record.id}: {record.status} ({record.data_label}), "
                     f"{record.points}/{record.planned} points, schedule {record.schedule}, "
-                    f"bench {record.bench_name}"
-                    + (f"\n{record.message}" if record.message else "")
+                    f"bench {record.bench_name}" + (f"\n{record.message}" if record.message else "")
                 )
             )
             for line in device_lines(record):

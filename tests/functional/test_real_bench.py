@@ -252,9 +252,7 @@ def test_a_timeout_is_not_taken_for_a_point(emulated, tmp_path):
 @pytest.mark.parametrize(
     ("signum", "code"), [(signal.SIGINT, 130), (signal.SIGTERM, 143), (signal.SIGHUP, 129)]
 )
-def test_a_signal_mid_sweep_shuts_the_shutter_and_the_run_resumes(
-    emulated, tmp_path, signum, code
-):
+def test_a_signal_mid_sweep_shuts_the_shutter_and_the_run_resumes(emulated, tmp_path, signum, code):
     emulated.realtime = True  # real gates, so the signal lands mid-sweep
     db = str(tmp_path / "runs.sqlite")
     args = ["sweep", str(emulated.path), "--schedule", "linear:0.3:1.5:12", "--dwell", "0.2"]
