@@ -304,10 +304,9 @@ class Station:
         return Move(name, plan.target, reached, plan.shut_for_move, plan.note)
 
     def expose(self, readings: Mapping[str, float], idx: int | None = None) -> None:
-        """Open the shutter, if the predicted exposure at ``readings`` (deg) allows it."""
-        from ..prediction import predict
-
-        predicted = float(predict(self.bench, dict(readings)).exposure_rate)
+        """Open the shutter, if the predicted exposure at ``readings`` (deg; the worst case
+        over the bench's stated uncertainties) allows it."""
+        predicted = float(self.guard.rates(dict(readings)))
         self.guard.check_point(predicted, readings)
         shutter = self.devices.shutter
         if shutter is not None and not shutter.is_open():

@@ -241,9 +241,9 @@ def check_plan(station: Station, todo: Sequence[PlannedPoint]) -> None:
         p = todo[worst]
         where = ", ".join(f"{k} {v:.4g} deg" for k, v in p.readings.items())
         raise GuardTrip(
-            f"detector guard: point {p.index} ({where}) is predicted at {rates[worst]:.3g} "
-            f"counts/s, above the limit {guard.limit:.3g} ({guard.headroom:g} x safe_rate "
-            f"{guard.safe_rate:.3g}); choose a schedule nearer the null"
+            f"detector guard: point {p.index} ({where}) is {guard.basis} at "
+            f"{rates[worst]:.3g} counts/s, above the limit {guard.limit:.3g} ({guard.headroom:g}"
+            f" x safe_rate {guard.safe_rate:.3g}); choose a schedule nearer the null"
         )
 
 
