@@ -37,6 +37,7 @@ __all__ = [
     "Branches",
     "Moments",
     "density",
+    "eigen_weights",
     "free_space",
     "kick",
     "moments",
@@ -87,14 +88,20 @@ class Moments:
     slope: Real
 
 
-def prepare(rho: ArrayLike, effect: ArrayLike, observable: ArrayLike, sigma: ArrayLike) -> Branches:
-    """Uncoupled Gaussian pointer at its waist (intensity rms ``sigma``) with the weights of
-    pre-selection ``rho`` and post-selection ``effect`` (both at the coupling plane)."""
+def eigen_weights(rho: ArrayLike, effect: ArrayLike, observable: ArrayLike) -> tuple[Real, Complex]:
+    """Eigenvalues ``a_j`` of ``A`` (..., 2) and ``M_jk = rho_jk E_kj`` in its eigenbasis
+    (..., 2, 2): the post-selected pointer is ``sum_jk M_jk |psi_j><psi_k|``."""
     values, vectors = np.linalg.eigh(np.asarray(observable, complex))
     v_h = np.conj(np.swapaxes(vectors, -1, -2))
     r = v_h @ np.asarray(rho, complex) @ vectors
     e = v_h @ np.asarray(effect, complex) @ vectors
-    weights = r * np.swapaxes(e, -1, -2)
+    return values, r * np.swapaxes(e, -1, -2)
+
+
+def prepare(rho: ArrayLike, effect: ArrayLike, observable: ArrayLike, sigma: ArrayLike) -> Branches:
+    """Uncoupled Gaussian pointer at its waist (intensity rms ``sigma``) with the weights of
+    pre-selection ``rho`` and post-selection ``effect`` (both at the coupling plane)."""
+    values, weights = eigen_weights(rho, effect, observable)
     sigma = np.asarray(sigma, float)
     shape = np.broadcast_shapes(weights.shape[:-2], sigma.shape)
     a = np.broadcast_to(1.0 / (4.0 * sigma**2) + 0j, shape)
