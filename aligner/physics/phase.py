@@ -99,23 +99,28 @@ def phase_moments(
     """Exact probability, mean delay, variance (rad, rad^2) and their ``g`` derivatives of the
     post-selected probe's canonical phase (see module)."""
     weights, u, du, k = _amplitudes(rho, effect, observable, g, photons)
-    lag = k[:, None] - k[None, :]
-    off = lag != 0
-    safe = np.where(off, lag, 1)
-    sign = np.where(lag % 2 == 0, 1.0, -1.0)
-    k1 = np.where(off, -1j * sign / safe, 0.0)
-    k2 = np.where(off, 2 * sign / safe**2, np.pi**2 / 3)
+    n = k.size
+    size = 1 << math.ceil(math.log2(2 * n))
+    # Kernels as functions of the lag d = n - m, laid out circularly for an FFT convolution.
+    d = np.fft.fftfreq(size, 1.0 / size)
+    off = d != 0
+    safe = np.where(off, d, 1.0)
+    sign = np.where(d % 2 == 0, 1.0, -1.0)
+    k1 = np.fft.fft(np.where(off, -1j * sign / safe, 0.0))
+    k2 = np.fft.fft(np.where(off, 2 * sign / safe**2, np.pi**2 / 3))
 
-    def form(kernel: Complex | Real, left: Complex, right: Complex) -> Real:
-        """``sum_jk M_jk left_j^T kernel right_k^*`` (real)."""
-        q = left @ np.swapaxes(np.conj(right) @ kernel.T, -1, -2)
+    def form(kernel: Complex | None, left: Complex, right: Complex) -> Real:
+        """``sum_jk M_jk sum_nm left_j[n] K(n - m) right_k[m]^*`` (real); ``None``: K = identity."""
+        v = np.conj(right)
+        if kernel is not None:  # Toeplitz product as a circular convolution, no wrap-around
+            v = np.fft.ifft(np.fft.fft(v, size, axis=-1) * kernel, axis=-1)[..., :n]
+        q = left @ np.swapaxes(v, -1, -2)
         return np.real(np.sum(weights * q, axis=(-2, -1)))
 
-    eye = np.eye(k.size)
-    p = form(eye, u, u)
+    p = form(None, u, u)
     s1 = form(k1, u, u)
     s2 = form(k2, u, u)
-    dp = 2 * form(eye, du, u)  # d(u_j^T K u_k^*) sums to twice the real part by symmetry
+    dp = 2 * form(None, du, u)  # d(u_j^T u_k^*) sums to twice the real part by symmetry
     ds1 = form(k1, du, u) + form(k1, u, du)
     mean = s1 / p
     return Moments(p, mean, s2 / p - mean**2, dp, (ds1 - mean * dp) / p)
