@@ -144,9 +144,11 @@ def count_budget(
     and background, photons/s) times ``efficiency``, plus ``dark_rate``; afterpulses with
     ``afterpulse_probability`` per counted avalanche; dead time ``dead_time_s`` of ``model``."""
     eta = np.asarray(efficiency, float)
-    signal = eta * np.asarray(signal_photon_rate, float)
-    background = eta * np.asarray(background_photon_rate, float)
-    dark = np.asarray(dark_rate, float) + 0.0 * signal
+    signal, background, dark = np.broadcast_arrays(
+        eta * np.asarray(signal_photon_rate, float),
+        eta * np.asarray(background_photon_rate, float),
+        np.asarray(dark_rate, float),
+    )
     primary = signal + background + dark
     p = np.asarray(afterpulse_probability, float)
     if np.any((p < 0) | (p >= 1)):
