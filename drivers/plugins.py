@@ -85,6 +85,8 @@ __all__ = [
     "PluginSpec",
     "Registered",
     "check_plugin",
+    "foreign_error",
+    "guarded_call",
     "open_plugin",
     "parse_plugin_spec",
     "registered",
@@ -376,8 +378,10 @@ def _check_shape(spec: str, role: str, device: Any) -> None:
         raise InputError(f"{spec}: counter channels must be 1 or 2, got {device.channels!r}")
 
 
-def _converted(label: str, what: str, exc: Exception) -> DeviceError:
-    """The ``DeviceError`` a foreign exception becomes at the plug-in boundary."""
+def foreign_error(label: str, what: str, exc: Exception) -> DeviceError:
+    """The ``DeviceError`` a foreign (library or OS) exception becomes at a driver boundary:
+    ``TimeoutError`` -> ``DeviceTimeout``, ``OSError`` and ``EOFError`` -> ``Disconnected``,
+    anything else ``DeviceError``; ``label`` names the device, ``what`` the operation."""
     text = f"{label}: {what} failed ({type(exc).__name__}: {str(exc)!r})"
     if isinstance(exc, TimeoutError):
         return DeviceTimeout(f"{text}; check that the device is on and answering")
@@ -386,13 +390,15 @@ def _converted(label: str, what: str, exc: Exception) -> DeviceError:
     return DeviceError(f"{text}; this is an error of the plug-in driver or its device library")
 
 
-def _guarded(label: str, what: str, fn: Callable[..., Any], *args: Any) -> Any:
+def guarded_call(label: str, what: str, fn: Callable[..., Any], *args: Any) -> Any:
+    """``fn(*args)``, with any exception but an ``AlignerError`` raised as
+    :func:`foreign_error` (the original chained)."""
     try:
         return fn(*args)
     except AlignerError:
         raise
     except Exception as exc:
-        raise _converted(label, what, exc) from exc
+        raise foreign_error(label, what, exc) from exc
 
 
 class _Guarded:
@@ -406,7 +412,7 @@ class _Guarded:
         self.label = spec if self.name == spec else f"{self.name} ({spec})"
 
     def _call(self, method: str, *args: Any) -> Any:
-        return _guarded(self.label, f"{method}()", getattr(self.device, method), *args)
+        return guarded_call(self.label, f"{method}()", getattr(self.device, method), *args)
 
     def __getattr__(self, attr: str) -> Any:
         if attr == "device":  # not set yet (e.g. during copying): no recursion
@@ -414,7 +420,7 @@ class _Guarded:
         value = getattr(self.device, attr)
         if not callable(value):
             return value
-        return functools.partial(_guarded, self.label, f"{attr}()", value)
+        return functools.partial(guarded_call, self.label, f"{attr}()", value)
 
     def identify(self) -> str:
         """The device's own identity string, or "" when it has no ``identify()``."""
@@ -495,11 +501,11 @@ def open_plugin(
     if role not in ROLES:
         raise InputError(f"{spec}: unknown device role {role!r}; allowed: {', '.join(ROLES)}")
     factory, options = _prepare(spec, overrides or {}, profile)
-    device = _guarded(spec, "opening the device", functools.partial(factory, **options))
+    device = guarded_call(spec, "opening the device", functools.partial(factory, **options))
     try:
         _check_shape(spec, role, device)
     except InputError:
         if callable(getattr(device, "close", None)):
-            _guarded(spec, "close()", device.close)
+            guarded_call(spec, "close()", device.close)
         raise
     return _WRAPPERS[role](device, spec)
