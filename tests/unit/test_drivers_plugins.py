@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import importlib
+import inspect
 import sys
 import textwrap
 import tomllib
@@ -370,3 +372,30 @@ def test_bench_file_validates_py_driver_specs(lab, tmp_path):
     bad = text.replace('driver = "sim"', 'driver = "py:labdev.rotator:Rotater"')
     with pytest.raises(BenchFileError, match=r"mounts\.pre_hwp\.driver: .*did you mean 'Rotator'"):
         parse_bench(tomllib.loads(bad), "bad.toml")
+
+
+ADAPTERS = [
+    ("aligner_drivers.adapters.binary", "BinaryMount", RotationMount),
+    ("aligner_drivers.adapters.binary", "BinaryShutter", Shutter),
+    ("aligner_drivers.adapters.tagger", "TaggerCounter", Counter),
+    ("aligner_drivers.adapters.camera", "CameraPointer", PointerReader),
+    ("aligner_drivers.adapters.epics", "MotorRecordMount", RotationMount),
+    ("aligner_drivers.adapters.epics", "ScalerRecordCounter", Counter),
+    ("aligner_drivers.plugins", "_GuardedMount", RotationMount),
+    ("aligner_drivers.plugins", "_GuardedCounter", Counter),
+    ("aligner_drivers.plugins", "_GuardedShutter", Shutter),
+    ("aligner_drivers.plugins", "_GuardedPointer", PointerReader),
+]
+
+
+@pytest.mark.parametrize(("module", "name", "protocol"), ADAPTERS, ids=lambda v: str(v))
+def test_adapter_methods_have_the_protocol_signatures(module, name, protocol):
+    """Same method names and parameter names as the protocol (the engine calls by keyword)."""
+    cls = getattr(importlib.import_module(module), name)
+    for member, fn in vars(protocol).items():
+        if member.startswith("_") or not callable(fn):
+            continue
+        wanted = list(inspect.signature(fn).parameters)
+        assert list(inspect.signature(getattr(cls, member)).parameters) == wanted, member
+    if hasattr(cls, "identify"):
+        assert list(inspect.signature(cls.identify).parameters) == ["self"]
