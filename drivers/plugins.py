@@ -247,16 +247,15 @@ def _resolve(plug: PluginSpec) -> Callable[..., Any]:
 
 
 def _signature(factory: Callable[..., Any]) -> inspect.Signature | None:
-    """The factory's signature with annotations evaluated where possible; None if unknown."""
+    """The factory's signature, its annotations evaluated when they can be (otherwise left as
+    text, read by name for int, float, bool, str and Path); None if it has none."""
     try:
         return inspect.signature(factory, eval_str=True)
-    except (NameError, SyntaxError, TypeError):
+    except Exception:  # an annotation that does not evaluate, or no signature at all
         try:
             return inspect.signature(factory)
         except (TypeError, ValueError):
             return None
-    except ValueError:
-        return None
 
 
 _BY_NAME: dict[str, Any] = {"int": int, "float": float, "bool": bool, "str": str, "Path": Path}

@@ -73,6 +73,7 @@ class BinaryLink:
                 "powered, the port name, and that you may use the port"
             ) from None
         self.name = port
+        self.baud = baud
         self.users = 0
         self._cond = threading.Condition()
         self._inbox: deque[tuple[float, Frame]] = deque(maxlen=256)
@@ -92,6 +93,11 @@ class BinaryLink:
             link = cls._open_links.get(port)
             if link is None or link._dead is not None:
                 link = cls._open_links[port] = cls(port, baud=baud)
+            elif link.baud != baud:
+                raise InputError(
+                    f"{port} is already open at {link.baud} baud; every device on one port "
+                    f"needs the same baud (got {baud})"
+                )
             link.users += 1
             return link
 

@@ -267,32 +267,37 @@ class CameraPointer:
 
     def take_background(self, frames: int = 10) -> Frame:
         """Average ``frames`` frames as the background (block the beam first) and keep it."""
-        self.background = None
-        self.background = np.mean([self._grab() for _ in range(max(1, frames))], axis=0)
+        dark = [self._grab() for _ in range(max(1, frames))]
+        if any(f.shape != dark[0].shape for f in dark):
+            raise BadReply(f"{self.name}: the dark frames differ in shape; check the camera")
+        self.background = np.mean(dark, axis=0)
         return self.background
 
     # -- centres ---------------------------------------------------------------------------
 
-    def _centroid(self, region: Frame) -> tuple[float, float]:
-        weights = np.where(region >= self.threshold, region, 0.0)
-        total = weights.sum()
+    def _weighted_mean(self, weights: Frame) -> tuple[float, float, float]:
+        """(x, y, total) of non-negative pixel weights; ``BadReply`` when there is no light."""
+        total = float(weights.sum())
         if not total > 0.0:
             raise BadReply(
                 f"{self.name}: no light above threshold {self.threshold:g} in the region of "
                 "interest; check the beam, the exposure, the roi and the background"
             )
-        h, w = region.shape
+        h, w = weights.shape
         x = float(weights.sum(axis=0) @ np.arange(w) / total)
         y = float(weights.sum(axis=1) @ np.arange(h) / total)
+        return x, y, total
+
+    def _centroid(self, region: Frame) -> tuple[float, float]:
+        x, y, _ = self._weighted_mean(np.where(region >= self.threshold, region, 0.0))
         return x, y
 
     def _fit(self, region: Frame) -> tuple[float, float]:
         from scipy.optimize import curve_fit
 
         h, w = region.shape
-        x0, y0 = self._centroid(region - np.median(region))
         weights = np.clip(region - np.median(region), 0.0, None)
-        total = weights.sum()
+        x0, y0, total = self._weighted_mean(weights)
         yy, xx = np.mgrid[0:h, 0:w].astype(float)
         sx = math.sqrt(max(float((weights * (xx - x0) ** 2).sum() / total), 0.25))
         sy = math.sqrt(max(float((weights * (yy - y0) ** 2).sum() / total), 0.25))

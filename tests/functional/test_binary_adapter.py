@@ -10,7 +10,14 @@ import time
 
 import pytest
 
-from aligner.errors import BadReply, DeviceError, DeviceRefused, DeviceTimeout, Disconnected
+from aligner.errors import (
+    BadReply,
+    DeviceError,
+    DeviceRefused,
+    DeviceTimeout,
+    Disconnected,
+    InputError,
+)
 from aligner_drivers.adapters.framed import HEADER, MAX_DATA, Frame, FrameReader, Msg
 from aligner_drivers.open import open_mount, open_shutter
 from aligner_drivers.protocols import Identifies, RotationMount, Shutter
@@ -212,5 +219,15 @@ def test_a_stuck_shutter_and_a_wrong_channel_are_errors(emu, monkeypatch):
     try:
         with pytest.raises(DeviceRefused, match="bad beam request"):
             mount.move_to(1.0)
+    finally:
+        mount.close()
+
+
+def test_devices_on_one_port_need_one_baud(emu):
+    mount = _mount(emu)
+    try:
+        with pytest.raises(InputError, match="already open at 115200 baud"):
+            open_shutter(f"{SHUTTER}?port={emu.port}&baud=9600")
+        assert mount.device.link.users == 1
     finally:
         mount.close()
