@@ -19,8 +19,8 @@ that is found but fails to import are different errors; the second names the pac
 provides it and chains the original exception.
 
 Options. Every ``key=value`` becomes a keyword argument of the factory; keyword options given
-to ``open_*`` in Python override the query and are passed unchanged. A query value is text and
-is converted by the factory's annotation of that parameter: ``int``, ``float``, ``bool``
+to ``open_*`` in Python override the query. Text values (the query's, and text keywords) are
+converted by the factory's annotation of that parameter, other values are passed unchanged: ``int``, ``float``, ``bool``
 (``1/0``, ``true/false``, ``yes/no``), ``pathlib.Path``, ``Literal[...]`` (one of its values),
 ``tuple[...]`` (comma-separated, each part converted), and ``X | None`` as ``X``; a parameter
 with any other annotation, or none, gets the text as it is. A key the factory has no parameter
