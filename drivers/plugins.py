@@ -20,10 +20,11 @@ provides it and chains the original exception.
 
 Options. Every ``key=value`` becomes a keyword argument of the factory; keyword options given
 to ``open_*`` in Python override the query. Text values (the query's, and text keywords) are
-converted by the factory's annotation of that parameter, other values are passed unchanged: ``int``, ``float``, ``bool``
-(``1/0``, ``true/false``, ``yes/no``), ``pathlib.Path``, ``Literal[...]`` (one of its values),
-``tuple[...]`` (comma-separated, each part converted), and ``X | None`` as ``X``; a parameter
-with any other annotation, or none, gets the text as it is. A key the factory has no parameter
+converted by the factory's annotation of that parameter; other values are passed unchanged.
+Conversions: ``int``, ``float``, ``bool`` (``1/0``, ``true/false``, ``yes/no``),
+``pathlib.Path``, ``Literal[...]`` (one of its values), ``tuple[...]`` (comma-separated, each
+part converted), and ``X | None`` as ``X``; a parameter with any other annotation, or none,
+gets the text as it is. A key the factory has no parameter
 for is refused (unless it takes ``**kwargs``), as is a missing required parameter. Two keys are
 special: ``name`` (the engine passes the bench's mount name) is given to the factory only when
 it has a ``name`` parameter or ``**kwargs``, and is otherwise dropped; ``profile=``, when given
