@@ -1,4 +1,4 @@
-"""Hardware adapters: device protocols, simulated, manual and line-protocol devices.
+"""Hardware adapters: device protocols, simulated, manual, line-protocol and plug-in devices.
 
 Installed as ``aligner_drivers`` (the repository keeps it in the top-level ``drivers/`` folder).
 No optics here. The engine talks to devices only through the protocols in
@@ -25,6 +25,8 @@ _LAZY = {
     "LineChannel": "lineproto",
     "SerialLike": "lineproto",
     "load_profile": "lineproto",
+    "ENTRY_POINT_GROUP": "plugins",
+    "open_plugin": "plugins",
     "ManualCounter": "manual",
     "ManualPointer": "manual",
     "check_spec": "open",

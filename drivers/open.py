@@ -5,7 +5,9 @@ Specs:
 - a serial port path: ``/dev/ttyUSB0``, ``/dev/tty.usbserial-1``, ``COM3``;
 - a pyserial URL: ``rfc2217://host:port``, ``socket://host:port``, ``loop://``, ``spy://PORT``;
 - ``sim`` or ``sim:?key=value&...``: a simulated device (options below);
-- ``manual`` or ``manual:?...``: the operator types the numbers (counters and pointers).
+- ``manual`` or ``manual:?...``: the operator types the numbers (counters and pointers);
+- ``py:package.module:factory?key=value&...`` or ``plugin:NAME?key=value&...``: a device made
+  by a Python factory (``aligner_drivers.plugins`` describes both forms and their options).
 
 Serial specs need ``profile=`` (a profile file, or a shipped profile by name such as
 ``"example-mount"``). Keyword options override options from the query string; an unknown
@@ -64,7 +66,7 @@ _URL_SCHEMES = ("loop", "rfc2217", "socket", "spy")
 _ALLOWED_SPECS = (
     "a serial port path (/dev/ttyUSB0, COM3), "
     + ", ".join(f"{s}://..." for s in _URL_SCHEMES)
-    + ", sim or sim:?key=value&..."
+    + ", sim or sim:?key=value&..., py:package.module:factory?..., plugin:NAME?..."
 )
 Converter = Callable[[str, str, Any], Any]
 
@@ -158,9 +160,12 @@ _MANUAL_COUNTER = {**_MANUAL_POINTER, "channels": ("channels", _whole)}
 
 
 def _parse(spec: str, *, manual: bool) -> tuple[str, dict[str, str]]:
-    """Return (kind, query options); kind is ``sim``, ``manual`` or ``serial``."""
+    """Return (kind, query options); kind is ``sim``, ``manual``, ``serial``, or ``py`` or
+    ``plugin`` (whose options ``aligner_drivers.plugins`` reads itself)."""
     if not isinstance(spec, str) or not spec.strip():
         raise InputError(f"device spec must be a non-empty text, got {spec!r}")
+    if spec.startswith(("py:", "plugin:")):
+        return spec.partition(":")[0], {}
     allowed = _ALLOWED_SPECS + (", manual or manual:?..." if manual else "")
     for kind in ("sim", "manual"):
         if spec == kind or spec.startswith(f"{kind}:"):
@@ -184,15 +189,28 @@ def _parse(spec: str, *, manual: bool) -> tuple[str, dict[str, str]]:
 
 
 def check_spec(spec: str, *, manual: bool = False) -> str:
-    """Check a device spec without opening anything; return its kind (``sim``, ``manual`` or
-    ``serial``) or raise ``InputError`` listing what is allowed (with a did-you-mean)."""
+    """Check a device spec without opening anything; return its kind (``sim``, ``manual``,
+    ``serial``, ``py`` or ``plugin``) or raise ``InputError`` listing what is allowed (with a
+    did-you-mean). A plug-in spec's module is imported to find its factory and check the
+    options; nothing is called."""
     try:
-        return _parse(spec, manual=manual)[0]
+        kind = _parse(spec, manual=manual)[0]
     except InputError as exc:
         close = difflib.get_close_matches(str(spec), ["sim", "manual"] if manual else ["sim"], n=1)
         if close and ":" not in str(spec):
             raise InputError(f"{exc}; did you mean {close[0]!r}?") from None
         raise
+    if kind in ("py", "plugin"):
+        from .plugins import check_plugin  # imported on first use (it imports this module)
+
+        check_plugin(spec)
+    return kind
+
+
+def _plugin(spec: str, role: str, profile: Any, options: Mapping[str, Any]) -> Any:
+    from .plugins import open_plugin
+
+    return open_plugin(spec, role, options, profile=profile)
 
 
 def profile_file(profile: str | Path, *, base: Path | None = None) -> Path | None:
@@ -266,6 +284,8 @@ def open_mount(
 ) -> RotationMount:
     """Open a rotation mount (see the module docstring for specs and options)."""
     kind, query = _parse(spec, manual=False)
+    if kind in ("py", "plugin"):
+        return _plugin(spec, "mount", profile, options)
     if kind == "sim":
         return SimMount(**_options(spec, _SIM_MOUNT, query, options))
     return _with_channel(spec, profile, options, LineMount)
@@ -276,6 +296,8 @@ def open_counter(
 ) -> Counter:
     """Open a counter (see the module docstring for specs and options)."""
     kind, query = _parse(spec, manual=True)
+    if kind in ("py", "plugin"):
+        return _plugin(spec, "counter", profile, options)
     if kind == "sim":
         opts = _options(spec, _SIM_COUNTER, query, options)
         channels = opts.get("channels", 1)
@@ -294,6 +316,8 @@ def open_shutter(
 ) -> Shutter:
     """Open a shutter (see the module docstring for specs and options)."""
     kind, query = _parse(spec, manual=False)
+    if kind in ("py", "plugin"):
+        return _plugin(spec, "shutter", profile, options)
     if kind == "sim":
         return SimShutter(**_options(spec, _SIM_SHUTTER, query, options))
     return _with_channel(spec, profile, options, LineShutter)
@@ -304,6 +328,8 @@ def open_pointer(
 ) -> PointerReader:
     """Open a pointer reader (see the module docstring for specs and options)."""
     kind, query = _parse(spec, manual=True)
+    if kind in ("py", "plugin"):
+        return _plugin(spec, "pointer", profile, options)
     if kind == "sim":
         opts = _options(spec, _SIM_POINTER, query, options)
         reading = (opts.get("value", 0.0), opts.get("sem", 0.0))
