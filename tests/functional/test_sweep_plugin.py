@@ -1,5 +1,6 @@
 """A bench file whose analyzer mount is a plug-in (``py:`` spec) runs a full sweep: the binary
-protocol mount adapter through the pty emulator, the rest simulated, today's engine API."""
+protocol mount adapter through the pty emulator, the rest simulated (declared so), on the
+station."""
 
 from __future__ import annotations
 
@@ -11,8 +12,7 @@ import pytest
 from aligner.bench import DEMO_BENCH, load_bench
 from aligner.run.log import RunLog
 from aligner.run.schedule import parse_schedule, plan_points
-from aligner.run.simbench import open_devices
-from aligner.run.sweep import run_sweep, start_run
+from aligner.run.station import Station
 from aligner_drivers.adapters.framed import Msg
 
 pytestmark = pytest.mark.skipif(sys.platform == "win32", reason="pty emulator is POSIX only")
@@ -40,23 +40,20 @@ def test_a_bench_with_a_py_mount_runs_a_full_sweep(tmp_path):
 
         schedule = parse_schedule("outback:0.3:1.5:5", dwell_s=0.1)
         plan = plan_points(bench, schedule)
-        devices = open_devices(bench)
-        try:
-            analyzer = devices.mounts["analyzer"]
+        with RunLog(tmp_path / "runs.sqlite") as log, Station.open(bench) as station:
+            analyzer = station.devices.mounts["analyzer"]
             assert analyzer.name == "analyzer"  # the bench's name reached the factory
-            # the engine must home a needs_home mount (shutter shut) before the first move
+            # the station homed the needs_home mount (shutter shut) when it opened
             assert "needs_home" in analyzer.capabilities
-            devices.shutter.shut()
-            analyzer.home()
-            with RunLog(tmp_path / "runs.sqlite") as log:
-                run = start_run(log, bench, schedule, plan)
-                result = run_sweep(bench, devices, log, run, plan, dwell_s=0.1)
-                points = log.points(run)
-        finally:
-            devices.close()
+            assert any("analyzer homed" in e.message for e in station.events)
+            record = next(d for d in station.provenance.devices if d.name == "analyzer")
+            result = station.start_sweep(log, schedule, plan=plan)
+            points = log.points(result.run_id)
         moves = [f.position()[0] for f in emu.received if f.msg == Msg.MOVE_TO]
 
     assert result.status == "complete", result.message
+    assert (record.kind, record.spec) == ("real", spec)
+    assert record.identity.startswith("ROT-EMU")
     assert len(points) == len(plan) == 10
     planned = np.array([p.readings["analyzer"] for p in plan])
     # every point's reading is the emulated encoder's read-back of the planned target
