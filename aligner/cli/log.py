@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 from typing import Any
 
-from .common import add_json_flag
+from .common import add_json_flag, run_id
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -29,17 +29,17 @@ def register(sub: argparse._SubParsersAction) -> None:
 
     add_json_flag(action("list", "list the runs"))
     show = action("show", "show one run: header, points and events")
-    show.add_argument("run", metavar="RUN", type=int)
+    show.add_argument("run", metavar="RUN", type=run_id)
     add_json_flag(show)
     export = action("export", "write a run's points as CSV")
-    export.add_argument("run", metavar="RUN", type=int)
+    export.add_argument("run", metavar="RUN", type=run_id)
     export.add_argument("--csv", metavar="FILE", required=True, help="CSV file to write")
     export.add_argument("--force", action="store_true", help="replace an existing CSV file")
     note = action("note", "add an operator note to a run")
-    note.add_argument("run", metavar="RUN", type=int)
+    note.add_argument("run", metavar="RUN", type=run_id)
     note.add_argument("text", metavar="TEXT", nargs="+")
     report = action("report", "write a Markdown summary and a plot of a run")
-    report.add_argument("run", metavar="RUN", type=int)
+    report.add_argument("run", metavar="RUN", type=run_id)
     report.add_argument("--out", metavar="DIR", required=True, help="folder to write into")
 
 
