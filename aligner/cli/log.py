@@ -41,6 +41,12 @@ def register(sub: argparse._SubParsersAction) -> None:
     report = action("report", "write a Markdown summary and a plot of a run")
     report.add_argument("run", metavar="RUN", type=run_id)
     report.add_argument("--out", metavar="DIR", required=True, help="folder to write into")
+    rescue = action(
+        "salvage",
+        "copy the readable runs of a damaged run log (--db) into a new file (--out)",
+    )
+    rescue.add_argument("--out", metavar="FILE", required=True, help="new run-log file")
+    add_json_flag(rescue)
 
 
 def _run_json(r: Any) -> dict[str, Any]:
@@ -70,6 +76,8 @@ def run(args: argparse.Namespace) -> int:
     from .common import emit_json
 
     console = make_console()
+    if args.action == "salvage":
+        return _salvage(args, console)
     with RunLog(args.db, create=args.action == "note") as log:
         if args.action == "list":
             runs = log.runs()
@@ -151,4 +159,24 @@ def run(args: argparse.Namespace) -> int:
                     + (f" and {report.plot}" if report.plot else f" ({report.note})")
                 )
             )
+    return 0
+
+
+def _salvage(args: argparse.Namespace, console: Any) -> int:
+    from ..run.log import default_db_path, salvage
+    from ..text import safe_text
+    from .common import emit_json
+
+    result = salvage(args.db or default_db_path(), args.out)
+    if args.json:
+        emit_json(result.to_json())
+        return 0
+    console.print(
+        safe_text(
+            f"copied {result.runs} runs, {result.points} points and {result.events} events "
+            f"from {result.source} into {result.out}"
+        )
+    )
+    for item in result.lost:
+        console.print(f"  not readable: {safe_text(item)}")
     return 0

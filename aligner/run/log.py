@@ -53,8 +53,10 @@ __all__ = [
     "LoggedPoint",
     "RunLog",
     "RunRecord",
+    "Salvage",
     "default_db_path",
     "read_run",
+    "salvage",
     "utc_now",
 ]
 
@@ -63,6 +65,11 @@ RUN_STATUSES = ("running", "interrupted", "complete")
 EVENT_KINDS = ("fault", "guard", "pause", "resume", "note", "device")
 #: The schema this code writes (the file's ``PRAGMA user_version``); 0 is the first schema.
 SCHEMA_VERSION = 1
+#: What to do with a damaged run log (``{path}``: the file).
+SALVAGE_HINT = (
+    "Copy the readable runs into a new file with 'aligner log salvage --db {path} --out "
+    "NEW.sqlite' and keep the damaged file for reference"
+)
 
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS runs (
@@ -291,18 +298,39 @@ class RunLog:
             ) from None
 
     def _open(self, durable: bool) -> None:
-        self._db.execute("PRAGMA journal_mode=WAL")
-        # FULL syncs every commit to disk, so a point survives a power cut too; NORMAL (WAL)
-        # survives a crash of the program but may lose the last points to a power cut
-        self._db.execute(f"PRAGMA synchronous={'FULL' if durable else 'NORMAL'}")
-        self._db.execute("PRAGMA foreign_keys=ON")
+        """Check the file before anything is written to it (a newer schema, another program's
+        file, damage), then set it up: WAL journal, the schema created or upgraded."""
         version = int(self._db.execute("PRAGMA user_version").fetchone()[0])
         if version > SCHEMA_VERSION:
             raise DataFileError(
                 f"{self.path}: written by a newer aligner (run-log schema {version}, this one "
                 f"reads up to {SCHEMA_VERSION}); update aligner to read it"
             )
-        tables = {r[0] for r in self._db.execute("SELECT name FROM sqlite_master")}
+        tables = {
+            r[0] for r in self._db.execute("SELECT name FROM sqlite_master WHERE type = 'table'")
+        } - {"sqlite_sequence"}
+        if tables and "runs" not in tables:
+            raise DataFileError(
+                f"{self.path}: is an SQLite file but not a run log (it holds "
+                f"{', '.join(sorted(tables))}); give another file with --db"
+            )
+        check = self._db.execute("PRAGMA integrity_check(1)").fetchone()[0]
+        page = int(self._db.execute("PRAGMA page_size").fetchone()[0])
+        if tables and self.path.stat().st_size % page:
+            check = f"its size is not a whole number of {page}-byte pages: it was cut short"
+        if check != "ok":
+            raise DataFileError(
+                f"{self.path}: the run log is damaged ({check}); nothing is written to it. "
+                f"{SALVAGE_HINT.format(path=self.path)}"
+            )
+        self._db.execute("PRAGMA journal_mode=WAL")
+        # FULL syncs every commit to disk, so a point survives a power cut too; NORMAL (WAL)
+        # survives a crash of the program but may lose the last points to a power cut
+        self._db.execute(f"PRAGMA synchronous={'FULL' if durable else 'NORMAL'}")
+        self._db.execute("PRAGMA foreign_keys=ON")
+        if version == SCHEMA_VERSION and tables >= {"runs", "points", "events"}:
+            self.runs()  # every run's header decodes: a damaged one is refused here, not later
+            return
         if "runs" in tables and version < SCHEMA_VERSION:
             self._upgrade()
         self._db.executescript(_SCHEMA)
@@ -446,11 +474,27 @@ class RunLog:
 
     # -- reading -----------------------------------------------------------------------------
 
+    @contextmanager
+    def _reading(self, what: str) -> Iterator[None]:
+        """Turn what a damaged file does to a read into one ``DataFileError`` with the way
+        out."""
+        try:
+            yield
+        except (sqlite3.DatabaseError, ValueError, TypeError, KeyError) as exc:
+            raise DataFileError(
+                f"{self.path}: {what} cannot be read: the run log is damaged ({exc}). "
+                f"{SALVAGE_HINT.format(path=self.path)}"
+            ) from None
+
     def run(self, run_id: int) -> RunRecord:
         """A run's record; an unknown id raises ``DataFileError`` naming the file."""
-        row = self._db.execute(
-            f"SELECT {_RUN_COLUMNS} FROM runs WHERE id = ?", (run_id,)
-        ).fetchone()
+        with self._reading(f"run {run_id}"):
+            row = self._db.execute(
+                f"SELECT {_RUN_COLUMNS} FROM runs WHERE id = ?", (run_id,)
+            ).fetchone()
+            return self._found(run_id, row)
+
+    def _found(self, run_id: int, row: Sequence[Any] | None) -> RunRecord:
         if row is None:
             known = [str(r[0]) for r in self._db.execute("SELECT id FROM runs ORDER BY id")]
             listing = ", ".join(known[-10:]) or "none yet"
@@ -461,61 +505,66 @@ class RunLog:
 
     def runs(self) -> list[RunRecord]:
         """All runs, oldest first."""
-        rows = self._db.execute(f"SELECT {_RUN_COLUMNS} FROM runs ORDER BY id")
-        return [self._record(r) for r in rows]
+        with self._reading("the list of runs"):
+            rows = self._db.execute(f"SELECT {_RUN_COLUMNS} FROM runs ORDER BY id")
+            return [self._record(r) for r in rows]
 
     @staticmethod
     def _record(row: Sequence[Any]) -> RunRecord:
         (run_id, kind, status, name, path, toml, schedule, plan, dwell, settle, repeats,
          mount, version, started, ended, message, provenance, points) = row  # fmt: skip
+        plan_rows = json.loads(plan)
+        doc = json.loads(provenance)
+        if not isinstance(plan_rows, list) or not isinstance(doc, dict):
+            raise ValueError(f"run {run_id}: its plan or provenance is not what was written")
         return RunRecord(
-            id=run_id,
-            kind=kind,
-            status=status,
-            bench_name=name,
-            bench_path=path,
-            bench_toml=toml,
-            schedule=schedule,
-            plan=tuple(json.loads(plan)),
-            dwell_s=dwell,
-            settle_s=settle,
-            repeats=repeats,
-            imbalance_mount=mount,
-            software_version=version,
-            started_utc=started,
-            ended_utc=ended,
-            message=message,
-            provenance=json.loads(provenance),
-            points=points,
+            id=int(run_id),
+            kind=str(kind),
+            status=str(status),
+            bench_name=str(name),
+            bench_path=None if path is None else str(path),
+            bench_toml=str(toml),
+            schedule=str(schedule),
+            plan=tuple(plan_rows),
+            dwell_s=float(dwell),
+            settle_s=float(settle),
+            repeats=int(repeats),
+            imbalance_mount=str(mount),
+            software_version=str(version),
+            started_utc=str(started),
+            ended_utc=None if ended is None else str(ended),
+            message=str(message),
+            provenance=doc,
+            points=int(points),
         )
 
     def points(self, run_id: int) -> list[LoggedPoint]:
         """A run's points in index order."""
         self.run(run_id)
-        rows = self._db.execute(
-            f"SELECT {', '.join(_POINT_COLUMNS)} FROM points WHERE run_id = ? ORDER BY idx",
-            (run_id,),
-        )
-        out = []
-        for r in rows:
-            values = dict(zip(_POINT_COLUMNS, r, strict=True))
-            values["commanded"] = json.loads(values.pop("commanded_json"))
-            values["readback"] = json.loads(values.pop("readback_json"))
-            out.append(LoggedPoint(**values))
-        return out
+        with self._reading(f"the points of run {run_id}"):
+            rows = self._db.execute(
+                f"SELECT {', '.join(_POINT_COLUMNS)} FROM points WHERE run_id = ? ORDER BY idx",
+                (run_id,),
+            )
+            return [_point(dict(zip(_POINT_COLUMNS, r, strict=True))) for r in rows]
 
     def done_indices(self, run_id: int) -> set[int]:
         """Indices of the points already logged."""
-        return {
-            r[0] for r in self._db.execute("SELECT idx FROM points WHERE run_id = ?", (run_id,))
-        }
+        with self._reading(f"the points of run {run_id}"):
+            rows = self._db.execute("SELECT idx FROM points WHERE run_id = ?", (run_id,))
+            return {int(r[0]) for r in rows}
 
     def events(self, run_id: int) -> list[Event]:
         """A run's events, oldest first."""
-        rows = self._db.execute(
-            "SELECT kind, message, idx, t_utc FROM events WHERE run_id = ? ORDER BY id", (run_id,)
-        )
-        return [Event(kind, message, idx, t) for kind, message, idx, t in rows]
+        with self._reading(f"the events of run {run_id}"):
+            rows = self._db.execute(
+                "SELECT kind, message, idx, t_utc FROM events WHERE run_id = ? ORDER BY id",
+                (run_id,),
+            )
+            return [
+                Event(str(kind), str(message), None if idx is None else int(idx), str(t))
+                for kind, message, idx, t in rows
+            ]
 
     def integrity_ok(self) -> bool:
         """``PRAGMA integrity_check`` says ``ok``."""
@@ -541,6 +590,40 @@ class RunLog:
             yield
         finally:
             handle.close()
+
+
+def _optional(value: Any) -> float | None:
+    return None if value is None else float(value)
+
+
+def _point(values: dict[str, Any]) -> LoggedPoint:
+    """A points row as a :class:`LoggedPoint`, every column converted to its type (a value of
+    the wrong type raises ``ValueError`` or ``TypeError``: a damaged row)."""
+    commanded = json.loads(values["commanded_json"])
+    readback = json.loads(values["readback_json"])
+    if not isinstance(commanded, dict) or not isinstance(readback, dict):
+        raise ValueError(f"point {values['idx']}: its readings are not what was written")
+    return LoggedPoint(
+        idx=int(values["idx"]),
+        target=float(values["target"]),
+        commanded={str(k): float(v) for k, v in commanded.items()},
+        readback={str(k): float(v) for k, v in readback.items()},
+        reading_deg=float(values["reading_deg"]),
+        counts=int(values["counts"]),
+        reference=None if values["reference"] is None else int(values["reference"]),
+        dwell_s=float(values["dwell_s"]),
+        leak=_optional(values["leak"]),
+        leak_lo=_optional(values["leak_lo"]),
+        leak_hi=_optional(values["leak_hi"]),
+        predicted_leak=float(values["predicted_leak"]),
+        predicted_rate=float(values["predicted_rate"]),
+        imbalance_deg=float(values["imbalance_deg"]),
+        pointer=_optional(values["pointer"]),
+        pointer_err=_optional(values["pointer_err"]),
+        started_utc=str(values["started_utc"]),
+        ended_utc=str(values["ended_utc"]),
+        flag=str(values["flag"]),
+    )
 
 
 def _try_lock(handle: Any, byte: int) -> bool:
@@ -585,3 +668,126 @@ def read_run(run_id: int, db: str | Path | None = None) -> tuple[RunRecord, list
     """
     with RunLog(db, create=False) as log:
         return log.run(run_id), log.points(run_id)
+
+
+@dataclass(frozen=True)
+class Salvage:
+    """What :func:`salvage` copied: the runs, points and events it could read, and what it
+    could not (plain sentences)."""
+
+    source: str
+    out: str
+    runs: int
+    points: int
+    events: int
+    lost: tuple[str, ...]
+
+    def to_json(self) -> dict[str, Any]:
+        """The JSON document of ``aligner log salvage --json``."""
+        return {
+            "source": self.source,
+            "out": self.out,
+            "runs": self.runs,
+            "points": self.points,
+            "events": self.events,
+            "lost": list(self.lost),
+        }
+
+
+#: Runs probed one by one when the damaged file cannot list them.
+_PROBE_RUNS = 10_000
+
+
+def _rows(db: sqlite3.Connection, sql: str, args: Sequence[Any] = ()) -> list[dict[str, Any]]:
+    cur = db.execute(sql, args)
+    names = [d[0] for d in cur.description]
+    return [dict(zip(names, row, strict=True)) for row in cur.fetchall()]
+
+
+def salvage(damaged: str | Path, out: str | Path) -> Salvage:
+    """Copy every run, point and event that can still be read from the run log ``damaged``
+    (opened read-only, never changed) into a new run log ``out`` (which must not exist),
+    keeping run ids; rows that cannot be read are counted in ``lost``."""
+    source, target = Path(damaged), Path(out)
+    if not source.is_file():
+        raise DataFileError(f"{source}: no such file")
+    if target.exists():
+        raise DataFileError(f"{target}: exists; give a new file name for the salvaged runs")
+    try:
+        db = sqlite3.connect(f"file:{source}?mode=ro", uri=True)
+    except sqlite3.Error as exc:
+        raise DataFileError(f"{source}: cannot be opened ({exc})") from None
+    lost: list[str] = []
+    try:
+        try:
+            ids = [r["id"] for r in _rows(db, "SELECT id FROM runs ORDER BY id")]
+        except sqlite3.Error:
+            lost.append("the list of runs (each run id was probed instead)")
+            ids = list(range(1, _PROBE_RUNS + 1))
+        copied = [0, 0, 0]
+        with RunLog(target) as new:
+            for run_id in ids:
+                _salvage_run(db, new._db, run_id, copied, lost, probing=len(ids) == _PROBE_RUNS)
+    finally:
+        db.close()
+    return Salvage(str(source), str(target), *copied, tuple(lost))
+
+
+def _salvage_run(
+    db: sqlite3.Connection,
+    new: sqlite3.Connection,
+    run_id: int,
+    copied: list[int],
+    lost: list[str],
+    *,
+    probing: bool,
+) -> None:
+    """Copy run ``run_id`` (its row, then its points and events as far as they read)."""
+    try:
+        rows = _rows(db, "SELECT * FROM runs WHERE id = ?", (run_id,))
+    except sqlite3.Error as exc:
+        if not probing:
+            lost.append(f"run {run_id} ({exc})")
+        return
+    if not rows:
+        return
+    run = {k: v for k, v in rows[0].items() if k in _SALVAGED_RUN_COLUMNS}
+    new.execute(
+        f"INSERT INTO runs ({', '.join(run)}) VALUES ({', '.join('?' * len(run))})",
+        list(run.values()),
+    )
+    copied[0] += 1
+    for table, key in (("points", "idx"), ("events", "id")):
+        try:
+            items = _rows(db, f"SELECT * FROM {table} WHERE run_id = ? ORDER BY {key}", (run_id,))
+        except sqlite3.Error as exc:
+            lost.append(f"the {table} of run {run_id} ({exc})")
+            continue
+        for item in items:
+            new.execute(
+                f"INSERT INTO {table} ({', '.join(item)}) VALUES ({', '.join('?' * len(item))})",
+                list(item.values()),
+            )
+        copied[1 if table == "points" else 2] += len(items)
+
+
+#: Columns of ``runs`` a salvage copies (older files lack the last two; the defaults apply).
+_SALVAGED_RUN_COLUMNS = (
+    "id",
+    "status",
+    "bench_name",
+    "bench_path",
+    "bench_toml",
+    "schedule",
+    "plan_json",
+    "dwell_s",
+    "settle_s",
+    "repeats",
+    "imbalance_mount",
+    "software_version",
+    "started_utc",
+    "ended_utc",
+    "message",
+    "kind",
+    "provenance_json",
+)
