@@ -150,13 +150,13 @@ STEP_KINDS: dict[str, dict[str, Key]] = {
     "set": {
         "from": Key(
             "result", "the fit or null search whose values to set", True, produces=("fit", "null")
-        ),  # fmt: skip
+        ),
         "file": Key(
             "word",
             "ask before writing the bench file, or never write it",
             False,
             choices=("ask", "never"),
-        ),  # fmt: skip
+        ),
     },
     "plan": {
         "amplification": Key("number", "target amplification", False, 1.0, 1e5),
@@ -186,12 +186,10 @@ STEP_KINDS: dict[str, dict[str, Key]] = {
         "within": Key("number", "largest difference that passes (same unit)", False, 0.0, 1e12),
         "within_sigma": Key(
             "number", "largest difference in standard deviations", False, 0.1, 100.0
-        ),  # fmt: skip
+        ),
         "pass_text": Key("text", "said when the check passes"),
         "fail_text": Key("text", "said when the check fails"),
-        "on_fail": Key(
-            "word", "stop the recipe or continue", False, choices=("stop", "continue")
-        ),  # fmt: skip
+        "on_fail": Key("word", "stop the recipe or continue", False, choices=("stop", "continue")),
     },
     "recall": {
         "result": Key("name", "a result of this recipe, from its last earlier run", True),
@@ -539,7 +537,8 @@ def parse_recipe(doc: Mapping[str, Any], path: Path, text: str = "") -> Recipe:
         if key not in ("recipe", "step"):
             raise c.fail(
                 _show(key)[1:-1],
-                f"unknown top-level key (allowed: [recipe], [[step]]){_hint(key, ('recipe', 'step'))}",
+                "unknown top-level key (allowed: [recipe], [[step]])"
+                + _hint(key, ("recipe", "step")),
             )
     deep = max((_depth(v) for v in doc.values()), default=0)
     if deep > LIMITS["nesting"]:

@@ -136,10 +136,11 @@ class ScanData:
 @dataclass(frozen=True)
 class StepOutcome:
     """How one step ended: its ``number`` (1 = first), kind, state (:data:`STEP_STATES`), a
-    plain ``message``, the ``name`` its result is stored under, the ``quantities`` it stored, its ``scan`` (scans and sweeps), the
-    mount ``readings`` of a plan (deg), the bench ``updates`` of a fit or null search (dotted
-    keys), the operator's ``answer`` (confirm: "yes"/"no"; prompt: the value typed), the
-    ``devices`` it used, the ``run`` of a sweep step, and its start and end (UTC)."""
+    plain ``message``, the ``name`` its result is stored under, the ``quantities`` it stored,
+    its ``scan`` (scans and sweeps), the mount ``readings`` of a plan or a move (deg), the
+    bench ``updates`` of a fit or null search (dotted keys), the operator's ``answer``
+    (confirm: "yes"/"no"; prompt: the value typed), the ``devices`` it used, the ``run`` of
+    a sweep step, and its start and end (UTC)."""
 
     number: int
     do: str

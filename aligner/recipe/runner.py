@@ -151,24 +151,26 @@ def run_recipe(
     check_bench(recipe, bench)
     _check_automatic(recipe, operator)
     _say_cautions(recipe, operator, "before you start")
-    with _Opened(bench, station, overrides, seed, realtime) as st:
-        with RunLog(db, durable=st.provenance.kinds != {"simulated"}) as log:
-            run_id = log.create_recipe_run(
-                recipe={
-                    "name": recipe.name,
-                    "path": str(recipe.path),
-                    "text": recipe.text,
-                    "steps": [s.to_json() for s in recipe.steps],
-                },
-                bench_name=bench.name,
-                bench_path=str(bench.path),
-                bench_toml=snapshot_text(bench),
-                imbalance_mount=bench.imbalance_mount,
-                software_version=st.provenance.software_version,
-                provenance=st.provenance.to_json(),
-            )
-            ctx = Context(recipe, bench, st, operator, log, run_id)
-            return _walk(ctx, 0)
+    with (
+        _Opened(bench, station, overrides, seed, realtime) as st,
+        RunLog(db, durable=st.provenance.kinds != {"simulated"}) as log,
+    ):
+        run_id = log.create_recipe_run(
+            recipe={
+                "name": recipe.name,
+                "path": str(recipe.path),
+                "text": recipe.text,
+                "steps": [s.to_json() for s in recipe.steps],
+            },
+            bench_name=bench.name,
+            bench_path=str(bench.path),
+            bench_toml=snapshot_text(bench),
+            imbalance_mount=bench.imbalance_mount,
+            software_version=st.provenance.software_version,
+            provenance=st.provenance.to_json(),
+        )
+        ctx = Context(recipe, bench, st, operator, log, run_id)
+        return _walk(ctx, 0)
 
 
 def resume_recipe(
