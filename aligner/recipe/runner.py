@@ -373,7 +373,7 @@ class _Walk:
         outcome = replace(outcome, started_utc=started, ended_utc=utc_now())
         self.write(outcome)
         ctx.remember(step, outcome)
-        ctx.operator.say(f"{step.label()}: {outcome.message}")
+        ctx.operator.say(f"  {outcome.state}: {outcome.message}")
         ctx.operator.step_ended(outcome)
         return outcome
 
