@@ -192,7 +192,7 @@ def resume_recipe(
     import tomllib
 
     from ..run.log import Event, RunLog
-    from ..run.sweep import resume_bench, resume_plan
+    from ..run.sweep import resume_bench
 
     with RunLog(db, create=False) as log:
         record = log.run(run_id)
@@ -200,7 +200,7 @@ def resume_recipe(
         if record.status == "complete":
             raise InputError(f"recipe run {run_id} is already complete")
         recipe = parse_recipe(tomllib.loads(row.text), Path(row.path), row.text)
-        logged, note = resume_bench(resume_plan(record)[0], bench, record)
+        logged, note = resume_bench(_logged_bench(record), bench, record)
         outcomes = {r.number: StepOutcome.from_json(r.outcome) for r in log.recipe_steps(run_id)}
         start = _resume_index(recipe, outcomes, from_step)
         check_bench(recipe, logged)
@@ -219,6 +219,16 @@ def resume_recipe(
             log.add_events(run_id, events)
             operator.say(f"recipe run {run_id}: going on at step {start + 1}")
             return _walk(ctx, start, claimed=True)
+
+
+def _logged_bench(record: RunRecord) -> Bench:
+    """The bench a run was logged with (its snapshot)."""
+    import tomlkit
+
+    from ..bench import parse_bench
+
+    where = record.bench_path or f"run {record.id}"
+    return parse_bench(tomlkit.parse(record.bench_toml).unwrap(), where)
 
 
 def _resume_index(
