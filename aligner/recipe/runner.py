@@ -37,6 +37,7 @@ from .steps import STEP_FUNCTIONS, Context, Operator, OperatorPause, mount_of, p
 
 if TYPE_CHECKING:
     from ..bench import Bench
+    from ..run.log import RunRecord
     from ..run.station import Station
 
 __all__ = ["RecipeRunResult", "check_bench", "resume_recipe", "run_recipe"]
