@@ -6,6 +6,7 @@ import argparse
 import sys
 from typing import TYPE_CHECKING, Any, TextIO
 
+from ..recipe.steps import Operator
 from .common import add_device_arguments, add_json_flag, laser_safety
 
 if TYPE_CHECKING:
@@ -109,7 +110,7 @@ def _show(recipe: Recipe) -> None:
         print(clean(f"{step.number:>3}. {step.do:<8} {step.title or detail}"))
 
 
-class TerminalOperator:
+class TerminalOperator(Operator):
     """The operator at a terminal: lines to ``out`` (cleaned of control characters), answers
     typed on standard input; ``automatic`` (``--yes``) prints each question and its answer."""
 

@@ -173,7 +173,11 @@ def apply_updates(bench: Bench, updates: Mapping[str, float]) -> Bench:
         parts = key.split(".")
         if len(parts) == 3 and parts[0] == "mounts" and parts[2] in _ALLOWED_UPDATES:
             mount = bench.mounts[parts[1]]
-            bench = bench.with_mounts(**{parts[1]: replace(mount, **{parts[2]: float(value)})})
+            if parts[2] == "offset_deg":
+                mount = replace(mount, offset_deg=float(value))
+            else:
+                mount = replace(mount, offset_err_deg=float(value))
+            bench = bench.with_mounts(**{parts[1]: mount})
         elif key == "analyzer.extinction_ratio":
             bench = replace(bench, analyzer=replace(bench.analyzer, extinction_ratio=value))
         else:
