@@ -368,3 +368,21 @@ def test_a_schema_1_log_is_upgraded_in_place_and_keeps_its_runs(tmp_path):
         assert log.recipe_run_ids("anything") == []
         version = log._db.execute("PRAGMA user_version").fetchone()[0]
     assert version == SCHEMA_VERSION == 2
+
+
+def test_yes_is_refused_on_a_bench_with_a_real_device(tmp_path, capsys):
+    from aligner.bench import DEMO_BENCH
+
+    text = DEMO_BENCH.read_text(encoding="utf-8")
+    real = text.replace(
+        '[mounts.analyzer]\ndriver = "sim"', '[mounts.analyzer]\ndriver = "/dev/ttyX"'
+    )
+    assert real != text
+    path = tmp_path / "real.toml"
+    path.write_text(real, encoding="utf-8")
+    code = main(
+        ["recipe", "run", "cross-analyzer", str(path), "--yes", "--db", str(tmp_path / "r")]
+    )
+    err = capsys.readouterr().err
+    assert code == 2 and "--yes is only for simulated benches" in err
+    assert not (tmp_path / "r").exists()
