@@ -202,8 +202,9 @@ class RecipeScreen(DeskScreen):
 
     @on(RecipeSaid)
     def said(self, event: RecipeSaid) -> None:
-        self.lines = [*self.lines, clean(event.text)][-8:]
-        self.query_one("#recipe-lines", Static).update(Text("\n".join(self.lines)))
+        self.lines = [*self.lines, clean(event.text)][-4:]
+        lines = Text("\n".join(self.lines), no_wrap=True, overflow="ellipsis")
+        self.query_one("#recipe-lines", Static).update(lines)
 
     @on(RecipeStepState)
     def step_state(self, event: RecipeStepState) -> None:

@@ -34,9 +34,15 @@ class RecipeSteps(Static):
         self.border_title = "Steps"
 
     def show(self, steps: Sequence[Any], states: Mapping[int, str]) -> None:
-        """Show ``steps`` (:class:`aligner.recipe.Step`) with ``states`` by step number."""
-        text = Text()
-        for step in steps:
+        """Show ``steps`` (:class:`aligner.recipe.Step`) with ``states`` by step number,
+        from two steps before the latest one that has a state (a small screen shows the
+        current step)."""
+        text = Text(no_wrap=True, overflow="ellipsis")
+        latest = max((i for i, s in enumerate(steps) if states.get(s.number)), default=0)
+        first = max(0, latest - 2)
+        if first:
+            text.append(f"  ({first} earlier steps above)\n", style="dim")
+        for step in steps[first:]:
             word, style = _STATE.get(states.get(step.number, ""), ("?", ""))
             label = step.title or str(step.args.get("text", ""))[:48]
             text.append(f"{step.number:>3}. {step.do:<8} ")
