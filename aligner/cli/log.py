@@ -65,6 +65,39 @@ def _run_json(r: Any) -> dict[str, Any]:
     }
 
 
+def _show_recipe(console: Any, log: Any, run_id: int, as_json: bool) -> None:
+    """``log show`` of a recipe run: its header, devices, every step and the events."""
+    from ..recipe.report import step_lines
+    from ..run.report import device_lines
+    from ..text import safe_text
+    from .common import emit_json
+
+    record, steps, events = log.run(run_id), log.recipe_steps(run_id), log.events(run_id)
+    recipe = log.recipe_run(run_id)
+    if as_json:
+        emit_json(
+            {
+                **_run_json(record),
+                "recipe": {"name": recipe.name, "path": recipe.path, "steps": recipe.steps},
+                "provenance": record.provenance,
+                "steps": [row.outcome for row in steps],
+                "events": [e.__dict__ for e in events],
+            }
+        )
+        return
+    console.print(
+        safe_text(
+            f"run {record.id}: recipe {recipe.name} ({recipe.path}), {record.status} "
+            f"({record.data_label}), {len(steps)} of {recipe.steps} steps logged, bench "
+            f"{record.bench_name}" + (f"\n{record.message}" if record.message else "")
+        )
+    )
+    for line in (*device_lines(record), *step_lines(steps)):
+        console.print(f"  {safe_text(line)}")
+    for e in events:
+        console.print(f"{e.t_utc[:19]} {e.kind}: {safe_text(e.message)}")
+
+
 def run(args: argparse.Namespace) -> int:
     """Carry out one ``log`` action."""
     from rich.table import Table
@@ -88,16 +121,21 @@ def run(args: argparse.Namespace) -> int:
             for column in ("run", "status", "data", "points", "schedule", "bench", "started"):
                 table.add_column(column)
             for r in runs:
+                recipe = r.kind == "recipe"
                 table.add_row(
                     str(r.id),
                     r.status,
                     r.data_label,
-                    f"{r.points}/{r.planned}",
-                    safe_text(r.schedule),
+                    f"{len(log.recipe_steps(r.id))}/{r.planned} steps"
+                    if recipe
+                    else f"{r.points}/{r.planned}",
+                    safe_text(f"recipe {r.schedule}" if recipe else r.schedule),
                     safe_text(r.bench_name),
                     r.started_utc[:19].replace("T", " ") + " UTC",
                 )
             console.print(table)
+        elif args.action == "show" and log.run(args.run).kind == "recipe":
+            _show_recipe(console, log, args.run, args.json)
         elif args.action == "show":
             record, points, events = log.run(args.run), log.points(args.run), log.events(args.run)
             if args.json:
@@ -150,9 +188,19 @@ def run(args: argparse.Namespace) -> int:
             log.note(args.run, " ".join(args.text))
             console.print(f"note added to run {args.run}")
         else:
-            report = write_report(
-                log.run(args.run), log.points(args.run), log.events(args.run), args.out
-            )
+            record = log.run(args.run)
+            if record.kind == "recipe":
+                from ..recipe.report import write_recipe_report
+
+                report = write_recipe_report(
+                    record,
+                    log.recipe_run(args.run),
+                    log.recipe_steps(args.run),
+                    log.events(args.run),
+                    args.out,
+                )
+            else:
+                report = write_report(record, log.points(args.run), log.events(args.run), args.out)
             console.print(
                 safe_text(
                     f"wrote {report.markdown}"

@@ -25,6 +25,15 @@ Tables:
 ``events``
     ``run_id``, ``idx`` (point, may be NULL), ``kind`` (:data:`EVENT_KINDS`), ``message``,
     ``t_utc``.
+``recipe_runs`` (schema 2)
+    one row per run of kind ``recipe``: ``run_id``, ``name`` and ``path`` of the recipe,
+    ``recipe_text`` (the file's text: a resumed run follows the recipe as it was), ``steps``.
+``recipe_steps`` (schema 2)
+    one row per step of a recipe run, key (``run_id``, ``number``; 1 = the first step):
+    ``do``, ``state`` (:data:`aligner.recipe.results.STEP_STATES`), ``outcome_json`` (the
+    step's :class:`aligner.recipe.results.StepOutcome`: values with units and uncertainties,
+    pass/fail, the operator's answer, the devices used), ``started_utc``, ``ended_utc``. A
+    step done again on a resume replaces its row.
 
 A point and the events raised while taking it are written in one transaction, so a crash
 loses at most the point being counted. Times are UTC ISO 8601 strings. The file's
@@ -51,6 +60,8 @@ __all__ = [
     "RUN_STATUSES",
     "Event",
     "LoggedPoint",
+    "RecipeRunRow",
+    "RecipeStepRow",
     "RunLog",
     "RunRecord",
     "Salvage",
@@ -64,7 +75,7 @@ RUN_STATUSES = ("running", "interrupted", "complete")
 #: ``device``: a device's remark that is not a fault (a late reply discarded, a homing).
 EVENT_KINDS = ("fault", "guard", "pause", "resume", "note", "device")
 #: The schema this code writes (the file's ``PRAGMA user_version``); 0 is the first schema.
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 #: What to do with a damaged run log (``{path}``: the file).
 SALVAGE_HINT = (
     "Copy the readable runs into a new file with 'aligner log salvage --db {path} --out "
@@ -122,7 +133,27 @@ CREATE TABLE IF NOT EXISTS events (
     message TEXT NOT NULL,
     t_utc TEXT NOT NULL
 );
+CREATE TABLE IF NOT EXISTS recipe_runs (
+    run_id INTEGER PRIMARY KEY REFERENCES runs(id),
+    name TEXT NOT NULL,
+    path TEXT NOT NULL,
+    recipe_text TEXT NOT NULL,
+    steps INTEGER NOT NULL
+);
+CREATE TABLE IF NOT EXISTS recipe_steps (
+    run_id INTEGER NOT NULL REFERENCES runs(id),
+    number INTEGER NOT NULL,
+    do TEXT NOT NULL,
+    state TEXT NOT NULL,
+    outcome_json TEXT NOT NULL,
+    started_utc TEXT NOT NULL,
+    ended_utc TEXT NOT NULL,
+    PRIMARY KEY (run_id, number)
+);
 """
+
+#: The tables of :data:`SCHEMA_VERSION`.
+_TABLES = frozenset({"runs", "points", "events", "recipe_runs", "recipe_steps"})
 
 #: Schema 0 -> 1: run kind and provenance, nullable leak with a flag, event kinds checked in
 #: Python. SQLite cannot relax NOT NULL or CHECK in place, so points and events are rebuilt.
@@ -259,6 +290,30 @@ class RunRecord:
         return " and ".join(words) + (" (with real devices)" if "real" in kinds else "")
 
 
+@dataclass(frozen=True)
+class RecipeRunRow:
+    """What a recipe run follows: the recipe's ``name``, ``path``, the file's ``text`` as it
+    was when the run started, and its number of ``steps``."""
+
+    run_id: int
+    name: str
+    path: str
+    text: str
+    steps: int
+
+
+@dataclass(frozen=True)
+class RecipeStepRow:
+    """One logged step of a recipe run (``outcome`` is the stored JSON document)."""
+
+    number: int
+    do: str
+    state: str
+    outcome: Mapping[str, Any]
+    started_utc: str
+    ended_utc: str
+
+
 class RunLog:
     """A connection to a run-log file; created (with its folder) when missing.
 
@@ -328,11 +383,12 @@ class RunLog:
         # survives a crash of the program but may lose the last points to a power cut
         self._db.execute(f"PRAGMA synchronous={'FULL' if durable else 'NORMAL'}")
         self._db.execute("PRAGMA foreign_keys=ON")
-        if version == SCHEMA_VERSION and tables >= {"runs", "points", "events"}:
+        if version == SCHEMA_VERSION and tables >= _TABLES:
             self.runs()  # every run's header decodes: a damaged one is refused here, not later
             return
-        if "runs" in tables and version < SCHEMA_VERSION:
+        if "runs" in tables and version < 1:
             self._upgrade()
+        # schema 1 -> 2 adds the recipe tables only: CREATE TABLE IF NOT EXISTS does it
         self._db.executescript(_SCHEMA)
         self._db.execute(f"PRAGMA user_version={SCHEMA_VERSION}")
 
@@ -468,6 +524,98 @@ class RunLog:
             "INSERT INTO events (run_id, idx, kind, message, t_utc) VALUES (?, ?, ?, ?, ?)",
             [(run_id, e.idx, e.kind, e.message, e.t_utc or utc_now()) for e in events],
         )
+
+    # -- recipe runs (schema 2) ----------------------------------------------------------------
+
+    def create_recipe_run(
+        self,
+        *,
+        recipe: Mapping[str, Any],
+        bench_name: str,
+        bench_path: str | None,
+        bench_toml: str,
+        imbalance_mount: str,
+        software_version: str,
+        provenance: Mapping[str, Any],
+    ) -> int:
+        """Insert a run of kind ``recipe`` (status ``running``) and what it follows:
+        ``recipe`` holds ``name``, ``path``, ``text`` and ``steps`` (a list of the steps as
+        plain data, stored as the run's plan). Returns the run's id."""
+        steps = list(recipe["steps"])
+        with self._transaction():
+            run_id = self.create_run(
+                bench_name=bench_name,
+                bench_path=bench_path,
+                bench_toml=bench_toml,
+                schedule=str(recipe["name"]),
+                plan=steps,
+                dwell_s=0.0,
+                settle_s=0.0,
+                repeats=1,
+                imbalance_mount=imbalance_mount,
+                software_version=software_version,
+                provenance=provenance,
+                kind="recipe",
+            )
+            self._db.execute(
+                "INSERT INTO recipe_runs (run_id, name, path, recipe_text, steps) "
+                "VALUES (?, ?, ?, ?, ?)",
+                (run_id, str(recipe["name"]), str(recipe["path"]), str(recipe["text"]), len(steps)),
+            )
+        return run_id
+
+    def put_step(
+        self,
+        run_id: int,
+        outcome: Mapping[str, Any],
+        events: Iterable[Event] = (),
+    ) -> None:
+        """Write (or replace) one recipe step's outcome document (``number``, ``do``,
+        ``state``, ``started_utc``, ``ended_utc`` read from it) and its events in one
+        transaction."""
+        with self._transaction():
+            self._db.execute(
+                "INSERT OR REPLACE INTO recipe_steps (run_id, number, do, state, outcome_json, "
+                "started_utc, ended_utc) VALUES (?, ?, ?, ?, ?, ?, ?)",
+                (
+                    run_id,
+                    int(outcome["number"]),
+                    str(outcome["do"]),
+                    str(outcome["state"]),
+                    json.dumps(dict(outcome)),
+                    str(outcome.get("started_utc") or utc_now()),
+                    str(outcome.get("ended_utc") or utc_now()),
+                ),
+            )
+            self._insert_events(run_id, events)
+
+    def recipe_run(self, run_id: int) -> RecipeRunRow:
+        """What recipe run ``run_id`` follows; a run of another kind raises ``InputError``."""
+        record = self.run(run_id)
+        row = self._db.execute(
+            "SELECT name, path, recipe_text, steps FROM recipe_runs WHERE run_id = ?", (run_id,)
+        ).fetchone()
+        if row is None:
+            raise InputError(
+                f"run {run_id} is a {record.kind} run, not a recipe run; see 'aligner log list'"
+            )
+        return RecipeRunRow(run_id, *row)
+
+    def recipe_steps(self, run_id: int) -> list[RecipeStepRow]:
+        """The logged steps of a recipe run, in step order."""
+        rows = self._db.execute(
+            "SELECT number, do, state, outcome_json, started_utc, ended_utc FROM recipe_steps "
+            "WHERE run_id = ? ORDER BY number",
+            (run_id,),
+        )
+        return [RecipeStepRow(n, do, st, json.loads(o), t0, t1) for n, do, st, o, t0, t1 in rows]
+
+    def recipe_run_ids(self, name: str) -> list[int]:
+        """Ids of the runs of recipe ``name``, newest first."""
+        rows = self._db.execute(
+            "SELECT run_id FROM recipe_runs WHERE name = ? ORDER BY run_id DESC", (name,)
+        )
+        return [int(r[0]) for r in rows]
 
     def _transaction(self) -> _Transaction:
         return _Transaction(self._db)
@@ -757,9 +905,13 @@ def _salvage_run(
         list(run.values()),
     )
     copied[0] += 1
-    for table, key in (("points", "idx"), ("events", "id")):
+    for table, key in _SALVAGED_TABLES:
         try:
             items = _rows(db, f"SELECT * FROM {table} WHERE run_id = ? ORDER BY {key}", (run_id,))
+        except sqlite3.OperationalError as exc:
+            if "no such table" not in str(exc):  # an older file has no recipe tables
+                lost.append(f"the {table} of run {run_id} ({exc})")
+            continue
         except sqlite3.Error as exc:
             lost.append(f"the {table} of run {run_id} ({exc})")
             continue
@@ -768,9 +920,17 @@ def _salvage_run(
                 f"INSERT INTO {table} ({', '.join(item)}) VALUES ({', '.join('?' * len(item))})",
                 list(item.values()),
             )
-        copied[1 if table == "points" else 2] += len(items)
+        if table in ("points", "events"):
+            copied[1 if table == "points" else 2] += len(items)
 
 
+#: Tables a salvage copies row by row after a run's header, and the column to order them by.
+_SALVAGED_TABLES = (
+    ("points", "idx"),
+    ("events", "id"),
+    ("recipe_runs", "run_id"),
+    ("recipe_steps", "number"),
+)
 #: Columns of ``runs`` a salvage copies (older files lack the last two; the defaults apply).
 _SALVAGED_RUN_COLUMNS = (
     "id",

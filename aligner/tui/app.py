@@ -14,10 +14,11 @@ from textual.app import App
 from textual.binding import Binding, BindingType
 
 from .backend import DeskBackend
-from .messages import ApplyReadings, ReadingsChanged, SweepEnded
+from .messages import ApplyReadings, ReadingsChanged, RecipeEnded, SweepEnded
 from .screens.bench import BenchScreen
 from .screens.log import LogScreen
 from .screens.plan import PlanScreen
+from .screens.recipe import RecipeScreen
 from .screens.sweep import SweepScreen
 
 __all__ = ["DeskApp", "make_app"]
@@ -34,6 +35,7 @@ class DeskApp(App[int]):
         "plan": PlanScreen,
         "sweep": SweepScreen,
         "log": LogScreen,
+        "recipe": RecipeScreen,
     }
     DEFAULT_MODE = "bench"
     BINDINGS: ClassVar[list[BindingType]] = [
@@ -41,6 +43,7 @@ class DeskApp(App[int]):
         Binding("f2", "switch_mode('plan')", "Plan", priority=True),
         Binding("f3", "switch_mode('sweep')", "Sweep", priority=True),
         Binding("f4", "switch_mode('log')", "Log", priority=True),
+        Binding("f5", "switch_mode('recipe')", "Recipes", priority=True),
         Binding("ctrl+q", "quit", "Quit", priority=True),
     ]
 
@@ -71,6 +74,7 @@ class DeskApp(App[int]):
         self.exit(0)
 
     @on(SweepEnded)
+    @on(RecipeEnded)
     def sweep_ended(self) -> None:
         if self._quit_after_sweep:
             self.exit(0)

@@ -227,6 +227,42 @@ class DeskBackend:
                 log, planned.schedule, plan=planned.points, on_start=started, on_point=hook
             )
 
+    # -- recipes (the recipe screen) -----------------------------------------------------------
+
+    def recipes(self) -> list[Any]:
+        """Bundled and local recipes (:func:`aligner.recipe.catalog`), each with its error if
+        it does not load."""
+        from ..recipe import catalog
+
+        return catalog()
+
+    def run_recipe(
+        self,
+        recipe: Any,
+        operator: Any,
+        readings: Mapping[str, float],
+        *,
+        resume_run: int | None = None,
+    ) -> Any:
+        """Run ``recipe`` (or resume recipe run ``resume_run``) on the desk's station with
+        ``operator`` (:class:`aligner.recipe.Operator`); blocking, for a worker thread.
+        :meth:`request_stop` pauses it at its next safe point. Returns the engine's
+        ``RecipeRunResult``."""
+        from ..recipe import resume_recipe, run_recipe
+
+        self.sweeping = True
+        self._idle.clear()
+        try:
+            station = self.station(readings)
+            if resume_run is not None:
+                return resume_recipe(
+                    resume_run, self.bench, operator, db=self.db_path, station=station
+                )
+            return run_recipe(recipe, self.bench, operator, db=self.db_path, station=station)
+        finally:
+            self.sweeping = False
+            self._idle.set()
+
     # -- the run log --------------------------------------------------------------------------
 
     def run_log(self) -> RunLog:

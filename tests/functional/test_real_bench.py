@@ -148,7 +148,7 @@ def test_without_safe_rate_nothing_exposes_the_detector_but_predict_works(tmp_pa
     for args in (
         ["sweep", str(path), "--schedule", "list:0.5", "--db", str(tmp_path / "r.db")],
         ["null", str(path)],
-        ["recipe", "run", "find-null", str(path), "--yes", "--db", str(tmp_path / "r.db")],
+        ["recipe", "run", "cross-analyzer", str(path), "--yes", "--db", str(tmp_path / "r.db")],
     ):
         out = _cli(*args)
         assert out.returncode == 2, (args, out.stderr)

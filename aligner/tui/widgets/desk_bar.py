@@ -13,6 +13,7 @@ SCREENS = (
     ("plan", "F2", "Plan"),
     ("sweep", "F3", "Sweep"),
     ("log", "F4", "Log"),
+    ("recipe", "F5", "Recipes"),
 )
 
 
