@@ -14,6 +14,7 @@ wrong and what to do; the CLI prints it to stderr and exits with ``exit_code``.
     └── DeviceError                 (exit 3) raised only by drivers/, converted at the boundary
         ├── DeviceTimeout
         ├── BadReply
+        │   └── Unattributable  a reply that cannot be told to belong to its command
         ├── DeviceRefused           the controller answered with an error reply
         ├── Disconnected
         └── GuardTrip               the detector guard stopped a move or a count
@@ -37,6 +38,7 @@ __all__ = [
     "InfeasibleTarget",
     "InputError",
     "RecipeError",
+    "Unattributable",
 ]
 
 
@@ -96,6 +98,11 @@ class DeviceTimeout(DeviceError):
 
 class BadReply(DeviceError):
     """A device answered with something that does not match the profile's reply pattern."""
+
+
+class Unattributable(BadReply):
+    """A reply that cannot be attributed to its command (two replies to one command, a gate
+    that did not start): a fault, never a data point."""
 
 
 class DeviceRefused(DeviceError):
