@@ -835,8 +835,10 @@ class Gated(Shape):
 
 class FreeRunning(Shape):
     """A free-running counter: every ``window_s`` one unsolicited line ``C seq a b``; a
-    refusal (an overload) is the line ``E reason`` instead. ``windows`` lists what was sent;
-    ``drop_next`` loses one window (back door)."""
+    refusal (an overload, which lasts ``refusal_windows``) is the line ``E reason`` instead.
+    ``windows`` lists what was sent; ``drop_next`` loses one window (back door)."""
+
+    refusal_windows = 4
 
     def __init__(
         self,
@@ -853,6 +855,7 @@ class FreeRunning(Shape):
         self.drop_next = False
         self.windows: list[tuple[float, tuple[int, ...]]] = []
         self._due = time.monotonic() + window_s
+        self._refused = 0
 
     def handle(self, command: bytes, offset: float) -> None:
         return None
@@ -867,8 +870,9 @@ class FreeRunning(Shape):
             self.windows.append((self._due, counts))
             self._due += self.window_s
             self.seq += 1
-            if reason := self._refusing():
-                self.send_later(f"E {reason}\r\n".encode(), 0.0)
+            if self.refusal and self._refused < self.refusal_windows:
+                self._refused += 1
+                self.send_later(f"E {self.refusal}\r\n".encode(), 0.0)
             elif self.drop_next:
                 self.drop_next = False
             else:

@@ -244,13 +244,13 @@ class LineChannel:
                         f"{self.where('counter.window_s')}: {len(lines)} of {count} lines came "
                         "in time; check the cable and that the counter is running"
                     )
+                text = item.decode(expect.encoding, errors="replace")
+                fields, kind = expect.classify(text)
+                if kind == "error":  # even in a window begun before: it overlaps this dwell
+                    raise self._refused(entry.key, Outcome(kind, fields or {}, text))
                 if skip:
                     skip -= 1
                     continue
-                text = item.decode(expect.encoding, errors="replace")
-                fields, kind = expect.classify(text)
-                if kind == "error":
-                    raise self._refused(entry.key, Outcome(kind, fields or {}, text))
                 if fields is None:
                     raise BadReply(
                         f"{self.where(entry.key + '.reply')}: the line {text!r} does not have "
