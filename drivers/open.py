@@ -18,7 +18,8 @@ Options (query keys and keyword names are the same):
 
 - serial, all kinds: ``name``, ``baud``, ``timeout`` (reply timeout, s), ``retries``,
   ``addr`` and ``axis`` (fill ``{addr}`` and ``{axis}`` of the profile's templates: several
-  devices at different addresses share one open port);
+  devices at different addresses share one open port); the keyword ``wire_log(direction,
+  data)`` sees every byte sent (``"->"``) and received (``"<-"``) on the port;
 - ``sim`` mount: ``name``, ``resolution`` (deg), ``backlash`` (deg), ``speed`` (deg/s),
   ``travel`` (``low,high`` deg), ``noise`` (rms deg), ``seed``, ``realtime``, ``start`` (deg);
 - ``sim`` counter: ``name``, ``channels``, ``rate`` and ``ref_rate`` (counts/s, Poisson),
@@ -117,6 +118,7 @@ _SERIAL_OPTIONS: dict[str, tuple[str, Converter]] = {
     "retries": ("retries", _whole),
     "addr": ("address", _text),
     "axis": ("axis", _text),
+    "wire_log": ("wire_log", _function),
 }
 _SIM_MOUNT: dict[str, tuple[str, Converter]] = {
     "name": ("name", _text),
@@ -219,6 +221,7 @@ def _open_channel(
     loaded = profile if isinstance(profile, DeviceProfile) else load_profile(profile)
     options = _options(spec, _SERIAL_OPTIONS, {}, overrides)
     name = options.pop("name", None)
+    wire_log = options.pop("wire_log", None)
     loaded = loaded.with_options(**options)
 
     def open_port() -> Any:
@@ -238,6 +241,8 @@ def _open_channel(
         return port
 
     bus = attach(spec, loaded.link, open_port, who=loaded.where())
+    if wire_log is not None:
+        bus.set_wire_log(wire_log)
     return LineChannel(bus, loaded, name=name), name
 
 

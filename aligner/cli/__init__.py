@@ -18,7 +18,19 @@ from collections.abc import Sequence
 __all__ = ["build_parser", "main"]
 
 #: Command modules in the order ``aligner --help`` lists them.
-COMMANDS = ("predict", "plan", "derive", "leak", "fit", "null", "sweep", "log", "recipe", "desk")
+COMMANDS = (
+    "predict",
+    "plan",
+    "derive",
+    "leak",
+    "fit",
+    "null",
+    "sweep",
+    "log",
+    "recipe",
+    "device",
+    "desk",
+)
 
 
 def build_parser() -> argparse.ArgumentParser:
