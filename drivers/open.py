@@ -55,7 +55,15 @@ from .serial_pointer import LinePointer
 from .serial_shutter import LineShutter
 from .sim import FunctionCounter, SimMount, SimPointer, SimShutter, poisson_counter
 
-__all__ = ["check_spec", "open_counter", "open_mount", "open_pointer", "open_shutter"]
+__all__ = [
+    "check_spec",
+    "open_counter",
+    "open_mount",
+    "open_pointer",
+    "open_shutter",
+    "profile_roles",
+    "shipped_profile_list",
+]
 
 _URL_SCHEMES = ("loop", "rfc2217", "socket", "spy")
 _ALLOWED_SPECS = (
@@ -244,6 +252,20 @@ def _open_channel(
     if wire_log is not None:
         bus.set_wire_log(wire_log)
     return LineChannel(bus, loaded, name=name), name
+
+
+def profile_roles(profile: str | Path) -> frozenset[str]:
+    """Which devices a profile drives (``mount``, ``counter``, ``shutter``, ``pointer``)."""
+    return load_profile(profile).roles
+
+
+def shipped_profile_list() -> list[tuple[str, frozenset[str], str]]:
+    """(name, roles, description) of every shipped example profile, by name."""
+    out = []
+    for name in shipped_profiles():
+        loaded = load_profile(name)
+        out.append((name, loaded.roles, loaded.description))
+    return out
 
 
 def _with_channel(

@@ -131,9 +131,9 @@ def _role(args: argparse.Namespace) -> str:
         return str(args.role)
     if args.profile is None:
         raise InputError(f"--as: say which device {args.spec!r} is ({', '.join(ROLES)})")
-    from aligner_drivers.lineproto import load_profile
+    from aligner_drivers.open import profile_roles
 
-    roles = sorted(load_profile(args.profile).roles)
+    roles = sorted(profile_roles(args.profile))
     if len(roles) != 1:
         raise InputError(
             f"--as: {args.profile} drives {' and '.join(roles) or 'nothing'}; choose one of "
@@ -143,8 +143,14 @@ def _role(args: argparse.Namespace) -> str:
 
 
 def _open(args: argparse.Namespace, role: str) -> Any:
-    from aligner_drivers import open as opening
+    from aligner_drivers.open import open_counter, open_mount, open_pointer, open_shutter
 
+    openers = {
+        "mount": open_mount,
+        "counter": open_counter,
+        "shutter": open_shutter,
+        "pointer": open_pointer,
+    }
     options: dict[str, Any] = {}
     if args.profile is not None:
         options = {k: v for k, v in (("addr", args.addr), ("axis", args.axis)) if v is not None}
@@ -158,8 +164,7 @@ def _open(args: argparse.Namespace, role: str) -> Any:
                 print(f"wire {stamp:9.1f} ms {direction} {escaped(data)}", file=sys.stderr)
 
             options["wire_log"] = wire
-    opener = getattr(opening, f"open_{role}")
-    return opener(args.spec, profile=args.profile, **options)
+    return openers[role](args.spec, profile=args.profile, **options)
 
 
 def _state(device: Any, role: str) -> dict[str, Any]:
@@ -300,14 +305,14 @@ def _print(report: Report) -> None:
 
 
 def _profiles(args: argparse.Namespace) -> int:
-    from aligner_drivers.lineproto import load_profile, shipped_profiles
+    from aligner_drivers.open import shipped_profile_list
 
     from .common import emit_json
 
-    rows = []
-    for name in shipped_profiles():
-        p = load_profile(name)
-        rows.append({"name": name, "roles": sorted(p.roles), "description": p.description})
+    rows = [
+        {"name": name, "roles": sorted(roles), "description": description}
+        for name, roles, description in shipped_profile_list()
+    ]
     if args.json:
         emit_json({"profiles": rows})
     else:
