@@ -6,19 +6,25 @@ from __future__ import annotations
 import copy
 import struct
 import tomllib
+from pathlib import Path
 
 import pytest
 
 from aligner.errors import InputError
+from aligner_drivers.dialogue import DialoguePort
 from aligner_drivers.lineproto import (
     FORMAT,
     PROFILE_DIR,
+    Bus,
+    LineChannel,
     Template,
     codec,
     load_profile,
+    loader,
     parse_profile,
     shipped_profiles,
 )
+from aligner_drivers.serial_mount import LineMount
 
 MOUNT = tomllib.loads((PROFILE_DIR / "example-mount.toml").read_text())
 SHUTTER = {
@@ -248,3 +254,28 @@ def test_template_errors():
         Template("{addr:int}", allowed=REPLY_FIELDS, replies=True)
     with pytest.raises(ValueError, match=r"unknown field \{_x\}"):
         Template("{_x}", allowed=frozenset({"value"}), replies=False)
+
+
+# -- the reference page ---------------------------------------------------------------------
+
+DOCS = Path(__file__).resolve().parents[2] / "docs" / "device-profiles.md"
+
+
+def test_the_reference_page_describes_every_key():
+    text = DOCS.read_text(encoding="utf-8")
+    keys = {k for keys in loader._TABLES.values() for k in keys} | set(loader._ENTRY_KEYS)
+    missing = sorted(k for k in keys | {"format"} if f"`{k}`" not in text)
+    assert missing == []
+    for table in [*loader._TABLES, "entry.NAME", "error_codes"]:
+        assert f"`[{table}]`" in text
+
+
+def test_the_reference_pages_example_and_dialogue_work():
+    text = DOCS.read_text(encoding="utf-8")
+    example = text.split("```toml\n", 1)[1].split("```", 1)[0]
+    profile = parse_profile(tomllib.loads(example), "example.toml")
+    pairs = [("1MA10000", "1OK"), ("1BZ", "1BZ0"), ("1TP", "1TP10000")]
+    assert str(pairs)[1:-1].replace("'", '"') in text  # the page shows this dialogue
+    port = DialoguePort(profile, pairs)
+    LineMount(LineChannel(Bus(port, profile.link), profile)).move_to(10.0)
+    port.check_done()
