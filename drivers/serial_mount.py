@@ -59,7 +59,7 @@ class LineMount(LineDevice):
                 self._timed_out(what)
         else:
             self.channel.write(entry, value=value)
-            self._wait_status(what, deadline)
+            self._wait_status(what, deadline, homing=entry == "home")
         if axis.settle_s > 0:
             time.sleep(axis.settle_s)
         reached = self.position()
@@ -74,10 +74,12 @@ class LineMount(LineDevice):
                 "number format (codec) and sign (sense)"
             )
 
-    def _wait_status(self, what: str, deadline: float) -> None:
+    def _wait_status(self, what: str, deadline: float, *, homing: bool) -> None:
+        """Poll until the axis stops; an axis that says it is not referenced refused a move
+        (before a homing it may say so until the homing starts)."""
         while True:
             meanings = self._status()
-            if "not_referenced" in meanings and "moving" not in meanings:
+            if "not_referenced" in meanings and "moving" not in meanings and not homing:
                 raise DeviceRefused(
                     f"{self.name}: the controller refused {what}: the axis is not referenced; "
                     "home it first (axis.needs_home in " + self.profile.source + ")"

@@ -37,7 +37,7 @@ from .framing import PROMPT, Framer, Framing, SerialLike, WireLog
 from .profile import Link
 from .template import Template
 
-__all__ = ["PORT_ERRORS", "Bus", "Expect", "Outcome", "Pending", "attach"]
+__all__ = ["PORT_ERRORS", "Bus", "Expect", "Outcome", "Pending", "attach", "detach"]
 
 #: what a failing port raises (pyserial lets termios errors through, e.g. on a hung-up tty)
 try:

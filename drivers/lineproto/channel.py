@@ -111,15 +111,14 @@ class LineChannel:
 
     # -- operations ------------------------------------------------------------------------
 
-    def read(
-        self, name: str, *, channel: str | None = None, timeout_s: float | None = None
-    ) -> dict[str, object]:
-        """Send ``entry.NAME.read``; return the reply's fields (``value`` in the entry's units)."""
+    def read(self, name: str, *, channel: str | None = None) -> dict[str, object]:
+        """Send ``entry.NAME.read``; return the reply's fields (``value`` in the entry's units);
+        ``channel`` fills ``{channel}``."""
         entry = self.entry(name)
         ctx = self.context if channel is None else {**self.context, "channel": channel}
         text = self._render(entry, "read", {}, ctx)
         expect = self._expect(entry, side="read", context=ctx)
-        return self._decoded(entry, self._transact(entry, text, expect, timeout_s, None))
+        return self._decoded(entry, self._transact(entry, text, expect, None, None))
 
     def write(
         self,
@@ -307,7 +306,8 @@ class LineChannel:
         if not heard:
             return DeviceTimeout(
                 f"{self.where()}: no reply to {text!r} within {timeout:g} s ({tries}); check "
-                f"the cable, the power, the port and the baud rate (profile: {link.baud})"
+                f"the cable, the power, the port and the baud rate (link.baud = {link.baud} in "
+                f"{self.profile.source}; the command is {entry.key})"
             )
         last = heard[-1]
         if last.kind == "partial":

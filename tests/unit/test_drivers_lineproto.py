@@ -90,7 +90,9 @@ def test_persistent_silence_is_a_timeout_with_advice():
     with pytest.raises(DeviceTimeout) as info:
         channel.read("position")
     assert "no reply to 'AT?' within 0.02 s (4 attempt(s))" in str(info.value)
-    assert "baud rate (profile: 115200)" in str(info.value)
+    assert "baud rate (link.baud = 115200 in p.toml; the command is entry.position)" in str(
+        info.value
+    )
     port.check_done()
 
 
