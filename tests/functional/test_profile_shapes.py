@@ -91,8 +91,9 @@ def test_every_shape_has_an_example_profile_and_a_refusal():
 def test_mount_homes_moves_and_reads_back(target: Target):
     mount = target.open("mount")
     try:
-        assert mount.identify()
-        mount.home()
+        assert mount.identify() or not target.profile.has("identity")
+        if "home" in mount.capabilities:
+            mount.home()
         tolerance = mount.profile.axis.tolerance_deg
         for reading in (10.0, 45.12345, -30.5):
             mount.move_to(reading)
