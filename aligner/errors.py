@@ -15,6 +15,7 @@ wrong and what to do; the CLI prints it to stderr and exits with ``exit_code``.
     └── DeviceError                 (exit 3) raised only by drivers/, converted at the boundary
         ├── DeviceTimeout
         ├── BadReply
+        │   └── Unattributable  a reply that cannot be told to belong to its command
         ├── DeviceRefused           the controller answered with an error reply
         ├── Disconnected
         ├── ReadbackMismatch        a mount read back other than it was sent to
@@ -51,6 +52,7 @@ __all__ = [
     "RecipeError",
     "SignalInterrupt",
     "StorageError",
+    "Unattributable",
 ]
 
 #: Exit status of every command, by meaning (the README's table is generated from the same).
@@ -120,6 +122,11 @@ class DeviceTimeout(DeviceError):
 
 class BadReply(DeviceError):
     """A device answered with something that does not match the profile's reply pattern."""
+
+
+class Unattributable(BadReply):
+    """A reply that cannot be attributed to its command (two replies to one command, a gate
+    that did not start): a fault, never a data point."""
 
 
 class DeviceRefused(DeviceError):

@@ -16,7 +16,9 @@ from typing import Any
 # public name -> submodule that defines it
 _LAZY = {
     "MOUNT_CAPABILITIES": "protocols",
+    "SHUTTER_CAPABILITIES": "protocols",
     "Counter": "protocols",
+    "Identifies": "protocols",
     "PointerReader": "protocols",
     "RotationMount": "protocols",
     "Shutter": "protocols",

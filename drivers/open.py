@@ -18,7 +18,10 @@ of the bench; follow your local laser-safety rules and your laser safety officer
 
 Options (query keys and keyword names are the same):
 
-- serial, all kinds: ``name``, ``baud``, ``timeout`` (reply timeout, s), ``retries``;
+- serial, all kinds: ``name``, ``baud``, ``timeout`` (reply timeout, s), ``retries``,
+  ``addr`` and ``axis`` (fill ``{addr}`` and ``{axis}`` of the profile's templates: several
+  devices at different addresses share one open port); the keyword ``wire_log(direction,
+  data)`` sees every byte sent (``"->"``) and received (``"<-"``) on the port;
 - ``sim`` mount: ``name``, ``resolution`` (deg), ``backlash`` (deg), ``speed`` (deg/s),
   ``travel`` (``low,high`` deg), ``noise`` (rms deg), ``seed``, ``realtime``, ``start`` (deg);
 - ``sim`` counter: ``name``, ``channels``, ``rate`` and ``ref_rate`` (counts/s, Poisson),
@@ -31,10 +34,10 @@ Options (query keys and keyword names are the same):
 
 from __future__ import annotations
 
-import dataclasses
 import difflib
 import math
 import re
+import socket
 from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import Any
@@ -44,7 +47,15 @@ import serial
 
 from aligner.errors import Disconnected, InputError
 
-from .lineproto import PORT_ERRORS, PROFILE_DIR, DeviceProfile, LineChannel, load_profile
+from .lineproto import (
+    PORT_ERRORS,
+    PROFILE_DIR,
+    DeviceProfile,
+    LineChannel,
+    load_profile,
+    shipped_profiles,
+)
+from .lineproto.bus import attach
 from .manual import ManualCounter, ManualPointer
 from .protocols import Counter, PointerReader, RotationMount, Shutter
 from .serial_counter import LineCounter
@@ -60,6 +71,8 @@ __all__ = [
     "open_pointer",
     "open_shutter",
     "profile_file",
+    "profile_roles",
+    "shipped_profile_list",
 ]
 
 _URL_SCHEMES = ("loop", "rfc2217", "socket", "spy")
@@ -121,6 +134,9 @@ _SERIAL_OPTIONS: dict[str, tuple[str, Converter]] = {
     "baud": ("baud", _whole),
     "timeout": ("reply_timeout_s", _number),
     "retries": ("retries", _whole),
+    "addr": ("address", _text),
+    "axis": ("axis", _text),
+    "wire_log": ("wire_log", _function),
 }
 _SIM_MOUNT: dict[str, tuple[str, Converter]] = {
     "name": ("name", _text),
@@ -245,24 +261,48 @@ def _open_channel(
     if profile is None:
         raise InputError(
             f"{spec}: a serial device needs profile= (a profile file, or a shipped profile: "
-            "example-mount, example-counter)"
+            f"{', '.join(shipped_profiles())})"
         )
     loaded = profile if isinstance(profile, DeviceProfile) else load_profile(profile)
     options = _options(spec, _SERIAL_OPTIONS, {}, overrides)
     name = options.pop("name", None)
-    loaded = dataclasses.replace(loaded, **options)
-    if loaded.baud < 1 or loaded.reply_timeout_s <= 0.0 or loaded.retries < 0:
-        raise InputError(f"{spec}: options need baud >= 1, timeout > 0 s and retries >= 0")
-    try:
-        port = serial.serial_for_url(
-            spec, baudrate=loaded.baud, timeout=loaded.reply_timeout_s, write_timeout=2.0
-        )
-    except (*PORT_ERRORS, ValueError) as exc:
-        raise Disconnected(
-            f"cannot open {spec} ({exc}); check that the device is plugged in and powered, the "
-            "port name, and that you may use the port (on Linux: the dialout group)"
-        ) from None
-    return LineChannel(port, loaded, name=name), name
+    wire_log = options.pop("wire_log", None)
+    loaded = loaded.with_options(**options)
+
+    def open_port() -> Any:
+        try:
+            port = serial.serial_for_url(
+                spec, baudrate=loaded.link.baud, timeout=0.005, write_timeout=2.0
+            )
+        except (*PORT_ERRORS, ValueError) as exc:  # type: ignore[misc]
+            raise Disconnected(
+                f"cannot open {spec} ({exc}); check that the device is plugged in and powered, "
+                "the port name, and that you may use the port (on Linux: the dialout group)"
+            ) from None
+        # socket:// ports: short commands go out at once (no waiting for an earlier ACK)
+        sock = getattr(port, "_socket", None)
+        if isinstance(sock, socket.socket):
+            sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+        return port
+
+    bus = attach(spec, loaded.link, open_port, who=loaded.where())
+    if wire_log is not None:
+        bus.set_wire_log(wire_log)
+    return LineChannel(bus, loaded, name=name), name
+
+
+def profile_roles(profile: str | Path) -> frozenset[str]:
+    """Which devices a profile drives (``mount``, ``counter``, ``shutter``, ``pointer``)."""
+    return load_profile(profile).roles
+
+
+def shipped_profile_list() -> list[tuple[str, frozenset[str], str]]:
+    """(name, roles, description) of every shipped example profile, by name."""
+    out = []
+    for name in shipped_profiles():
+        loaded = load_profile(name)
+        out.append((name, loaded.roles, loaded.description))
+    return out
 
 
 def _with_channel(

@@ -24,7 +24,19 @@ from contextlib import contextmanager
 __all__ = ["build_parser", "main"]
 
 #: Command modules in the order ``aligner --help`` lists them.
-COMMANDS = ("predict", "plan", "derive", "leak", "fit", "null", "sweep", "log", "recipe", "desk")
+COMMANDS = (
+    "predict",
+    "plan",
+    "derive",
+    "leak",
+    "fit",
+    "null",
+    "sweep",
+    "log",
+    "recipe",
+    "device",
+    "desk",
+)
 
 
 def build_parser() -> argparse.ArgumentParser:

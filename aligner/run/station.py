@@ -362,7 +362,7 @@ class Station:
             return self.shut()
         except DeviceError as exc:
             self.events.append(
-                Event("fault", f"the shutter did not confirm it is shut ({exc}): block the beam")
+                Event("fault", f"shutter: did not confirm it is shut ({exc}); block the beam")
             )
             return "failed"
 
