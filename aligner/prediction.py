@@ -43,7 +43,7 @@ from .model import (
     imbalance_deg,
     pure_overlap,
 )
-from .physics.detection import SATURATION_LOSS, DetectorRates, expected_rates
+from .physics.detection import SATURATION_LOSS, DetectorRates
 from .physics.weak import pointer_response, weak_value
 
 __all__ = [
@@ -136,16 +136,7 @@ def amplification(bench: Bench, fwd: Forward, axis: str | None = None, exact: bo
 
 def detector_rates(bench: Bench, leak_rate: ArrayLike) -> DetectorRates:
     """Expected detector rates for a post-selection probability per source photon ``leak_rate``."""
-    d = bench.detector
-    return expected_rates(
-        bench.source.photon_rate,
-        leak_rate,
-        d.efficiency,
-        d.dark_rate,
-        d.dead_time_ns * 1e-9,
-        rep_rate_hz=d.rep_rate_hz if d.mode == "pulsed" else None,
-        dark_probability=d.gate_dark_probability,
-    )
+    return bench.detector.expected_rates(bench.source.photon_rate, leak_rate)
 
 
 def detector_flags(

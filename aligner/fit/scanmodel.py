@@ -18,7 +18,6 @@ from numpy.typing import ArrayLike, NDArray
 from ..bench import Bench, Element
 from ..errors import InputError
 from ..model import coupling_observable, forward
-from ..physics.detection import expected_rates
 from ..physics.weak import pointer_response
 from .csvdata import CountScan, PointerScan
 
@@ -117,15 +116,8 @@ def detected_rate(
 ) -> Real:
     """Measured count rate (counts/s) at ``readings`` for a source ``photon_rate`` (photons/s);
     ``dark_rate`` (counts/s) overrides the bench detector's."""
-    d = bench.detector
-    return expected_rates(
-        photon_rate,
-        post_probability(bench, readings),
-        d.efficiency,
-        d.dark_rate if dark_rate is None else dark_rate,
-        d.dead_time_ns * 1e-9,
-        rep_rate_hz=d.rep_rate_hz if d.mode == "pulsed" else None,
-        dark_probability=d.gate_dark_probability,
+    return bench.detector.expected_rates(
+        photon_rate, post_probability(bench, readings), dark_rate=dark_rate
     ).measured_rate
 
 
