@@ -29,7 +29,7 @@ import numpy as np
 
 from ..bench import Bench, Element
 from ..errors import InputError
-from .solve import mounts_in_play
+from .targets import mounts_in_play
 
 __all__ = ["Derivation", "derive"]
 
@@ -476,7 +476,7 @@ def _chop(expr: Any, tol: float = 1e-12) -> Any:
 
 def _null(bench: Bench, free: Sequence[str]) -> dict[str, float]:
     """Readings (deg) of the null nearest the file readings, in the free mounts."""
-    from .solve import nulls, segments
+    from ..nulls import nulls, segments
 
     readings = bench.readings()
     fixed = {k: v for k, v in readings.items() if k not in free}

@@ -26,7 +26,8 @@ import numpy as np
 from numpy.typing import NDArray
 
 from ..bench import Bench, Element
-from .solve import Target, observe
+from .observe import observe
+from .targets import Target
 
 __all__ = ["Spread", "Tolerance", "error_items", "first_order_std", "tolerance_budget"]
 
