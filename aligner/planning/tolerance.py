@@ -149,7 +149,8 @@ def _sample(
     samples: int,
     rng: np.random.Generator,
 ) -> tuple[Real, Real]:
-    readings: dict[str, Real] = {n: np.full(samples, settings[n]) for n in bench.mounts}
+    # mounts without an error stay scalars: their elements are evaluated once, not per sample
+    readings: dict[str, Real] = {n: np.asarray(settings[n], float) for n in bench.mounts}
     shifts: dict[tuple[str, int], object] = {}
     for _, source, key in items:
         if source == "repeatability":
