@@ -45,6 +45,7 @@ __all__ = [
     "forward_stokes",
     "full_readings",
     "ideal_optics",
+    "imbalance_and_slope",
     "imbalance_deg",
     "overlap_of_pure_parts",
     "pure_overlap",
@@ -295,15 +296,17 @@ def pure_overlap(
     return pure_overlap_of(fwd.state_parts, fwd.effect_parts)
 
 
-def signed_imbalance(bench: Bench, fwd: Forward, mount: str | None = None) -> Real:
+def imbalance_and_slope(bench: Bench, fwd: Forward, mount: str | None = None) -> tuple[Real, Real]:
     """:func:`imbalance_deg` of an evaluated :class:`Forward` (its ``angles_deg`` are the
-    element angles of every mount).
+    element angles of every mount) and its derivative with respect to ``mount``'s reading
+    (deg/deg).
 
-    The sign is that of ``d|<f|i>|/d(reading)``: with ``m = n_i + n_f`` and the derivatives
-    ``ds``, ``de`` of the state and effect (:meth:`Retarder.turned_forward
-    <aligner.physics.channels.Retarder.turned_forward>` and kin, only on the side of the
-    chain the mount turns), ``d(m.m)/2 = (m.de - (m.m/2) n_f.de)/|e| + (m.ds - (m.m/2)
-    n_i.ds)/|s|``, written without the cancellation of ``n_i - (n_i.n_f) n_f`` near the null.
+    With ``m = n_i + n_f`` (so ``|<f|i>| = |m|/2``) and the derivatives ``ds``, ``de`` of the
+    state and effect (:meth:`Retarder.turned_forward
+    <aligner.physics.channels.Retarder.turned_forward>` and kin, only on the side of the chain
+    the mount turns), ``d(m.m)/2 = (m.de - (m.m/2) n_f.de)/|e| + (m.ds - (m.m/2) n_i.ds)/|s|``,
+    written without the cancellation of ``n_i - (n_i.n_f) n_f`` near the null. Its sign is the
+    sign of the imbalance.
     """
     name = bench.imbalance_mount if mount is None else mount
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -324,8 +327,16 @@ def signed_imbalance(bench: Bench, fwd: Forward, mount: str | None = None) -> Re
                 dm = sum_of_products([(1.0, m[k], d[k + 1]) for k in range(3)])
                 dn = sum_of_products([(1.0, n[k], d[k + 1]) for k in range(3)])
                 slope = slope + (dm - half * dn) / norm
-    degrees = np.rad2deg(np.arcsin(np.minimum(gap, 1.0)))
-    return np.asarray(np.where(slope >= 0, degrees, -degrees))
+        gap = np.minimum(gap, 1.0)
+        degrees = np.rad2deg(np.arcsin(gap))
+        # d|m|/2 = slope / (2 |m|); d arcsin(gap) = d gap / sqrt(1 - gap^2)
+        rise = np.rad2deg(np.abs(slope) / (4 * gap * np.sqrt(1 - gap * gap)))
+    return np.asarray(np.where(slope >= 0, degrees, -degrees)), np.asarray(rise)
+
+
+def signed_imbalance(bench: Bench, fwd: Forward, mount: str | None = None) -> Real:
+    """The signed imbalance of :func:`imbalance_and_slope` alone."""
+    return imbalance_and_slope(bench, fwd, mount)[0]
 
 
 def imbalance_deg(

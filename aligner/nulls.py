@@ -25,7 +25,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from .bench import Bench
 from .errors import InfeasibleTarget, InputError
-from .model import forward, full_readings, imbalance_deg, pure_overlap
+from .model import forward, full_readings, imbalance_and_slope, imbalance_deg, pure_overlap
 
 __all__ = [
     "ELEMENT_PERIOD_DEG",
@@ -152,9 +152,6 @@ def _stretches(gap: Real) -> list[tuple[int, int, int]]:
 
 
 def _find_segments(bench: Bench, name: str, fixed: Mapping[str, float]) -> tuple[Segment, ...]:
-    from scipy.optimize import minimize_scalar
-    from scipy.optimize.elementwise import find_root
-
     lo, hi = bench.mounts[name].travel_deg
     grid = np.linspace(lo, hi, int(np.ceil((hi - lo) / SCAN_STEP_DEG)) + 1)
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -178,18 +175,22 @@ def _find_segments(bench: Bench, name: str, fixed: Mapping[str, float]) -> tuple
     centres = grid[[i for _, _, i in spans]].astype(float)
     if np.any(crossing):  # all crossings refined together
         k = np.flatnonzero(crossing)
-        res = find_root(
-            lambda r: signed_imbalance_deg(bench, name, r, fixed),
-            (np.array([spans[j][0] for j in k]), np.array([spans[j][1] for j in k])),
-            tolerances={"xatol": 1e-12, "xrtol": 1e-15},
+        centres[k] = _crossings(
+            bench,
+            name,
+            fixed,
+            centres[k],
+            np.array([spans[j][0] for j in k]),
+            np.array([spans[j][1] for j in k]),
         )
-        centres[k] = res.x
     floors = np.abs(signed_imbalance_deg(bench, name, centres, fixed))
     out = []
-    for j, (a, b, _) in enumerate(spans):
+    for j, (a, b, i_min) in enumerate(spans):
         centre, floor = float(centres[j]), float(floors[j])
         null = centre if crossing[j] and floor <= NULL_TOL_DEG else None
-        if not crossing[j]:  # no crossing: refine the closest approach
+        if not crossing[j] and 0 < i_min < grid.size - 1:  # refine an inner closest approach
+            from scipy.optimize import minimize_scalar
+
             best = minimize_scalar(
                 lambda r: float(closest_approach_deg(bench, _with(fixed, name, r))),
                 bounds=(max(a, centre - SCAN_STEP_DEG), min(b, centre + SCAN_STEP_DEG)),
@@ -200,6 +201,29 @@ def _find_segments(bench: Bench, name: str, fixed: Mapping[str, float]) -> tuple
                 centre, floor = float(best.x), float(best.fun)
         out.append(Segment(float(a), float(b), null, floor, centre))
     return tuple(out)
+
+
+def _crossings(
+    bench: Bench, name: str, fixed: Mapping[str, float], start: Real, low: Real, high: Real
+) -> Real:
+    """Readings where the signed imbalance along ``name`` crosses zero, one in each bracket
+    ``[low, high]`` (it rises through each): Newton steps with the derivative in closed form
+    (:func:`aligner.model.imbalance_and_slope`), a bisection of the shrinking bracket whenever
+    a step would leave it, until the steps fall below 1e-12 deg (at most 100 steps)."""
+    x = start.copy()
+    for _ in range(100):
+        value, rise = imbalance_and_slope(bench, forward(bench, _with(fixed, name, x)), name)
+        low = np.where(value < 0, x, low)
+        high = np.where(value > 0, x, high)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            step = x - value / rise
+        inside = np.isfinite(step) & (step > low) & (step < high)
+        step = np.where(inside, step, 0.5 * (low + high))
+        done = np.all((np.abs(step - x) <= 1e-12) | (value == 0))
+        x = np.where(value == 0, x, step)
+        if done:
+            break
+    return x
 
 
 def nearest_null(

@@ -105,13 +105,14 @@ def _amplifier(
 
     def evaluate(x: ArrayLike) -> Real:
         fwd = forward(bench, {**readings, name: x})
-        if exact:
-            resp = response(bench, fwd)
-            probability, amp = resp.probability, resp.shift(axis) / bench.coupling.strength
-        else:
-            probability, amp = fwd.probability, amplification(bench, fwd, axis, exact=False)
-        if dark:
-            amp = amp * detector_rates(bench, probability).signal_fraction
+        with np.errstate(invalid="ignore", divide="ignore"):  # NaN at an exact null
+            if exact:
+                resp = response(bench, fwd)
+                probability, amp = resp.probability, resp.shift(axis) / bench.coupling.strength
+            else:
+                probability, amp = fwd.probability, amplification(bench, fwd, axis, exact=False)
+            if dark:
+                amp = amp * detector_rates(bench, probability).signal_fraction
         return np.abs(amp)
 
     return evaluate
@@ -142,10 +143,8 @@ def pick_best(x: Real, values: Real, null: float, prefer: float) -> int:
 def _maximize(
     f: Callable[[ArrayLike], Real], null: float, bench: Bench, min_offset: float, prefer: float
 ) -> tuple[float, float]:
-    """Largest ``f`` on :func:`scan_grid`, refined between the neighbours of the best point (picked
-    by :func:`pick_best`)."""
-    from scipy.optimize import minimize_scalar
-
+    """Largest ``f`` on :func:`scan_grid` (picked by :func:`pick_best`), refined between the
+    neighbours of the best point by :func:`_zoom`."""
     x = scan_grid(bench, null, min_offset)
     values = np.nan_to_num(f(x), nan=-np.inf)
     i = pick_best(x, values, null, prefer)
@@ -156,15 +155,23 @@ def _maximize(
     hi = x[i + 1] if i + 1 < x.size and side_of[i + 1] == side else edge
     lo, hi = sorted((lo, hi))
     if hi > lo:
-        res = minimize_scalar(
-            lambda t: -float(np.nan_to_num(f(t), nan=-np.inf)),
-            bounds=(lo, hi),
-            method="bounded",
-            options={"xatol": 1e-9 * max(1.0, abs(null))},
-        )
-        if -res.fun > values[i]:
-            return float(res.x), float(-res.fun)
+        at, best = _zoom(f, lo, hi, 1e-9 * max(1.0, abs(null)))
+        if best > values[i]:
+            return at, best
     return float(x[i]), float(values[i])
+
+
+def _zoom(f: Callable[[ArrayLike], Real], lo: float, hi: float, tol: float) -> tuple[float, float]:
+    """Maximum of ``f`` on ``[lo, hi]``: a grid of 33 points, then the same between the
+    neighbours of its best point, until they are ``tol`` apart (vectorized: one evaluation
+    of the model per round)."""
+    while True:
+        x = np.linspace(lo, hi, 33)
+        values = np.nan_to_num(f(x), nan=-np.inf)
+        i = int(np.argmax(values))
+        lo, hi = x[max(i - 1, 0)], x[min(i + 1, x.size - 1)]
+        if hi - lo <= tol:
+            return float(x[i]), float(values[i])
 
 
 def _explain(
