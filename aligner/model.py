@@ -81,7 +81,7 @@ class Arm:
     def derivative(self, mount: str, rate: float) -> Parts | None:
         """``d end / d reading`` of ``mount`` (``rate`` = d(angle, rad)/d(reading)); None when
         the mount turns nothing in this arm."""
-        d = _scaled(turn_rate(self.start), rate) if self.start_mount == mount else None
+        d = turn_rate(self.start, rate) if self.start_mount == mount else None
         x = self.start
         for element_mount, channel, out in self.steps:
             if d is not None:
@@ -296,18 +296,9 @@ def pure_overlap(
     return pure_overlap_of(fwd.state_parts, fwd.effect_parts)
 
 
-def imbalance_and_slope(bench: Bench, fwd: Forward, mount: str | None = None) -> tuple[Real, Real]:
-    """:func:`imbalance_deg` of an evaluated :class:`Forward` (its ``angles_deg`` are the
-    element angles of every mount) and its derivative with respect to ``mount``'s reading
-    (deg/deg).
-
-    With ``m = n_i + n_f`` (so ``|<f|i>| = |m|/2``) and the derivatives ``ds``, ``de`` of the
-    state and effect (:meth:`Retarder.turned_forward
-    <aligner.physics.channels.Retarder.turned_forward>` and kin, only on the side of the chain
-    the mount turns), ``d(m.m)/2 = (m.de - (m.m/2) n_f.de)/|e| + (m.ds - (m.m/2) n_i.ds)/|s|``,
-    written without the cancellation of ``n_i - (n_i.n_f) n_f`` near the null. Its sign is the
-    sign of the imbalance.
-    """
+def _gap_and_slope(bench: Bench, fwd: Forward, mount: str | None) -> tuple[Real, Real]:
+    """``|<f|i>| = |m|/2`` with ``m = n_i + n_f``, and ``d(m.m)/2`` per degree of ``mount``'s
+    reading (:func:`imbalance_and_slope`)."""
     name = bench.imbalance_mount if mount is None else mount
     with np.errstate(invalid="ignore", divide="ignore"):
         norm_i, norm_f, n_i, n_f = _directions(fwd.state_parts, fwd.effect_parts)
@@ -327,16 +318,35 @@ def imbalance_and_slope(bench: Bench, fwd: Forward, mount: str | None = None) ->
                 dm = sum_of_products([(1.0, m[k], d[k + 1]) for k in range(3)])
                 dn = sum_of_products([(1.0, n[k], d[k + 1]) for k in range(3)])
                 slope = slope + (dm - half * dn) / norm
-        gap = np.minimum(gap, 1.0)
-        degrees = np.rad2deg(np.arcsin(gap))
-        # d|m|/2 = slope / (2 |m|); d arcsin(gap) = d gap / sqrt(1 - gap^2)
-        rise = np.rad2deg(np.abs(slope) / (4 * gap * np.sqrt(1 - gap * gap)))
-    return np.asarray(np.where(slope >= 0, degrees, -degrees)), np.asarray(rise)
+    return np.minimum(gap, 1.0), np.asarray(slope)
 
 
 def signed_imbalance(bench: Bench, fwd: Forward, mount: str | None = None) -> Real:
-    """The signed imbalance of :func:`imbalance_and_slope` alone."""
-    return imbalance_and_slope(bench, fwd, mount)[0]
+    """:func:`imbalance_deg` of an evaluated :class:`Forward` (its ``angles_deg`` are the
+    element angles of every mount); the sign is that of the slope of
+    :func:`imbalance_and_slope`."""
+    gap, slope = _gap_and_slope(bench, fwd, mount)
+    degrees = np.rad2deg(np.arcsin(gap))
+    return np.asarray(np.where(slope >= 0, degrees, -degrees))
+
+
+def imbalance_and_slope(bench: Bench, fwd: Forward, mount: str | None = None) -> tuple[Real, Real]:
+    """The signed imbalance (deg) of an evaluated :class:`Forward` and its derivative with
+    respect to ``mount``'s reading (deg/deg).
+
+    With ``m = n_i + n_f`` (so ``|<f|i>| = |m|/2``) and the derivatives ``ds``, ``de`` of the
+    state and effect (:meth:`Retarder.turned_forward
+    <aligner.physics.channels.Retarder.turned_forward>` and kin, only on the side of the chain
+    the mount turns), ``d(m.m)/2 = (m.de - (m.m/2) n_f.de)/|e| + (m.ds - (m.m/2) n_i.ds)/|s|``,
+    written without the cancellation of ``n_i - (n_i.n_f) n_f`` near the null. Its sign is the
+    sign of the imbalance.
+    """
+    gap, slope = _gap_and_slope(bench, fwd, mount)
+    degrees = np.rad2deg(np.arcsin(gap))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        # d|m|/2 = slope / (2 |m|); d arcsin(gap) = d gap / sqrt(1 - gap^2)
+        rise = np.rad2deg(np.abs(slope) / (4 * gap * np.sqrt(1 - gap * gap)))
+    return np.asarray(np.where(slope >= 0, degrees, -degrees)), np.asarray(rise)
 
 
 def imbalance_deg(

@@ -126,10 +126,10 @@ def _rotate(s: Parts, c: Real, t: Real, cos_phi: Real, sin_phi: Real) -> Parts:
     )
 
 
-def turn_rate(x: Parts) -> Parts:
-    """``d x / d phi`` when the light (or the measurement) ``x`` is turned by ``phi`` (rad) from
-    H towards V: a rotation of (S1, S2) by ``2 phi``."""
-    return np.zeros(()), -2.0 * x[2], 2.0 * x[1], np.zeros(())
+def turn_rate(x: Parts, scale: float = 1.0) -> Parts:
+    """``d x / d phi`` (times ``scale``) when the light (or the measurement) ``x`` is turned by
+    ``phi`` (rad) from H towards V: a rotation of (S1, S2) by ``2 phi``."""
+    return np.zeros(()), (-2.0 * scale) * x[2], (2.0 * scale) * x[1], np.zeros(())
 
 
 def _minus(a: Parts, b: Parts) -> Parts:
