@@ -404,15 +404,18 @@ class _Builder:
             e = self.through(e, element, backward=True)
         return e
 
-    def observable(self) -> tuple[Any, list[Any], list[Any]]:
-        """``alpha``, ``v`` (``A = alpha + v.sigma``) and the unit axis ``n`` of A."""
+    def observable(self) -> tuple[Any, list[Any], list[Any], tuple[Any, Any]]:
+        """``alpha``, ``v`` (``A = alpha + v.sigma``), the unit axis ``n`` of A and its
+        eigenvalues."""
         sp = self.sp
         c = self.bench.coupling
-        if c.observable == "axis":
+        axis: Sequence[Any]
+        eig: tuple[Any, Any]
+        if c.observable == "axis" and c.axis is not None:
             raw = [_exact_number(x, 1000) for x in c.axis]
             length = sp.sqrt(sum(x**2 for x in raw))
             axis = [x / length for x in raw]
-            eig = tuple(_exact_number(x) for x in c.eigenvalues)
+            eig = (_exact_number(c.eigenvalues[0]), _exact_number(c.eigenvalues[1]))
         else:
             axis, eig = _NAMED[c.observable]
         beta = sp.Rational(1, 2) * (eig[0] - eig[1])
