@@ -18,7 +18,7 @@ from ..model import coupling_observable, forward, full_readings
 from ..physics.weak import pointer_response, weak_value
 from .detector import detector_flags, detector_rates
 from .readout import readout_axis
-from .snr import _snr
+from .snr import snr_of_signal
 
 __all__ = ["reference_prediction"]
 
@@ -80,6 +80,6 @@ def reference_prediction(
         "over_safe_rate": over,
         "exposure_rate": rates.linear_rate,
         "imbalance_deg": _imbalance(bench, r),
-        "snr_per_sqrt_s": _snr(signal, rates, bench),
+        "snr_per_sqrt_s": snr_of_signal(signal, rates, bench),
         "signal_fraction": rates.signal_fraction,
     }

@@ -32,7 +32,7 @@ from ..physics.weak import StokesResponse
 from .detector import detector_flags, detector_rates
 from .readout import check_axis, readout_axis, response
 
-__all__ = ["snr_of", "snr_per_sqrt_s", "standard_snr_per_sqrt_s"]
+__all__ = ["snr_of", "snr_of_signal", "snr_per_sqrt_s", "standard_snr_per_sqrt_s"]
 
 Real = NDArray[np.float64]
 
@@ -43,7 +43,7 @@ def _jitter_equivalent(bench: Bench) -> float:
     return c.jitter_rms * scale
 
 
-def _snr(signal: ArrayLike, rates: DetectorRates, bench: Bench) -> Real:
+def snr_of_signal(signal: ArrayLike, rates: DetectorRates, bench: Bench) -> Real:
     """``signal f / sqrt(sigma^2/m + j^2)`` with ``signal = g d<r>/dg`` (position-equivalent)."""
     sigma = bench.coupling.pointer_sigma
     m = np.asarray(rates.measured_rate, float)
@@ -56,7 +56,7 @@ def _snr(signal: ArrayLike, rates: DetectorRates, bench: Bench) -> Real:
 def snr_of(bench: Bench, resp: StokesResponse, rates: DetectorRates, axis: str) -> Real:
     """Shot-noise and jitter SNR per sqrt(s) of a response with its detector rates (the
     module's model)."""
-    return _snr(resp.sensitivity(axis), rates, bench)
+    return snr_of_signal(resp.sensitivity(axis), rates, bench)
 
 
 def snr_per_sqrt_s(
@@ -86,7 +86,7 @@ def standard_snr_per_sqrt_s(
     attenuation = np.logspace(-8, 0, 321) if within_limits else np.array([1.0])
     rates = detector_rates(bench, fraction * attenuation)
     a_max = float(np.max(np.abs(np.linalg.eigvalsh(coupling_observable(bench)))))
-    snr = _snr(bench.coupling.strength * a_max, rates, bench)
+    snr = snr_of_signal(bench.coupling.strength * a_max, rates, bench)
     if within_limits:
         saturated, over = detector_flags(bench, rates)
         snr = np.where(saturated | over, 0.0, snr)
