@@ -1,6 +1,10 @@
-"""The prediction at mount readings: one pass over the bench in Stokes space
+"""The prediction at mount readings: the bench in Stokes space in closed form
 (:class:`aligner.physics.weak.StokesResponse`), the detector, and the two fields that cost
-extra work (the signed imbalance, the SNR) computed on first access."""
+extra work (the signed imbalance, the SNR) computed on first access.
+
+Many settings are evaluated in blocks of :data:`BLOCK`: every temporary array of a block stays
+in the processor's cache, which about halves the time of a million settings.
+"""
 
 from __future__ import annotations
 
@@ -20,21 +24,26 @@ from .detector import detector_flags, detector_rates
 from .readout import readout_axis, readout_units, response
 from .snr import snr_of
 
-__all__ = ["Prediction", "predict"]
+__all__ = ["BLOCK", "Prediction", "predict"]
 
 Real = NDArray[np.float64]
 Readings = Mapping[str, ArrayLike]
 
+#: Settings evaluated together (a block's arrays are 256 kB: they stay in cache).
+BLOCK = 32_768
+
 
 @dataclass(frozen=True)
 class _Evaluation:
-    """What :func:`predict` evaluated, kept for the fields computed on first access."""
+    """For the fields computed on first access: a prediction of one block keeps its Forward
+    and response (``kept``); one of many blocks has them computed with each block, while its
+    arrays were in cache (``imbalance``, ``snr``), since keeping every block would cost more
+    than the two fields."""
 
     bench: Bench
-    fwd: Forward
-    resp: StokesResponse
-    rates: DetectorRates
-    shape: tuple[int, ...]
+    kept: tuple[Forward, StokesResponse] | None
+    imbalance: Real | None = None
+    snr: Real | None = None
 
 
 @dataclass(frozen=True)
@@ -71,13 +80,33 @@ class Prediction:
     def imbalance_deg(self) -> Real:
         """Signed imbalance (deg), :func:`aligner.model.imbalance_deg`."""
         ev = self._evaluation
-        return np.broadcast_to(signed_imbalance(ev.bench, ev.fwd), ev.shape)
+        if ev.kept is None:
+            return ev.imbalance.reshape(self.leak_rate.shape)
+        return _shaped(signed_imbalance(ev.bench, ev.kept[0]), self.leak_rate)
 
     @cached_property
     def snr_per_sqrt_s(self) -> Real:
         """SNR of the coupling estimate per sqrt(s) of counting (:mod:`.snr`)."""
         ev = self._evaluation
-        return np.broadcast_to(snr_of(ev.bench, ev.resp, ev.rates, self.axis), ev.shape)
+        if ev.kept is None:
+            return ev.snr.reshape(self.leak_rate.shape)
+        rates = DetectorRates(
+            *(
+                np.ravel(x)
+                for x in (
+                    self.detector_rate,
+                    self.measured_rate,
+                    self.exposure_rate,
+                    self.signal_fraction,
+                )
+            )
+        )
+        return _shaped(snr_of(ev.bench, ev.kept[1], rates, self.axis), self.leak_rate)
+
+
+def _shaped(flat: ArrayLike, like: Real) -> Real:
+    """A field evaluated on the flattened settings (or a scalar), in the shape of ``like``."""
+    return np.broadcast_to(flat, (like.size,)).reshape(like.shape)
 
 
 def predict(bench: Bench, readings: Readings | None = None) -> Prediction:
@@ -85,32 +114,58 @@ def predict(bench: Bench, readings: Readings | None = None) -> Prediction:
     bench file's readings for mounts not given)."""
     r = full_readings(bench, readings)
     shape = np.broadcast_shapes(*(v.shape for v in r.values()))
-    fwd = forward(bench, r)
+    size = int(np.prod(shape))
+    flat = {k: v if v.ndim == 0 else np.broadcast_to(v, shape).ravel() for k, v in r.items()}
     axis = readout_axis(bench)
     c = bench.coupling
-    resp = response(bench, fwd)
-    wv = np.broadcast_to(resp.weak_value, shape)
-    probability = np.broadcast_to(resp.probability, shape)
-    shift = np.broadcast_to(resp.shift(axis), shape)
-    rates = detector_rates(bench, probability)
-    saturated, over = detector_flags(bench, rates)
     scale = 1.0 if axis == "re" else 1.0 / (2 * c.pointer_sigma**2)
+    wv = np.empty(size, complex)
+    fields = {
+        name: np.empty(size)
+        for name in ("leak", "exact", "shift", "true", "measured", "linear", "fraction")
+    }
+    flags = {name: np.empty(size, bool) for name in ("saturated", "over")}
+    many = size > BLOCK
+    extra = {name: np.empty(size) for name in ("imbalance", "snr")} if many else {}
+    for start in range(0, size, BLOCK):
+        part = slice(start, min(start + BLOCK, size))
+        fwd = forward(bench, {k: v[part] if v.ndim else v for k, v in flat.items()})
+        resp = response(bench, fwd)
+        wv[part] = resp.weak_value
+        fields["leak"][part] = resp.probability
+        shift = resp.shift(axis)
+        fields["exact"][part] = shift / c.strength
+        fields["shift"][part] = shift * scale
+        rates = detector_rates(bench, resp.probability)
+        fields["true"][part] = rates.true_rate
+        fields["measured"][part] = rates.measured_rate
+        fields["linear"][part] = rates.linear_rate
+        fields["fraction"][part] = rates.signal_fraction
+        flags["saturated"][part], flags["over"][part] = detector_flags(bench, rates)
+        if many:
+            extra["imbalance"][part] = signed_imbalance(bench, fwd)
+            extra["snr"][part] = snr_of(bench, resp, rates, axis)
+    out = {k: v.reshape(shape) for k, v in fields.items()}
+    wv = wv.reshape(shape)
     return Prediction(
         weak_value=wv,
-        leak_rate=probability,
+        leak_rate=out["leak"],
         amplification_linear=wv.real if axis == "re" else wv.imag,
-        amplification_exact=shift / c.strength,
-        pointer_shift=shift * scale,
-        detector_rate=np.broadcast_to(rates.true_rate, shape),
-        measured_rate=np.broadcast_to(rates.measured_rate, shape),
-        saturated=np.broadcast_to(saturated, shape),
-        over_safe_rate=np.broadcast_to(over, shape),
-        exposure_rate=np.broadcast_to(rates.linear_rate, shape),
-        signal_fraction=np.broadcast_to(rates.signal_fraction, shape),
+        amplification_exact=out["exact"],
+        pointer_shift=out["shift"],
+        detector_rate=out["true"],
+        measured_rate=out["measured"],
+        saturated=flags["saturated"].reshape(shape),
+        over_safe_rate=flags["over"].reshape(shape),
+        exposure_rate=out["linear"],
+        signal_fraction=out["fraction"],
         angles_deg=MappingProxyType(
-            {k: np.broadcast_to(v, shape) for k, v in fwd.angles_deg.items()}
+            {
+                name: np.broadcast_to(np.asarray(m.element_angle_deg(r[name]), float), shape)
+                for name, m in bench.mounts.items()
+            }
         ),
         axis=axis,
         units=readout_units(bench),
-        _evaluation=_Evaluation(bench, fwd, resp, rates, shape),
+        _evaluation=_Evaluation(bench, None, **extra) if many else _Evaluation(bench, (fwd, resp)),
     )
