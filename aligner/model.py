@@ -37,6 +37,7 @@ from .physics.jones import density_from_stokes
 from .physics.weak import observable_from_axis, observable_matrix
 
 __all__ = [
+    "BLOCK",
     "Arm",
     "Forward",
     "coupling_observable",
@@ -55,6 +56,10 @@ __all__ = [
 
 Complex = NDArray[np.complex128]
 Real = NDArray[np.float64]
+
+#: Settings evaluated together when there are many (a prediction, a Monte Carlo budget): a
+#: block's arrays are 256 kB and stay in the processor's cache, which about halves the time.
+BLOCK = 32_768
 
 
 @dataclass(frozen=True)

@@ -2,8 +2,8 @@
 (:class:`aligner.physics.weak.StokesResponse`), the detector, and the two fields that cost
 extra work (the signed imbalance, the SNR) computed on first access.
 
-Many settings are evaluated in blocks of :data:`BLOCK`: every temporary array of a block stays
-in the processor's cache, which about halves the time of a million settings.
+Many settings are evaluated in blocks of :data:`aligner.model.BLOCK`: every temporary array
+of a block stays in the processor's cache, which about halves the time of a million settings.
 """
 
 from __future__ import annotations
@@ -17,20 +17,17 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from ..bench import Bench
-from ..model import Forward, forward, full_readings, signed_imbalance
+from ..model import BLOCK, Forward, forward, full_readings, signed_imbalance
 from ..physics.detection import DetectorRates
 from ..physics.weak import StokesResponse
 from .detector import detector_flags, detector_rates
 from .readout import readout_axis, readout_units, response
 from .snr import snr_of
 
-__all__ = ["BLOCK", "Prediction", "predict"]
+__all__ = ["Prediction", "predict"]
 
 Real = NDArray[np.float64]
 Readings = Mapping[str, ArrayLike]
-
-#: Settings evaluated together (a block's arrays are 256 kB: they stay in cache).
-BLOCK = 32_768
 
 
 @dataclass(frozen=True)
