@@ -269,8 +269,6 @@ def _readings(names: Sequence[str], x: Real, fixed: Mapping[str, float]) -> dict
 
 
 def _find_nulls(bench: Bench, names: tuple[str, ...], fixed: Mapping[str, float]) -> Real:
-    from scipy.optimize import least_squares
-
     n = len(names)
     per_axis = max(12, round(3600 ** (1 / n)))
     base = np.array([bench.mounts[m].reading_deg for m in names]) - PERIOD_DEG / 2
@@ -287,23 +285,58 @@ def _find_nulls(bench: Bench, names: tuple[str, ...], fixed: Mapping[str, float]
     # point of it nearest the current setting is the one a user wants
     seeds = np.concatenate([base[None, :] + PERIOD_DEG / 2, pts[is_min]])
 
-    def residual(x: Real) -> Real:
-        """``n_i + n_f``: twice the overlap of the pure parts, as a vector."""
-        fwd = forward(bench, _readings(names, x, fixed))
-        s, e = fwd.state_parts, fwd.effect_parts
-        s_i = np.array([float(s[k]) for k in (1, 2, 3)])
-        s_f = np.array([float(e[k]) for k in (1, 2, 3)])
-        return s_i / np.linalg.norm(s_i) + s_f / np.linalg.norm(s_f)
-
+    x, residual = _gauss_newton(bench, names, fixed, seeds)
     found: list[Real] = []
-    for seed in seeds:
-        fit = least_squares(residual, seed, method="trf", xtol=1e-15, ftol=1e-15, gtol=1e-15)
-        if np.linalg.norm(fit.fun) > 1e-8:
-            continue  # a local minimum of the overlap, not a crossing
-        x = base + np.mod(fit.x - base, PERIOD_DEG)
-        if not any(np.all(np.abs(_wrap(x - y)) < 1e-6) for y in found):
-            found.append(x)
+    for k in np.flatnonzero(residual < 1e-8):  # others: a local minimum, not a crossing
+        folded = base + np.mod(x[k] - base, PERIOD_DEG)
+        if not any(np.all(np.abs(_wrap(folded - y)) < 1e-6) for y in found):
+            found.append(folded)
     return np.array(found).reshape(-1, n)
+
+
+def _overlap_vector(
+    bench: Bench, names: Sequence[str], fixed: Mapping[str, float], x: Real
+) -> tuple[Real, Real]:
+    """``m = n_i + n_f`` (twice the overlap of the pure parts, as a vector; (k, 3)) at the
+    points ``x`` (k, n) and its Jacobian (k, 3, n) per degree of each mount's reading, from the
+    derivatives of the two arms (:meth:`aligner.model.Arm.derivative`):
+    ``dn = (dx - n (n . dx)) / |x|``."""
+    fwd = forward(bench, _readings(names, x, fixed))
+    k = x.shape[0]
+    m = np.zeros((k, 3))
+    jac = np.zeros((k, 3, len(names)))
+    arms = ((fwd.pre, fwd.state_parts), (fwd.post, fwd.effect_parts))
+    for arm, parts in arms:
+        vec = np.stack([np.broadcast_to(parts[i], (k,)) for i in (1, 2, 3)], axis=-1)
+        norm = np.linalg.norm(vec, axis=-1, keepdims=True)
+        unit = vec / norm
+        m += unit
+        for j, name in enumerate(names):
+            d = arm.derivative(name, bench.mounts[name].sense * np.pi / 180.0)
+            if d is not None:
+                dv = np.stack([np.broadcast_to(d[i], (k,)) for i in (1, 2, 3)], axis=-1)
+                along = np.sum(unit * dv, axis=-1, keepdims=True)
+                jac[:, :, j] += (dv - unit * along) / norm
+    return m, jac
+
+
+def _gauss_newton(
+    bench: Bench, names: Sequence[str], fixed: Mapping[str, float], seeds: Real
+) -> tuple[Real, Real]:
+    """Points where ``m = n_i + n_f`` vanishes, from every seed at once: Gauss-Newton steps
+    (minimum-norm, so with more mounts than needed a seed goes to the nearest point of the
+    curve of nulls), at most 50, until every step is below 1e-12 deg. Returns the points and
+    ``|m|`` there."""
+    x = np.array(seeds, float)
+    for _ in range(50):
+        m, jac = _overlap_vector(bench, names, fixed, x)
+        step = np.einsum("kij,kj->ki", np.linalg.pinv(jac), m)
+        step = np.where(np.isfinite(step), step, 0.0)
+        x = x - step
+        if np.all(np.abs(step) < 1e-12):
+            break
+    m, _ = _overlap_vector(bench, names, fixed, x)
+    return x, np.linalg.norm(m, axis=-1)
 
 
 def _wrap(d: Real) -> Real:
