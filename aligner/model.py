@@ -29,7 +29,6 @@ from .physics.channels import (
     is_zero,
     join,
     source_parts,
-    split,
     sum_of_products,
     turn_rate,
 )
@@ -48,7 +47,6 @@ __all__ = [
     "ideal_optics",
     "imbalance_and_slope",
     "imbalance_deg",
-    "overlap_of_pure_parts",
     "pure_overlap",
     "pure_overlap_of",
     "signed_imbalance",
@@ -252,15 +250,6 @@ def coupling_observable(bench: Bench) -> Complex:
     if c.observable == "axis":
         return observable_from_axis(c.axis, c.eigenvalues)
     return observable_matrix(c.observable)
-
-
-def overlap_of_pure_parts(
-    state_stokes: NDArray[np.float64],
-    effect_stokes: NDArray[np.float64],
-) -> NDArray[np.float64]:
-    """``|<f|i>|`` of the pure parts of a state and an effect given as Stokes vectors
-    (..., 4): :func:`pure_overlap_of`."""
-    return pure_overlap_of(split(state_stokes), split(effect_stokes))
 
 
 def _directions(state: Parts, effect: Parts) -> tuple[Real, Real, list[Real], list[Real]]:
