@@ -89,9 +89,12 @@ def random_bench(rng: np.random.Generator):
 
 
 @pytest.mark.parametrize("seed", range(12))
-def test_closed_form_agrees_with_the_definitions(seed):
+def test_closed_form_agrees_with_the_definitions(seed, monkeypatch):
     """Relative agreement 1e-12 (the last few bits of double precision, amplified by the
-    cancellation in Tr(E rho) where the leak is small: the bound scales with 1/leak)."""
+    cancellation in Tr(E rho) where the leak is small: the bound scales with 1/leak). Half the
+    seeds evaluate in blocks of 64 settings, as a large prediction does."""
+    if seed % 2:
+        monkeypatch.setattr("aligner.prediction.core.BLOCK", 64)
     rng = np.random.default_rng(seed)
     bench = random_bench(rng)
     readings = {
