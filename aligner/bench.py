@@ -20,12 +20,17 @@ import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import tomlkit
 import tomlkit.exceptions
 
 from .errors import BenchFileError, InputError
+
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
+
+    from .physics.detection import DetectorRates
 
 __all__ = [
     "DEMO_BENCH",
@@ -175,6 +180,39 @@ class Detector:
     rep_rate_hz: float | None = None
     gate_dark_probability: float = 0.0
     saturation_rate: float | None = None
+
+    @property
+    def dead_time_s(self) -> float:
+        """Dead time in seconds (the file gives nanoseconds)."""
+        return self.dead_time_ns * 1e-9
+
+    @property
+    def pulse_rate_hz(self) -> float | None:
+        """Repetition rate (Hz) in pulsed mode; None when counting continuously."""
+        return self.rep_rate_hz if self.mode == "pulsed" else None
+
+    def expected_rates(
+        self,
+        photon_rate: ArrayLike,
+        leak_rate: ArrayLike,
+        *,
+        dark_rate: ArrayLike | None = None,
+    ) -> DetectorRates:
+        """Rates this detector shows for ``photon_rate`` photons/s of which the share
+        ``leak_rate`` reaches it (:func:`aligner.physics.detection.expected_rates` with this
+        detector's efficiency, dark counts, dead time and mode); ``dark_rate`` (counts/s)
+        replaces the file's."""
+        from .physics.detection import expected_rates
+
+        return expected_rates(
+            photon_rate,
+            leak_rate,
+            self.efficiency,
+            self.dark_rate if dark_rate is None else dark_rate,
+            self.dead_time_s,
+            rep_rate_hz=self.pulse_rate_hz,
+            dark_probability=self.gate_dark_probability,
+        )
 
     def require_safe_rate(self, path: Path | str | None) -> float:
         """``safe_rate`` (counts/s), or :class:`BenchFileError` when the file does not state it:

@@ -16,9 +16,9 @@ import pytest
 
 from aligner.bench import load_bench
 from aligner.errors import DeviceError
+from aligner.run.devices import DeviceSet
 from aligner.run.log import RunLog
 from aligner.run.schedule import parse_schedule, plan_points
-from aligner.run.devices import DeviceSet
 from aligner.run.simbench import SimBench
 from aligner.run.station import Station
 from aligner.run.sweep import run_sweep, start_run
