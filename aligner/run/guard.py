@@ -317,7 +317,7 @@ class DetectorGuard:
         )
 
         d = self.bench.detector
-        tau = d.dead_time_ns * 1e-9
+        tau = d.dead_time_s
         if d.mode == "pulsed" and d.rep_rate_hz is not None:
             p = click_probability_from_rate(counts / dwell_s, d.rep_rate_hz, tau)
             with np.errstate(divide="ignore", invalid="ignore"):
@@ -330,7 +330,7 @@ class DetectorGuard:
         if rate > self.safe_rate:
             raise GuardTrip(
                 f"detector guard: measured {rate:.3g} counts/s, above safe_rate "
-                f"{self.safe_rate:.3g}; shutter shut and sweep stopped. Check the "
+                f"{self.safe_rate:.3g}; the shutter is shut and the run stopped. Check the "
                 "beam path and the analyzer before resuming"
             )
         return rate

@@ -17,6 +17,7 @@ from pathlib import Path
 import pytest
 
 from aligner.bench import DEMO_BENCH, load_bench
+from aligner.errors import GuardTrip
 from aligner.run.log import RunLog
 from aligner.run.schedule import parse_schedule
 from aligner.run.simbench import SimBench
@@ -278,3 +279,22 @@ def test_a_signal_mid_sweep_shuts_the_shutter_and_the_run_resumes(emulated, tmp_
     assert not emulated.counter.beam_on
     with RunLog(db) as log:
         assert [p.idx for p in log.points(1)] == list(range(12))
+
+
+def test_a_null_search_ends_shut_when_it_converges_and_when_the_guard_trips(emulated, tmp_path):
+    bench = load_bench(emulated.path)
+    with Station.open(bench, seed=6) as station:
+        result = station.null_search("analyzer", dwell_s=0.05, points=9, max_rounds=3)
+        assert not emulated.counter.beam_on and result.shutter == "confirmed"
+        calls = []
+        real = emulated.counts
+
+        def bright(dwell_s):
+            calls.append(dwell_s)
+            return (10**6, 0) if len(calls) == 4 else real(dwell_s)
+
+        emulated.counter.device.counts_fn = bright
+        with pytest.raises(GuardTrip) as trip:
+            station.null_search("analyzer", dwell_s=0.05, points=9, max_rounds=3)
+        assert not emulated.counter.beam_on  # the emulated shutter's own state
+        assert len(trip.value.points) == 1  # each point counts two gates: point 2 tripped
