@@ -393,9 +393,19 @@ class _Reader:
             raise self.error(name, f"must be between {-limit:g} and {limit:g}, got {value:g}")
         return value
 
-    def angle(self, name: str, default: float | None = None, **bounds: float) -> float:
+    def angle(
+        self,
+        name: str,
+        default: float | None = None,
+        *,
+        minimum: float | None = None,
+        above: float | None = None,
+        maximum: float | None = None,
+    ) -> float:
         """A number of degrees, at most :data:`LARGEST_ANGLE` in size."""
-        return self.number(name, default, limit=LARGEST_ANGLE, **bounds)
+        return self.number(
+            name, default, minimum=minimum, above=above, maximum=maximum, limit=LARGEST_ANGLE
+        )
 
     def integer(self, name: str, default: int, *, minimum: int = 0, maximum: int = 10**6) -> int:
         if name not in self.table:
@@ -685,7 +695,9 @@ def _coupling(path: str, table: Mapping[str, Any]) -> Coupling:
             raise r.error(
                 "axis", f"must be a direction of length 1e-6 to 1e12 (e.g. [1, 0, 0]), got {axis}"
             )
-        eigenvalues = r.numbers("eigenvalues", 2) if r.has("eigenvalues") else (1.0, -1.0)
+        if r.has("eigenvalues"):
+            low, high = r.numbers("eigenvalues", 2)
+            eigenvalues = (low, high)
         if max(map(abs, eigenvalues)) > 1e6:
             raise r.error("eigenvalues", f"must be between -1e6 and 1e6, got {eigenvalues}")
         if abs(eigenvalues[0] - eigenvalues[1]) < 1e-9 * max(map(abs, eigenvalues)):

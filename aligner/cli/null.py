@@ -71,8 +71,7 @@ def run(args: argparse.Namespace) -> int:
     from .fit import print_table
 
     bench = load_bench(args.bench)
-    if args.write:
-        ensure_writable(bench.path)  # before any work: the demo bench is not written to
+    target = ensure_writable(bench.path) if args.write else None  # the demo bench is refused
     name = args.mount or bench.analyzer.mount
     if name not in bench.mounts:
         raise InputError(
@@ -92,8 +91,8 @@ def run(args: argparse.Namespace) -> int:
         )
         shutter = shutter_words(result.shutter)
     updates = result.last_fit.bench_updates()
-    if args.write and result.converged:
-        write_values(bench.path, updates)
+    if target is not None and result.converged:
+        write_values(target, updates)
     doc = {**result.to_json(), "written": updates if args.write and result.converged else {}}
     if args.json:
         emit_json(doc)

@@ -101,16 +101,16 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def _line(point: Any, done: int, total: int, mount: str) -> str:
+    ratio = ""
     if point.leak is None:
         measured = f"leak -- ({point.flag})"
-        ratio = ""
     else:
-        ratio = point.leak / point.predicted_leak if point.predicted_leak > 0 else float("nan")
+        value = point.leak / point.predicted_leak if point.predicted_leak > 0 else float("nan")
+        ratio = f"  ratio {value:.2f}"
         measured = (
             f"leak {point.leak:.3e} [{point.leak_lo:.3e}, {point.leak_hi:.3e}]  predicted "
             f"{point.predicted_leak:.3e}"
         )
-        ratio = f"  ratio {ratio:.2f}"
     return (
         f"#{point.idx:<3} ({done}/{total})  {mount} {point.reading_deg:9.4f} deg  imbalance "
         f"{point.imbalance_deg:+7.3f} deg  counts {point.counts:>7}  {measured}{ratio}"

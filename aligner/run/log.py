@@ -46,6 +46,7 @@ from __future__ import annotations
 
 import json
 import sqlite3
+import sys
 from collections.abc import Iterable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass
@@ -777,9 +778,7 @@ def _point(values: dict[str, Any]) -> LoggedPoint:
 def _try_lock(handle: Any, byte: int) -> bool:
     """Lock byte ``byte`` of an open file for this process (exclusive, non-blocking); False
     when another process holds it."""
-    try:
-        import fcntl
-    except ImportError:  # Windows
+    if sys.platform == "win32":
         import msvcrt
 
         handle.seek(byte)
@@ -788,6 +787,8 @@ def _try_lock(handle: Any, byte: int) -> bool:
         except OSError:
             return False
         return True
+    import fcntl
+
     try:
         fcntl.lockf(handle.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB, 1, byte)
     except OSError:
@@ -878,7 +879,8 @@ def salvage(damaged: str | Path, out: str | Path) -> Salvage:
                 _salvage_run(db, new._db, run_id, copied, lost, probing=len(ids) == _PROBE_RUNS)
     finally:
         db.close()
-    return Salvage(str(source), str(target), *copied, tuple(lost))
+    runs, points, events = copied
+    return Salvage(str(source), str(target), runs, points, events, tuple(lost))
 
 
 def _salvage_run(
