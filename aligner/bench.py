@@ -1002,11 +1002,18 @@ def write_values(path: str | Path, updates: Mapping[str, float | int | str]) -> 
     """Store values into a bench file by dotted key, keeping comments and layout.
 
     Keys as in error messages: ``mounts.analyzer.offset_deg``, ``pre[1].retardance_waves``.
-    The result is validated before the file is replaced, so a bad update never leaves a broken
-    file behind."""
+    The result is validated before the file is replaced, and the file is replaced in one step
+    (written beside it first), so a bad update or a full disk never leaves a broken file or a
+    stray temporary one behind."""
     p = ensure_writable(path)
     doc = _apply_updates(p, updates)
     parse_bench(doc.unwrap(), str(p))
     tmp = p.with_suffix(p.suffix + ".tmp")
-    tmp.write_text(tomlkit.dumps(doc), encoding="utf-8")
-    tmp.replace(p)
+    try:
+        tmp.write_text(tomlkit.dumps(doc), encoding="utf-8")
+        tmp.replace(p)
+    except OSError as exc:
+        tmp.unlink(missing_ok=True)
+        raise BenchFileError(
+            str(p), None, f"cannot be written ({exc}); the file is unchanged"
+        ) from None

@@ -44,6 +44,7 @@ place when opened for writing, newer ones refused. One process at a time may dri
 
 from __future__ import annotations
 
+import contextlib
 import json
 import sqlite3
 import sys
@@ -54,7 +55,7 @@ from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 
-from ..errors import DataFileError, InputError
+from ..errors import DataFileError, InputError, StorageError
 
 __all__ = [
     "EVENT_KINDS",
@@ -442,27 +443,30 @@ class RunLog:
         kind: str = "sweep",
     ) -> int:
         """Insert a run with status ``running``; return its id."""
-        cur = self._db.execute(
-            "INSERT INTO runs (kind, status, bench_name, bench_path, bench_toml, schedule, "
-            "plan_json, dwell_s, settle_s, repeats, imbalance_mount, software_version, "
-            "started_utc, provenance_json) "
-            "VALUES (?, 'running', ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
-            (
-                kind,
-                bench_name,
-                bench_path,
-                bench_toml,
-                schedule,
-                json.dumps(list(plan)),
-                dwell_s,
-                settle_s,
-                repeats,
-                imbalance_mount,
-                software_version,
-                utc_now(),
-                json.dumps(dict(provenance)),
-            ),
-        )
+        try:
+            cur = self._db.execute(
+                "INSERT INTO runs (kind, status, bench_name, bench_path, bench_toml, schedule, "
+                "plan_json, dwell_s, settle_s, repeats, imbalance_mount, software_version, "
+                "started_utc, provenance_json) "
+                "VALUES (?, 'running', ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                (
+                    kind,
+                    bench_name,
+                    bench_path,
+                    bench_toml,
+                    schedule,
+                    json.dumps(list(plan)),
+                    dwell_s,
+                    settle_s,
+                    repeats,
+                    imbalance_mount,
+                    software_version,
+                    utc_now(),
+                    json.dumps(dict(provenance)),
+                ),
+            )
+        except sqlite3.OperationalError as exc:
+            raise _storage_error(self.path, exc) from None
         return int(cur.lastrowid or 0)
 
     def add_point(self, run_id: int, point: LoggedPoint, events: Iterable[Event] = ()) -> None:
@@ -619,7 +623,7 @@ class RunLog:
         return [int(r[0]) for r in rows]
 
     def _transaction(self) -> _Transaction:
-        return _Transaction(self._db)
+        return _Transaction(self._db, self.path)
 
     # -- reading -----------------------------------------------------------------------------
 
@@ -796,17 +800,38 @@ def _try_lock(handle: Any, byte: int) -> bool:
     return True
 
 
-class _Transaction:
-    """``BEGIN IMMEDIATE`` ... ``COMMIT`` (``ROLLBACK`` on error) on an autocommit connection."""
+def _storage_error(path: Path, exc: sqlite3.Error) -> StorageError:
+    return StorageError(
+        f"{path}: the run log could not be written ({exc}); free disk space (or fix the "
+        "file's permissions, or stop the program holding it), then resume the run"
+    )
 
-    def __init__(self, db: sqlite3.Connection) -> None:
-        self._db = db
+
+class _Transaction:
+    """``BEGIN IMMEDIATE`` ... ``COMMIT`` (``ROLLBACK`` on error) on an autocommit connection;
+    a write the file system refuses (a full disk, a read-only file) is a ``StorageError``."""
+
+    def __init__(self, db: sqlite3.Connection, path: Path) -> None:
+        self._db, self._path = db, path
 
     def __enter__(self) -> None:
-        self._db.execute("BEGIN IMMEDIATE")
+        try:
+            self._db.execute("BEGIN IMMEDIATE")
+        except sqlite3.OperationalError as exc:
+            raise _storage_error(self._path, exc) from None
 
-    def __exit__(self, exc_type: type[BaseException] | None, *exc: object) -> None:
-        self._db.execute("COMMIT" if exc_type is None else "ROLLBACK")
+    def __exit__(
+        self, exc_type: type[BaseException] | None, exc: BaseException | None, *rest: object
+    ) -> None:
+        try:
+            self._db.execute("COMMIT" if exc_type is None else "ROLLBACK")
+        except sqlite3.OperationalError as failed:
+            if exc_type is None:
+                with contextlib.suppress(sqlite3.Error):
+                    self._db.execute("ROLLBACK")
+            raise _storage_error(self._path, failed) from None
+        if isinstance(exc, sqlite3.OperationalError):
+            raise _storage_error(self._path, exc) from None
 
 
 def read_run(run_id: int, db: str | Path | None = None) -> tuple[RunRecord, list[LoggedPoint]]:

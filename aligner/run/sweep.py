@@ -313,7 +313,7 @@ class _Sweep:
         try:
             self.log.add_events(self.run_id, events)
             self.log.set_status(self.run_id, "interrupted", f"{message}; {shutter_words(shut)}")
-        except (sqlite3.Error, OSError) as exc:
+        except (StorageError, sqlite3.Error, OSError) as exc:
             message += f" (the run log could not record this: {exc})"
         return SweepResult(
             self.run_id,
@@ -327,29 +327,20 @@ class _Sweep:
             self.notes,
         )
 
-    def commit(self, point: LoggedPoint) -> None:
-        try:
-            self.log.add_point(self.run_id, point, self.station.take_events())
-        except (sqlite3.Error, OSError) as exc:
-            raise StorageError(
-                f"point {point.idx} could not be written to {self.log.path} ({exc}); free disk "
-                "space (or fix the file's permissions), then resume the run"
-            ) from None
-
     def run(self) -> SweepResult:
         finished = self.log.done_indices(self.run_id)
         todo = [p for p in self.plan if p.index not in finished]
         self.done = len(self.plan) - len(todo)
         st = self.station
         st.clear_stop()
-        self.log.set_status(self.run_id, "running")
         try:
+            self.log.set_status(self.run_id, "running")
             st.shut()
             for p in todo:
                 if st.stop_requested:
                     return self.pause("paused by the operator", "operator")
                 point = self.point(p)
-                self.commit(point)
+                self.log.add_point(self.run_id, point, st.take_events())
                 self.done += 1
                 if self.on_point is not None:
                     self.on_point(point, self.done, len(self.plan))
