@@ -30,6 +30,7 @@ from ..errors import (
     RecipeError,
     SignalInterrupt,
     StorageError,
+    exit_status,
 )
 from .format import EXPOSING, TURNING, Recipe, Step, parse_recipe
 from .results import StepOutcome
@@ -42,18 +43,6 @@ if TYPE_CHECKING:
 
 __all__ = ["RecipeRunResult", "check_bench", "resume_recipe", "run_recipe"]
 
-#: reason -> exit status of the command (128 + the signal for ``interrupt``)
-_EXIT = {
-    "": 0,
-    "operator": 0,
-    "refused": 2,
-    "check": 2,
-    "input": 2,
-    "guard": 3,
-    "device": 3,
-    "storage": 3,
-    "error": 1,
-}
 #: Step states after which the run goes on to the next step.
 _FINISHED = ("done", "passed", "skipped")
 
@@ -81,9 +70,7 @@ class RecipeRunResult:
     @property
     def exit_code(self) -> int:
         """The command's exit status for this ending."""
-        if self.reason == "interrupt":
-            return 128 + (self.signal or 2)
-        return _EXIT[self.reason]
+        return exit_status(self.reason, self.signal)
 
     def to_json(self) -> dict[str, Any]:
         """The result as plain data."""

@@ -31,6 +31,7 @@ from ..errors import (
     InputError,
     SignalInterrupt,
     StorageError,
+    exit_status,
 )
 from .log import Event, LoggedPoint, RunLog, RunRecord, utc_now
 from .schedule import PlannedPoint, Schedule
@@ -49,9 +50,6 @@ __all__ = [
     "run_sweep",
     "start_run",
 ]
-
-#: reason -> exit status of the command that ran the sweep
-_EXIT = {"": 0, "operator": 0, "guard": 3, "device": 3, "storage": 3, "input": 2, "error": 1}
 
 
 @dataclass(frozen=True)
@@ -79,9 +77,7 @@ class SweepResult:
     @property
     def exit_code(self) -> int:
         """The command's exit status for this ending (:data:`aligner.errors.EXIT_STATUS`)."""
-        if self.reason == "interrupt":
-            return 128 + (self.signal or 2)
-        return _EXIT[self.reason]
+        return exit_status(self.reason, self.signal)
 
     def to_json(self) -> dict[str, Any]:
         """The result as JSON (without the points)."""
