@@ -18,19 +18,23 @@ SAFETY = laser_safety("never expose a single-photon detector to a bright beam.")
 
 
 def print_table(title: str, rows: Iterable[tuple[str, str]], notes: Iterable[str] = ()) -> None:
-    """A two-column table (quantity, value with units) and notes below it."""
-    from rich.console import Console
+    """A two-column table (quantity, value with units) and the non-empty notes below it; every
+    text shown as written (file names and notes may hold markup-like text)."""
     from rich.table import Table
 
-    table = Table(title=title, show_header=True)
+    from ..text import safe_text
+    from .common import console as make_console
+
+    table = Table(title=safe_text(title), show_header=True)
     table.add_column("quantity")
     table.add_column("value", justify="right")
     for key, value in rows:
-        table.add_row(key, value)
-    console = Console()
+        table.add_row(safe_text(key), safe_text(value))
+    console = make_console()
     console.print(table)
     for note in notes:
-        console.print(note)
+        if note:
+            console.print(safe_text(note))
 
 
 def register(sub: argparse._SubParsersAction) -> None:
