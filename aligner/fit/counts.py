@@ -343,8 +343,8 @@ def _live(k: int, t: float, tau: float, name: str) -> float:
     if live <= 0:
         raise ParameterError(
             name,
-            f"{k} counts in {t:g} s leave no live time with a dead time of {tau:.3g} s: "
-            "the counter saturated, or the dead time given is too long",
+            f"leaves no live time: {k} counts in {t:g} s with a dead time of "
+            f"{tau * 1e9:.4g} ns; the counter saturated, or the dead time given is too long",
         )
     return live
 
