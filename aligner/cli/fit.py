@@ -108,9 +108,9 @@ def _bench_for(args: argparse.Namespace, record: Any) -> tuple[Any, str]:
         bench = load_bench(args.bench)
         return bench, f"bench {bench.path or args.bench} (--bench)"
     if record is not None:
-        from ..run.sweep import resume_plan
+        from ..run.result import stored_bench
 
-        return resume_plan(record)[0], (
+        return stored_bench(record), (
             f"the bench stored with run {record.id} ({record.bench_path or record.bench_name}, "
             "as it was when the run started)"
         )
