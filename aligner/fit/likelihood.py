@@ -44,7 +44,8 @@ class Family(Protocol):
     """Noise model: residuals whose squares sum to ``-2 ln L`` (+ const) and the derivatives
     of ``-ln L`` in the means."""
 
-    size: int
+    @property
+    def size(self) -> int: ...
 
     def residuals(self, mean: Real) -> Real: ...
 

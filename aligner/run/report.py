@@ -169,34 +169,41 @@ def _plot(record: RunRecord, result: RunResult, path: Path) -> None:
     fig = Figure(figsize=(6.4, 8.6))
     FigureCanvasSVG(fig)
     shift_ax, amp_ax, leak_ax = fig.subplots(3, 1, sharex=True)
-    with_pointer = [p for p in pts if p.pointer is not None and p.pointer_err]
-    x = [p.imbalance_deg for p in with_pointer]
-    for ax, linear, exact, measured, errors, label in (
+    import numpy as np
+
+    measured = np.array(
+        [
+            (p.imbalance_deg, p.pointer, p.pointer_err, p.amplification, p.amplification_err)
+            for p in pts
+            if p.pointer is not None and p.pointer_err
+        ],
+        dtype=float,
+    ).reshape(-1, 5)
+    x = measured[:, 0]
+    for ax, linear, exact, y, errors, label in (
         (
             shift_ax,
             c.linear_shift,
             c.exact_shift,
-            [p.pointer for p in with_pointer],
-            [p.pointer_err for p in with_pointer],
+            measured[:, 1],
+            measured[:, 2],
             f"pointer shift ({_svg_text(result.units)})",
         ),
         (
             amp_ax,
             c.amplification_linear,
             c.amplification_exact,
-            [p.amplification for p in with_pointer],
-            [p.amplification_err for p in with_pointer],
+            measured[:, 3],
+            measured[:, 4],
             "amplification",
         ),
     ):
         ax.plot(c.imbalance_deg, linear, "--", lw=1, color="0.45", label="linear prediction")
         ax.plot(c.imbalance_deg, exact, "-", lw=1.4, color="C0", label="exact prediction")
-        if x:
-            ax.errorbar(x, measured, yerr=errors, fmt="o", ms=3.5, capsize=2, color="C3",
+        if x.size:
+            ax.errorbar(x, y, yerr=errors, fmt="o", ms=3.5, capsize=2, color="C3",
                         label="measured (1 s.e.)")  # fmt: skip
-        band = [*exact, *(m - e for m, e in zip(measured, errors, strict=True))]
-        band += [m + e for m, e in zip(measured, errors, strict=True)]
-        ax.set_ylim(*_limits(band))
+        ax.set_ylim(*_limits([*exact, *(y - errors), *(y + errors)]))
         ax.set_ylabel(label)
         ax.legend(fontsize="small", loc="best")
     amp_ax.set_title(_svg_text(f"measured shift / {result.amplification_basis}"), fontsize="small")

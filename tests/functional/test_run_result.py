@@ -10,6 +10,10 @@ import pytest
 
 from aligner.cli import main
 
+# the detector guard evaluates the weak value at the exact null of these ideal polarizers,
+# where it is 0/0 (numpy warns; the guard uses only the exposure there)
+pytestmark = pytest.mark.filterwarnings("ignore:invalid value encountered:RuntimeWarning")
+
 G, SIGMA = 0.6, 250.0
 BENCH = f"""name = "ideal crossed pair [red]x[/red]"
 wavelength_nm = 800.0
