@@ -221,6 +221,11 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
+def _short(value: float) -> str:
+    """A number in at most about 8 characters: 3 digits, powers of ten outside 1e-3..1e5."""
+    return f"{value:.3g}" if value == 0 or 1e-3 <= abs(value) < 1e5 else f"{value:.1e}"
+
+
 def _points_tables(result: Any, points: Any) -> list[Any]:
     """The points of a sweep run: counts and leak against the prediction; and, when the run
     has pointer readings, the pointer shift against its linear and exact predictions with the
@@ -236,15 +241,15 @@ def _points_tables(result: Any, points: Any) -> list[Any]:
         counts.add_column(column, justify="right")
     pointer = Table(
         title=f"pointer shift ({safe_text(result.units)}) and amplification",
-        caption="imb.: imbalance (deg); lin., exact: predicted; z = (shift - exact) / s.e.; "
-        "ampl. = shift / " + safe_text(result.amplification_basis),
+        caption="imb.: imbalance (deg); lin., exact: predicted to first and all orders; "
+        "z = (shift - exact) / s.e.; ampl. = shift / " + safe_text(result.amplification_basis),
         box=box.SIMPLE_HEAD,
         pad_edge=False,
         show_edge=False,
         padding=(0, 1),
         collapse_padding=True,
     )
-    for column in ("#", "imb.", "shift", "s.e.", "lin.", "exact", "z", "ampl.", "s.e.", "lin.",
+    for column in ("#", "imb.", "shift", "s.e.", "exact", "z", "ampl.", "s.e.", "lin.",
                    "exact"):  # fmt: skip
         pointer.add_column(column, justify="right")
     for r, p in zip(result.points, points, strict=True):
@@ -261,15 +266,10 @@ def _points_tables(result: Any, points: Any) -> list[Any]:
             pointer.add_row(
                 str(r.idx),
                 f"{r.imbalance_deg:+.3f}",
-                f"{r.pointer:.3g}",
-                f"{r.pointer_err:.2g}",
-                f"{r.linear_shift:.3g}",
-                f"{r.exact_shift:.3g}",
+                *map(_short, (r.pointer, r.pointer_err, r.exact_shift)),
                 f"{r.residual_sigma:+.1f}",
-                f"{r.amplification:.3g}",
-                f"{r.amplification_err:.2g}",
-                f"{r.amplification_linear:.3g}",
-                f"{r.amplification_exact:.3g}",
+                *map(_short, (r.amplification, r.amplification_err)),
+                *map(_short, (r.amplification_linear, r.amplification_exact)),
             )
     return [counts, pointer] if pointer.row_count else [counts]
 

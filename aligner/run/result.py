@@ -321,25 +321,23 @@ def _scale(bench: Bench) -> float:
     return 1.0 / (2 * c.pointer_sigma**2) if c.readout == "momentum" else 1.0
 
 
+def _has_pointer(points: Sequence[LoggedPoint]) -> NDArray[np.bool_]:
+    """Which points carry a pointer reading with a standard error."""
+    return np.array([p.pointer is not None and bool(p.pointer_err) for p in points], bool)
+
+
 def _coupling(
     bench: Bench, record: RunRecord, points: Sequence[LoggedPoint], columns: Mapping[str, Real]
-) -> tuple[CouplingEstimate | None, Any, str]:
-    """The coupling fit over the points with a pointer reading (the fit itself is returned
-    too), or None and why not."""
+) -> tuple[CouplingEstimate | None, str]:
+    """The coupling fit over the points with a pointer reading, or None and why not."""
     from ..errors import AlignerError
     from ..fit.coupling import fit_coupling
     from ..fit.csvdata import PointerScan
 
-    keep = np.array([p.pointer is not None and bool(p.pointer_err) for p in points])
+    keep = _has_pointer(points)
     if keep.sum() < 2:
-        return (
-            None,
-            None,
-            (
-                f"no coupling estimate: {int(keep.sum())} point(s) carry a pointer reading "
-                "(at least 2 are needed)"
-            ),
-        )
+        why = f"{int(keep.sum())} point(s) carry a pointer reading (at least 2 are needed)"
+        return None, f"no coupling estimate: {why}"
     kept = [p for p, k in zip(points, keep, strict=True) if k]
     scan = PointerScan(
         np.array([p.reading_deg for p in kept]),
@@ -352,27 +350,85 @@ def _coupling(
     try:
         f = fit_coupling(bench, scan, readings=others)
     except AlignerError as exc:
-        return None, None, f"no coupling estimate: {exc}"
-    return (
-        CouplingEstimate(
-            strength=f.strength,
-            strength_err=f.strength_err,
-            linear_strength=f.linear_strength,
-            linear_strength_err=f.linear_strength_err,
-            bench_strength=f.bench_strength,
-            difference_sigma=f.bench_difference_sigma,
-            deviance=f.fit.deviance,
-            dof=f.fit.dof,
-            p_value=f.fit.p_value,
-            points=f.fit.n_points,
-            success=f.fit.success,
-            units=f.units,
-            statement=f"{f.statement}; {f.bench_comparison}",
-            warning=f.fit.warning,
-        ),
-        f,
-        "",
+        return None, f"no coupling estimate: {exc}"
+    estimate = CouplingEstimate(
+        strength=f.strength,
+        strength_err=f.strength_err,
+        linear_strength=f.linear_strength,
+        linear_strength_err=f.linear_strength_err,
+        bench_strength=f.bench_strength,
+        difference_sigma=f.bench_difference_sigma,
+        deviance=f.fit.deviance,
+        dof=f.fit.dof,
+        p_value=f.fit.p_value,
+        points=f.fit.n_points,
+        success=f.fit.success,
+        units=f.units,
+        statement=f"{f.statement}; {f.bench_comparison}",
+        warning=f.fit.warning,
     )
+    return estimate, ""
+
+
+@dataclass(frozen=True)
+class _Design:
+    """The post-selected design at the pointer points: ``error`` on g (shot noise with the
+    exact post-selected spread, and the jitter), ``shot_share`` of its variance, the
+    post-selected ``share`` of the photons, the ``detected`` post-selected photons and the
+    Cramer-Rao bound ``cramer_rao`` of the detected post-selected events."""
+
+    error: float
+    shot_share: float
+    share: float
+    detected: float
+    cramer_rao: float
+
+
+def _design(bench: Bench, at: Mapping[str, Real], g: float, dwell: Real) -> _Design:
+    """The post-selected measurement's figures (see :class:`_Design`)."""
+    from ..model import coupling_observable, forward
+    from ..physics.branches import moments
+    from ..physics.information import post_selected_information, readout_branches
+
+    c, eta = bench.coupling, bench.detector.efficiency
+    photons = bench.source.photon_rate * dwell
+    fwd = forward(bench, at)
+    a = coupling_observable(bench)
+    m = moments(readout_branches(fwd.rho, fwd.effect, a, abs(g), c.pointer_sigma, c.readout))
+    detected = photons * eta * m.probability
+    shot = m.variance / np.maximum(detected, 1e-300)
+    jitter = c.jitter_rms**2 / dwell
+    info = np.maximum(m.slope**2, 1e-300) / (shot + jitter)
+    f_post = post_selected_information(
+        fwd.rho, fwd.effect, a, abs(g), c.pointer_sigma, c.readout
+    ).total
+    return _Design(
+        error=float(1 / math.sqrt(info.sum())),
+        shot_share=float(np.sum(info * shot / (shot + jitter)) / info.sum()),
+        share=float(np.mean(m.probability)),
+        detected=float(detected.sum()),
+        cramer_rao=1 / math.sqrt(float(np.sum(photons * eta * f_post))),
+    )
+
+
+def _standard(bench: Bench, dwell: Real) -> tuple[float, float, float]:
+    """The standard measurement with the same photons (same efficiency) at the same dwells:
+    its error on g with the same jitter (position-equivalent, as in
+    :mod:`aligner.prediction.snr`), without it, and its Cramer-Rao bound."""
+    from ..model import coupling_observable
+    from ..physics.information import standard_information
+
+    c = bench.coupling
+    a = coupling_observable(bench)
+    a_max = float(np.max(np.abs(np.linalg.eigvalsh(a))))
+    detected = bench.source.photon_rate * dwell * bench.detector.efficiency
+    jitter = c.jitter_rms / _scale(bench)
+    with_jitter = 1 / math.sqrt(
+        float(np.sum(a_max**2 / (c.pointer_sigma**2 / detected + jitter**2 / dwell)))
+    )
+    shot_only = c.pointer_sigma / (a_max * math.sqrt(float(detected.sum())))
+    bound = 1 / math.sqrt(float(detected.sum() * standard_information(a, c.pointer_sigma)))
+    return with_jitter, shot_only, bound
 
 
 def _benefit(
@@ -383,44 +439,17 @@ def _benefit(
     run_error: float,
     exact: Real,
 ) -> Benefit:
-    """What the post-selection bought over the points with a pointer reading (module doc)."""
-    from ..model import coupling_observable, forward
-    from ..physics.branches import moments
-    from ..physics.information import (
-        post_selected_information,
-        readout_branches,
-        standard_information,
-    )
+    """What the post-selection bought over the points with a pointer reading (module doc);
+    ``exact`` is the exact amplification predicted at every point."""
     from ..prediction.limits import limits
     from ..prediction.snr import standard_snr_per_sqrt_s
 
     c, d = bench.coupling, bench.detector
-    keep = np.array([p.pointer is not None and bool(p.pointer_err) for p in points])
+    keep = _has_pointer(points)
     dwell = np.array([p.dwell_s for p in points])[keep]
-    photons = bench.source.photon_rate * dwell
     at = {k: v[keep] for k, v in columns.items()}
-    fwd = forward(bench, at)
-    a = coupling_observable(bench)
-    branches = readout_branches(fwd.rho, fwd.effect, a, abs(g), c.pointer_sigma, c.readout)
-    m = moments(branches)
-    detected = photons * d.efficiency * m.probability
-    shot = m.variance / np.maximum(detected, 1e-300)
-    jitter = c.jitter_rms**2 / dwell
-    per_point = (shot + jitter) / np.maximum(m.slope**2, 1e-300)
-    info = 1 / per_point
-    predicted = float(1 / math.sqrt(info.sum()))
-    shot_share = float(np.sum(info * shot / (shot + jitter)) / info.sum())
-    a_max = float(np.max(np.abs(np.linalg.eigvalsh(a))))
-    sigma = c.pointer_sigma
-    jitter_position = c.jitter_rms / _scale(bench)  # position-equivalent (snr.py's convention)
-    n_std = photons * d.efficiency
-    standard = 1 / math.sqrt(
-        float(np.sum(a_max**2 / (sigma**2 / n_std + jitter_position**2 / dwell)))
-    )
-    standard_shot = sigma / (a_max * math.sqrt(float(n_std.sum())))
-    f_post = post_selected_information(fwd.rho, fwd.effect, a, abs(g), sigma, c.readout).total
-    cr_post = 1 / math.sqrt(float(np.sum(photons * d.efficiency * f_post)))
-    cr_standard = 1 / math.sqrt(float(n_std.sum() * standard_information(a, sigma)))
+    design = _design(bench, at, g, dwell)
+    standard, standard_shot, cr_standard = _standard(bench, dwell)
     medians = {k: float(np.median(v)) for k, v in at.items()}
     safe = None
     if math.isfinite(d.safe_rate):
@@ -429,28 +458,29 @@ def _benefit(
     cap = limits(bench, medians)
     reached = float(np.nanmax(np.abs(exact[keep])))
     gain = standard / run_error if run_error > 0 else math.nan
-    limited_by, why = _limit(shot_share, reached, cap, float(np.mean(m.probability)))
+    limited_by, why = _limit(design.shot_share, reached, cap, design.share)
+    photons = bench.source.photon_rate * float(dwell.sum())
     statement = (
-        f"post-selection kept a share {float(np.mean(m.probability)):.2g} of the photons "
-        f"({float(detected.sum()):.3g} detected of {float(photons.sum()):.3g} from the "
-        f"source) and amplified the shift up to {reached:.3g}x; the run's error on g, "
-        f"{run_error:.3g} {c.units}, is {_times(gain)} a standard measurement's with the same "
-        f"photons and jitter ({standard:.3g} {c.units}); the design predicted "
-        f"{predicted:.3g} {c.units} ({_times(standard / predicted)} the standard). {why}"
+        f"post-selection kept a share {design.share:.2g} of the photons "
+        f"({design.detected:.3g} detected of {photons:.3g} from the source) and amplified the "
+        f"shift up to {reached:.3g}x; the run's error on g, {run_error:.3g} {c.units}, is "
+        f"{_times(gain)} a standard measurement's with the same photons and jitter "
+        f"({standard:.3g} {c.units}); the design predicted {design.error:.3g} {c.units} "
+        f"({_times(standard / design.error)} the standard). {why}"
     )
     return Benefit(
-        source_photons=float(photons.sum()),
-        detected_post=float(detected.sum()),
+        source_photons=photons,
+        detected_post=design.detected,
         run_error=run_error,
-        predicted_error=predicted,
+        predicted_error=design.error,
         standard_error=standard,
         standard_shot_error=standard_shot,
         standard_safe_error=safe,
-        cramer_rao_post=cr_post,
+        cramer_rao_post=design.cramer_rao,
         cramer_rao_standard=cr_standard,
         gain=gain,
-        predicted_gain=standard / predicted,
-        shot_share=shot_share,
+        predicted_gain=standard / design.error,
+        shot_share=design.shot_share,
         max_amplification=reached,
         amplification_cap=float(cap.max_amplification),
         cap_mechanism=cap.limited_by,
@@ -596,7 +626,7 @@ def run_result(
     columns = _columns(bench, points)
     pred = predict(bench, columns)
     notes: list[str] = []
-    coupling, fitted, why = _coupling(bench, record, points, columns)
+    coupling, why = _coupling(bench, record, points, columns)
     if why:
         notes.append(why)
     use_fit = coupling is not None and coupling.success and coupling.strength_err > 0
@@ -615,7 +645,7 @@ def run_result(
     if coupling is not None and coupling.warning:
         notes.append(coupling.warning)
     benefit = None
-    if coupling is not None and fitted is not None:
+    if coupling is not None:
         exact = np.asarray(pred.amplification_exact, float)
         benefit = _benefit(bench, points, columns, g, coupling.strength_err, exact)
     leak_curve, leak_why = _leak_curve(bench, record, points)

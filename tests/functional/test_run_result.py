@@ -185,3 +185,28 @@ def test_report_is_not_overwritten_without_force(run, capsys):
     assert "--force" in capsys.readouterr().err
     assert (out / "run-1.md").read_text() == "my notes\n"
     assert main([*args, "--force"]) == 0 and "my notes" not in (out / "run-1.md").read_text()
+
+
+def test_a_momentum_readout_estimates_the_coupling_from_im_aw(tmp_path, capsys):
+    """A momentum readout sees Im A_w (Jozsa, Phys. Rev. A 76, 044103 (2007)): an elliptical
+    pre-selection (a quarter-wave plate 0.3 deg off) makes it; the run's shifts in 1/um give
+    back the simulated g, and the measured amplification is the shift over g / (2 sigma^2)."""
+    text = BENCH.replace('readout = "position"', 'readout = "momentum"')
+    text = text.replace("[coupling]", '[[pre]]\ntype = "qwp"\nmount = "qwp"\n\n[coupling]')
+    text = text.replace(
+        "[mounts.analyzer]", "[mounts.qwp]\nreading_deg = 45.3\n\n[mounts.analyzer]"
+    )
+    bench, db = tmp_path / "momentum.toml", tmp_path / "runs.sqlite"
+    bench.write_text(text)
+    sweep = ["sweep", str(bench), "--schedule", "linear:0.7:3.0:10", "--dwell", "2"]
+    assert main([*sweep, "--db", str(db), "--json"]) == 0
+    capsys.readouterr()
+    assert main(["log", "show", "1", "--db", str(db), "--json"]) == 0
+    result = json.loads(capsys.readouterr().out)["result"]
+    assert result["units"] == "1/um" and result["readout"] == "momentum"
+    c = result["coupling"]
+    assert c["success"] and abs(c["strength"] - G) < 3 * c["strength_err"]
+    for p in result["points"]:
+        assert p["amplification"] == pytest.approx(
+            p["pointer"] * 2 * SIGMA**2 / c["strength"], rel=1e-12
+        )
