@@ -159,13 +159,16 @@ def reference_weights(scan: CountScan) -> Real:
 
 
 def with_offset(bench: Bench, mount: str, offset_deg: ArrayLike) -> Bench:
-    """The bench with mount ``mount``'s offset (deg) replaced."""
-    return bench.with_mounts(**{mount: replace(bench.mounts[mount], offset_deg=offset_deg)})
+    """The bench with mount ``mount``'s offset (deg) replaced (an array of fit parameters
+    broadcasts through the model, though the field is typed for one number)."""
+    m = replace(bench.mounts[mount], offset_deg=offset_deg)  # type: ignore[arg-type]
+    return bench.with_mounts(**{mount: m})
 
 
 def with_analyzer_extinction(bench: Bench, extinction_ratio: ArrayLike) -> Bench:
-    """The bench with the analyzer's extinction ratio replaced."""
-    return replace(bench, analyzer=replace(bench.analyzer, extinction_ratio=extinction_ratio))
+    """The bench with the analyzer's extinction ratio replaced (an array broadcasts)."""
+    analyzer = replace(bench.analyzer, extinction_ratio=extinction_ratio)  # type: ignore[arg-type]
+    return replace(bench, analyzer=analyzer)
 
 
 def plate_element(bench: Bench, mount: str) -> Element:
@@ -180,11 +183,12 @@ def plate_element(bench: Bench, mount: str) -> Element:
 
 
 def with_retardance(bench: Bench, mount: str, waves: ArrayLike) -> Bench:
-    """The bench with the retardance (waves) of the plate on ``mount`` replaced."""
+    """The bench with the retardance (waves) of the plate on ``mount`` replaced (an array
+    broadcasts)."""
 
     def swap(chain: tuple[Element, ...]) -> tuple[Element, ...]:
         return tuple(
-            replace(e, retardance_waves=waves)
+            replace(e, retardance_waves=waves)  # type: ignore[arg-type]
             if e.mount == mount and e.type in ("hwp", "qwp", "retarder")
             else e
             for e in chain
