@@ -71,7 +71,7 @@ MAX_ITEMS = 64
 #: Devices besides the mounts that a bench file declares under ``[devices.<role>]``.
 DEVICE_ROLES = ("counter", "shutter", "pointer")
 #: What the counter's second channel sees (``[reference] kind``).
-REFERENCE_KINDS = ("none", "monitor")
+REFERENCE_KINDS = ("none", "monitor", "port")
 INF = math.inf
 
 
@@ -120,14 +120,25 @@ class Reference:
     """What the counter's second channel (the reference) sees.
 
     ``kind``: ``"none"`` (no reference channel: measured leak rates are normalised by the
-    nominal ``photon_rate`` times the detector efficiency) or ``"monitor"`` (a pick-off of the
-    source ahead of the interferometer: ``fraction`` counts per source photon, so source drift
-    cancels). ``dark_rate`` (counts/s) is the reference detector's own dark rate.
+    nominal ``photon_rate`` times the detector efficiency); ``"monitor"`` (a pick-off of the
+    source ahead of the interferometer: ``fraction`` counts per source photon, the monitor
+    detector's efficiency included, so source drift cancels); ``"port"`` (the analyzer's other
+    port, on a detector of its own ``efficiency``: the leak is ``S / (S + R)`` of the two
+    ports' photon rates, so drift cancels and no fraction needs calibrating). ``dark_rate``
+    (counts/s) and ``dead_time_ns`` (non-paralyzable) belong to the reference detector, not
+    to the post-selected one.
     """
 
     kind: str = "none"
     fraction: float | None = None
     dark_rate: float = 0.0
+    efficiency: float | None = None
+    dead_time_ns: float = 0.0
+
+    @property
+    def dead_time_s(self) -> float:
+        """The reference detector's dead time in seconds (the file gives nanoseconds)."""
+        return self.dead_time_ns * 1e-9
 
 
 @dataclass(frozen=True)
@@ -646,24 +657,43 @@ def _devices(path: str, table: Mapping[str, Any]) -> dict[str, Device]:
     return out
 
 
+#: The [reference] keys each kind takes besides ``kind``; the first ones listed are required.
+_REFERENCE_KEYS = {
+    "none": ((), ()),
+    "monitor": (("fraction",), ("dark_rate", "dead_time_ns")),
+    "port": (("efficiency", "dead_time_ns"), ("dark_rate",)),
+}
+_REFERENCE_HELP = {
+    "fraction": "reference-channel counts per source photon (pick-off share x monitor "
+    "efficiency), e.g. 6e-4",
+    "efficiency": "the other port's detector efficiency, e.g. 0.6",
+    "dead_time_ns": "the other port's detector dead time in ns (it sees nearly the whole "
+    "beam, so its dead time matters; 0 for a linear detector)",
+}
+
+
 def _reference(path: str, table: Mapping[str, Any]) -> Reference:
-    r = _Reader(path, "reference", table, ("kind", "fraction", "dark_rate"))
+    every = ("kind", "fraction", "dark_rate", "efficiency", "dead_time_ns")
+    r = _Reader(path, "reference", table, every)
     kind = r.text("kind", "monitor" if r.has("fraction") else "none", REFERENCE_KINDS)
-    if kind == "monitor" and not r.has("fraction"):
-        raise r.error(
-            "fraction",
-            "is required with kind = 'monitor': reference-channel counts per source photon "
-            "(pick-off share x monitor efficiency), e.g. 6e-4",
-        )
-    if kind == "none" and (r.has("fraction") or r.has("dark_rate")):
-        raise r.error(
-            "fraction" if r.has("fraction") else "dark_rate",
-            "applies only to a reference channel; set kind = 'monitor' or remove it",
-        )
+    required, optional = _REFERENCE_KEYS[kind]
+    for key in required:
+        if not r.has(key):
+            raise r.error(key, f"is required with kind = {kind!r}: {_REFERENCE_HELP[key]}")
+    for key in every[1:]:
+        if r.has(key) and key not in required + optional:
+            takes = [k for k, (need, extra) in _REFERENCE_KEYS.items() if key in need + extra]
+            raise r.error(
+                key,
+                f"does not apply to kind = {kind!r} (it belongs to kind = "
+                f"{' or '.join(map(repr, takes))}); remove it or change the kind",
+            )
     return Reference(
         kind=kind,
         fraction=r.number("fraction", above=0.0, maximum=1.0) if kind == "monitor" else None,
         dark_rate=r.number("dark_rate", 0.0, minimum=0.0),
+        efficiency=r.number("efficiency", above=0.0, maximum=1.0) if kind == "port" else None,
+        dead_time_ns=r.number("dead_time_ns", 0.0, minimum=0.0, maximum=1e9),
     )
 
 

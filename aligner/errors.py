@@ -9,7 +9,8 @@ wrong and what to do; the CLI prints it to stderr and exits with ``exit_code``.
     ├── InputError                  bad input: an argument, a bench file, a recipe, a data file
     │   ├── BenchFileError          names the file and the key (with its table)
     │   ├── RecipeError
-    │   └── DataFileError           CSV and run-log input
+    │   ├── DataFileError           CSV and run-log input
+    │   └── ParameterError          an engine function's argument (the CLI names its option)
     ├── InfeasibleTarget            a planner target the bench cannot reach (says the limit)
     ├── StorageError                (exit 3) the run log could not be written (full disk ...)
     └── DeviceError                 (exit 3) raised only by drivers/, converted at the boundary
@@ -49,6 +50,7 @@ __all__ = [
     "GuardTrip",
     "InfeasibleTarget",
     "InputError",
+    "ParameterError",
     "ReadbackMismatch",
     "RecipeError",
     "SignalInterrupt",
@@ -124,6 +126,17 @@ class RecipeError(InputError):
 
 class DataFileError(InputError):
     """A data file (CSV, run log) that is empty, short, malformed or out of range."""
+
+
+class ParameterError(InputError):
+    """An argument of an engine function that is out of range. ``parameter`` is the
+    function's own name for it and ``problem`` what is wrong; a command that took the value
+    from an option names the option instead (``--dwell`` for ``dwell_s``)."""
+
+    def __init__(self, parameter: str, problem: str) -> None:
+        self.parameter = parameter
+        self.problem = problem
+        super().__init__(f"{parameter} {problem}")
 
 
 class InfeasibleTarget(AlignerError):

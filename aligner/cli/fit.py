@@ -18,19 +18,23 @@ SAFETY = laser_safety("never expose a single-photon detector to a bright beam.")
 
 
 def print_table(title: str, rows: Iterable[tuple[str, str]], notes: Iterable[str] = ()) -> None:
-    """A two-column table (quantity, value with units) and notes below it."""
-    from rich.console import Console
+    """A two-column table (quantity, value with units) and the non-empty notes below it; every
+    text shown as written (file names and notes may hold markup-like text)."""
     from rich.table import Table
 
-    table = Table(title=title, show_header=True)
+    from ..text import safe_text
+    from .common import console as make_console
+
+    table = Table(title=safe_text(title), show_header=True)
     table.add_column("quantity")
     table.add_column("value", justify="right")
     for key, value in rows:
-        table.add_row(key, value)
-    console = Console()
+        table.add_row(safe_text(key), safe_text(value))
+    console = make_console()
     console.print(table)
     for note in notes:
-        console.print(note)
+        if note:
+            console.print(safe_text(note))
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -46,13 +50,13 @@ def register(sub: argparse._SubParsersAction) -> None:
         "data",
         metavar="FILE|RUN",
         help="CSV file (reading_deg,counts[,dwell_s,reference] or, for coupling, "
-        "reading_deg,pointer,pointer_err), or a logged run number (coupling)",
+        "reading_deg,pointer,pointer_err), or a logged run number (--db)",
     )
     p.add_argument(
         "--bench",
         metavar="BENCH",
-        default="demo",
-        help="bench file (TOML) or 'demo' (default: demo)",
+        help="bench file (TOML) or 'demo' (default: for a run, the bench stored with it; for "
+        "a CSV file, demo)",
     )
     p.add_argument(
         "--mount",
@@ -78,7 +82,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         action="store_true",
         help="waveplate fit: fit the photon rate too (only when the polarizers are not crossed)",
     )
-    p.add_argument("--db", metavar="PATH", help="run log database (coupling RUN)")
+    p.add_argument("--db", metavar="PATH", help="run log database (for a RUN)")
     p.add_argument(
         "--write",
         action="store_true",
@@ -88,34 +92,67 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.set_defaults(handler=run)
 
 
-def _load_pointer(data: str, db: str | None) -> tuple[Any, str]:
-    """A pointer scan from a CSV file, or from logged run number ``data``, and what to call it
-    in a title."""
+def _is_run(data: str) -> bool:
+    """A run number rather than a file (a file of that name wins)."""
     from pathlib import Path
 
-    from ..errors import DataFileError
-    from ..fit.csvdata import PointerScan, load_pointer_scan
+    return data.isdigit() and not Path(data).exists()
 
-    if Path(data).exists() or not data.isdigit():
-        return load_pointer_scan(data), data
+
+def _bench_for(args: argparse.Namespace, record: Any) -> tuple[Any, str]:
+    """The bench a fit uses and how to say which: ``--bench`` when given, else a run's own
+    stored bench (the snapshot taken when it started), else the demo bench."""
+    from ..bench import load_bench
+
+    if args.bench:
+        bench = load_bench(args.bench)
+        return bench, f"bench {bench.path or args.bench} (--bench)"
+    if record is not None:
+        from ..run.result import stored_bench
+
+        return stored_bench(record), (
+            f"the bench stored with run {record.id} ({record.bench_path or record.bench_name}, "
+            "as it was when the run started)"
+        )
+    return load_bench("demo"), "the bundled demo bench (no --bench given)"
+
+
+def _run_scan(kind: str, data: str, db: str | None) -> tuple[Any, Any]:
+    """A logged run and its points as the scan a fit of ``kind`` reads (pointer readings for
+    the coupling, counts otherwise), the readings being of the run's imbalance mount."""
     import numpy as np
 
+    from ..errors import DataFileError
+    from ..fit.csvdata import CountScan, PointerScan
     from ..run.log import read_run
 
     record, points = read_run(int(data), db)
-    with_pointer = [p for p in points if p.pointer is not None and p.pointer_err]
-    if len(with_pointer) < 2:
-        raise DataFileError(
-            f"run {data}: {len(with_pointer)} point(s) carry pointer readings; "
-            "the coupling fit needs at least 2"
+    label = f"run {data}"
+    if kind == "coupling":
+        kept = [p for p in points if p.pointer is not None and p.pointer_err]
+        if len(kept) < 2:
+            raise DataFileError(
+                f"{label}: {len(kept)} point(s) carry pointer readings; the coupling fit "
+                "needs at least 2"
+            )
+        return record, PointerScan(
+            np.array([p.reading_deg for p in kept]),
+            np.array([p.pointer for p in kept]),
+            np.array([p.pointer_err for p in kept]),
+            label,
+            record.imbalance_mount,
         )
-    return PointerScan(
-        np.array([p.reading_deg for p in with_pointer]),
-        np.array([p.pointer for p in with_pointer]),
-        np.array([p.pointer_err for p in with_pointer]),
-        f"run {data}",
+    if len(points) < 4:
+        raise DataFileError(f"{label}: {len(points)} point(s); this fit needs at least 4")
+    with_reference = all(p.reference is not None for p in points)
+    return record, CountScan(
+        np.array([p.reading_deg for p in points]),
+        np.array([float(p.counts) for p in points]),
+        np.array([p.dwell_s for p in points]),
+        np.array([float(p.reference or 0) for p in points]) if with_reference else None,
+        label,
         record.imbalance_mount,
-    ), f"run {data}"
+    )
 
 
 def _pm(doc: dict[str, Any], key: str, err: str | None, unit: str, fmt: str = ".6g") -> str:
@@ -181,35 +218,46 @@ def _rows(kind: str, doc: dict[str, Any]) -> list[tuple[str, str]]:
 
 def run(args: argparse.Namespace) -> int:
     """Run the fit and print (or write) its result."""
-    from ..bench import ensure_writable, load_bench, write_values
-    from ..fit.csvdata import load_count_scan
+    from ..bench import ensure_writable, write_values
+    from ..errors import InputError
+    from ..fit.csvdata import load_count_scan, load_pointer_scan
     from ..fit.scanmodel import mount_statement
     from .common import emit_json
 
-    bench = load_bench(args.bench)
+    record = None
+    if _is_run(args.data):
+        record, scan = _run_scan(args.kind, args.data, args.db)
+    elif args.kind == "coupling":
+        scan = load_pointer_scan(args.data)
+    else:
+        scan = load_count_scan(args.data)
+    if args.write and record is not None and not args.bench:
+        raise InputError(
+            f"--write: run {record.id}'s stored bench is a snapshot, not a file to write; give "
+            "the bench file to store the values in with --bench"
+        )
+    bench, bench_words = _bench_for(args, record)
     options = {"dwell_s": args.dwell, "dark_rate": args.dark_rate}
-    label = args.data
+    result: Any
     if args.kind == "coupling":
         from ..fit.coupling import fit_coupling
 
-        scan, label = _load_pointer(args.data, args.db)
         result = fit_coupling(bench, scan, args.mount)
+    elif args.kind == "null":
+        from ..fit.null import fit_null
+
+        result = fit_null(bench, scan, args.mount, **options)
+    elif args.kind == "waveplate":
+        from ..fit.waveplate import fit_waveplate
+
+        result = fit_waveplate(bench, scan, args.mount, free_scale=args.free_rate, **options)
     else:
-        scan = load_count_scan(args.data)
-        if args.kind == "null":
-            from ..fit.null import fit_null
+        from ..fit.leakcurve import fit_leak_curve
 
-            result = fit_null(bench, scan, args.mount, **options)
-        elif args.kind == "waveplate":
-            from ..fit.waveplate import fit_waveplate
-
-            result = fit_waveplate(bench, scan, args.mount, free_scale=args.free_rate, **options)
-        else:
-            from ..fit.leakcurve import fit_leak_curve
-
-            result = fit_leak_curve(bench, scan, args.mount, **options)
+        result = fit_leak_curve(bench, scan, args.mount, **options)
     doc = result.to_json()
     doc["mount_basis"] = mount_statement(bench, scan, args.mount, result.mount)
+    doc["bench"] = bench_words
     updates = result.bench_updates()
     if args.write:
         ensure_writable(bench.path)  # before any work: the demo bench is not written to
@@ -223,9 +271,11 @@ def run(args: argparse.Namespace) -> int:
         return 0 if result.fit.success else 2
     notes = [
         result.fit.warning,
+        f"fitted with {bench_words}",
         doc["mount_basis"],
         doc.get("ambiguity", ""),
         doc.get("statement", ""),
+        doc.get("reference", ""),
         getattr(result, "bench_comparison", ""),
         f"verdict: {doc['verdict']}" if doc.get("verdict") else "",
         "" if result.fit.success else f"the fit failed: {result.fit.message}",
@@ -243,5 +293,6 @@ def run(args: argparse.Namespace) -> int:
             else "the model does not describe the data (see the warning)"
         )
         notes.append(f"nothing written: {why}")
-    print_table(f"{args.kind} fit of {label}", _rows(args.kind, doc), [n for n in notes if n])
+    title = f"{args.kind} fit of {scan.path}"
+    print_table(title, _rows(args.kind, doc), notes)
     return 0 if result.fit.success else 2

@@ -1,8 +1,12 @@
-"""Post-selected counts -> leak rate with an exact confidence interval, and a
-verdict against the bench's prediction.
+"""Post-selected counts -> leak rate with its interval, and verdicts against the bench's
+prediction.
 
-Garwood interval for counted rates, Clopper-Pearson for count ratios and for clicks per pulse
-in pulsed mode; dead time and dark counts are corrected bound by bound.
+Garwood interval for counted rates, Clopper-Pearson for clicks per pulse in pulsed mode; dead
+time and dark counts are corrected bound by bound. A counted reference (the analyzer turned
+to transmission, the analyzer's other port, or a monitor of the source) enters by profile
+likelihood with its own Poisson noise, its own dead time and its own dark rate; with --bench
+the reference detector is the bench's [reference] and the predicted leak is given in the same
+units, with the difference in standard deviations.
 """
 
 from __future__ import annotations
@@ -12,6 +16,22 @@ from typing import Any
 
 from .common import add_json_flag, add_set_argument, number
 from .fit import SAFETY
+
+#: Engine parameter -> the option that gave it (errors name the option).
+FLAGS = {
+    "counts": "--counts",
+    "dwell_s": "--dwell",
+    "dark": "--dark",
+    "dark_dwell_s": "--dark-dwell",
+    "reference": "--reference",
+    "reference_dwell_s": "--reference-dwell",
+    "reference_rate": "--reference-rate",
+    "reference.efficiency": "--relative-efficiency",
+    "reference.dead_time_s": "--reference-dead-time-ns",
+    "detector.dead_time_s": "--dead-time-ns",
+    "rep_rate_hz": "--rep-rate",
+    "level": "--level",
+}
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -54,17 +74,24 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument(
         "--reference-kind",
-        choices=("bright", "port"),
-        default="bright",
-        help="bright: analyzer turned to transmission (leak = S/B); port: other "
-        "port of a polarizing beam splitter (leak = S/(S+B))",
+        choices=("bright", "port", "monitor"),
+        help="bright: analyzer turned to transmission (leak = S/B); port: the analyzer's "
+        "other port (leak = S/(S+R)); monitor: a pick-off of the source (leak per source "
+        "photon); default: the bench's [reference] kind, else bright",
     )
     p.add_argument(
         "--relative-efficiency",
         type=number(0, 1e6, low_open=True),
-        default=1.0,
         metavar="X",
-        help="efficiency of the post-selected detector over the reference one",
+        help="without --bench: efficiency of the post-selected detector over the reference's "
+        "(a monitor: over its counts per source photon); default 1",
+    )
+    p.add_argument(
+        "--reference-dead-time-ns",
+        type=number(0, 1e9),
+        metavar="NS",
+        help="the reference detector's dead time (ns; default: the bench's [reference]; for "
+        "a bright reference the post-selected detector's; else 0)",
     )
     p.add_argument(
         "--dark",
@@ -99,80 +126,131 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument(
         "--bench",
         metavar="BENCH",
-        help="bench file or 'demo': dark rate, dead time, efficiency, prediction",
+        help="bench file or 'demo': detectors, reference channel, prediction",
     )
     add_set_argument(p)
     add_json_flag(p)
     p.set_defaults(handler=run)
 
 
+def _reference(
+    args: argparse.Namespace, bench: Any, detector: Any, readings: dict[str, float]
+) -> tuple[Any, float | None]:
+    """The reference the options and the bench give, and the predicted leak in its units (None
+    when there is nothing to predict: a bright or a measured full-transmission rate)."""
+    from dataclasses import replace
+
+    from ..errors import InputError
+    from ..fit.counts import Channel, CountedReference, RateReference
+
+    if args.reference_rate is not None:
+        return RateReference(args.reference_rate), None
+    kind = args.reference_kind
+    if args.reference is None:
+        if bench is None:
+            return None, None
+        nominal = RateReference(bench.source.photon_rate * detector.efficiency, measured=False)
+        return nominal, _predicted_leak(bench, readings, "none")
+    if bench is None:
+        kind = kind or "bright"
+        base = detector if kind == "bright" else Channel()  # bright: the same detector, turned
+        channel = replace(base, efficiency=detector.efficiency / (args.relative_efficiency or 1))
+    else:
+        kind = kind or (bench.reference.kind if bench.reference.kind != "none" else "bright")
+        if kind != "bright" and bench.reference.kind != kind:
+            raise InputError(
+                f"--reference-kind {kind}: {bench.path or 'the bench'} has [reference] kind = "
+                f"{bench.reference.kind!r}; describe the {kind} detector there ([reference] "
+                f"kind = {kind!r} with its efficiency and dead time) or leave out --bench"
+            )
+        if args.relative_efficiency is not None:
+            raise InputError(
+                "--relative-efficiency applies only without --bench (the bench file gives "
+                "both detectors' efficiencies)"
+            )
+        channel = detector if kind == "bright" else Channel.of_reference(bench.reference)
+    if args.reference_dead_time_ns is not None:
+        channel = replace(channel, dead_time_s=args.reference_dead_time_ns * 1e-9)
+    counted = CountedReference(kind, args.reference, args.reference_dwell, channel)
+    return counted, None if bench is None or kind == "bright" else _predicted_leak(
+        bench, readings, kind
+    )
+
+
+def _predicted_leak(bench: Any, readings: dict[str, float], kind: str) -> float:
+    """The bench's leak at ``readings`` in the units a reference of ``kind`` gives: per source
+    photon, or for the analyzer's other port per photon leaving the analyzer."""
+    from ..fit.scanmodel import analyzer_input
+    from ..prediction import predict
+
+    leak = float(predict(bench, readings).leak_rate)
+    return leak / float(analyzer_input(bench, readings)) if kind == "port" else leak
+
+
 def run(args: argparse.Namespace) -> int:
     """Compute and print the leak."""
-    from ..fit.counts import measure_leak
-    from .common import emit_json, parse_settings
-    from .fit import print_table
+    from dataclasses import replace
 
-    options: dict = {}
-    predicted = None
+    from ..errors import InputError, ParameterError
+    from ..fit.counts import Channel, DarkCounts, Gating, measure_leak
+    from .common import emit_json, parse_settings
+
+    bench = None
+    detector, gating, predicted_rate = Channel(), None, None
+    readings = parse_settings(args.set)
     if args.bench:
         from ..bench import load_bench
         from ..prediction import predict
 
         bench = load_bench(args.bench)
         d = bench.detector
-        p = predict(bench, parse_settings(args.set))
-        signal = float(p.leak_rate) * bench.source.photon_rate * d.efficiency
-        predicted = signal
-        options = {
-            "dark_rate": d.dark_rate,
-            "dead_time_s": d.dead_time_ns * 1e-9,
-            "efficiency": d.efficiency,
-            "dark_probability": d.gate_dark_probability,
-            "rep_rate_hz": d.rep_rate_hz if d.mode == "pulsed" else None,
-        }
-        options["safe_rate"] = d.safe_rate
-        if args.reference is None and args.reference_rate is None:
-            options["reference_rate"] = bench.source.photon_rate * d.efficiency
-            options["reference_measured"] = False
+        detector, gating = Channel.of_detector(d), Gating.of_detector(d)
+        predicted_rate = float(predict(bench, readings).leak_rate) * (
+            bench.source.photon_rate * d.efficiency
+        )
     elif args.set:
-        from ..errors import InputError
-
         raise InputError("--set needs --bench (the readings are a bench's mount readings)")
     if args.dead_time_ns is not None:
-        options["dead_time_s"] = args.dead_time_ns * 1e-9
+        detector = replace(detector, dead_time_s=args.dead_time_ns * 1e-9)
     if args.rep_rate is not None:
-        options["rep_rate_hz"] = args.rep_rate
-    if args.reference_rate is not None:
-        options["reference_rate"] = args.reference_rate
-    m = measure_leak(
-        args.counts,
-        args.dwell,
-        reference=args.reference,
-        reference_dwell_s=args.reference_dwell,
-        reference_kind=args.reference_kind,
-        dark=args.dark,
-        dark_dwell_s=args.dark_dwell,
-        relative_efficiency=args.relative_efficiency,
-        level=args.level,
-        predicted_rate=predicted,
-        **options,
-    )
+        gating = Gating(args.rep_rate, gating.dark_probability if gating else 0.0)
+    reference, predicted_leak = _reference(args, bench, detector, readings)
+    try:
+        m = measure_leak(
+            args.counts,
+            args.dwell,
+            detector=detector,
+            gating=gating,
+            dark=None if args.dark is None else DarkCounts(args.dark, args.dark_dwell),
+            reference=reference,
+            level=args.level,
+            predicted_rate=predicted_rate,
+            predicted_leak=predicted_leak,
+        )
+    except ParameterError as exc:
+        raise InputError(f"{FLAGS.get(exc.parameter, exc.parameter)} {exc.problem}") from None
     doc = m.to_json()
+    doc["bench"] = None if bench is None else str(bench.path or args.bench)
     if args.json:
         emit_json(doc)
         return 0
-    print_table(
-        "leak from counts",
-        _rows(m),
-        [*m.warnings, *m.notes, *([f"verdict: {m.verdict.text}"] if m.verdict else [])],
-    )
+    from .fit import print_table
+
+    verdicts = [
+        f"verdict on the {what}: {v.text}"
+        for what, v in (("leak", m.leak_verdict), ("signal rate", m.rate_verdict))
+        if v is not None
+    ]
+    print_table("leak from counts", _rows(m), [*m.warnings, *m.notes, m.flag, *verdicts])
     return 0
 
 
 def _rows(m: Any) -> list[tuple[str, str]]:
     """Readable rows of a :class:`~aligner.fit.counts.LeakMeasurement`: the raw rate, each
     correction in turn, then the signal and the leak (an upper limit when there is no
-    interval)."""
+    interval), and the predictions."""
+    from ..fit.counts import format_sigma
+
     pct = f"{m.level:.1%}"
     pulsed = m.mean_photons_per_pulse is not None
     rows = [
@@ -202,18 +280,17 @@ def _rows(m: Any) -> list[tuple[str, str]]:
     if m.reference_raw_rate is not None:
         rows += [
             ("reference raw rate", f"{m.reference_raw_rate:.4g} counts/s"),
-            ("reference after dead-time correction", f"{m.reference_corrected_rate:.4g} counts/s"),
+            (
+                "reference after its own dead-time correction",
+                f"{m.reference_corrected_rate:.4g} counts/s",
+            ),
         ]
     if m.leak is not None:
-        if m.upper_limit:
-            rows.append(
-                (f"leak upper limit ({m.upper_limit_credibility:.2%})", f"below {m.leak_high:.4g}")
-            )
-        else:
-            rows += [
-                ("leak", f"{m.leak:.4g}"),
-                (f"leak {pct} interval", f"{m.leak_low:.4g} to {m.leak_high:.4g}"),
-            ]
+        rows += [
+            ("leak", f"{m.leak:.4g}"),
+            (f"leak {pct} interval", f"{m.leak_low:.4g} to {m.leak_high:.4g}"),
+        ]
+    if m.reference is not None:
         rows.append(("reference", str(m.reference)))
     if pulsed:
         rows += [
@@ -222,4 +299,8 @@ def _rows(m: Any) -> list[tuple[str, str]]:
         ]
     if m.predicted_rate is not None:
         rows.append(("predicted signal rate", f"{m.predicted_rate:.4g} counts/s"))
+    if m.predicted_leak is not None:
+        rows.append(("predicted leak", f"{m.predicted_leak:.4g}"))
+        if m.leak_verdict is not None:
+            rows.append(("leak - predicted", format_sigma(m.leak_verdict.residual_sigma)))
     return rows

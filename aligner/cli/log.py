@@ -41,6 +41,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     report = action("report", "write a Markdown summary and a plot of a run")
     report.add_argument("run", metavar="RUN", type=run_id)
     report.add_argument("--out", metavar="DIR", required=True, help="folder to write into")
+    report.add_argument("--force", action="store_true", help="replace a report already there")
+    add_json_flag(report)
     rescue = action(
         "salvage",
         "copy the readable runs of a damaged run log (--db) into a new file (--out)",
@@ -104,6 +106,7 @@ def run(args: argparse.Namespace) -> int:
 
     from ..run.log import RunLog
     from ..run.report import device_lines, export_csv, write_report
+    from ..run.result import result_lines, run_result_or_reason
     from ..text import safe_text
     from .common import console as make_console
     from .common import emit_json
@@ -138,6 +141,7 @@ def run(args: argparse.Namespace) -> int:
             _show_recipe(console, log, args.run, args.json)
         elif args.action == "show":
             record, points, events = log.run(args.run), log.points(args.run), log.events(args.run)
+            result, why = run_result_or_reason(record, points)
             if args.json:
                 emit_json(
                     {
@@ -145,6 +149,8 @@ def run(args: argparse.Namespace) -> int:
                         "provenance": record.provenance,
                         "points_detail": [p.__dict__ for p in points],
                         "events": [e.__dict__ for e in events],
+                        "result": None if result is None else result.to_json(),
+                        "result_note": why,
                     }
                 )
                 return 0
@@ -157,28 +163,13 @@ def run(args: argparse.Namespace) -> int:
             )
             for line in device_lines(record):
                 console.print(f"  {safe_text(line)}")
-            table = Table()
-            for column in (
-                "#",
-                "reading (deg)",
-                "imbalance (deg)",
-                "counts",
-                "reference",
-                "leak",
-                "predicted",
-            ):
-                table.add_column(column, justify="right")
-            for p in points:
-                table.add_row(
-                    str(p.idx),
-                    f"{p.reading_deg:.4f}",
-                    f"{p.imbalance_deg:+.3f}",
-                    str(p.counts),
-                    "-" if p.reference is None else str(p.reference),
-                    safe_text(p.flag) if p.leak is None else f"{p.leak:.3e}",
-                    f"{p.predicted_leak:.3e}",
-                )
-            console.print(table)
+            if result is None:
+                console.print(safe_text(why))
+            else:
+                for table in _points_tables(result, points):
+                    console.print(table)
+                for line in result_lines(result):
+                    console.print(safe_text(line))
             for e in events:
                 console.print(f"{e.t_utc[:19]} {e.kind}: {safe_text(e.message)}")
         elif args.action == "export":
@@ -200,14 +191,87 @@ def run(args: argparse.Namespace) -> int:
                     args.out,
                 )
             else:
-                report = write_report(record, log.points(args.run), log.events(args.run), args.out)
+                report = write_report(
+                    record,
+                    log.points(args.run),
+                    log.events(args.run),
+                    args.out,
+                    overwrite=args.force,
+                )
+            if args.json:
+                emit_json(
+                    {
+                        "run": record.id,
+                        "data": record.data_label,
+                        "markdown": str(report.markdown),
+                        "plot": None if report.plot is None else str(report.plot),
+                        "note": report.note,
+                        "result": None if report.result is None else report.result.to_json(),
+                    }
+                )
+                return 0
             console.print(
                 safe_text(
                     f"wrote {report.markdown}"
                     + (f" and {report.plot}" if report.plot else f" ({report.note})")
                 )
             )
+            if report.result is not None:
+                console.print(safe_text(report.result.headline))
     return 0
+
+
+def _short(value: float) -> str:
+    """A number in at most about 8 characters: 3 digits, powers of ten outside 1e-3..1e5."""
+    return f"{value:.3g}" if value == 0 or 1e-3 <= abs(value) < 1e5 else f"{value:.1e}"
+
+
+def _points_tables(result: Any, points: Any) -> list[Any]:
+    """The points of a sweep run: counts and leak against the prediction; and, when the run
+    has pointer readings, the pointer shift against its linear and exact predictions with the
+    measured amplification."""
+    from rich import box
+    from rich.table import Table
+
+    from ..text import safe_text
+
+    counts = Table(title="counts")
+    for column in ("#", "reading (deg)", "imbalance (deg)", "counts", "reference", "leak",
+                   "predicted"):  # fmt: skip
+        counts.add_column(column, justify="right")
+    pointer = Table(
+        title=f"pointer shift ({safe_text(result.units)}) and amplification",
+        caption="imb.: imbalance (deg); lin., exact: predicted to first and all orders; "
+        "z = (shift - exact) / s.e.; ampl. = shift / " + safe_text(result.amplification_basis),
+        box=box.SIMPLE_HEAD,
+        pad_edge=False,
+        show_edge=False,
+        padding=(0, 1),
+        collapse_padding=True,
+    )
+    for column in ("#", "imb.", "shift", "s.e.", "exact", "z", "ampl.", "s.e.", "lin.",
+                   "exact"):  # fmt: skip
+        pointer.add_column(column, justify="right")
+    for r, p in zip(result.points, points, strict=True):
+        counts.add_row(
+            str(r.idx),
+            f"{r.reading_deg:.4f}",
+            f"{r.imbalance_deg:+.3f}",
+            str(p.counts),
+            "-" if p.reference is None else str(p.reference),
+            safe_text(r.flag) if r.leak is None else f"{r.leak:.3e}",
+            f"{r.predicted_leak:.3e}",
+        )
+        if r.pointer is not None and r.pointer_err:
+            pointer.add_row(
+                str(r.idx),
+                f"{r.imbalance_deg:+.3f}",
+                *map(_short, (r.pointer, r.pointer_err, r.exact_shift)),
+                f"{r.residual_sigma:+.1f}",
+                *map(_short, (r.amplification, r.amplification_err)),
+                *map(_short, (r.amplification_linear, r.amplification_exact)),
+            )
+    return [counts, pointer] if pointer.row_count else [counts]
 
 
 def _salvage(args: argparse.Namespace, console: Any) -> int:

@@ -12,10 +12,12 @@ weighted least squares; its bias is stated against the exact one.
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from ..bench import Bench
 from ..model import coupling_observable, forward
@@ -95,12 +97,19 @@ class CouplingFit:
         return {"coupling.strength": float(f"{self.strength:.6g}")}
 
 
-def fit_coupling(bench: Bench, scan: PointerScan, mount: str | None = None) -> CouplingFit:
+def fit_coupling(
+    bench: Bench,
+    scan: PointerScan,
+    mount: str | None = None,
+    *,
+    readings: Mapping[str, ArrayLike] | None = None,
+) -> CouplingFit:
     """Fit ``g`` to pointer readings (see the module docstring); ``mount`` defaults to the
-    bench's imbalance mount."""
+    bench's imbalance mount. ``readings`` (deg, one value or one per point) gives the other
+    mounts where they were (a run's read-backs); default: the bench file's readings."""
     name = require_mount(bench, mount, bench.imbalance_mount, "coupling", scan)
     c = bench.coupling
-    fwd = forward(bench, {name: scan.reading_deg})
+    fwd = forward(bench, {**(readings or {}), name: scan.reading_deg})
     a = coupling_observable(bench)
     momentum = c.readout == "momentum"
 

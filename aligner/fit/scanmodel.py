@@ -10,6 +10,7 @@ dead time, pulsed clicks), times the dwell. Fit parameters enter as *arrays* of 
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import replace
 
 import numpy as np
@@ -23,6 +24,7 @@ from ..physics.weak import pointer_response
 from .csvdata import CountScan, PointerScan
 
 __all__ = [
+    "analyzer_input",
     "detected_rate",
     "dwell_per_point",
     "mount_statement",
@@ -74,7 +76,7 @@ def require_mount(
         raise InputError(
             f"--mount {name!r}: no such mount; the bench has: {', '.join(bench.mounts)}"
         )
-    if file_mount is not None and name != file_mount:
+    if scan is not None and file_mount is not None and name != file_mount:
         asked = f"--mount {name!r}" if mount else f"{name!r} (the {what} fit's default mount)"
         raise InputError(
             f"{scan.path}: the readings are of mount {file_mount!r} ({why}), but "
@@ -107,6 +109,16 @@ def post_probability(bench: Bench, readings: dict[str, ArrayLike]) -> Real:
     return pointer_response(
         fwd.rho, fwd.effect, coupling_observable(bench), c.strength, c.pointer_sigma
     ).probability
+
+
+def analyzer_input(bench: Bench, readings: Mapping[str, ArrayLike] | None = None) -> Real:
+    """Share of the source photons that leave the analyzer by either port: the light reaching
+    it times its ``transmission`` (the loss is taken to be common to both ports, and the other
+    port to take all that the post-selected one does not). With the analyzer's other port as
+    reference, ``S / (S + R)`` is the leak per source photon over this share."""
+    open_analyzer = replace(bench.analyzer, extinction_ratio=1.0, transmission=1.0)
+    light = forward(replace(bench, analyzer=open_analyzer), readings).probability
+    return bench.analyzer.transmission * np.asarray(light, float)
 
 
 def detected_rate(
@@ -147,13 +159,16 @@ def reference_weights(scan: CountScan) -> Real:
 
 
 def with_offset(bench: Bench, mount: str, offset_deg: ArrayLike) -> Bench:
-    """The bench with mount ``mount``'s offset (deg) replaced."""
-    return bench.with_mounts(**{mount: replace(bench.mounts[mount], offset_deg=offset_deg)})
+    """The bench with mount ``mount``'s offset (deg) replaced (an array of fit parameters
+    broadcasts through the model, though the field is typed for one number)."""
+    m = replace(bench.mounts[mount], offset_deg=offset_deg)  # type: ignore[arg-type]
+    return bench.with_mounts(**{mount: m})
 
 
 def with_analyzer_extinction(bench: Bench, extinction_ratio: ArrayLike) -> Bench:
-    """The bench with the analyzer's extinction ratio replaced."""
-    return replace(bench, analyzer=replace(bench.analyzer, extinction_ratio=extinction_ratio))
+    """The bench with the analyzer's extinction ratio replaced (an array broadcasts)."""
+    analyzer = replace(bench.analyzer, extinction_ratio=extinction_ratio)  # type: ignore[arg-type]
+    return replace(bench, analyzer=analyzer)
 
 
 def plate_element(bench: Bench, mount: str) -> Element:
@@ -168,11 +183,12 @@ def plate_element(bench: Bench, mount: str) -> Element:
 
 
 def with_retardance(bench: Bench, mount: str, waves: ArrayLike) -> Bench:
-    """The bench with the retardance (waves) of the plate on ``mount`` replaced."""
+    """The bench with the retardance (waves) of the plate on ``mount`` replaced (an array
+    broadcasts)."""
 
     def swap(chain: tuple[Element, ...]) -> tuple[Element, ...]:
         return tuple(
-            replace(e, retardance_waves=waves)
+            replace(e, retardance_waves=waves)  # type: ignore[arg-type]
             if e.mount == mount and e.type in ("hwp", "qwp", "retarder")
             else e
             for e in chain

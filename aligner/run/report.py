@@ -1,18 +1,27 @@
-"""Run reports: CSV export and a Markdown summary with a plot for the lab notebook.
+"""Run reports: CSV export and a Markdown summary with plots for the lab notebook.
 
-The plot (measured leak rate with its interval against the prediction at the read-back
-readings, versus the imbalance mount's reading) needs matplotlib, an optional extra:
-``pip install "aligner[report]"``. Without it the Markdown is still written and says so.
+The summary leads with the result (:mod:`aligner.run.result`): the coupling strength from the
+whole run with its error, what the post-selection bought against a standard measurement and
+what limited it, the leak-curve fit, then every point's pointer shift and amplification next
+to the linear and exact predictions, and its leak rate.
+
+The plot (one SVG, three panels against the imbalance: pointer shift, amplification, leak rate
+on a log axis; measured points with their errors over the dense predicted curves) needs
+matplotlib, an optional extra: ``pip install "aligner[report]"``. It is drawn on a figure of
+its own with the SVG canvas (no pyplot state, nothing shown). Without matplotlib the Markdown
+is still written and says so.
 
 Every output says what the numbers are (:attr:`RunRecord.data_label`: measured, SIMULATED,
 TYPED IN) and lists the devices of the run: the CSV in comment lines above its header, the
 Markdown in a table, the plot in its title. Text from the log (names, schedules, messages) is
-written as data: control characters removed, Markdown's table bars escaped.
+written as data: control characters removed, Markdown's table bars escaped, and in the plot
+mathtext's dollar signs escaped.
 """
 
 from __future__ import annotations
 
 import csv
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -20,8 +29,9 @@ from pathlib import Path
 from ..errors import InputError
 from ..text import clean
 from .log import Event, LoggedPoint, RunRecord
+from .result import RunResult, result_lines, run_result_or_reason
 
-__all__ = ["CSV_COLUMNS", "Report", "device_lines", "export_csv", "write_report"]
+__all__ = ["CSV_COLUMNS", "Report", "device_lines", "export_csv", "report_paths", "write_report"]
 
 CSV_COLUMNS = (
     "run",
@@ -46,12 +56,14 @@ INSTALL_HINT = 'the plot needs matplotlib: pip install "aligner[report]"'
 
 @dataclass(frozen=True)
 class Report:
-    """What :func:`write_report` wrote: the Markdown file, the plot (None without matplotlib)
-    and a note when the plot is missing."""
+    """What a report wrote: the Markdown file, the plot (None without matplotlib), a note when
+    the plot is missing, and the run's result (None for a run without points or a recipe
+    run)."""
 
     markdown: Path
     plot: Path | None
     note: str = ""
+    result: RunResult | None = None
 
 
 def device_lines(record: RunRecord) -> list[str]:
@@ -135,75 +147,162 @@ def export_csv(
     return len(points)
 
 
-def _plot(record: RunRecord, points: Sequence[LoggedPoint], path: Path) -> None:
-    import matplotlib
+def _svg_text(text: object) -> str:
+    """Log text for a plot: cleaned, mathtext's dollar signs escaped."""
+    return clean(text).replace("$", r"\$")
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+
+def _limits(values: Sequence[float], pad: float = 0.12) -> tuple[float, float]:
+    """A y range holding ``values`` (finite ones) with a margin."""
+    finite = [v for v in values if math.isfinite(v)]
+    lo, hi = (min(finite), max(finite)) if finite else (-1.0, 1.0)
+    span = hi - lo or max(abs(hi), 1.0)
+    return lo - pad * span, hi + pad * span
+
+
+def _plot(record: RunRecord, result: RunResult, path: Path) -> None:
+    """Pointer shift, amplification and leak rate against the imbalance (see the module)."""
+    from matplotlib import rc_context
+    from matplotlib.backends.backend_svg import FigureCanvasSVG
+    from matplotlib.figure import Figure
+    from matplotlib.ticker import LogFormatter, NullLocator
+
+    c, pts = result.curve, result.points
+    fig = Figure(figsize=(6.4, 8.6))
+    FigureCanvasSVG(fig)
+    shift_ax, amp_ax, leak_ax = fig.subplots(3, 1, sharex=True)
     import numpy as np
 
-    measured = [p for p in points if p.leak is not None]
-    x = np.array([p.reading_deg for p in measured])
-    leak = np.array([p.leak for p in measured])
-    err = np.array([[p.leak - p.leak_lo for p in measured], [p.leak_hi - p.leak for p in measured]])
-    every = np.array([p.reading_deg for p in points])
-    order = np.argsort(every)
-    fig, ax = plt.subplots(figsize=(6.4, 4.2))
-    ax.errorbar(x, leak, yerr=err, fmt="o", ms=4, capsize=2, label="measured (68 % interval)")
-    ax.plot(
-        every[order],
-        np.array([p.predicted_leak for p in points])[order],
-        "-",
-        label="predicted at read-back",
+    measured = np.array(
+        [
+            (p.imbalance_deg, p.pointer, p.pointer_err, p.amplification, p.amplification_err)
+            for p in pts
+            if p.pointer is not None and p.pointer_err
+        ],
+        dtype=float,
+    ).reshape(-1, 5)
+    x = measured[:, 0]
+    for ax, linear, exact, y, errors, label in (
+        (
+            shift_ax,
+            c.linear_shift,
+            c.exact_shift,
+            measured[:, 1],
+            measured[:, 2],
+            f"pointer shift ({_svg_text(result.units)})",
+        ),
+        (
+            amp_ax,
+            c.amplification_linear,
+            c.amplification_exact,
+            measured[:, 3],
+            measured[:, 4],
+            "amplification",
+        ),
+    ):
+        ax.plot(c.imbalance_deg, linear, "--", lw=1, color="0.45", label="linear prediction")
+        ax.plot(c.imbalance_deg, exact, "-", lw=1.4, color="C0", label="exact prediction")
+        if x.size:
+            ax.errorbar(x, y, yerr=errors, fmt="o", ms=3.5, capsize=2, color="C3",
+                        label="measured (1 s.e.)")  # fmt: skip
+        ax.set_ylim(*_limits([*exact, *(y - errors), *(y + errors)]))
+        ax.set_ylabel(label)
+        ax.legend(fontsize="small", loc="upper right")
+    amp_ax.set_title(_svg_text(f"measured shift / {result.amplification_basis}"), fontsize="small")
+    counted = [p for p in pts if p.leak is not None]
+    if counted:
+        leak_ax.errorbar(
+            [p.imbalance_deg for p in counted],
+            [p.leak for p in counted],
+            yerr=[
+                [p.leak - (p.leak_low or 0.0) for p in counted],  # type: ignore[operator]
+                [(p.leak_high or 0.0) - p.leak for p in counted],  # type: ignore[operator]
+            ],
+            fmt="o", ms=3.5, capsize=2, color="C3", label="measured (68 % interval)",
+        )  # fmt: skip
+    leak_ax.plot(c.imbalance_deg, c.leak, "-", lw=1.4, color="C0", label="predicted")
+    leak_ax.set_yscale("log")
+    # plain tick labels (1e-04) and no minor ticks: no mathtext, a fraction of the draw time
+    leak_ax.yaxis.set_major_formatter(LogFormatter())
+    leak_ax.yaxis.set_minor_locator(NullLocator())
+    leak_ax.set_ylabel("leak rate (per source photon)")
+    leak_ax.set_xlabel("imbalance (deg)")
+    leak_ax.legend(fontsize="small", loc="lower right")
+    fig.suptitle(
+        _svg_text(f"run {record.id}: {record.schedule} ({record.data_label})"), fontsize="medium"
     )
-    ax.set_xlabel(f"{record.imbalance_mount} reading (deg)")
-    ax.set_ylabel("leak rate (per incident photon)")
-    ax.set_yscale("log")
-    ax.set_title(clean(f"run {record.id}: {record.schedule} ({record.data_label})"))
-    ax.legend()
-    fig.tight_layout()
-    fig.savefig(path)
-    plt.close(fig)
+    fig.subplots_adjust(left=0.14, right=0.97, top=0.94, bottom=0.06, hspace=0.22)
+    with rc_context({"svg.fonttype": "none"}):  # text as text: smaller, faster, searchable
+        fig.savefig(path, format="svg", metadata={"Date": None})
 
 
-def fitted_offset(record: RunRecord, points: Sequence[LoggedPoint]) -> str:
-    """One line on the imbalance offset fitted to the run's counts
-    (:func:`aligner.fit.leakcurve.fit_leak_curve`, reference port as intensity monitor)."""
-    import numpy as np
+def _md(text: str) -> str:
+    """Log text for a Markdown line: control characters removed, table bars escaped."""
+    return clean(text).replace("|", "\\|").replace("\n", " ")
 
-    from ..errors import AlignerError
-    from ..fit.csvdata import CountScan
-    from ..fit.leakcurve import fit_leak_curve
-    from .sweep import resume_plan
 
-    if len(points) < 4:
-        return "not fitted (fewer than 4 points)"
-    points = [p for p in points if p.leak is not None]
-    if len(points) < 4:
-        return "not fitted (fewer than 4 points with a leak rate)"
-    has_ref = all(p.reference for p in points)
-    scan = CountScan(
-        np.array([p.reading_deg for p in points]),
-        np.array([float(p.counts) for p in points]),
-        np.array([p.dwell_s for p in points]),
-        np.array([float(p.reference) for p in points]) if has_ref else None,
-        f"run {record.id}",
-    )
-    try:
-        fit = fit_leak_curve(resume_plan(record)[0], scan, record.imbalance_mount)
-    except AlignerError as exc:
-        return f"not fitted ({exc})"
-    return (
-        f"{fit.imbalance_offset_deg:+.4f} +/- {fit.imbalance_offset_err_deg:.4f} deg "
-        f"(leak floor {fit.leak_floor:.3g} +/- {fit.leak_floor_err:.2g}, bench predicts "
-        f"{fit.predicted_floor:.3g}; {fit.verdict.text})"
-    )
+def _g(value: float | None, fmt: str = ".4g") -> str:
+    return "-" if value is None or not math.isfinite(value) else format(value, fmt)
+
+
+def _result_lines(result: RunResult) -> list[str]:
+    """The result section: the lines of :func:`aligner.run.result.result_lines` and the
+    errors on ``g`` of the run against the standard measurement."""
+    first, *rest = result_lines(result)
+    lines = ["## Result", "", _md(f"**{first}**"), "", *(_md(f"- {line}") for line in rest)]
+    b = result.benefit
+    if b is not None:
+        lines += [
+            "",
+            f"| error on g ({_md(result.coupling.units if result.coupling else '')}) | value |",
+            "|---|---|",
+            f"| this run (fit) | {_g(b.run_error)} |",
+            f"| this design, predicted (exact post-selected spread, jitter) | "
+            f"{_g(b.predicted_error)} |",
+            f"| standard measurement, same photons and jitter | {_g(b.standard_error)} |",
+            f"| standard measurement, same photons, no jitter | {_g(b.standard_shot_error)} |",
+            f"| standard measurement attenuated to the detector's safe rate | "
+            f"{_g(b.standard_safe_error)} |",
+            f"| Cramer-Rao bound, post-selected events | {_g(b.cramer_rao_post)} |",
+            f"| Cramer-Rao bound, standard measurement | {_g(b.cramer_rao_standard)} |",
+        ]
+    return [*lines, ""]
+
+
+def _point_lines(result: RunResult, points: Sequence[LoggedPoint]) -> list[str]:
+    """The points table: pointer against its predictions, amplification, counts and leak."""
+    u = _md(result.units)
+    lines = [
+        f"| # | reading (deg) | imbalance (deg) | pointer ({u}) | linear | exact "
+        "| (meas. - exact)/s.e. | amplification | linear | exact | counts | leak "
+        "| 68 % interval | predicted | measured/predicted |",
+        "|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|",
+    ]
+    for r, p in zip(result.points, points, strict=True):
+        pointer = "-" if r.pointer is None else f"{r.pointer:.4g} +/- {_g(r.pointer_err, '.2g')}"
+        amp = "-" if r.amplification is None else (
+            f"{r.amplification:.4g} +/- {_g(r.amplification_err, '.2g')}"
+        )  # fmt: skip
+        if r.leak is None:
+            leak, interval, ratio = "-", _md(r.flag), "-"
+        else:
+            leak = f"{r.leak:.3e}"
+            interval = f"{_g(r.leak_low, '.3e')} - {_g(r.leak_high, '.3e')}"
+            ratio = f"{r.leak / r.predicted_leak:.3g}" if r.predicted_leak > 0 else "-"
+        lines.append(
+            f"| {r.idx} | {r.reading_deg:.4f} | {r.imbalance_deg:+.3f} | {pointer} | "
+            f"{r.linear_shift:.4g} | {r.exact_shift:.4g} | {_g(r.residual_sigma, '+.2f')} | "
+            f"{amp} | {r.amplification_linear:.4g} | {r.amplification_exact:.4g} | "
+            f"{p.counts} | {leak} | {interval} | {r.predicted_leak:.3e} | {ratio} |"
+        )
+    return [*lines, ""]
 
 
 def _markdown(
     record: RunRecord,
     points: Sequence[LoggedPoint],
     events: Sequence[Event],
+    result: RunResult | None,
     plot: Path | None,
     note: str,
 ) -> str:
@@ -218,38 +317,21 @@ def _markdown(
             f"- schedule: `{record.schedule}`, {record.repeats} pass(es), dwell "
             f"{record.dwell_s:g} s, settle {record.settle_s:g} s"
         ),
-        _md(f"- bench file: {record.bench_path} (snapshot kept in the run log)"),
+        _md(f"- bench file: {record.bench_path} (snapshot kept in the run log; used here)"),
         f"- started {record.started_utc}, ended {record.ended_utc or '-'} (UTC)",
         f"- software: aligner {record.software_version}",
         f"- data: {record.data_label}",
-        _md(f"- fitted imbalance offset: {fitted_offset(record, points)}"),
-        "",
-        "## Devices",
-        "",
-        *(_md(f"- {line}") for line in device_lines(record)),
         "",
     ]
+    if result is not None:
+        lines += _result_lines(result)
     if plot is not None:
-        lines += [f"![measured and predicted leak rate]({plot.name})", ""]
+        lines += [f"![pointer shift, amplification and leak rate]({plot.name})", ""]
     elif note:
         lines += [f"_No plot: {note}._", ""]
-    if points:
-        lines += [
-            "| # | reading (deg) | imbalance (deg) | counts | leak | 68 % interval "
-            "| predicted | measured/predicted |",
-            "|---|---|---|---|---|---|---|---|",
-        ]
-        for p in points:
-            if p.leak is None:
-                leak, interval, ratio = "-", _md(p.flag), "-"
-            else:
-                leak, interval = f"{p.leak:.3e}", f"{p.leak_lo:.3e} - {p.leak_hi:.3e}"
-                ratio = f"{p.leak / p.predicted_leak:.3g}" if p.predicted_leak > 0 else "-"
-            lines.append(
-                f"| {p.idx} | {p.reading_deg:.4f} | {p.imbalance_deg:+.3f} | "
-                f"{p.counts} | {leak} | {interval} | {p.predicted_leak:.3e} | {ratio} |"
-            )
-        lines.append("")
+    if result is not None:
+        lines += ["## Points", "", *_point_lines(result, points)]
+    lines += ["## Devices", "", *(_md(f"- {line}") for line in device_lines(record)), ""]
     if events:
         lines += ["## Events", ""]
         lines += [
@@ -268,29 +350,44 @@ def _markdown(
     return "\n".join(lines)
 
 
-def _md(text: str) -> str:
-    """Log text for a Markdown line: control characters removed, table bars escaped."""
-    return clean(text).replace("|", "\\|").replace("\n", " ")
+def report_paths(run_id: int, out_dir: str | Path) -> tuple[Path, Path]:
+    """The Markdown file and the plot a report of run ``run_id`` writes into ``out_dir``."""
+    out = Path(out_dir)
+    return out / f"run-{run_id}.md", out / f"run-{run_id}.svg"
 
 
 def write_report(
-    record: RunRecord, points: Sequence[LoggedPoint], events: Sequence[Event], out_dir: str | Path
+    record: RunRecord,
+    points: Sequence[LoggedPoint],
+    events: Sequence[Event],
+    out_dir: str | Path,
+    *,
+    overwrite: bool = False,
 ) -> Report:
-    """Write ``run-<id>.md`` and ``run-<id>-leak.svg`` into ``out_dir`` (created)."""
-    out = Path(out_dir)
+    """Write ``run-<id>.md`` and ``run-<id>.svg`` into ``out_dir`` (created); a report already
+    there is kept unless ``overwrite``."""
+    markdown, plot_path = report_paths(record.id, out_dir)
+    there = [p for p in (markdown, plot_path) if p.exists()]
+    if there and not overwrite:
+        raise InputError(
+            f"--out {out_dir}: {there[0].name} exists; choose another folder or add --force "
+            "to replace the report"
+        )
     try:
-        out.mkdir(parents=True, exist_ok=True)
+        markdown.parent.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
-        raise InputError(f"--out {out}: cannot create the folder ({exc})") from None
-    plot: Path | None = out / f"run-{record.id}-leak.svg"
-    note = ""
-    if not points:
-        plot, note = None, "the run has no points yet"
+        raise InputError(f"--out {out_dir}: cannot create the folder ({exc})") from None
+    result, note = run_result_or_reason(record, points)
+    plot: Path | None = plot_path
+    if result is None:
+        plot = None
     else:
         try:
-            _plot(record, points, plot)  # type: ignore[arg-type]
+            _plot(record, result, plot_path)
         except ImportError:
             plot, note = None, INSTALL_HINT
-    markdown = out / f"run-{record.id}.md"
-    markdown.write_text(_markdown(record, points, events, plot, note), encoding="utf-8")
-    return Report(markdown, plot, note)
+    try:
+        markdown.write_text(_markdown(record, points, events, result, plot, note), encoding="utf-8")
+    except OSError as exc:
+        raise InputError(f"--out {out_dir}: {markdown.name} cannot be written ({exc})") from None
+    return Report(markdown, plot, note, result)

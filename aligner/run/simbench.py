@@ -10,10 +10,14 @@ dwell ``t``:
   (dead-time-limited) rate that :func:`aligner.prediction.predict` gives for the true bench at the
   mounts' *true* element readings (``SimMount.true_angle_deg()``: backlash play and
   repeatability included), dark counts included; with the shutter shut only dark counts;
-* channel 2, when the bench has a reference channel (``[reference] kind = "monitor"``): a
-  pick-off of the source ahead of the interferometer, Poisson of mean ``t`` times the
-  dead-time-limited rate of ``fraction * photon_rate + dark_rate`` (the reference's own
-  ``fraction`` and ``dark_rate``).
+* channel 2, when the bench has a reference channel (``[reference]``), Poisson of mean ``t``
+  times the reference detector's dead-time-limited rate (its own ``dark_rate`` and
+  ``dead_time_ns``): for ``kind = "monitor"`` a pick-off of the source ahead of the
+  interferometer, ``fraction * photon_rate`` whatever the shutter does; for ``kind = "port"``
+  the analyzer's other port, ``efficiency * photon_rate`` times the light leaving the analyzer
+  (:func:`aligner.fit.scanmodel.analyzer_input`) less the post-selected share, at the true
+  readings; with the shutter shut, dark counts only (the shutter blocks the beam before the
+  analyzer).
 
 Poisson draws at the dead-time-limited mean slightly overstate the spread of a real
 non-paralyzable counter (its counts are sub-Poisson); the sweep's interval is then
@@ -162,21 +166,32 @@ class SimBench:
         if self.realtime:
             time.sleep(dwell_s)
 
-    def reference_rate(self) -> float:
-        """Mean measured rate of the reference channel (counts/s; 0 without one)."""
-        from ..physics.detection import expected_rates
+    def reference_rate(
+        self, readings: Mapping[str, float] | None = None, exposed: bool = True
+    ) -> float:
+        """Mean measured rate of the reference channel (counts/s; 0 without one) at
+        ``readings`` (default: the mounts' true readings): a monitor's light whatever the
+        shutter does; the analyzer's other port's light only while ``exposed``."""
+        post = float(self.expected(readings).leak_rate) if exposed else None
+        return self._reference_rate(readings, post)
 
-        ref = self.truth.reference
-        if ref.fraction is None:
+    def _reference_rate(self, readings: Mapping[str, float] | None, post: float | None) -> float:
+        """The reference channel's mean measured rate, ``post`` the post-selected share of the
+        source photons (None: the beam is blocked before the analyzer)."""
+        from ..fit.scanmodel import analyzer_input
+        from ..physics.detection import measured_rate
+
+        ref, truth = self.truth.reference, self.truth
+        if ref.kind == "none":
             return 0.0
-        rates = expected_rates(
-            self.truth.source.photon_rate,
-            ref.fraction,
-            1.0,
-            ref.dark_rate,
-            self.truth.detector.dead_time_s,
-        )
-        return float(rates.measured_rate)
+        light = 0.0
+        if ref.kind == "monitor":
+            light = truth.source.photon_rate * (ref.fraction or 0.0)
+        elif post is not None:
+            at = dict(self.true_readings() if readings is None else readings)
+            other = max(float(analyzer_input(truth, at)) - post, 0.0)
+            light = truth.source.photon_rate * other * (ref.efficiency or 0.0)
+        return float(measured_rate(light + ref.dark_rate, ref.dead_time_s))
 
     def draw_counts(
         self,
@@ -190,12 +205,16 @@ class SimBench:
         from ..physics.detection import measured_rate
 
         d = self.truth.detector
-        if self.shutter.is_open() if exposed is None else exposed:
-            rate = float(self.expected(readings).measured_rate)
-        else:
-            rate = float(measured_rate(d.dark_rate, d.dead_time_s))
-        means = np.array([rate, self.reference_rate()][: self.counter.channels]) * dwell_s
-        counts = tuple(int(c) for c in self.rng.poisson(means))
+        lit = self.shutter.is_open() if exposed is None else exposed
+        p = self.expected(readings) if lit else None
+        rates = [
+            float(p.measured_rate)
+            if p is not None
+            else float(measured_rate(d.dark_rate, d.dead_time_s))
+        ]
+        if self.counter.channels > 1:
+            rates.append(self._reference_rate(readings, None if p is None else float(p.leak_rate)))
+        counts = tuple(int(c) for c in self.rng.poisson(np.array(rates) * dwell_s))
         self._pass_time(dwell_s)
         return counts
 

@@ -105,48 +105,53 @@ class MeasuredLeak:
 
 
 def measured_leak(
-    bench: Bench, counts: int, dwell_s: float, reference: int | None = None
+    bench: Bench,
+    counts: int,
+    dwell_s: float,
+    reference: int | None = None,
+    readings: Mapping[str, float] | None = None,
 ) -> MeasuredLeak:
-    """Leak rate per source photon from ``counts`` of the post-selected port in ``dwell_s`` s.
+    """Leak rate per source photon from ``counts`` of the post-selected port in ``dwell_s`` s,
+    by :func:`aligner.fit.counts.measure_leak` (the one computation ``aligner leak`` does too).
 
-    With a reference channel (``[reference] kind = "monitor"``) and its counts: the ratio of
-    the two light rates over both channels' known dark rates by profile likelihood
-    (:func:`aligner.physics.rateratio.rate_ratio`, dead time as live time), times the
-    reference's counts per source photon over the detector efficiency -- source drift cancels.
-    A reference at or below its dark level gives no leak rate (flagged). Otherwise (or in
-    pulsed mode) the nominal ``photon_rate`` times the efficiency is the denominator, with the
-    exact interval of :func:`aligner.fit.counts.measure_leak`.
+    With the bench's reference channel (``[reference]``) and its counts (continuous wave): the
+    ratio of the two channels' light over their own dark rates and dead times, by profile
+    likelihood -- source drift cancels. A ``monitor`` gives the leak per source photon through
+    its ``fraction``; the analyzer's other ``port`` gives ``S / (S + R)``, the leak per photon
+    leaving the analyzer, which times :func:`aligner.fit.scanmodel.analyzer_input` at
+    ``readings`` (deg; default the file's) is the leak per source photon. A reference at or
+    below its dark level, or counts that leave no live time, give no leak rate (flagged).
+    Otherwise (or in pulsed mode) the nominal ``photon_rate`` times the efficiency is the
+    denominator, with the exact interval.
     """
-    from ..fit.counts import measure_leak
-    from ..physics.rateratio import rate_ratio
+    from ..errors import ParameterError
+    from ..fit.counts import Channel, CountedReference, Gating, RateReference, measure_leak
 
-    d = bench.detector
-    pulsed = d.mode == "pulsed"
-    ref = bench.reference
-    if ref.fraction is not None and reference is not None and not pulsed:
-        tau = d.dead_time_ns * 1e-9
-        live, live_ref = dwell_s - counts * tau, dwell_s - reference * tau
-        if live <= 0 or live_ref <= 0:
-            return MeasuredLeak(None, None, None, "counter saturated: no live time left")
-        r = rate_ratio(counts, live, d.dark_rate, reference, live_ref, ref.dark_rate)
-        if not r.bounded:
-            return MeasuredLeak(
-                None, None, None, "reference at or below its dark level: no leak rate"
-            )
-        scale = ref.fraction / d.efficiency
-        return MeasuredLeak(r.estimate * scale, r.low * scale, r.high * scale)
-    m = measure_leak(
-        counts,
-        dwell_s,
-        reference_rate=bench.source.photon_rate * d.efficiency,
-        reference_measured=False,
-        dark_rate=d.dark_rate,
-        dead_time_s=d.dead_time_ns * 1e-9,
-        efficiency=d.efficiency,
-        rep_rate_hz=d.rep_rate_hz if pulsed else None,
-        dark_probability=d.gate_dark_probability,
+    d, ref = bench.detector, bench.reference
+    gating = Gating.of_detector(d)
+    denominator: CountedReference | RateReference = (
+        CountedReference(ref.kind, reference, dwell_s, Channel.of_reference(ref))
+        if reference is not None and ref.kind != "none" and gating is None
+        else RateReference(bench.source.photon_rate * d.efficiency, measured=False)
     )
-    return MeasuredLeak(m.leak, m.leak_low, m.leak_high)
+    try:
+        m = measure_leak(
+            counts,
+            dwell_s,
+            detector=Channel.of_detector(d),
+            gating=gating,
+            reference=denominator,
+        )
+    except ParameterError as exc:
+        return MeasuredLeak(None, None, None, f"no leak rate ({exc.parameter}): {exc.problem}")
+    if m.leak is None or m.leak_low is None or m.leak_high is None:
+        return MeasuredLeak(None, None, None, m.flag)
+    scale = 1.0
+    if isinstance(denominator, CountedReference) and ref.kind == "port":
+        from ..fit.scanmodel import analyzer_input
+
+        scale = float(analyzer_input(bench, dict(readings or {})))
+    return MeasuredLeak(m.leak * scale, m.leak_low * scale, m.leak_high * scale)
 
 
 def _bench_text(bench: Bench) -> str:
@@ -274,7 +279,7 @@ class _Sweep:
         st.expose(readback, p.index)
         post, ref = st.count(self.dwell_s, p.index)
         pointer, pointer_err = st.read_pointer(self.dwell_s, p.index)
-        leak = measured_leak(bench, post, self.dwell_s, ref)
+        leak = measured_leak(bench, post, self.dwell_s, ref, readback)
         return LoggedPoint(
             idx=p.index,
             target=p.target,

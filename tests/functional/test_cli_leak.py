@@ -60,6 +60,8 @@ def test_leak_bright_reference_above_safe_rate_warns(capsys):
                 "4000000",
                 "--reference-dwell",
                 "1",
+                "--reference-kind",
+                "bright",
                 "--bench",
                 "demo",
                 "--json",

@@ -144,7 +144,7 @@ def test_a_declared_simulated_counter_runs_and_every_output_says_simulated(tmp_p
     report = _cli("log", "report", "1", "--out", str(tmp_path / "rep"), "--db", db)
     assert report.returncode == 0, report.stderr
     assert "SIMULATED (with real devices)" in (tmp_path / "rep" / "run-1.md").read_text()
-    assert "SIMULATED" in (tmp_path / "rep" / "run-1-leak.svg").read_text()
+    assert "SIMULATED" in (tmp_path / "rep" / "run-1.svg").read_text()
 
 
 def test_without_safe_rate_nothing_exposes_the_detector_but_predict_works(tmp_path):

@@ -86,7 +86,7 @@ def test_note_and_report(db, tmp_path):
     text = (tmp_path / "rep" / "run-1.md").read_text()
     assert "fitted imbalance offset" in text and "iris re-centred" in text
     assert "laser safety officer" in text
-    svg = tmp_path / "rep" / "run-1-leak.svg"
+    svg = tmp_path / "rep" / "run-1.svg"
     assert svg.exists() and "<svg" in svg.read_text()[:500]
 
 

@@ -8,7 +8,7 @@ import pytest
 
 from aligner.bench import load_bench
 from aligner.errors import DataFileError
-from aligner.fit.counts import measure_leak
+from aligner.fit.counts import Channel, Gating, measure_leak
 from aligner.fit.coupling import fit_coupling
 from aligner.fit.csvdata import CountScan, PointerScan, load_count_scan
 from aligner.fit.leakcurve import fit_leak_curve
@@ -138,12 +138,12 @@ def test_dead_time_and_pulsed_inversions_round_trip():
     true = 1.0526316e6
     m = float(measured_rate(true, 50e-9))
     assert m == pytest.approx(1e6, rel=1e-6)
-    cw = measure_leak(round(m * 10.0), 10.0, dead_time_s=50e-9)
+    cw = measure_leak(round(m * 10.0), 10.0, detector=Channel(dead_time_s=50e-9))
     assert cw.signal_rate == pytest.approx(true, rel=1e-6)
     # pulsed: draw clicks for mu = 0.8 photons/pulse, eta = 0.5, and invert them
     rep, dwell, mu, eta = 1e6, 2.0, 0.8, 0.5
     clicks = np.random.default_rng(2).binomial(int(rep * dwell), 1 - math.exp(-eta * mu))
-    pulsed = measure_leak(clicks, dwell, rep_rate_hz=rep, efficiency=eta)
+    pulsed = measure_leak(clicks, dwell, gating=Gating(rep), detector=Channel(efficiency=eta))
     # binomial spread of mu here is about 1e-3
     assert abs(pulsed.mean_photons_per_pulse - mu) < 4e-3
 

@@ -12,7 +12,16 @@ from scipy.stats import chi2, poisson
 
 from aligner.bench import load_bench
 from aligner.errors import DataFileError, InputError
-from aligner.fit.counts import compare, format_sigma, measure_leak
+from aligner.fit.counts import (
+    Channel,
+    CountedReference,
+    DarkCounts,
+    Gating,
+    RateReference,
+    compare,
+    format_sigma,
+    measure_leak,
+)
 from aligner.fit.coupling import fit_coupling
 from aligner.fit.csvdata import CountScan, PointerScan, load_count_scan
 from aligner.fit.null import fit_null
@@ -35,7 +44,7 @@ def _null_counts(seed=4, dwell=0.05):
 
 
 def test_counts_below_the_dark_give_an_upper_limit_not_a_zero_interval():
-    m = measure_leak(50, 1.0, reference_rate=2.28e6, dark=140, dark_dwell_s=1.0)
+    m = measure_leak(50, 1.0, reference=RateReference(2.28e6), dark=DarkCounts(140, 1.0))
     assert m.upper_limit and m.signal_rate == 0.0 and m.signal_rate_high > 0
     assert m.leak_high == pytest.approx(m.signal_rate_high / 2.28e6)
     # Independent check: the flat-prior posterior (Helene, Nucl. Instrum. Methods 212, 319
@@ -50,7 +59,7 @@ def test_counts_below_the_dark_give_an_upper_limit_not_a_zero_interval():
 
 def test_counts_above_the_dark_keep_the_garwood_interval():
     # Garwood (1936) 68.3 % bounds for k = 500 from scipy.stats.chi2, minus the known dark.
-    m = measure_leak(500, 1.0, dark_rate=140.0)
+    m = measure_leak(500, 1.0, detector=Channel(dark_rate=140.0))
     a = (1 - 0.683) / 2
     assert not m.upper_limit
     assert m.signal_rate_low == pytest.approx(chi2.ppf(a, 1000) / 2 - 140, rel=1e-9)
@@ -58,25 +67,32 @@ def test_counts_above_the_dark_keep_the_garwood_interval():
 
 
 def test_pulsed_counts_below_the_dark_give_an_upper_limit():
-    m = measure_leak(50, 1.0, dark=140, rep_rate_hz=1e6, efficiency=0.6)
+    m = measure_leak(
+        50, 1.0, dark=DarkCounts(140), gating=Gating(1e6), detector=Channel(efficiency=0.6)
+    )
     assert m.upper_limit and m.signal_rate_high > 0
 
 
 def test_dead_time_correction_is_reported():
     # Knoll, Radiation Detection and Measurement (4th ed.): non-paralyzable n = m / (1 - m tau).
-    m = measure_leak(1_000_000, 1.0, dead_time_s=50e-9)
+    m = measure_leak(1_000_000, 1.0, detector=Channel(dead_time_s=50e-9))
     assert m.raw_rate == 1e6
     assert m.dead_time_corrected_rate == pytest.approx(1.0526316e6, rel=1e-7)
     assert m.to_json()["dead_time_corrected_rate"] == m.dead_time_corrected_rate
 
 
 def test_rates_above_the_safe_rate_warn():
-    m = measure_leak(300, 1.0, reference=4_000_000, reference_dwell_s=1.0, safe_rate=1.5e6)
+    guarded = Channel(safe_rate=1.5e6)
+    bright = CountedReference("bright", 4_000_000, 1.0)  # the same detector, turned
+    m = measure_leak(300, 1.0, detector=guarded, reference=bright)
     assert len(m.warnings) == 1 and "reference" in m.warnings[0]
     assert "laser safety officer" in m.warnings[0] and "attenuation" in m.warnings[0]
-    computed = measure_leak(300, 1.0, reference_rate=4e6, reference_measured=False, safe_rate=1.5e6)
+    computed = measure_leak(
+        300, 1.0, detector=guarded, reference=RateReference(4e6, measured=False)
+    )
     assert computed.warnings == ()
-    assert measure_leak(300, 1.0, reference=1000, safe_rate=1.5e6).warnings == ()
+    dim = CountedReference("bright", 1000)
+    assert measure_leak(300, 1.0, detector=guarded, reference=dim).warnings == ()
 
 
 def test_sigma_text_has_no_signed_zero():

@@ -2,6 +2,7 @@
 
 import sys
 
+from aligner.bench import DEMO_BENCH
 from aligner.run.log import LoggedPoint, RunRecord
 from aligner.run.report import INSTALL_HINT, write_report
 
@@ -9,16 +10,16 @@ from aligner.run.report import INSTALL_HINT, write_report
 def test_report_without_matplotlib_says_how_to_install(tmp_path, monkeypatch):
     monkeypatch.setitem(sys.modules, "matplotlib", None)  # import fails as if not installed
     record = RunRecord(
-        1, "sweep", "complete", "b", None, "", "list:1", ({}, {}), 1.0, 0.0, 1, "a", "0", "t0",
-        "t1", "", {}, 2,
+        1, "sweep", "complete", "b", None, DEMO_BENCH.read_text(), "list:1", ({}, {}), 1.0, 0.0,
+        1, "analyzer", "0", "t0", "t1", "", {}, 2,
     )  # fmt: skip
     points = [
         LoggedPoint(
             i,
             1.0,
-            {"a": 1.0},
-            {"a": 1.0},
-            1.0,
+            {"analyzer": 136.0},
+            {"analyzer": 136.0},
+            136.0,
             10,
             None,
             1.0,
