@@ -153,13 +153,17 @@ def _one_percent(deg: float) -> str:
 
 
 def _print(bench: Any, result: Any, *, wrote: bool) -> None:
-    from rich.console import Console
     from rich.table import Table
 
-    console = Console()
+    from ..text import safe_text
+    from .common import console as make_console
+
+    console = make_console()
     q = result.quantized
     sens = {s.mount: s for s in result.sensitivity}
-    settings = Table(title=f"{bench.name or 'bench'}: planned readings, {result.quantity}")
+    settings = Table(
+        title=f"{safe_text(bench.name or 'bench')}: planned readings, {result.quantity}"
+    )
     for column in (
         "mount",
         "exact (deg)",
@@ -172,7 +176,7 @@ def _print(bench: Any, result: Any, *, wrote: bool) -> None:
     for name, mount in bench.mounts.items():
         exact = result.settings.get(name)
         settings.add_row(
-            name,
+            safe_text(name),
             "fixed" if exact is None else f"{exact:.6f}",
             f"{q.settings.get(name, mount.reading_deg):.6g}",
             f"{mount.resolution_deg:g}",
@@ -184,7 +188,7 @@ def _print(bench: Any, result: Any, *, wrote: bool) -> None:
     branches = Table(title="solution branches, one per optical setting (* = chosen)")
     branches.add_column("#", justify="right")
     for name in result.unknowns:
-        branches.add_column(f"{name} (deg)", justify="right")
+        branches.add_column(f"{safe_text(name)} (deg)", justify="right")
     for column in ("regime", "imbalance (deg)", "value", "leak rate", "equiv."):
         branches.add_column(column, justify="left" if column == "regime" else "right")
     for b in result.branches:
@@ -223,9 +227,9 @@ def _print(bench: Any, result: Any, *, wrote: bool) -> None:
         errors.add_column("error")
         errors.add_column("half-width", justify="right")
         for label, width in sorted(tol.by_source.items(), key=lambda kv: -kv[1]):
-            errors.add_row(label, f"{width:.4g}")
+            errors.add_row(safe_text(label), f"{width:.4g}")
         errors.add_row("first-order propagation, all (std)", f"{tol.first_order_std:.4g}")
         console.print(errors)
-    console.print(result.message)
+    console.print(safe_text(result.message))
     if wrote:
-        console.print(f"Stored the rounded readings in {bench.path}.")
+        console.print(safe_text(f"Stored the rounded readings in {bench.path}."))

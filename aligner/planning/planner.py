@@ -446,12 +446,14 @@ def plan(
     if q.step_change > STEP_LIMIT:
         reachable = abs(b.value) * STEP_LIMIT / q.step_change
         name = bench.imbalance_mount
+        step = bench.mounts[name].resolution_deg
         raise InfeasibleTarget(
             f"{target.describe()} is beyond the resolution limit: one "
-            f"{bench.mounts[name].resolution_deg:g}-deg step of {name} changes it by "
+            f"{step:g}-deg step of {name} changes it by "
             f"{100 * q.step_change:.3g} % (at most {100 * STEP_LIMIT:g} % allowed), so about "
-            f"{reachable:.3g} is the most this mount can set reliably; use a finer mount "
-            "(smaller resolution_deg) or a smaller target",
+            f"{reachable:.3g} is the most this mount can set reliably; use a mount that steps "
+            f"in at most {step * STEP_LIMIT / q.step_change:.2g} deg (resolution_deg) or a "
+            "smaller target",
             limit="resolution",
             achievable=reachable,
         )
@@ -460,13 +462,19 @@ def plan(
     tol = None
     if samples:
         tol = tolerance_budget(bench, target, full, samples=int(samples), seed=seed)
-    block = None
+    block, beyond = None, ""
     if predict:
-        from ..prediction import prediction_block
+        from ..prediction import beyond_limit, block_of, limits
+        from ..prediction import predict as prediction
 
-        block = prediction_block(bench, full)
+        lim = limits(bench, full, axis=target.axis if target.kind == "amplification" else None)
+        block = block_of(prediction(bench, full), lim)
+        if target.kind == "amplification":
+            beyond = beyond_limit(bench, lim, target.value.real)
     reason = _reason(branches, chosen, branch)
     warnings = _warnings(bench, target, b, block)
+    if beyond:
+        warnings.insert(0, f"Warning: {beyond}")
     quantity = _quantity(target)
     return Plan(
         target,

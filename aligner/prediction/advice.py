@@ -79,14 +79,12 @@ class ExtinctionNeed:
     def sentence(self, analyzer_er: float, source_er: float) -> str:
         """The advice in words, with the polarizers' extinction ratios now."""
         t = f"{self.target:.4g}"
-        first, alone = (
-            ("analyzer", self.analyzer_alone)
-            if self.caps_first == "analyzer"
-            else ("source polarizer", self.source_alone)
-        )
+        caps = {"analyzer": self.analyzer_alone, "source polarizer": self.source_alone}
+        first = self.caps_first
+        second = "source polarizer" if first == "analyzer" else "analyzer"
         out = (
             f"the {first} caps first: alone (the other polarizer perfect) it allows at most "
-            f"{alone:.4g}"
+            f"{caps[first]:.4g}, the {second} alone {caps[second]:.4g}"
         )
         options = []
         if self.analyzer is not None:
@@ -102,8 +100,8 @@ class ExtinctionNeed:
         if options:
             return f"{out}; reaching {t} takes " + ", or ".join(options)
         return (
-            f"{out}, and the other polarizer alone caps the bench below {t} too: both need a "
-            f"higher extinction ratio, e.g. {_count(equal_extinction(self.target))} each"
+            f"{out}, below {t} too: improving one is not enough, both need a higher "
+            f"extinction ratio, e.g. {_count(equal_extinction(self.target))} each"
         )
 
 

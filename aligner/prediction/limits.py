@@ -28,6 +28,7 @@ __all__ = [
     "beyond_limit",
     "limits",
     "pick_best",
+    "pointer_advice",
     "scalar_readings",
     "scan_grid",
 ]
@@ -241,7 +242,7 @@ def _width(bench: Bench) -> str:
     return f"{c.pointer_sigma:g} {c.units}"
 
 
-def _pointer_advice(bench: Bench, target: float) -> str:
+def pointer_advice(bench: Bench, target: float) -> str:
     """What pointer reaches ``target`` (:func:`.advice.pointer_width_for`)."""
     c = bench.coupling
     g, sigma = coupling_scale(bench)
@@ -264,7 +265,7 @@ def _mechanism_advice(bench: Bench, key: str, cap: float, target: float) -> str:
         an, src = bench.analyzer.extinction_ratio, bench.source.extinction_ratio
         return f"{head}; {extinction_need(target, an, src).sentence(an, src)}"
     if key == "pointer":
-        return f"{head}; {target:.4g} needs {_pointer_advice(bench, target)}"
+        return f"{head}; {target:.4g} needs {pointer_advice(bench, target)}"
     if key == "resolution":
         name = bench.imbalance_mount
         step = bench.mounts[name].resolution_deg
