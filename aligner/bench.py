@@ -258,12 +258,19 @@ class Readout:
 
 @dataclass(frozen=True)
 class Analyzer:
-    """The final polarizer before the detector."""
+    """The final polarizer before the detector.
+
+    ``unexplained_leak``: light at the null that the file's optics do not explain, found by a
+    null search (its cause unknown: the analyzer, the source polarizer and a plate's retardance
+    error fill the null alike), modelled as unpolarized light passing the post-selection: the
+    analyzer's POVM element gains ``unexplained_leak x 1``. 0 unless written.
+    """
 
     angle_deg: float = 0.0
     mount: str | None = None
     extinction_ratio: float = INF
     transmission: float = 1.0
+    unexplained_leak: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -1139,11 +1146,15 @@ def parse_bench(doc: Mapping[str, Any], path: str = "<bench>") -> Bench:
         path,
         "analyzer",
         top.table_of("analyzer"),
-        ("angle_deg", "mount", "extinction_ratio", "transmission"),
+        ("angle_deg", "mount", "extinction_ratio", "transmission", "unexplained_leak"),
     )
     a_angle, a_mount = _angle_or_mount(ar, mounts)
     analyzer = Analyzer(
-        a_angle, a_mount, _extinction(ar), ar.number("transmission", 1.0, above=0.0, maximum=1.0)
+        a_angle,
+        a_mount,
+        _extinction(ar),
+        ar.number("transmission", 1.0, above=0.0, maximum=1.0),
+        ar.number("unexplained_leak", 0.0, minimum=0.0, maximum=0.5),
     )
 
     def chain(name: str) -> tuple[Element, ...]:

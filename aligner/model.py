@@ -231,6 +231,8 @@ def forward(bench: Bench, readings: Mapping[str, ArrayLike] | None = None) -> Fo
     e = analyzer_parts(
         _angle_rad(an.angle_deg, an.mount, angles), an.extinction_ratio, an.transmission
     )
+    if an.unexplained_leak:  # + leak x identity: Tr grows by twice the leak
+        e = (e[0] + 2 * an.unexplained_leak, e[1], e[2], e[3])
     pre = _arm(s, src.mount, bench.pre, angles, backward=False)
     post = _arm(e, an.mount, bench.post[::-1], angles, backward=True)
     return Forward(pre, post, angles)
@@ -393,7 +395,8 @@ def imbalance_deg(
 
 
 def ideal_optics(bench: Bench) -> Bench:
-    """The bench with perfect extinction everywhere (source, analyzer, polarizer elements)."""
+    """The bench with perfect extinction everywhere (source, analyzer, polarizer elements) and
+    no unexplained leak."""
     inf = float("inf")
 
     def clean(elements: tuple[Element, ...]) -> tuple[Element, ...]:
@@ -404,7 +407,7 @@ def ideal_optics(bench: Bench) -> Bench:
     return replace(
         bench,
         source=replace(bench.source, extinction_ratio=inf),
-        analyzer=replace(bench.analyzer, extinction_ratio=inf),
+        analyzer=replace(bench.analyzer, extinction_ratio=inf, unexplained_leak=0.0),
         pre=clean(bench.pre),
         post=clean(bench.post),
     )

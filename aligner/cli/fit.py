@@ -51,8 +51,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument(
         "--bench",
         metavar="BENCH",
-        default="demo",
-        help="bench file (TOML) or 'demo' (default: demo)",
+        help="the bench file (TOML) the scan was taken on, or 'demo' for the bundled demo bench "
+        "(required)",
     )
     p.add_argument(
         "--mount",
@@ -186,6 +186,13 @@ def run(args: argparse.Namespace) -> int:
     from ..fit.scanmodel import mount_statement
     from .common import emit_json
 
+    if args.bench is None:
+        from ..errors import InputError
+
+        raise InputError(
+            "--bench BENCH is required: the bench file the scan was taken on ('demo' for the "
+            "bundled demo bench); a fit against another bench's model gives wrong numbers"
+        )
     bench = load_bench(args.bench)
     options = {"dwell_s": args.dwell, "dark_rate": args.dark_rate}
     label = args.data

@@ -400,6 +400,15 @@ class _Builder:
         d = self.leak("a", an.extinction_ratio, "analyzer")
         t = self.transmission("a", an.transmission, "analyzer")
         e = self.start(an.angle_deg, an.mount, d, t)
+        if an.unexplained_leak:
+            floor = self.constant(
+                "l_a",
+                "l_{a}",
+                an.unexplained_leak,
+                "unexplained leak at the analyzer (from a null search), unpolarized",
+                small=True,
+            )
+            e[0] = self.sp.expand(e[0] + 2 * floor)
         for element in reversed(self.bench.post):
             e = self.through(e, element, backward=True)
         return e
