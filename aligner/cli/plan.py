@@ -22,7 +22,8 @@ def register(sub: argparse._SubParsersAction) -> None:
         "amplification, complex weak value or leak rate; list every solution branch inside "
         "the travel, round to the mounts' resolution, and estimate how precisely the mounts "
         "must sit (Monte Carlo tolerance budget). Readings of a mount 180 deg apart set the "
-        "same optics (polarizers, waveplates, rotators), so they are one branch; the table "
+        "same optics (polarizers, waveplates, rotators), and 90 deg apart for a half-wave "
+        "plate of exactly half a wave, so they are one branch; the table "
         "shows the reading nearest the current one and how many equivalent readings the "
         "travel holds. Exit status 2 when the target is beyond the bench's limits or an "
         "argument is wrong: the message goes to stderr, and with --json nothing is printed on "
@@ -205,7 +206,8 @@ def _print(bench: Any, result: Any, *, wrote: bool) -> None:
     console.print(
         "floor: inside the extinction floor (leaked light dominates, touchy). "
         "imbalance > 0: high-reading side of the null. equiv.: readings inside the "
-        "travel that set the same optics (180 deg apart on a mount); the row shows "
+        "travel that set the same optics (180 deg apart on a mount, 90 deg for a mount "
+        "holding only half-wave plates of exactly half a wave); the row shows "
         "the one nearest the current readings, --json lists them all "
         "(branches[].equivalent_readings)."
     )
