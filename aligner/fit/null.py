@@ -27,6 +27,7 @@ from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from ..bench import Bench
 from .csvdata import CountScan
@@ -235,14 +236,15 @@ def _floor(
     analyzer's ``unexplained_leak`` that makes the file's floor the fitted one (the model is
     linear in it; never below 0)."""
     file_bench = with_offset(bench, name, offset)
-    at = {name: np.array([null])}
+    at: dict[str, ArrayLike] = {name: np.array([null])}
     step = 1e-3
     trials = with_analyzer_extinction(file_bench, er * np.exp(np.array([[0.0], [step], [-step]])))
     at_null = post_probability(trials, at)[:, 0]
     slope = (at_null[1] - at_null[2]) / (2 * step)
     turn = null + np.linspace(0.0, 360.0, 1441)
     fitted = with_analyzer_extinction(file_bench, er)
-    bright = float(np.max(post_probability(fitted, {name: turn})))
+    over_turn: dict[str, ArrayLike] = {name: turn}
+    bright = float(np.max(post_probability(fitted, over_turn)))
     floor = float(at_null[0])
     leak = bench.analyzer.unexplained_leak
     file_floor = float(post_probability(file_bench, at)[0])

@@ -51,7 +51,7 @@ class _Block:
 
     @cached_property
     def reading(self) -> Reading:
-        return reading_of(self.bench, self.fwd.rho, self.fwd.effect, self.resp)
+        return reading_of(self.bench, self.fwd, self.resp)
 
     @cached_property
     def probability(self) -> Real:
@@ -257,7 +257,7 @@ def predict(bench: Bench, readings: Readings | None = None) -> Prediction:
     }
     flags = {name: np.empty(size, bool) for name in ("saturated", "over")}
     many = size > BLOCK
-    computed = {name: np.empty(size) for name in _WITH_EACH_BLOCK} if many else {}
+    computed: dict[str, Real] = {name: np.empty(size) for name in _WITH_EACH_BLOCK} if many else {}
     block = None
     for part, block in _blocks(bench, flat, size):
         resp = block.resp
@@ -277,8 +277,8 @@ def predict(bench: Bench, readings: Readings | None = None) -> Prediction:
         fields["linear"][part] = rates.linear_rate
         fields["fraction"][part] = rates.signal_fraction
         flags["saturated"][part], flags["over"][part] = detector_flags(bench, rates)
-        for name, out in computed.items():
-            out[part] = _LAZY[name](block)
+        for name, values in computed.items():
+            values[part] = _LAZY[name](block)
     out = {k: v.reshape(shape) for k, v in fields.items()}
     wv = wv.reshape(shape)
     return Prediction(

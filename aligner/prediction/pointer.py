@@ -33,7 +33,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from ..bench import Bench
-from ..model import coupling_observable, coupling_scale, wavelength_in_units
+from ..model import Forward, coupling_observable, coupling_scale, wavelength_in_units
 from ..physics.branches import Branches
 from ..physics.detection import DetectorRates
 from ..physics.information import FisherInformation, fisher_information
@@ -230,11 +230,12 @@ def reading(bench: Bench, rho: ArrayLike, effect: ArrayLike, g: float | None = N
     return Reading(m.probability, m.probability, m.mean, m.variance, m.slope)
 
 
-def reading_of(bench: Bench, rho: ArrayLike, effect: ArrayLike, resp: StokesResponse) -> Reading:
-    """:func:`reading` of an evaluated response, in closed form for a plain bench."""
+def reading_of(bench: Bench, fwd: Forward, resp: StokesResponse) -> Reading:
+    """:func:`reading` of an evaluated bench and its response, in closed form (without the
+    density matrices) for a plain bench."""
     if is_plain(bench):
         return _fast(bench, resp)
-    return reading(bench, rho, effect)
+    return reading(bench, fwd.rho, fwd.effect)
 
 
 def sensor_information(
@@ -276,7 +277,8 @@ def standard_state(
     values, vectors = np.linalg.eigh(coupling_observable(bench))
     largest = values.size - 1 - int(np.argmax(np.abs(values[::-1])))  # +1 over -1 on a tie
     v = vectors[:, largest]
-    return fraction * np.outer(v, v.conj()), np.eye(2, dtype=complex)
+    rho = np.asarray(fraction * np.outer(v, v.conj()), complex)
+    return rho, np.eye(2, dtype=complex)
 
 
 def sensor_efficiency(bench: Bench) -> float:
@@ -321,8 +323,8 @@ def read_rates(
     with np.errstate(divide="ignore", invalid="ignore"):
         live = np.where(rates.true_rate > 0, rates.measured_rate / rates.true_rate, 1.0)
     heralds = herald.pair_rate * herald.herald_efficiency + herald.dark_rate
-    true = herald.pair_rate * herald.herald_efficiency * herald.signal_efficiency
-    true = true * p * bench.detector.efficiency * live
+    per_pair = herald.pair_rate * herald.herald_efficiency * herald.signal_efficiency
+    true = per_pair * p * bench.detector.efficiency * live
     accidental = accidental_rate(heralds, rates.measured_rate, herald.window_s)
     total = true + accidental
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -342,7 +344,7 @@ def noise_spectrum(bench: Bench) -> NoiseSpectrum:
         if c.readout == "momentum":
             lever = 2 * np.pi / wavelength_in_units(bench)
         else:
-            lever = float(ray_matrix(train(bench))[0, 1])
+            lever = float(ray_matrix(train(bench))[0, 1])  # units per rad
         pointing = NoiseSpectrum.from_rms(c.pointing_rms_urad * 1e-6, c.pointing_corner_hz)
         total = total + pointing.scaled(lever)
     if r.sensor == "camera" and r.sensor_noise_rms:

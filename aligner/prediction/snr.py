@@ -118,7 +118,7 @@ def switched_snr(bench: Bench, rd: Reading, rates: ReadRates) -> Real:
 def snr_per_sqrt_s(bench: Bench, fwd: Forward) -> Real:
     """Centroid SNR per sqrt(s) of an evaluated bench (module doc)."""
     resp = response(bench, fwd)
-    rd = reading_of(bench, fwd.rho, fwd.effect, resp)
+    rd = reading_of(bench, fwd, resp)
     rates = detector_rates(bench, rd.probability)
     return snr_of(bench, rd, read_rates(bench, rd.probability, rates, _share(rd)))
 

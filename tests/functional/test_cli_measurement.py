@@ -22,7 +22,8 @@ def test_fit_without_a_bench_is_refused(tmp_path, capsys):
 def test_predict_shows_the_camera_reading_without_dark_counts(tmp_path, capsys):
     bench = tmp_path / "camera.toml"
     text = DEMO_BENCH.read_text(encoding="utf-8")
-    bench.write_text(text + '\n[readout]\nsensor = "camera"\nsensor_efficiency = 0.7\n')
+    camera = 'sensor = "camera"\nsensor_efficiency = 0.7'
+    bench.write_text(text.replace('sensor = "counter"', camera), encoding="utf-8")
     assert main(["predict", str(bench)]) == 0
     out = capsys.readouterr().out
     assert "camera" in out and "dark counts alone" not in out
