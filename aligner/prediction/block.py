@@ -82,4 +82,24 @@ def block_of(p: Prediction, lim: Limits) -> dict[str, Any]:
             "dwell_s": bench.readout.dwell_s,
             "measure_s": bench.readout.measure_s,
         },
+        "heralded": None if bench.source.herald is None else _heralded(bench, p),
+    }
+
+
+def _heralded(bench: Bench, p: Prediction) -> dict[str, float]:
+    """Coincidence rates of a heralded source and its photons' expected heralded g2."""
+    from ..physics.detection import DetectorRates
+    from .pointer import coincidences, heralded_g2
+
+    rates = DetectorRates(
+        np.asarray(p.detector_rate),
+        np.asarray(p.measured_rate),
+        np.asarray(p.exposure_rate),
+        np.asarray(p.signal_fraction),
+    )
+    true, accidental = coincidences(bench, p.leak_rate, rates)
+    return {
+        "true_coincidence_rate": float(true),
+        "accidental_rate": float(accidental),
+        "g2": heralded_g2(bench),
     }

@@ -43,8 +43,10 @@ from ..physics.weak import StokesResponse
 __all__ = [
     "ReadRates",
     "Reading",
+    "coincidences",
     "cross_phase_rad",
     "exact_phase",
+    "heralded_g2",
     "is_plain",
     "noise_spectrum",
     "read_rates",
@@ -315,21 +317,54 @@ def read_rates(
     if bench.readout.sensor == "camera":
         rate = bench.source.photon_rate * p * bench.readout.sensor_efficiency * share
         return ReadRates(rate, np.ones_like(rate))
-    herald = bench.source.herald
-    if herald is None:
+    if bench.source.herald is None:
         return ReadRates(np.asarray(rates.measured_rate) * share, np.asarray(rates.signal_fraction))
-    from ..physics.heralded import accidental_rate
-
-    with np.errstate(divide="ignore", invalid="ignore"):
-        live = np.where(rates.true_rate > 0, rates.measured_rate / rates.true_rate, 1.0)
-    heralds = herald.pair_rate * herald.herald_efficiency + herald.dark_rate
-    per_pair = herald.pair_rate * herald.herald_efficiency * herald.signal_efficiency
-    true = per_pair * p * bench.detector.efficiency * live
-    accidental = accidental_rate(heralds, rates.measured_rate, herald.window_s)
+    true, accidental = coincidences(bench, p, rates)
     total = true + accidental
     with np.errstate(divide="ignore", invalid="ignore"):
         fraction = np.where(total > 0, true / total, 0.0)
     return ReadRates(total * share, fraction)
+
+
+def coincidences(bench: Bench, probability: ArrayLike, rates: DetectorRates) -> tuple[Real, Real]:
+    """True and accidental coincidences per second of a heralded source's heralds with the
+    counter (:func:`read_rates`)."""
+    from ..physics.heralded import accidental_rate
+
+    herald = bench.source.herald
+    if herald is None:
+        raise ValueError("coincidences need a heralded source ([source] type = 'heralded')")
+    with np.errstate(divide="ignore", invalid="ignore"):
+        live = np.where(rates.true_rate > 0, rates.measured_rate / rates.true_rate, 1.0)
+    heralds = herald.pair_rate * herald.herald_efficiency + herald.dark_rate
+    per_pair = herald.pair_rate * herald.herald_efficiency * herald.signal_efficiency
+    true = per_pair * np.asarray(probability, float) * bench.detector.efficiency * live
+    return true, accidental_rate(heralds, rates.measured_rate, herald.window_s)
+
+
+def heralded_g2(bench: Bench) -> float:
+    """Expected heralded ``g2`` of the source's photons on a 50:50 beam splitter with two
+    detectors like the bench's, each coincidence window taken as a pulse of Poisson pairs
+    (mean ``pair_rate x window``; dark clicks ``rate x window`` per window;
+    :func:`aligner.physics.heralded.pulsed_pair_clicks`, Grangier, Roger, Aspect 1986)."""
+    from ..physics.heralded import pulsed_pair_clicks
+
+    herald = bench.source.herald
+    if herald is None:
+        raise ValueError("a heralded g2 needs a heralded source ([source] type = 'heralded')")
+    d = bench.detector
+    arm = herald.signal_efficiency * d.efficiency / 2
+    window = herald.window_s
+    clicks = pulsed_pair_clicks(
+        herald.pair_rate * window,
+        herald.herald_efficiency,
+        arm,
+        arm,
+        min(herald.dark_rate * window, 0.5),
+        min(d.dark_rate * window, 0.5),
+        min(d.dark_rate * window, 0.5),
+    )
+    return float(clicks.g2)
 
 
 def noise_spectrum(bench: Bench) -> NoiseSpectrum:

@@ -92,4 +92,5 @@ def test_console_entry_point():
         "snr_per_sqrt_s",
         "pointer",
         "snr",
+        "heralded",
     }

@@ -26,6 +26,7 @@ from aligner.bench import parse_bench
 from aligner.errors import BenchFileError
 from aligner.model import coupling_observable, forward
 from aligner.physics.branches import moments
+from aligner.physics.heralded import pulsed_pair_clicks
 from aligner.physics.information import readout_branches
 from aligner.physics.phase import back_action, phase_moments
 from aligner.physics.weak import pointer_response
@@ -446,6 +447,13 @@ def test_heralded_source_reads_the_pointer_from_coincidences():
     assert float(p.reading_fraction) == pytest.approx(true / (true + accidental), rel=1e-12)
     assert float(p.reading_fraction) > float(p.signal_fraction)  # heralding beats the dark counts
     assert information_rate(bench) == pytest.approx(8e5 * 0.5 * 0.3)
+    # the source's heralded g2 (Grangier, Roger, Aspect, Europhys. Lett. 1, 173 (1986)) from
+    # pulsed_pair_clicks with each window a pulse: Poisson pairs of mean R T_c, darks per window
+    heralded = prediction_block(bench)["heralded"]
+    clicks = pulsed_pair_clicks(2e6 * 2e-9, 0.3, 0.1, 0.1, 500 * 2e-9, 200 * 2e-9, 200 * 2e-9)
+    assert heralded["g2"] == pytest.approx(float(clicks.g2), rel=1e-12)
+    assert heralded["g2"] < 0.05  # single photons: far below 1
+    assert heralded["true_coincidence_rate"] == pytest.approx(true, rel=1e-12)
 
 
 # -- the exact phase readout ---------------------------------------------------------------------

@@ -398,6 +398,7 @@ def test_prediction_block_keys_and_element_angles():
         "snr_per_sqrt_s",
         "pointer",
         "snr",
+        "heralded",
     ]
     assert set(block["pointer"]) == {
         "sensor",
