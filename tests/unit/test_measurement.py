@@ -513,3 +513,28 @@ def test_advice_numbers_for_a_cube_analyzer():
     assert high.analyzer is None
     assert model_peak(1e7, high.source) == pytest.approx(200.0, rel=1e-4)
     assert extinction_cap(1e5, math.inf) == pytest.approx(158.1123, rel=1e-6)
+
+
+def test_lazy_fields_of_many_blocks_match_one_block(monkeypatch):
+    # Many blocks evaluate the fields computed on first access block by block again; they must
+    # equal the evaluation of one block.
+    import aligner.prediction.core as core
+
+    bench = make_bench(
+        **{"coupling.strength": 0.2, "detector.dark_rate": 50.0, "coupling.jitter_rms": 0.01}
+    )
+    x = {"analyzer": np.linspace(135.1, 150.0, 11), "qwp": 47.0}
+    one = predict(bench, x)
+    monkeypatch.setattr(core, "BLOCK", 4)
+    many = predict(bench, x)
+    for name in (
+        "imbalance_deg",
+        "snr_per_sqrt_s",
+        "pointer_spread",
+        "reading_rate",
+        "reading_fraction",
+        "information_snr_per_sqrt_s",
+        "switched_snr",
+        "practical_amplification",
+    ):
+        np.testing.assert_allclose(getattr(many, name), getattr(one, name), rtol=1e-12)
