@@ -942,10 +942,9 @@ def _readout(path: str, table: Mapping[str, Any], coupling: Coupling) -> Readout
                 raise r.error(name, "applies only to sensor = 'camera'")
     if method == "centroid" and r.has("split_gap_um"):
         raise r.error("split_gap_um", "applies only to method = 'split' or 'quadrant'")
-    geometry = ("lens_distance_mm", "lens_focal_mm", "detector_distance_mm")
-    position_only = (*geometry, "split_gap_um") if method == "centroid" else (*geometry, "method")
     if coupling.readout != "position":
-        for name in position_only:
+        split = ("method",) if method != "centroid" else ()
+        for name in ("lens_distance_mm", "lens_focal_mm", "detector_distance_mm", *split):
             if r.has(name):
                 raise r.error(
                     name,
