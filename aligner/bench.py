@@ -4,9 +4,21 @@ Units and conventions of a bench file:
 
 * Angles in degrees; an element angle is measured from H towards V looking into the beam.
 * A mount's element angle is ``sense * (reading_deg - offset_deg)``.
-* Wavelengths in nm, rates in counts (or photons) per second, dead time in ns; pointer width and
-  coupling strength in the bench's ``coupling.units``.
+* Wavelengths in nm, rates in counts (or photons) per second, dead time in ns; pointer width,
+  coupling strength and jitter in the bench's ``coupling.units`` (a length unit, nm/um/mm/m, for
+  a position or momentum readout; an angle unit, nrad/urad/mrad/rad, for a phase readout; any
+  other name is refused), except a kick's strength (the beam tilt per unit eigenvalue, urad);
+  distances of the readout geometry in mm, a split detector's gap in um.
 * Retardance in waves (1 wave = 360 deg of phase).
+* Circular handedness: R = (H + iV)/sqrt 2 (Stokes S3 = +1). Fields are ``Re[E exp(i(kz - wt))]``
+  (a retarder's slow axis is the delayed one, as in the retarder matrix), so the field of R turns
+  from H towards V, counterclockwise as seen looking into the beam: the same sense as element
+  angles; right-handed (positive helicity) in the IEEE convention, left-circular in that of Born
+  & Wolf and Hecht (from memory).
+* A ``rotator`` of ``angle_deg`` > 0 turns linear polarization from H towards V,
+  counterclockwise looking into the beam. A dextrorotatory sample turns it clockwise as seen by
+  an observer looking towards the source, so its rotator angle is negative: a sample of
+  specific rotation +[alpha] is ``angle_deg = -[alpha] l c``.
 
 Loading keeps the parsed tomlkit document so that :func:`write_values` can store new readings,
 offsets or fitted values back into the file with its comments and layout preserved.
@@ -40,8 +52,10 @@ __all__ = [
     "Detector",
     "Device",
     "Element",
+    "Herald",
     "Mount",
     "Plate",
+    "Readout",
     "Reference",
     "Simulation",
     "Source",
@@ -59,7 +73,15 @@ DEMO_BENCH = Path(__file__).parent / "data" / "demo-bench.toml"
 ELEMENT_TYPES = ("hwp", "qwp", "retarder", "polarizer", "rotator")
 NOMINAL_WAVES = {"hwp": 0.5, "qwp": 0.25}
 READOUTS = ("position", "momentum", "phase")
+#: The weak interaction: a transverse displacement of the pointer or a momentum kick.
+COUPLING_KINDS = ("shift", "kick")
+#: What reads the pointer: the single-photon counter's own events, or a separate sensor.
+SENSORS = ("counter", "camera")
+#: How a position is formed from the spot: its centroid, or a split or quadrant detector.
+READ_METHODS = ("centroid", "split", "quadrant")
 DETECTOR_MODES = ("cw", "pulsed")
+DEAD_TIME_MODELS = ("non-paralyzable", "paralyzable")
+SOURCE_TYPES = ("beam", "heralded")
 #: Largest size of any number in a bench file (angles: :data:`LARGEST_ANGLE`); anything bigger
 #: is a typo, and the physics would lose all precision on it.
 LARGEST = 1e12
@@ -106,13 +128,30 @@ class Element:
 
 
 @dataclass(frozen=True)
+class Herald:
+    """A pair source whose partner photons are counted as heralds (``[source] type =
+    "heralded"``): ``pair_rate`` (pairs/s), ``herald_efficiency`` (heralds counted per pair),
+    ``signal_efficiency`` (signal photons leaving the source polarizer per pair),
+    ``window_s`` (total width of the coincidence window), ``dark_rate`` (the herald detector's
+    dark counts/s)."""
+
+    pair_rate: float
+    herald_efficiency: float
+    signal_efficiency: float
+    window_s: float
+    dark_rate: float = 0.0
+
+
+@dataclass(frozen=True)
 class Source:
-    """The source polarizer and the photon rate leaving it (photons/s)."""
+    """The source polarizer and the photon rate leaving it (photons/s); for a heralded source
+    ``herald`` holds the pair source and ``photon_rate`` is ``pair_rate x signal_efficiency``."""
 
     photon_rate: float
     angle_deg: float = 0.0
     mount: str | None = None
     extinction_ratio: float = INF
+    herald: Herald | None = None
 
 
 @dataclass(frozen=True)
@@ -143,15 +182,25 @@ class Reference:
 
 @dataclass(frozen=True)
 class Coupling:
-    """The weak interaction ``exp(-i g A p)`` and its pointer.
+    """The weak interaction and its pointer.
 
-    ``observable`` is a name (HV, DA, RL, H, V, D, A, R, L) or ``"axis"`` with ``axis``
-    (a Stokes direction) and ``eigenvalues``. ``pointer_sigma`` is the rms width of the pointer
-    intensity, ``strength`` the shift per unit eigenvalue (both in ``units``). For the
-    ``phase`` readout the pointer is a coherent probe of ``probe_photons`` photons whose phase
-    spread is ``1/(2 sqrt(N))`` rad, and ``strength`` is in rad. ``jitter_rms`` is technical
-    pointer noise (not amplified): the rms of a reading averaged for 1 s, in the readout's units
-    (``units``; 1/``units`` for a momentum readout); white, so it falls as 1/sqrt(time).
+    ``kind`` ``"shift"``: ``exp(-i g A p)``, a displacement of ``strength`` (``units``) per unit
+    eigenvalue; ``"kick"``: ``exp(+i k A x)``, a beam tilt of ``strength`` (urad) per unit
+    eigenvalue, ``k = 2 pi tilt / lambda``. ``observable`` is a name (HV, DA, RL, H, V, D, A,
+    R, L) or ``"axis"`` with ``axis`` (a Stokes direction) and ``eigenvalues``.
+    ``pointer_sigma`` is the rms width of the pointer intensity at the beam waist (``units``),
+    ``waist_to_coupling_mm`` the distance from the waist to the coupling plane (negative: the
+    waist lies after it). For the ``phase`` readout the pointer is a coherent probe of
+    ``probe_photons`` photons whose phase spread ``1/(2 sqrt(N))`` rad is stored in ``units``
+    (an angle unit), like ``strength``. ``units`` is checked against
+    :data:`aligner.physics.units.UNITS`; :attr:`unit_size` is one unit in m or rad.
+
+    Technical noise, not amplified, at the reading (``units``; 1/``units`` for a momentum
+    readout): ``jitter_rms`` is the rms of a reading averaged for 1 s of its white part,
+    ``jitter_corner_hz`` the corner below which 1/f noise dominates (0: white).
+    ``pointing_rms_urad`` (1-s rms of the beam's angle at the coupling plane, urad) and
+    ``pointing_corner_hz``: beam-pointing noise, carried to the reading by the lever arm of the
+    readout geometry (a momentum readout reads it as ``k0`` times the angle).
     """
 
     observable: str
@@ -163,16 +212,76 @@ class Coupling:
     eigenvalues: tuple[float, float] = (1.0, -1.0)
     jitter_rms: float = 0.0
     probe_photons: float | None = None
+    kind: str = "shift"
+    jitter_corner_hz: float = 0.0
+    pointing_rms_urad: float = 0.0
+    pointing_corner_hz: float = 0.0
+    waist_to_coupling_mm: float = 0.0
+
+    @property
+    def unit_size(self) -> float:
+        """One ``units`` in the base unit of the readout's quantity (m, or rad for a phase)."""
+        from .physics.units import READOUT_QUANTITY, unit_factor
+
+        return unit_factor(self.units, READOUT_QUANTITY[self.readout])
+
+    def from_mm(self, value_mm: float) -> float:
+        """A length in mm expressed in ``units`` (position and momentum readouts)."""
+        return value_mm * 1e-3 / self.unit_size
+
+
+@dataclass(frozen=True)
+class Readout:
+    """How the pointer is read (``[readout]``; every key optional).
+
+    ``sensor``: ``"counter"`` (default), the pointer is read from the events the single-photon
+    counter counts, so its efficiency, dead time and dark counts apply (dark counts carry no
+    shift and dilute it); ``"camera"``, a separate position-sensitive sensor sees the
+    post-selected beam with its own ``sensor_efficiency`` and reading noise
+    ``sensor_noise_rms`` (1-s rms, white, in the reading's units), no dark-count dilution.
+    ``method``: ``"centroid"`` (the mean position of the detected photons), ``"split"`` or
+    ``"quadrant"`` (difference over sum of two halves, or per axis of four quadrants, with a
+    dead gap ``split_gap_um``), calibrated to a position with the slope at the centre.
+    Geometry after the coupling plane (position readout only; mm): a lens at
+    ``lens_distance_mm`` of focal length ``lens_focal_mm``, and the detector
+    ``detector_distance_mm`` after the lens (default: its focal plane) or, without a lens,
+    after the coupling plane (default 0: the coupling plane itself). ``dwell_s`` and
+    ``measure_s``: the dwell of each coupling-on and coupling-off reading and the whole
+    measurement time for the SNR under 1/f noise.
+    """
+
+    sensor: str = "counter"
+    method: str = "centroid"
+    sensor_efficiency: float = 1.0
+    sensor_noise_rms: float = 0.0
+    split_gap_um: float = 0.0
+    lens_distance_mm: float | None = None
+    lens_focal_mm: float | None = None
+    detector_distance_mm: float = 0.0
+    dwell_s: float = 1.0
+    measure_s: float = 60.0
+
+    @property
+    def has_geometry(self) -> bool:
+        """True when the detector is not at the coupling plane (a lens or a distance)."""
+        return self.lens_focal_mm is not None or self.detector_distance_mm != 0.0
 
 
 @dataclass(frozen=True)
 class Analyzer:
-    """The final polarizer before the detector."""
+    """The final polarizer before the detector.
+
+    ``unexplained_leak``: light at the null that the file's optics do not explain, found by a
+    null search (its cause unknown: the analyzer, the source polarizer and a plate's retardance
+    error fill the null alike), modelled as unpolarized light passing the post-selection: the
+    analyzer's POVM element gains ``unexplained_leak x 1``. 0 unless written.
+    """
 
     angle_deg: float = 0.0
     mount: str | None = None
     extinction_ratio: float = INF
     transmission: float = 1.0
+    unexplained_leak: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -191,6 +300,9 @@ class Detector:
     rep_rate_hz: float | None = None
     gate_dark_probability: float = 0.0
     saturation_rate: float | None = None
+    dead_time_model: str = "non-paralyzable"
+    afterpulse_probability: float = 0.0
+    background_rate: float = 0.0
 
     @property
     def dead_time_s(self) -> float:
@@ -212,18 +324,59 @@ class Detector:
         """Rates this detector shows for ``photon_rate`` photons/s of which the share
         ``leak_rate`` reaches it (:func:`aligner.physics.detection.expected_rates` with this
         detector's efficiency, dark counts, dead time and mode); ``dark_rate`` (counts/s)
-        replaces the file's."""
-        from .physics.detection import expected_rates
+        replaces the file's. With a paralyzable dead time, afterpulsing or background light
+        (continuous counting only) the rates are :func:`aligner.physics.detectors.count_budget`'s:
+        ``true_rate`` and ``linear_rate`` the signal, background and dark events before dead
+        time, ``measured_rate`` the counts with afterpulses, ``signal_fraction`` the share of
+        the counts that hold a signal photon."""
+        from .physics.detection import DetectorRates, expected_rates
 
-        return expected_rates(
-            photon_rate,
-            leak_rate,
+        dark = self.dark_rate if dark_rate is None else dark_rate
+        if not self.extended:
+            return expected_rates(
+                photon_rate,
+                leak_rate,
+                self.efficiency,
+                dark,
+                self.dead_time_s,
+                rep_rate_hz=self.pulse_rate_hz,
+                dark_probability=self.gate_dark_probability,
+            )
+        import numpy as np
+
+        from .physics.detectors import count_budget
+
+        budget = count_budget(
+            np.asarray(photon_rate, float) * np.asarray(leak_rate, float),
+            self.background_rate,
             self.efficiency,
-            self.dark_rate if dark_rate is None else dark_rate,
+            dark,
+            self.afterpulse_probability,
             self.dead_time_s,
-            rep_rate_hz=self.pulse_rate_hz,
-            dark_probability=self.gate_dark_probability,
+            self.dead_time_model,
         )
+        primary = budget.primary
+        return DetectorRates(primary, budget.counted, primary, budget.signal_fraction)
+
+    @property
+    def extended(self) -> bool:
+        """True when a paralyzable dead time, afterpulsing or background light is set."""
+        return (
+            self.dead_time_model != "non-paralyzable"
+            or self.afterpulse_probability > 0
+            or self.background_rate > 0
+        )
+
+    def primary_rate(self, counted_rate: ArrayLike) -> Any:
+        """Signal, background and dark events per second behind a continuous-wave counter's
+        reading (counts/s): afterpulses removed, then the dead time of this detector's model
+        undone (the low branch of a paralyzable counter; NaN above its peak reading)."""
+        import numpy as np
+
+        from .physics.detectors import rate_from_counts
+
+        primary_counts = np.asarray(counted_rate, float) * (1 - self.afterpulse_probability)
+        return rate_from_counts(primary_counts, self.dead_time_s, self.dead_time_model)
 
     def require_safe_rate(self, path: Path | str | None) -> float:
         """``safe_rate`` (counts/s), or :class:`BenchFileError` when the file does not state it:
@@ -337,6 +490,7 @@ class Bench:
         default_factory=lambda: {role: Device(role) for role in DEVICE_ROLES}
     )
     reference: Reference = field(default_factory=Reference)
+    readout: Readout = field(default_factory=Readout)
 
     def readings(self) -> dict[str, float]:
         """Current reading (deg) of every mount, as stored in the file."""
@@ -603,10 +757,17 @@ def _mount(path: str, name: str, table: Any) -> Mount:
     if max(abs(travel[0]), abs(travel[1])) > LARGEST_ANGLE:
         raise r.error("travel_deg", f"must lie within +/-{LARGEST_ANGLE:g} deg, got {list(travel)}")
     span = travel[1] - travel[0]
+    driver = _driver(r, manual=False, absent=False)
+    if driver != "sim" and not r.has("reading_deg"):
+        raise r.error(
+            "reading_deg",
+            "is required for a motorized mount: the reading predict, plan and the guard start "
+            "from until the mount reports its own (e.g. reading_deg = 0.0; a simulated mount "
+            "starts at 0)",
+        )
     reading = r.angle("reading_deg", 0.0)
     if not travel[0] <= reading <= travel[1]:
         raise r.error("reading_deg", f"{reading:g} is outside travel_deg {list(travel)}")
-    driver = _driver(r, manual=False, absent=False)
     return Mount(
         name=name,
         driver=driver,
@@ -697,6 +858,19 @@ def _reference(path: str, table: Mapping[str, Any]) -> Reference:
     )
 
 
+def _units(r: _Reader, readout: str) -> tuple[str, float]:
+    """``units`` of the readout's quantity (length, or angle for a phase) and one unit's size
+    in m or rad; any other name is an error naming ``coupling.units``."""
+    from .physics.units import READOUT_QUANTITY, unit_factor
+
+    quantity = READOUT_QUANTITY[readout]
+    units = r.text("units", "rad" if quantity == "angle" else "um")
+    try:
+        return units, unit_factor(units, quantity)
+    except ValueError as exc:
+        raise r.error("units", f"{exc} (a {readout} readout reads {quantity}s)") from None
+
+
 def _coupling(path: str, table: Mapping[str, Any]) -> Coupling:
     from .physics.weak import OBSERVABLE_NAMES
 
@@ -704,11 +878,16 @@ def _coupling(path: str, table: Mapping[str, Any]) -> Coupling:
         "observable",
         "axis",
         "eigenvalues",
+        "kind",
         "readout",
         "pointer_sigma",
         "strength",
         "units",
         "jitter_rms",
+        "jitter_corner_hz",
+        "pointing_rms_urad",
+        "pointing_corner_hz",
+        "waist_to_coupling_mm",
         "probe_photons",
     )
     r = _Reader(path, "coupling", table, allowed)
@@ -737,19 +916,34 @@ def _coupling(path: str, table: Mapping[str, Any]) -> Coupling:
             "axis" if r.has("axis") else "eigenvalues", "applies only when observable = 'axis'"
         )
     readout = r.text("readout", "position", READOUTS)
+    kind = r.text("kind", "shift", COUPLING_KINDS)
+    if kind == "kick" and readout != "position":
+        raise r.error(
+            "kind",
+            f"a kick is read as a position (after free space or a lens: [readout]); with "
+            f"readout = {readout!r} use kind = 'shift'",
+        )
+    units, size = _units(r, readout)
     probe = None
     if readout == "phase":
         probe = r.number("probe_photons", above=0.0)
-        sigma = 1.0 / (2.0 * math.sqrt(probe))
-        if r.has("pointer_sigma"):
-            raise r.error(
-                "pointer_sigma",
-                "is set by probe_photons for the phase readout (spread 1/(2 sqrt N)); remove it",
-            )
-        units = r.text("units", "rad")
+        sigma = 1.0 / (2.0 * math.sqrt(probe)) / size  # the shot-noise spread, in units
+        for name in (
+            "pointer_sigma",
+            "pointing_rms_urad",
+            "pointing_corner_hz",
+            "waist_to_coupling_mm",
+        ):
+            if r.has(name):
+                raise r.error(
+                    name,
+                    "does not apply to the phase readout (its pointer is the probe's phase, "
+                    "spread 1/(2 sqrt N) from probe_photons); remove it",
+                )
     else:
+        if r.has("probe_photons"):
+            raise r.error("probe_photons", "applies only to readout = 'phase'")
         sigma = r.number("pointer_sigma", above=0.0)
-        units = r.text("units", "um")
     return Coupling(
         observable=observable,
         readout=readout,
@@ -760,6 +954,74 @@ def _coupling(path: str, table: Mapping[str, Any]) -> Coupling:
         eigenvalues=(eigenvalues[0], eigenvalues[1]),
         jitter_rms=r.number("jitter_rms", 0.0, minimum=0.0),
         probe_photons=probe,
+        kind=kind,
+        jitter_corner_hz=r.number("jitter_corner_hz", 0.0, minimum=0.0),
+        pointing_rms_urad=r.number("pointing_rms_urad", 0.0, minimum=0.0),
+        pointing_corner_hz=r.number("pointing_corner_hz", 0.0, minimum=0.0),
+        waist_to_coupling_mm=r.number("waist_to_coupling_mm", 0.0),
+    )
+
+
+def _readout(path: str, table: Mapping[str, Any], coupling: Coupling) -> Readout:
+    allowed = (
+        "sensor",
+        "method",
+        "sensor_efficiency",
+        "sensor_noise_rms",
+        "split_gap_um",
+        "lens_distance_mm",
+        "lens_focal_mm",
+        "detector_distance_mm",
+        "dwell_s",
+        "measure_s",
+    )
+    r = _Reader(path, "readout", table, allowed)
+    sensor = r.text("sensor", "counter", SENSORS)
+    method = r.text("method", "centroid", READ_METHODS)
+    if sensor != "camera":
+        for name in ("sensor_efficiency", "sensor_noise_rms"):
+            if r.has(name):
+                raise r.error(name, "applies only to sensor = 'camera'")
+    if method == "centroid" and r.has("split_gap_um"):
+        raise r.error("split_gap_um", "applies only to method = 'split' or 'quadrant'")
+    if coupling.readout != "position":
+        split = ("method",) if method != "centroid" else ()
+        for name in ("lens_distance_mm", "lens_focal_mm", "detector_distance_mm", *split):
+            if r.has(name):
+                raise r.error(
+                    name,
+                    f"applies only to coupling.readout = 'position' (this bench reads "
+                    f"{coupling.readout!r})",
+                )
+    if r.has("lens_distance_mm") != r.has("lens_focal_mm"):
+        missing = "lens_focal_mm" if r.has("lens_distance_mm") else "lens_distance_mm"
+        raise r.error(missing, "is required with a lens (lens_distance_mm and lens_focal_mm)")
+    focal = None
+    if r.has("lens_focal_mm"):
+        focal = r.number("lens_focal_mm")
+        if abs(focal) < 1e-6:
+            raise r.error("lens_focal_mm", "must not be 0 (mm; negative for a diverging lens)")
+    dwell = r.number("dwell_s", 1.0, above=0.0, maximum=1e6)
+    measure = r.number("measure_s", 60.0, above=0.0, maximum=1e9)
+    if measure < 2 * dwell:
+        raise r.error(
+            "measure_s",
+            f"must hold at least one coupling-on and one coupling-off dwell (2 x dwell_s = "
+            f"{2 * dwell:g} s), got {measure:g}",
+        )
+    return Readout(
+        sensor=sensor,
+        method=method,
+        sensor_efficiency=r.number("sensor_efficiency", 1.0, above=0.0, maximum=1.0),
+        sensor_noise_rms=r.number("sensor_noise_rms", 0.0, minimum=0.0),
+        split_gap_um=r.number("split_gap_um", 0.0, minimum=0.0),
+        lens_distance_mm=r.number("lens_distance_mm", minimum=0.0) if focal is not None else None,
+        lens_focal_mm=focal,
+        detector_distance_mm=r.number(
+            "detector_distance_mm", focal if focal is not None else 0.0, minimum=0.0
+        ),
+        dwell_s=dwell,
+        measure_s=measure,
     )
 
 
@@ -768,6 +1030,9 @@ def _detector(path: str, table: Mapping[str, Any]) -> Detector:
         "efficiency",
         "dark_rate",
         "dead_time_ns",
+        "dead_time_model",
+        "afterpulse_probability",
+        "background_rate",
         "safe_rate",
         "mode",
         "rep_rate_hz",
@@ -777,6 +1042,14 @@ def _detector(path: str, table: Mapping[str, Any]) -> Detector:
     r = _Reader(path, "detector", table, allowed)
     mode = r.text("mode", "cw", DETECTOR_MODES)
     rep = r.number("rep_rate_hz", above=0.0) if (mode == "pulsed" or r.has("rep_rate_hz")) else None
+    if mode == "pulsed":
+        for name in ("dead_time_model", "afterpulse_probability", "background_rate"):
+            if r.has(name):
+                raise r.error(
+                    name,
+                    "applies to continuous counting (mode = 'cw'); in pulsed mode the "
+                    "per-gate gate_dark_probability holds dark and background clicks",
+                )
     return Detector(
         efficiency=r.number("efficiency", 1.0, above=0.0, maximum=1.0),
         dark_rate=r.number("dark_rate", 0.0, minimum=0.0),
@@ -788,7 +1061,54 @@ def _detector(path: str, table: Mapping[str, Any]) -> Detector:
         saturation_rate=(
             r.number("saturation_rate", above=0.0) if r.has("saturation_rate") else None
         ),
+        dead_time_model=r.text("dead_time_model", "non-paralyzable", DEAD_TIME_MODELS),
+        afterpulse_probability=r.number("afterpulse_probability", 0.0, minimum=0.0, maximum=0.5),
+        background_rate=r.number("background_rate", 0.0, minimum=0.0),
     )
+
+
+def _source(path: str, table: Mapping[str, Any], mounts: Mapping[str, Any]) -> Source:
+    if "monitor_fraction" in table:
+        raise BenchFileError(
+            path,
+            "source.monitor_fraction",
+            "has moved: write it as [reference] kind = 'monitor', fraction = ... (with the "
+            "reference detector's dark_rate)",
+        )
+    heralded = (
+        "pair_rate",
+        "herald_efficiency",
+        "signal_efficiency",
+        "coincidence_window_ns",
+        "herald_dark_rate",
+    )
+    r = _Reader(
+        path,
+        "source",
+        table,
+        ("type", "angle_deg", "mount", "extinction_ratio", "photon_rate", *heralded),
+    )
+    kind = r.text("type", "beam", SOURCE_TYPES)
+    angle, mount = _angle_or_mount(r, mounts)
+    if kind == "beam":
+        for name in heralded:
+            if r.has(name):
+                raise r.error(name, "applies only to type = 'heralded'")
+        return Source(r.number("photon_rate", above=0.0), angle, mount, _extinction(r))
+    if r.has("photon_rate"):
+        raise r.error(
+            "photon_rate",
+            "is set by pair_rate x signal_efficiency for a heralded source; remove it",
+        )
+    herald = Herald(
+        pair_rate=r.number("pair_rate", above=0.0),
+        herald_efficiency=r.number("herald_efficiency", above=0.0, maximum=1.0),
+        signal_efficiency=r.number("signal_efficiency", above=0.0, maximum=1.0),
+        window_s=r.number("coincidence_window_ns", above=0.0, maximum=1e9) * 1e-9,
+        dark_rate=r.number("herald_dark_rate", 0.0, minimum=0.0),
+    )
+    photon_rate = herald.pair_rate * herald.signal_efficiency
+    return Source(photon_rate, angle, mount, _extinction(r), herald)
 
 
 def _simulation(path: str, table: Mapping[str, Any], mounts: Mapping[str, Any]) -> Simulation:
@@ -825,6 +1145,7 @@ _TOP_KEYS = (
     "post",
     "analyzer",
     "detector",
+    "readout",
     "mounts",
     "devices",
     "reference",
@@ -860,29 +1181,21 @@ def parse_bench(doc: Mapping[str, Any], path: str = "<bench>") -> Bench:
             )
         return name
 
-    source_table = top.table_of("source")
-    if "monitor_fraction" in source_table:
-        raise BenchFileError(
-            path,
-            "source.monitor_fraction",
-            "has moved: write it as [reference] kind = 'monitor', fraction = ... (with the "
-            "reference detector's dark_rate)",
-        )
-    sr = _Reader(
-        path, "source", source_table, ("angle_deg", "mount", "extinction_ratio", "photon_rate")
-    )
-    s_angle, s_mount = _angle_or_mount(sr, mounts)
-    source = Source(sr.number("photon_rate", above=0.0), s_angle, s_mount, _extinction(sr))
+    source = _source(path, top.table_of("source"), mounts)
 
     ar = _Reader(
         path,
         "analyzer",
         top.table_of("analyzer"),
-        ("angle_deg", "mount", "extinction_ratio", "transmission"),
+        ("angle_deg", "mount", "extinction_ratio", "transmission", "unexplained_leak"),
     )
     a_angle, a_mount = _angle_or_mount(ar, mounts)
     analyzer = Analyzer(
-        a_angle, a_mount, _extinction(ar), ar.number("transmission", 1.0, above=0.0, maximum=1.0)
+        a_angle,
+        a_mount,
+        _extinction(ar),
+        ar.number("transmission", 1.0, above=0.0, maximum=1.0),
+        ar.number("unexplained_leak", 0.0, minimum=0.0, maximum=0.5),
     )
 
     def chain(name: str) -> tuple[Element, ...]:
@@ -895,6 +1208,7 @@ def parse_bench(doc: Mapping[str, Any], path: str = "<bench>") -> Bench:
             _element(path, f"{name}[{i}]", t, mounts, wavelength) for i, t in enumerate(items)
         )
 
+    coupling = _coupling(path, top.table_of("coupling"))
     bench = Bench(
         path=None if path == "<bench>" else Path(path),
         wavelength_nm=wavelength,
@@ -902,7 +1216,7 @@ def parse_bench(doc: Mapping[str, Any], path: str = "<bench>") -> Bench:
         phase_mount=mount_name("phase_mount", False),
         source=source,
         pre=chain("pre"),
-        coupling=_coupling(path, top.table_of("coupling")),
+        coupling=coupling,
         post=chain("post"),
         analyzer=analyzer,
         detector=_detector(path, top.table_of("detector")),
@@ -911,6 +1225,7 @@ def parse_bench(doc: Mapping[str, Any], path: str = "<bench>") -> Bench:
         name=top.text("name", ""),
         devices=_devices(path, top.table_of("devices")),
         reference=_reference(path, top.table_of("reference")),
+        readout=_readout(path, top.table_of("readout"), coupling),
     )
     used = {e.mount for e in (*bench.pre, *bench.post)} | {source.mount, analyzer.mount}
     for key in ("imbalance_mount", "phase_mount"):

@@ -40,6 +40,7 @@ __all__ = [
     "Arm",
     "Forward",
     "coupling_observable",
+    "coupling_scale",
     "element_angles_deg",
     "forward",
     "forward_stokes",
@@ -50,6 +51,7 @@ __all__ = [
     "pure_overlap",
     "pure_overlap_of",
     "signed_imbalance",
+    "wavelength_in_units",
 ]
 
 Complex = NDArray[np.complex128]
@@ -229,6 +231,8 @@ def forward(bench: Bench, readings: Mapping[str, ArrayLike] | None = None) -> Fo
     e = analyzer_parts(
         _angle_rad(an.angle_deg, an.mount, angles), an.extinction_ratio, an.transmission
     )
+    if an.unexplained_leak:  # + leak x identity: Tr grows by twice the leak
+        e = (e[0] + 2 * an.unexplained_leak, e[1], e[2], e[3])
     pre = _arm(s, src.mount, bench.pre, angles, backward=False)
     post = _arm(e, an.mount, bench.post[::-1], angles, backward=True)
     return Forward(pre, post, angles)
@@ -250,6 +254,31 @@ def coupling_observable(bench: Bench) -> Complex:
     if c.observable == "axis":
         return observable_from_axis(c.axis, c.eigenvalues)
     return observable_matrix(c.observable)
+
+
+def wavelength_in_units(bench: Bench) -> float:
+    """The working wavelength in the pointer's length ``units``."""
+    return bench.wavelength_nm * 1e-9 / bench.coupling.unit_size
+
+
+def coupling_scale(bench: Bench) -> tuple[float, float]:
+    """``(g, sigma)``: the coupling as a shift ``exp(-i g A p)`` of one pointer variable, and the
+    rms width of that variable's distribution at the coupling plane.
+
+    A shift (and a phase readout) moves the pointer itself: ``(strength, pointer_sigma)`` in
+    ``units``. A kick ``exp(+i k A x)`` shifts the transverse momentum: ``g = k = 2 pi tilt /
+    lambda`` and ``sigma = 1 / (2 sigma_x)`` in 1/``units``, with ``sigma_x`` the beam's width
+    at the coupling plane (:func:`aligner.physics.propagation.beam_variance`), which makes the
+    post-selection probability exact; the responses of this picture (the amplification along
+    ``re``/``im``) are those of an unchirped pointer."""
+    c = bench.coupling
+    if c.kind == "shift":
+        return c.strength, c.pointer_sigma
+    from .physics.propagation import beam_variance
+
+    wavelength = wavelength_in_units(bench)
+    var_x = beam_variance(c.pointer_sigma, wavelength, c.from_mm(c.waist_to_coupling_mm))
+    return 2 * np.pi * c.strength * 1e-6 / wavelength, float(0.5 / np.sqrt(var_x))
 
 
 def _directions(state: Parts, effect: Parts) -> tuple[Real, Real, list[Real], list[Real]]:
@@ -366,7 +395,8 @@ def imbalance_deg(
 
 
 def ideal_optics(bench: Bench) -> Bench:
-    """The bench with perfect extinction everywhere (source, analyzer, polarizer elements)."""
+    """The bench with perfect extinction everywhere (source, analyzer, polarizer elements) and
+    no unexplained leak."""
     inf = float("inf")
 
     def clean(elements: tuple[Element, ...]) -> tuple[Element, ...]:
@@ -377,7 +407,7 @@ def ideal_optics(bench: Bench) -> Bench:
     return replace(
         bench,
         source=replace(bench.source, extinction_ratio=inf),
-        analyzer=replace(bench.analyzer, extinction_ratio=inf),
+        analyzer=replace(bench.analyzer, extinction_ratio=inf, unexplained_leak=0.0),
         pre=clean(bench.pre),
         post=clean(bench.post),
     )

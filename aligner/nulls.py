@@ -23,12 +23,13 @@ from dataclasses import dataclass, replace
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from .bench import Bench
+from .bench import Bench, Element
 from .errors import InfeasibleTarget, InputError
 from .model import forward, full_readings, imbalance_and_slope, imbalance_deg, pure_overlap
 
 __all__ = [
     "ELEMENT_PERIOD_DEG",
+    "IDEAL_HWP_PERIOD_DEG",
     "PERIOD_DEG",
     "Segment",
     "closest_approach_deg",
@@ -61,17 +62,32 @@ ELEMENT_PERIOD_DEG = {
 PERIOD_DEG = 180.0  # the period of every element type above
 
 
+#: Period (deg) of a half-wave plate of exactly half a wave: turned by 90 deg its fast and
+#: slow axes swap, which for a retardance of pi only changes the global phase (the Jones
+#: matrix changes sign), so it sets the same optics.
+IDEAL_HWP_PERIOD_DEG = 90.0
+
+
+def _element_period_deg(element: Element) -> float:
+    if (
+        element.type in ("hwp", "retarder")
+        and abs((element.retardance_waves - 0.5) - round(element.retardance_waves - 0.5)) < 1e-12
+    ):
+        return IDEAL_HWP_PERIOD_DEG
+    return ELEMENT_PERIOD_DEG.get(element.type, 360.0)
+
+
 def mount_period_deg(bench: Bench, name: str) -> float:
-    """Reading period (deg) after which mount ``name`` gives the same optical setting: 180 deg
-    when every element it turns has that period (:data:`ELEMENT_PERIOD_DEG`), else a full
-    turn (an element type without a known period is never folded)."""
-    types = [e.type for e in (*bench.pre, *bench.post) if e.mount == name]
-    if bench.source.mount == name:
-        types.append("polarizer")
-    if bench.analyzer.mount == name:
-        types.append("polarizer")
-    periods = {ELEMENT_PERIOD_DEG.get(t, 360.0) for t in types}
-    return PERIOD_DEG if periods <= {PERIOD_DEG} else 360.0
+    """Reading period (deg) after which mount ``name`` gives the same optical setting: the
+    longest period of the elements it turns (:data:`ELEMENT_PERIOD_DEG`; 90 deg for a
+    half-wave plate of exactly half a wave, :data:`IDEAL_HWP_PERIOD_DEG`) when each divides
+    180 deg, else a full turn (an element type without a known period is never folded)."""
+    periods = {_element_period_deg(e) for e in (*bench.pre, *bench.post) if e.mount == name}
+    if name in (bench.source.mount, bench.analyzer.mount):
+        periods.add(ELEMENT_PERIOD_DEG["polarizer"])
+    if periods <= {IDEAL_HWP_PERIOD_DEG} and periods:
+        return IDEAL_HWP_PERIOD_DEG
+    return PERIOD_DEG if periods <= {IDEAL_HWP_PERIOD_DEG, PERIOD_DEG} else 360.0
 
 
 def _with(fixed: Mapping[str, float], name: str, values: ArrayLike) -> dict[str, ArrayLike]:

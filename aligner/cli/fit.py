@@ -55,8 +55,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument(
         "--bench",
         metavar="BENCH",
-        help="bench file (TOML) or 'demo' (default: for a run, the bench stored with it; for "
-        "a CSV file, demo)",
+        help="the bench file (TOML) the scan was taken on, or 'demo' for the bundled demo bench "
+        "(required for a CSV file; a run uses the bench stored with it unless this is given)",
     )
     p.add_argument(
         "--mount",
@@ -101,8 +101,9 @@ def _is_run(data: str) -> bool:
 
 def _bench_for(args: argparse.Namespace, record: Any) -> tuple[Any, str]:
     """The bench a fit uses and how to say which: ``--bench`` when given, else a run's own
-    stored bench (the snapshot taken when it started), else the demo bench."""
+    stored bench (the snapshot taken when it started); a CSV file needs ``--bench``."""
     from ..bench import load_bench
+    from ..errors import InputError
 
     if args.bench:
         bench = load_bench(args.bench)
@@ -114,7 +115,10 @@ def _bench_for(args: argparse.Namespace, record: Any) -> tuple[Any, str]:
             f"the bench stored with run {record.id} ({record.bench_path or record.bench_name}, "
             "as it was when the run started)"
         )
-    return load_bench("demo"), "the bundled demo bench (no --bench given)"
+    raise InputError(
+        "--bench BENCH is required for a CSV file: the bench file the scan was taken on ('demo' "
+        "for the bundled demo bench); a fit against another bench's model gives wrong numbers"
+    )
 
 
 def _run_scan(kind: str, data: str, db: str | None) -> tuple[Any, Any]:

@@ -56,7 +56,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument(
         "--write",
         action="store_true",
-        help="store the found offset in the bench file (comments kept)",
+        help="store the found offset in the bench file (comments kept); the floor at the "
+        "null is reported, never stored as the analyzer's extinction ratio",
     )
     add_json_flag(p)
     p.set_defaults(handler=run)
@@ -67,6 +68,7 @@ def run(args: argparse.Namespace) -> int:
     from ..bench import ensure_writable, load_bench, write_values
     from ..errors import InputError
     from ..run.station import Station, shutter_words
+    from ..text import safe_text
     from .common import device_overrides, emit_json
     from .fit import print_table
 
@@ -90,7 +92,8 @@ def run(args: argparse.Namespace) -> int:
             max_rounds=args.rounds,
         )
         shutter = shutter_words(result.shutter)
-    updates = result.last_fit.bench_updates()
+    fit = result.last_fit
+    updates = fit.bench_updates()
     if target is not None and result.converged:
         write_values(target, updates)
     doc = {**result.to_json(), "written": updates if args.write and result.converged else {}}
@@ -104,14 +107,22 @@ def run(args: argparse.Namespace) -> int:
         ),
         ("mount now at", f"{result.final_reading_deg:.4f} deg"),
         (
+            "floor at the null (leak per source photon)",
+            f"{fit.floor:.3g} +/- {fit.floor_err:.2g}",
+        ),
+        (
             "effective extinction ratio (all that fills the null)",
-            f"{result.last_fit.extinction_ratio:.3g}",
+            f"{fit.effective_extinction_ratio:.3g}",
+        ),
+        (
+            "analyzer extinction ratio, if the rest is as the file says",
+            f"{fit.extinction_ratio:.3g} +/- {fit.extinction_ratio_err:.2g}",
         ),
         ("rounds", str(result.rounds)),
         ("counter reads", str(result.counter_reads)),
         ("shutter", shutter),
     ]
-    notes = [result.message]
+    notes = [result.message, f"What fills the null: {fit.attribution}."]
     if doc["written"]:
         notes.append(
             f"written to {bench.path}: "
@@ -119,5 +130,9 @@ def run(args: argparse.Namespace) -> int:
         )
     elif args.write:
         notes.append("nothing written: the search did not converge")
-    print_table(f"null search of {name}", rows, notes)
+    print_table(
+        safe_text(f"null search of {name}"),
+        [(safe_text(k), safe_text(v)) for k, v in rows],
+        [safe_text(n) for n in notes],
+    )
     return 0 if result.converged else 2

@@ -22,7 +22,8 @@ def register(sub: argparse._SubParsersAction) -> None:
         "amplification, complex weak value or leak rate; list every solution branch inside "
         "the travel, round to the mounts' resolution, and estimate how precisely the mounts "
         "must sit (Monte Carlo tolerance budget). Readings of a mount 180 deg apart set the "
-        "same optics (polarizers, waveplates, rotators), so they are one branch; the table "
+        "same optics (polarizers, waveplates, rotators), and 90 deg apart for a half-wave "
+        "plate of exactly half a wave, so they are one branch; the table "
         "shows the reading nearest the current one and how many equivalent readings the "
         "travel holds. Exit status 2 when the target is beyond the bench's limits or an "
         "argument is wrong: the message goes to stderr, and with --json nothing is printed on "
@@ -153,13 +154,17 @@ def _one_percent(deg: float) -> str:
 
 
 def _print(bench: Any, result: Any, *, wrote: bool) -> None:
-    from rich.console import Console
     from rich.table import Table
 
-    console = Console()
+    from ..text import safe_text
+    from .common import console as make_console
+
+    console = make_console()
     q = result.quantized
     sens = {s.mount: s for s in result.sensitivity}
-    settings = Table(title=f"{bench.name or 'bench'}: planned readings, {result.quantity}")
+    settings = Table(
+        title=f"{safe_text(bench.name or 'bench')}: planned readings, {result.quantity}"
+    )
     for column in (
         "mount",
         "exact (deg)",
@@ -172,7 +177,7 @@ def _print(bench: Any, result: Any, *, wrote: bool) -> None:
     for name, mount in bench.mounts.items():
         exact = result.settings.get(name)
         settings.add_row(
-            name,
+            safe_text(name),
             "fixed" if exact is None else f"{exact:.6f}",
             f"{q.settings.get(name, mount.reading_deg):.6g}",
             f"{mount.resolution_deg:g}",
@@ -184,7 +189,7 @@ def _print(bench: Any, result: Any, *, wrote: bool) -> None:
     branches = Table(title="solution branches, one per optical setting (* = chosen)")
     branches.add_column("#", justify="right")
     for name in result.unknowns:
-        branches.add_column(f"{name} (deg)", justify="right")
+        branches.add_column(f"{safe_text(name)} (deg)", justify="right")
     for column in ("regime", "imbalance (deg)", "value", "leak rate", "equiv."):
         branches.add_column(column, justify="left" if column == "regime" else "right")
     for b in result.branches:
@@ -201,7 +206,8 @@ def _print(bench: Any, result: Any, *, wrote: bool) -> None:
     console.print(
         "floor: inside the extinction floor (leaked light dominates, touchy). "
         "imbalance > 0: high-reading side of the null. equiv.: readings inside the "
-        "travel that set the same optics (180 deg apart on a mount); the row shows "
+        "travel that set the same optics (180 deg apart on a mount, 90 deg for a mount "
+        "holding only half-wave plates of exactly half a wave); the row shows "
         "the one nearest the current readings, --json lists them all "
         "(branches[].equivalent_readings)."
     )
@@ -223,9 +229,9 @@ def _print(bench: Any, result: Any, *, wrote: bool) -> None:
         errors.add_column("error")
         errors.add_column("half-width", justify="right")
         for label, width in sorted(tol.by_source.items(), key=lambda kv: -kv[1]):
-            errors.add_row(label, f"{width:.4g}")
+            errors.add_row(safe_text(label), f"{width:.4g}")
         errors.add_row("first-order propagation, all (std)", f"{tol.first_order_std:.4g}")
         console.print(errors)
-    console.print(result.message)
+    console.print(safe_text(result.message))
     if wrote:
-        console.print(f"Stored the rounded readings in {bench.path}.")
+        console.print(safe_text(f"Stored the rounded readings in {bench.path}."))

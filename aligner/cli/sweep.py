@@ -142,6 +142,11 @@ def run(args: argparse.Namespace) -> int:
             args.schedule, repeats=args.repeats, dwell_s=args.dwell, settle_s=args.settle
         )
     make_console(stderr=True).print(SAFETY, style="yellow")
+    if schedule is not None:
+        from ..run.sweep import plan_warnings
+
+        for warning in plan_warnings(bench, schedule):
+            make_console(stderr=True).print(f"warning: {safe_text(warning)}", style="yellow")
     console = make_console(stderr=args.json)
     station = Station.open(
         bench,

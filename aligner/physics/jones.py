@@ -9,7 +9,15 @@ Conventions (fixed here, once, for the whole project):
   ``sympy.physics.optics.polarization.phase_retarder(theta, delta)``, global phase
   ``exp(-i delta/2)`` included. Half-wave plate: ``delta = pi``; quarter-wave plate: ``pi/2``.
 * Handedness as sympy's ``jones_vector``: R = (H + iV)/sqrt2, L = (H - iV)/sqrt2,
-  D = (H + V)/sqrt2, A = (H - V)/sqrt2.
+  D = (H + V)/sqrt2, A = (H - V)/sqrt2. Fields are ``Re[E exp(i(kz - wt))]``, so a positive
+  phase is a delay and the retarder above delays its slow axis; the field of R then turns from
+  H towards V, counterclockwise as seen looking into the beam (the sense of element angles):
+  right-handed, positive helicity, in the IEEE convention; left-circular in the convention of
+  Born & Wolf and Hecht, whose "right" turns clockwise for an observer facing the source (from
+  memory). S3 > 0 for R.
+* A rotator of ``rotation`` > 0 turns linear polarization from H towards V (counterclockwise
+  looking into the beam). A dextrorotatory sample turns it clockwise for an observer looking
+  towards the source, so its rotation is negative here.
 * Stokes vector (S0, S1, S2, S3) of a density matrix ``rho``: S1 = Tr(rho HV), S2 = Tr(rho DA),
   S3 = Tr(rho RL), with HV = |H><H| - |V><V|, DA = |D><D| - |A><A| (Pauli x),
   RL = |R><R| - |L><L| (Pauli y). So ``rho = (S0 I + S1 HV + S2 DA + S3 RL) / 2``.

@@ -30,6 +30,7 @@ from typing import Any
 import numpy as np
 
 from ..bench import Bench, Element
+from ..model import coupling_scale
 from .targets import mounts_in_play
 
 __all__ = ["Derivation", "derive"]
@@ -400,6 +401,15 @@ class _Builder:
         d = self.leak("a", an.extinction_ratio, "analyzer")
         t = self.transmission("a", an.transmission, "analyzer")
         e = self.start(an.angle_deg, an.mount, d, t)
+        if an.unexplained_leak:
+            floor = self.constant(
+                "l_a",
+                "l_{a}",
+                an.unexplained_leak,
+                "unexplained leak at the analyzer (from a null search), unpolarized",
+                small=True,
+            )
+            e[0] = self.sp.expand(e[0] + 2 * floor)
         for element in reversed(self.bench.post):
             e = self.through(e, element, backward=True)
         return e
@@ -540,14 +550,13 @@ def derive(bench: Bench, free: Sequence[str] = ()) -> Derivation:
     e = b.effect()
     alpha, v, n, (a0, a1) = b.observable()
     c = bench.coupling
+    g, sigma = coupling_scale(bench)
     kappa = sp.Symbol("kappa", positive=True)
-    b.values[kappa] = float(
-        np.exp(-((c.strength * float(a0 - a1)) ** 2) / (8 * c.pointer_sigma**2))
-    )
+    b.values[kappa] = float(np.exp(-((g * float(a0 - a1)) ** 2) / (8 * sigma**2)))
+    unit = c.units if c.kind == "shift" else f"1/{c.units}"
     b.meaning["kappa"] = (
         f"exp(-g^2 (a0 - a1)^2 / (8 sigma^2)) = {b.values[kappa]:.12g}, the "
-        f"overlap of the two displaced pointers (g = {c.strength:g}, sigma = "
-        f"{c.pointer_sigma:g} {c.units})"
+        f"overlap of the two displaced pointers (g = {g:g}, sigma = {sigma:g} {unit})"
     )
     small = list(dict.fromkeys(b.small))
     back = b.from_poly

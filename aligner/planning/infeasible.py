@@ -10,7 +10,10 @@ from numpy.typing import ArrayLike
 
 from ..bench import Bench
 from ..errors import InfeasibleTarget
+from ..model import coupling_scale
 from ..nulls import nulls, segments
+from ..prediction.advice import extinction_need
+from ..prediction.limits import pointer_advice
 from .observe import observe
 from .roots import Solution
 from .targets import Target
@@ -24,9 +27,10 @@ def _with(fixed: Mapping[str, float], name: str, values: ArrayLike) -> dict[str,
 
 def pointer_cap(bench: Bench) -> float:
     """Largest exact amplification a Gaussian pointer allows for a real weak value,
-    ``1/sqrt(1 - exp(-g^2/sigma^2))`` (about ``sigma/g``; physics.md, all-orders response)."""
-    c = bench.coupling
-    return float(1.0 / np.sqrt(-np.expm1(-((c.strength / c.pointer_sigma) ** 2))))
+    ``1/sqrt(1 - exp(-g^2/sigma^2))`` (about ``sigma/g``; physics.md, all-orders response;
+    ``g``, ``sigma`` of :func:`aligner.model.coupling_scale`)."""
+    g, sigma = coupling_scale(bench)
+    return float(1.0 / np.sqrt(-np.expm1(-((g / sigma) ** 2))))
 
 
 def infeasible(bench: Bench, target: Target, solution: Solution) -> InfeasibleTarget:
@@ -65,16 +69,15 @@ def infeasible(bench: Bench, target: Target, solution: Solution) -> InfeasibleTa
         ideal_cap = 0.5 / np.sqrt(np.float64(d_a + d_s))
     cap = pointer_cap(bench)
     if target.exact and cap < 1.2 * solution.peak:
+        g, sigma = coupling_scale(bench)
         return InfeasibleTarget(
             f"{target.describe()} is beyond the pointer limit: the mean pointer shift cannot "
             f"exceed about one pointer width, so the exact amplification peaks near "
-            f"{solution.peak:.4g} here (sigma/g = "
-            f"{bench.coupling.pointer_sigma / bench.coupling.strength:.4g}); use a wider "
-            "pointer (larger pointer_sigma) or a weaker coupling",
+            f"{solution.peak:.4g} here (sigma/g = {sigma / g:.4g}); reaching "
+            f"{wanted:.4g} takes {pointer_advice(bench, wanted)}",
             limit="pointer",
             achievable=solution.peak,
         )
-    worse = "analyzer" if d_a >= d_s else "source polarizer"
     arm = [
         e.key
         for e in (*bench.pre, *bench.post)
@@ -82,18 +85,18 @@ def infeasible(bench: Bench, target: Target, solution: Solution) -> InfeasibleTa
     ]
     also = (
         f"; the leak of the polarizer(s) {', '.join(arm)} in the arms adds to the floor and "
-        "is not in that estimate"
+        "is not in these figures"
         if arm
         else ""
     )
+    need = extinction_need(wanted, an, src)
     return InfeasibleTarget(
         f"{target.describe()} is beyond the extinction limit: light leaking through the source "
         f"polarizer (extinction ratio {src:.3g}, leak d_s = 1/ER = {d_s:.3g}) and the analyzer "
         f"(extinction ratio {an:.3g}, leak d_a = {d_a:.3g}) sets a floor under the "
         f"post-selection, which caps the amplification at {solution.peak:.4g} on this bench "
         f"(for ideal states about 1/(2 sqrt(d_a + d_s)) = {ideal_cap:.4g}, with the combined "
-        f"leak d_a + d_s = {d_a + d_s:.3g}){also}; the {worse} leaks more: use one with a "
-        "higher extinction ratio",
+        f"leak d_a + d_s = {d_a + d_s:.3g}); {need.sentence(an, src)}{also}",
         limit="extinction",
         achievable=solution.peak,
     )

@@ -12,7 +12,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from ..bench import Bench
-from ..model import coupling_observable, forward, pure_overlap_of
+from ..model import coupling_observable, coupling_scale, forward, pure_overlap_of
 from ..physics.weak import StokesResponse
 
 __all__ = ["Observed", "observe"]
@@ -37,14 +37,14 @@ class Observed:
 
     @cached_property
     def _response(self) -> StokesResponse:
-        c = self._bench.coupling
+        g, sigma = coupling_scale(self._bench)
         with np.errstate(divide="ignore", invalid="ignore"):
             return StokesResponse(
                 self._fwd.state_parts,
                 self._fwd.effect_parts,
                 coupling_observable(self._bench),
-                c.strength,
-                c.pointer_sigma,
+                g,
+                sigma,
             )
 
     def _full(self, x: ArrayLike) -> NDArray[Any]:
@@ -57,10 +57,10 @@ class Observed:
 
     @cached_property
     def exact(self) -> Cplx:
-        c = self._bench.coupling
+        g = self._response.g
         with np.errstate(divide="ignore", invalid="ignore"):
-            re = self._response.shift("re") / c.strength
-            im = self._response.shift("im") / c.strength
+            re = self._response.shift("re") / g
+            im = self._response.shift("im") / g
         out = np.empty(np.broadcast_shapes(np.shape(re), np.shape(im), self._shape), complex)
         out.real, out.imag = re, im
         return out

@@ -46,7 +46,8 @@ class Branch:
     ``value`` is the target quantity (signed amplification, ``|A_w|`` or leak rate).
 
     One branch is one distinct optical setting: readings of a mount that differ by its period
-    (180 deg for polarizers, waveplates and rotators, :func:`aligner.nulls.mount_period_deg`)
+    (180 deg for polarizers, waveplates and rotators, 90 deg for a half-wave plate of exactly
+    half a wave, :func:`aligner.nulls.mount_period_deg`)
     set the same optics and are one branch. ``settings`` is the equivalent reading nearest the
     current readings; ``equivalent_readings`` lists every equivalent reading inside the travel,
     that one first, nearest first.
@@ -186,7 +187,9 @@ def _branches(
     ``order`` lists the roots in the default order (weak regime first, nearest first), so the
     first root met of each setting is its nearest reading. Readings count as one setting only
     when they agree modulo every unknown mount's period and the model gives the same weak value
-    and leak rate there (1e-9 relative): a guard should an element ever not repeat."""
+    and leak rate there (1e-6 relative: roots solved apart agree to about 1e-7 deg, where a
+    weak value near the null moves by ~1e-7 of itself): a guard should an element ever not
+    repeat."""
     current = bench.readings()
     full = {
         n: np.array([dict(zip(unknowns, roots[k].readings, strict=True)).get(n, v) for k in order])
@@ -205,8 +208,8 @@ def _branches(
     same = (
         np.all(np.abs(np.mod(diff + periods / 2, periods) - periods / 2) < 1e-6, axis=-1)
         & (inner[:, None] == inner[None, :])
-        & np.isclose(obs.weak_value[:, None], obs.weak_value[None, :], rtol=1e-9, atol=0)
-        & np.isclose(obs.leak_rate[:, None], obs.leak_rate[None, :], rtol=1e-9, atol=0)
+        & np.isclose(obs.weak_value[:, None], obs.weak_value[None, :], rtol=1e-6, atol=0)
+        & np.isclose(obs.leak_rate[:, None], obs.leak_rate[None, :], rtol=1e-6, atol=0)
     )
     groups: list[list[int]] = []  # positions in ``order``, nearest reading first
     free = np.ones(len(order), bool)
@@ -307,7 +310,7 @@ def _reason(branches: Sequence[Branch], chosen: int, requested: int | None) -> s
     readings = sum(len(x.equivalent_readings) for x in branches)
     of = f"branch {chosen} of {n} distinct settings"
     if readings > n:
-        of += f" ({readings} readings in all, counting those 180 deg apart)"
+        of += f" ({readings} readings in all, counting those that set the same optics)"
     if requested is not None:
         return f"{of}, as requested with branch={requested}"
     weak = sum(x.regime == "weak" for x in branches)
@@ -446,12 +449,14 @@ def plan(
     if q.step_change > STEP_LIMIT:
         reachable = abs(b.value) * STEP_LIMIT / q.step_change
         name = bench.imbalance_mount
+        step = bench.mounts[name].resolution_deg
         raise InfeasibleTarget(
             f"{target.describe()} is beyond the resolution limit: one "
-            f"{bench.mounts[name].resolution_deg:g}-deg step of {name} changes it by "
+            f"{step:g}-deg step of {name} changes it by "
             f"{100 * q.step_change:.3g} % (at most {100 * STEP_LIMIT:g} % allowed), so about "
-            f"{reachable:.3g} is the most this mount can set reliably; use a finer mount "
-            "(smaller resolution_deg) or a smaller target",
+            f"{reachable:.3g} is the most this mount can set reliably; use a mount that steps "
+            f"in at most {step * STEP_LIMIT / q.step_change:.2g} deg (resolution_deg) or a "
+            "smaller target",
             limit="resolution",
             achievable=reachable,
         )
@@ -460,13 +465,19 @@ def plan(
     tol = None
     if samples:
         tol = tolerance_budget(bench, target, full, samples=int(samples), seed=seed)
-    block = None
+    block, beyond = None, ""
     if predict:
-        from ..prediction import prediction_block
+        from ..prediction import beyond_limit, block_of, limits
+        from ..prediction import predict as prediction
 
-        block = prediction_block(bench, full)
+        lim = limits(bench, full, axis=target.axis if target.kind == "amplification" else None)
+        block = block_of(prediction(bench, full), lim)
+        if target.kind == "amplification":
+            beyond = beyond_limit(bench, lim, target.value.real)
     reason = _reason(branches, chosen, branch)
     warnings = _warnings(bench, target, b, block)
+    if beyond:
+        warnings.insert(0, f"Warning: {beyond}")
     quantity = _quantity(target)
     return Plan(
         target,

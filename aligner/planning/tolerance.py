@@ -106,15 +106,16 @@ def _plates(bench: Bench) -> list[tuple[str, int, Element]]:
 
 def _with_retardance(bench: Bench, shifts: Mapping[tuple[str, int], object]) -> Bench:
     """A bench whose plates carry extra retardance (waves; floats or per-sample arrays)."""
-    arms = {}
-    for arm in ("pre", "post"):
-        arms[arm] = tuple(
+    pre, post = (
+        tuple(
             replace(e, retardance_waves=e.retardance_waves + shifts[(arm, i)])
             if (arm, i) in shifts
             else e
             for i, e in enumerate(getattr(bench, arm))
         )
-    return replace(bench, **arms)
+        for arm in ("pre", "post")
+    )
+    return replace(bench, pre=pre, post=post)
 
 
 def _figure_and_leak(

@@ -13,9 +13,11 @@ from numpy.typing import ArrayLike, NDArray
 
 from ..bench import Bench
 from ..errors import InputError
-from ..model import forward, full_readings, ideal_optics, imbalance_deg
+from ..model import coupling_scale, forward, full_readings, ideal_optics, imbalance_deg
 from ..nulls import closest_approach_deg, find_null
+from .advice import dark_count_rate_for, extinction_need, pointer_width_for
 from .detector import detector_rates
+from .pointer import read_rates
 from .readout import amplification, check_axis, readout_axis, response
 
 __all__ = [
@@ -23,15 +25,18 @@ __all__ = [
     "SETTING",
     "Limits",
     "MechanismLimit",
+    "beyond_limit",
     "limits",
     "pick_best",
+    "pointer_advice",
     "scalar_readings",
     "scan_grid",
 ]
 
 Real = NDArray[np.float64]
 
-#: Mechanisms that cap the amplification, as named in ``Limits.limited_by``.
+#: Mechanisms that cap the amplification, as named in ``Limits.limited_by`` ("dark counts"
+#: only when the pointer is read from the counter's events: a camera sees none).
 MECHANISMS = ("pointer", "extinction", "resolution", "dark counts")
 
 #: Extra ``limited_by`` key when the imbalance mount cannot reach a null with the other mounts
@@ -76,8 +81,10 @@ class Limits:
     the ideal bench cannot reach a null at these settings of the other mounts it also holds
     :data:`SETTING`, the largest amplification the ideal bench reaches. The
     combined ``max_amplification`` has all of them at once: the exact pointer response, the
-    real extinction, only imbalances at least one mount step from the null, and dark counts,
-    which carry no pointer shift and so dilute it by the signal share of the counts.
+    real extinction, only imbalances at least one mount step from the null, and the dilution
+    of the events the pointer is read from (:func:`aligner.prediction.pointer.read_rates`:
+    dark counts, background and afterpulses of the counter, accidental coincidences of a
+    heralded source; none for a camera, whose bench has no "dark counts" mechanism).
     ``smallest_imbalance_deg``: the imbalance one mount step from the null. ``step_error``:
     change of the exact amplification for one mount step at the given reading. Mount steps
     finer than 1e-5 deg are evaluated at 1e-5 deg (the model's double-precision floor near the
@@ -108,11 +115,12 @@ def _amplifier(
         with np.errstate(invalid="ignore", divide="ignore"):  # NaN at an exact null
             if exact:
                 resp = response(bench, fwd)
-                probability, amp = resp.probability, resp.shift(axis) / bench.coupling.strength
+                probability, amp = resp.probability, resp.shift(axis) / resp.g
             else:
                 probability, amp = fwd.probability, amplification(bench, fwd, axis, exact=False)
             if dark:
-                amp = amp * detector_rates(bench, probability).signal_fraction
+                rates = detector_rates(bench, probability)
+                amp = amp * read_rates(bench, probability, rates).fraction
         return np.abs(amp)
 
     return evaluate
@@ -177,7 +185,7 @@ def _zoom(f: Callable[[ArrayLike], Real], lo: float, hi: float, tol: float) -> t
 def _explain(
     bench: Bench, key: str, lim: MechanismLimit, smallest_imbalance: float, closest: float
 ) -> str:
-    c, d = bench.coupling, bench.detector
+    d = bench.detector
     amp = f"{lim.max_amplification:.4g}"
     if key == SETTING:
         return (
@@ -187,18 +195,22 @@ def _explain(
             f"the other mounts (e.g. the phase mount) closer to a null"
         )
     if key == "pointer":
+        g, sigma = coupling_scale(bench)
         return (
             f"the pointer: a shift cannot grow much beyond one pointer width "
-            f"({c.pointer_sigma:g} {c.units}), so the amplification peaks at {amp}, near "
-            f"sigma/g = {c.pointer_sigma / c.strength:.4g}, and falls again closer to the null"
+            f"({_width(bench)}), so the amplification peaks at {amp}, near "
+            f"sigma/g = {sigma / g:.4g}, and falls again closer to the null"
         )
     if key == "extinction":
+        an, src = bench.analyzer.extinction_ratio, bench.source.extinction_ratio
+        leak = 1 / an + 1 / src
+        about = f"{0.5 / np.sqrt(leak):.4g}" if leak > 0 else "inf"
         return (
-            f"extinction: light leaking through the analyzer (extinction ratio "
-            f"{bench.analyzer.extinction_ratio:.3g}) and the source polarizer "
-            f"({bench.source.extinction_ratio:.3g}) keeps the post-selected intensity from "
-            f"reaching zero, so the weak value stops growing at {amp} (about sqrt(ER)/2) and "
-            f"falls again closer to the null"
+            f"extinction: light leaking through the analyzer (extinction ratio {an:.3g}) and "
+            f"the source polarizer ({src:.3g}) keeps the post-selected intensity from "
+            f"reaching zero, so the weak value stops growing at {amp} (about "
+            f"1/(2 sqrt(d_a + d_s)) = {about} with the combined leak d_a + d_s = "
+            f"1/ER_a + 1/ER_s = {leak:.3g}) and falls again closer to the null"
         )
     if key == "resolution":
         return (
@@ -207,11 +219,100 @@ def _explain(
             f"imbalance it can set is {abs(smallest_imbalance):.3g} deg, where the "
             f"amplification is {amp}"
         )
+    if bench.source.herald is not None:
+        return (
+            f"accidental coincidences: near the null the heralded signal falls towards the "
+            f"accidental coincidences of the heralds with the detector's dark and uncorrelated "
+            f"counts, which carry no pointer shift, so the shift seen per unit coupling stops "
+            f"growing at {amp}"
+        )
     return (
         f"dark counts: near the null the post-selected signal falls towards the detector's "
         f"dark rate ({d.dark_rate:g} counts/s), and dark counts carry no pointer shift, so "
         f"the shift seen per unit coupling stops growing at {amp}"
     )
+
+
+def _width(bench: Bench) -> str:
+    c = bench.coupling
+    if c.readout == "phase":
+        return f"{c.pointer_sigma:.4g} {c.units}, the probe's 1/(2 sqrt N)"
+    if c.kind == "kick":
+        return f"the beam's momentum spread, {coupling_scale(bench)[1]:.4g} 1/{c.units}"
+    return f"{c.pointer_sigma:g} {c.units}"
+
+
+def pointer_advice(bench: Bench, target: float) -> str:
+    """What pointer reaches ``target`` (:func:`.advice.pointer_width_for`)."""
+    c = bench.coupling
+    g, sigma = coupling_scale(bench)
+    need = pointer_width_for(target, g)
+    if c.readout == "phase":
+        photons = 1 / (4 * (need * c.unit_size) ** 2)
+        return f"a probe of at most {photons:.4g} photons (now {c.probe_photons:g})"
+    if c.kind == "kick":
+        return (
+            f"a beam at most {0.5 / need:.4g} {c.units} wide (rms) at the coupling plane (now "
+            f"{0.5 / sigma:.4g} {c.units}) or a weaker kick"
+        )
+    return f"pointer_sigma of at least {need:.4g} {c.units} (now {sigma:g}) or a weaker coupling"
+
+
+def _mechanism_advice(bench: Bench, key: str, cap: float, target: float) -> str:
+    """One mechanism that holds the amplification below ``target``, with what would lift it."""
+    head = f"with {key} alone the most is {cap:.4g}"
+    if key == "extinction":
+        an, src = bench.analyzer.extinction_ratio, bench.source.extinction_ratio
+        return f"{head}; {extinction_need(target, an, src).sentence(an, src)}"
+    if key == "pointer":
+        return f"{head}; {target:.4g} needs {pointer_advice(bench, target)}"
+    if key == "resolution":
+        name = bench.imbalance_mount
+        step = bench.mounts[name].resolution_deg
+        return (
+            f"{head} (one {step:g}-deg step of {name} from the null); {target:.4g} needs a "
+            f"mount step of at most {step * cap / target:.2g} deg"
+        )
+    if key == "dark counts":
+        if bench.source.herald is not None:
+            return (
+                f"with accidental coincidences alone the most is {cap:.4g}; a shorter "
+                "coincidence window or fewer uncorrelated counts lift it"
+            )
+        rate = dark_count_rate_for(target, cap, bench.source.photon_rate)
+        return (
+            f"{head} (the pointer is read from the counted photons, and dark counts carry no "
+            f"shift); {target:.4g} needs a photon rate of at least {rate:.3g}/s (now "
+            f"{bench.source.photon_rate:.3g}/s) within the detector's safe rate, a darker "
+            f"detector, or a camera reading the pointer ([readout] sensor = 'camera')"
+        )
+    return f"{head}; set the other mounts (e.g. the phase mount) closer to a null"
+
+
+def beyond_limit(bench: Bench, lim: Limits, target: float) -> str:
+    """A warning when ``target`` (an amplification size) lies beyond the bench's combined limit
+    ``lim``, naming each mechanism that holds it below the target and what would lift it;
+    ``""`` when it does not."""
+    if not target > lim.max_amplification * (1 + 1e-9):
+        return ""
+    short = {k: m for k, m in lim.mechanisms.items() if m.max_amplification < target}
+    head = (
+        f"an amplification of {target:.4g} lies beyond this bench's combined limit: with every "
+        f"mechanism together the most it shows is {lim.max_amplification:.4g} (at an "
+        f"imbalance of {lim.at_imbalance_deg:.3g} deg)"
+    )
+    if not short:
+        return (
+            f"{head}; no mechanism alone stops it, but together they do (each alone allows "
+            + ", ".join(f"{k} {m.max_amplification:.4g}" for k, m in lim.mechanisms.items())
+            + ")"
+        )
+    reasons = "; ".join(
+        _mechanism_advice(bench, k, m.max_amplification, target)
+        for k, m in sorted(short.items(), key=lambda km: km[1].max_amplification)
+    )
+    eats = " and ".join(sorted(short, key=lambda k: short[k].max_amplification))
+    return f"{head}. What eats the gain: {eats}. {reasons[0].upper()}{reasons[1:]}."
 
 
 def limits(
@@ -233,12 +334,15 @@ def limits(
         return MechanismLimit(value, float(imbalance_deg(b, {**r, name: reading})), reading)
 
     mechanisms: dict[str, MechanismLimit] = {}
-    for key, b, null_b, exact, dark, min_offset in (
+    cases = [
         ("pointer", ideal, ideal_null, True, False, 0.0),
         ("extinction", bench, null, False, False, 0.0),
         ("resolution", ideal, ideal_null, False, False, step),
         ("dark counts", ideal, ideal_null, False, True, 0.0),
-    ):
+    ]
+    if bench.readout.sensor == "camera":
+        cases.pop()  # a camera's events carry no dark counts
+    for key, b, null_b, exact, dark, min_offset in cases:
         mechanisms[key] = at(
             b,
             *_maximize(

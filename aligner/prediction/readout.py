@@ -8,7 +8,7 @@ from numpy.typing import NDArray
 
 from ..bench import Bench
 from ..errors import InputError
-from ..model import Forward, coupling_observable
+from ..model import Forward, coupling_observable, coupling_scale
 from ..physics.weak import StokesResponse
 
 __all__ = [
@@ -28,8 +28,28 @@ READOUT_AXIS = {"position": "re", "phase": "re", "momentum": "im"}
 
 
 def readout_axis(bench: Bench) -> str:
-    """``"re"`` for a position or phase readout, ``"im"`` for a momentum readout."""
-    return READOUT_AXIS[bench.coupling.readout]
+    """``"re"`` for a position or phase readout, ``"im"`` for a momentum readout; with a kick,
+    a readout geometry or a waist away from the coupling plane, the part of ``A_w`` the
+    detector's linear response (Jozsa 2007 with free evolution,
+    :func:`aligner.physics.propagation.linear_shift`) weighs more."""
+    from .pointer import is_plain, train
+
+    c = bench.coupling
+    if is_plain(bench) or c.readout != "position":
+        return READOUT_AXIS[c.readout]
+    from ..model import wavelength_in_units
+    from ..physics.propagation import linear_shift
+
+    weights = linear_shift(
+        np.array([1.0, 1j]),
+        coupling_scale(bench)[0],
+        c.pointer_sigma,
+        wavelength_in_units(bench),
+        c.kind,
+        c.from_mm(c.waist_to_coupling_mm),
+        train(bench),
+    )
+    return "re" if abs(weights[0]) >= abs(weights[1]) else "im"
 
 
 def readout_units(bench: Bench) -> str:
@@ -46,14 +66,14 @@ def check_axis(axis: str) -> None:
 
 def response(bench: Bench, fwd: Forward, g: float | None = None) -> StokesResponse:
     """Weak value and exact pointer response of a Forward at coupling ``g`` (default the
-    bench's strength)."""
-    c = bench.coupling
+    bench's), in the picture of :func:`aligner.model.coupling_scale`."""
+    strength, sigma = coupling_scale(bench)
     return StokesResponse(
         fwd.state_parts,
         fwd.effect_parts,
         coupling_observable(bench),
-        c.strength if g is None else g,
-        c.pointer_sigma,
+        strength if g is None else g,
+        sigma,
     )
 
 
@@ -61,7 +81,8 @@ def amplification(bench: Bench, fwd: Forward, axis: str | None = None, exact: bo
     """Amplification of a Forward (``model.forward``) along ``axis`` (default: the readout's).
 
     ``exact=False``: ``Re A_w`` or ``Im A_w``. ``exact=True``: ``<q>/g`` or
-    ``<p>/(g/(2 sigma^2))`` from the all-orders Gaussian-pointer response.
+    ``<p>/(g/(2 sigma^2))`` from the all-orders Gaussian-pointer response
+    (:func:`aligner.model.coupling_scale`).
     """
     axis = axis or readout_axis(bench)
     check_axis(axis)
@@ -69,7 +90,7 @@ def amplification(bench: Bench, fwd: Forward, axis: str | None = None, exact: bo
     if not exact:
         wv = resp.weak_value
         return np.real(wv) if axis == "re" else np.imag(wv)
-    return resp.shift(axis) / bench.coupling.strength
+    return resp.shift(axis) / resp.g
 
 
 def format_weak_value(value: complex, digits: int = 6) -> str:

@@ -1,6 +1,8 @@
 """The prediction by its definitions, the slow way: density matrices, the pointer response summed
 in the eigenbasis of the observable, the signed imbalance from three stacked evaluations of the
-whole chain, the SNR's ``g d<r>/dg`` by central differences in ``g``.
+whole chain, the SNR's ``g d<r>/dg`` by central differences in ``g`` and its post-selected spread
+from the Gaussian branches of :mod:`aligner.physics.branches`. For plain benches
+(:func:`aligner.prediction.pointer.is_plain`).
 
 This is what :func:`aligner.prediction.predict` computes in closed form in Stokes space; the
 test of the fast path compares the two on random benches. Nothing else should call it.
@@ -15,10 +17,12 @@ from numpy.typing import ArrayLike, NDArray
 
 from ..bench import Bench
 from ..model import coupling_observable, forward, full_readings
+from ..physics.branches import moments as branch_moments
+from ..physics.information import readout_branches
 from ..physics.weak import pointer_response, weak_value
 from .detector import detector_flags, detector_rates
+from .pointer import read_rates, white_variance
 from .readout import readout_axis
-from .snr import snr_of_signal
 
 __all__ = ["reference_prediction"]
 
@@ -68,6 +72,13 @@ def reference_prediction(
     signal = (shift(c.strength * (1 + h))[1] - shift(c.strength * (1 - h))[1]) / (2 * h)
     rates = detector_rates(bench, probability)
     saturated, over = detector_flags(bench, rates)
+    readout = "momentum" if c.readout == "momentum" else "position"
+    spread = branch_moments(readout_branches(rho, effect, a, c.strength, c.pointer_sigma, readout))
+    variance = spread.variance * (2 * c.pointer_sigma**2) ** (2 if axis == "im" else 0)
+    jitter = white_variance(bench) * (2 * c.pointer_sigma**2) ** (2 if axis == "im" else 0)
+    events = read_rates(bench, probability, rates)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        snr = np.abs(signal) * events.fraction / np.sqrt(variance / events.rate + jitter)
     return {
         "weak_value": wv,
         "leak_rate": probability,
@@ -80,6 +91,6 @@ def reference_prediction(
         "over_safe_rate": over,
         "exposure_rate": rates.linear_rate,
         "imbalance_deg": _imbalance(bench, r),
-        "snr_per_sqrt_s": snr_of_signal(signal, rates, bench),
+        "snr_per_sqrt_s": np.where(events.rate > 0, snr, 0.0),
         "signal_fraction": rates.signal_fraction,
     }

@@ -168,7 +168,7 @@ _ALLOWED_UPDATES = ("offset_deg", "offset_err_deg")
 
 def apply_updates(bench: Bench, updates: Mapping[str, float]) -> Bench:
     """``bench`` with fitted values set (in memory): ``mounts.NAME.offset_deg`` /
-    ``offset_err_deg`` and ``analyzer.extinction_ratio``."""
+    ``offset_err_deg`` and ``analyzer.unexplained_leak``."""
     for key, value in updates.items():
         parts = key.split(".")
         if len(parts) == 3 and parts[0] == "mounts" and parts[2] in _ALLOWED_UPDATES:
@@ -178,8 +178,8 @@ def apply_updates(bench: Bench, updates: Mapping[str, float]) -> Bench:
             else:
                 mount = replace(mount, offset_err_deg=float(value))
             bench = bench.with_mounts(**{parts[1]: mount})
-        elif key == "analyzer.extinction_ratio":
-            bench = replace(bench, analyzer=replace(bench.analyzer, extinction_ratio=value))
+        elif key == "analyzer.unexplained_leak":
+            bench = replace(bench, analyzer=replace(bench.analyzer, unexplained_leak=value))
         else:
             raise RecipeError(f"a recipe cannot set {key!r}")
     return bench

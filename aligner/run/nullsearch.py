@@ -35,7 +35,8 @@ __all__ = ["NullSearchResult", "search_null"]
 
 @dataclass(frozen=True)
 class NullSearchResult:
-    """Outcome of :func:`search_null`: the fitted null reading (deg) and its error, the last fit,
+    """Outcome of :func:`search_null`: the fitted null reading (deg) and its error, the last fit
+    (with the floor left at the null, its own quantity: :class:`aligner.fit.null.NullFit`),
     how many rounds and counter reads it took, each round's step (deg), and whether it
     converged (``message`` says why it stopped)."""
 
@@ -60,6 +61,10 @@ class NullSearchResult:
             "final_reading_deg": self.final_reading_deg,
             "extinction_ratio": self.last_fit.extinction_ratio,
             "extinction_ratio_err": self.last_fit.extinction_ratio_err,
+            "floor": self.last_fit.floor,
+            "floor_err": self.last_fit.floor_err,
+            "effective_extinction_ratio": self.last_fit.effective_extinction_ratio,
+            "attribution": self.last_fit.attribution,
             "rounds": self.rounds,
             "counter_reads": self.counter_reads,
             "steps_deg": list(self.steps_deg),

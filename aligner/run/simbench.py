@@ -94,6 +94,7 @@ def true_bench(bench: Bench) -> Bench:
         analyzer=replace(
             bench.analyzer,
             extinction_ratio=true_er.get("analyzer", bench.analyzer.extinction_ratio),
+            unexplained_leak=0.0,  # a null search's estimate, not part of the truth
         ),
         pre=tuple(_true_plate(e, sim.retardance_error_waves, lam) for e in bench.pre),
         post=tuple(_true_plate(e, sim.retardance_error_waves, lam) for e in bench.post),

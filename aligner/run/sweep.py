@@ -45,6 +45,7 @@ __all__ = [
     "check_plan",
     "measured_leak",
     "plan_rows",
+    "plan_warnings",
     "resume_bench",
     "resume_plan",
     "run_sweep",
@@ -246,6 +247,25 @@ def check_plan(station: Station, todo: Sequence[PlannedPoint]) -> None:
             f"{rates[worst]:.3g} counts/s, above the limit {guard.limit:.3g} ({guard.headroom:g}"
             f" x safe_rate {guard.safe_rate:.3g}); choose a schedule nearer the null"
         )
+
+
+def plan_warnings(bench: Bench, schedule: Schedule) -> tuple[str, ...]:
+    """What to tell the operator before a sweep of ``schedule`` starts (nothing is refused):
+    amplification targets beyond the bench's combined limit at the file's readings, with the
+    mechanism that eats the gain (:func:`aligner.prediction.beyond_limit`)."""
+    if schedule.quantity != "amplification":
+        return ()
+    from ..prediction import beyond_limit, limits
+
+    lim = limits(bench, axis="re")  # the axis the schedule plans on
+    beyond = sorted({t for t in schedule.targets if t > lim.max_amplification})
+    if not beyond:
+        return ()
+    targets = ", ".join(f"{t:.4g}" for t in beyond)
+    return (
+        f"targets {targets} of {schedule.spec}: {beyond_limit(bench, lim, beyond[-1])} The "
+        "sweep measures them, but their shift per unit coupling stays below the limit.",
+    )
 
 
 class _Sweep:

@@ -3,12 +3,16 @@
 Run: ``python tests/benchmarks/bench_speed.py [--settings 1000000] [--quick]``
 
 * ``aligner.predict`` with every field (weak value, leak, linear and exact amplification,
-  imbalance, detector, SNR) per setting, on random settings of the demo bench's two stepped
-  mounts, against a sympy-lambdified ideal intensity of the same chain timed in the same run
+  imbalance, detector, centroid SNR with the exact post-selected spread) per setting, on random
+  settings of the demo bench's two stepped mounts, against a sympy-lambdified ideal intensity
+  of the same chain timed in the same run
   (goal <= 2x; the compact form, the form one ``simplify()`` gives, and the form as built),
   against the density-matrix definitions the closed form replaced
   (``aligner.prediction.reference``, the path before it; stretch goal 10x faster), and against
   py-pol (goal >= 1000x faster per setting);
+* the fields computed only on request (the Cramer-Rao SNR from the Fisher information of the
+  post-selected pointer), and every field of a bench read through a lens (no closed form: the
+  exact post-selected beam at the detector), per setting on 1e4 settings;
 * ``aligner.plan`` with its default tolerance budget (1e5 Monte Carlo samples), median;
 * ``aligner predict demo --json`` and ``aligner derive demo`` wall times (fresh processes), and
   ``derive`` of a bench with odd numbers and no phase mount.
@@ -70,6 +74,18 @@ travel_deg = [-10.0, 350.0]
 """
 
 
+def deflection_bench():
+    """The demo bench with a kick coupling read through a lens (in memory)."""
+    import tomllib
+
+    from aligner.bench import DEMO_BENCH, parse_bench
+
+    doc = tomllib.loads(DEMO_BENCH.read_text(encoding="utf-8"))
+    doc["coupling"].update(kind="kick", strength=0.5)
+    doc["readout"].update(lens_distance_mm=100.0, lens_focal_mm=250.0)
+    return parse_bench(doc)
+
+
 def row(label: str, value: str, goal: str, ok: bool | None) -> None:
     verdict = "" if ok is None else ("PASS" if ok else "MISS")
     print(f"  {label:<58} {value:>16}   goal {goal:<18} {verdict}")
@@ -103,6 +119,7 @@ def main() -> int:
 
     from aligner.bench import load_bench
     from aligner.planning import plan
+    from aligner.prediction import predict
     from aligner.prediction.reference import reference_prediction
 
     bench = load_bench("demo")
@@ -147,6 +164,18 @@ def main() -> int:
     ratio = t_pypol / t_predict
     row("py-pol (vectorized Mueller), per setting", f"{t_pypol * 1e9:.0f} ns", "", None)
     row("  py-pol / predict", f"{ratio:.0f}x", ">= 1000x", ratio >= 1000)
+
+    small = {k_: v[:k] for k_, v in readings.items()}
+
+    def information() -> object:
+        return predict(bench, small).information_snr_per_sqrt_s
+
+    t_info = best_time(information, 3) / k
+    lensed = deflection_bench()
+    t_lens = best_time(full_prediction(lensed, small), 3) / k
+    print("predict, fields beyond the closed form, per setting (1e4 settings)")
+    row("Cramer-Rao SNR (Fisher information, on request)", f"{t_info * 1e9:.0f} ns", "", None)
+    row("every field, a deflection bench read through a lens", f"{t_lens * 1e9:.0f} ns", "", None)
 
     plan(bench, 40.0)  # imports and the null caches
     times = []

@@ -90,4 +90,7 @@ def test_console_entry_point():
         "detector",
         "limit",
         "snr_per_sqrt_s",
+        "pointer",
+        "snr",
+        "heralded",
     }

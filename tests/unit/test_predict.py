@@ -396,7 +396,32 @@ def test_prediction_block_keys_and_element_angles():
         "detector",
         "limit",
         "snr_per_sqrt_s",
+        "pointer",
+        "snr",
+        "heralded",
     ]
+    assert set(block["pointer"]) == {
+        "sensor",
+        "method",
+        "shift",
+        "spread",
+        "standard_shift",
+        "practical_amplification",
+        "reading_rate",
+        "reading_fraction",
+        "cross_phase_rad",
+    }
+    assert set(block["snr"]) == {
+        "centroid_per_sqrt_s",
+        "information_per_sqrt_s",
+        "both_ports_per_sqrt_s",
+        "standard_centroid_per_sqrt_s",
+        "standard_information_per_sqrt_s",
+        "switched",
+        "dwell_s",
+        "measure_s",
+    }
+    assert block["snr"]["centroid_per_sqrt_s"] == block["snr_per_sqrt_s"]
     assert set(block["weak_value"]) == {"re", "im"}
     assert set(block["amplification"]) == {"linear", "exact"}
     assert set(block["detector"]) == {"rate", "measured_rate", "saturated", "over_safe_rate"}
