@@ -165,7 +165,9 @@ class Reference:
     port, on a detector of its own ``efficiency``: the leak is ``S / (S + R)`` of the two
     ports' photon rates, so drift cancels and no fraction needs calibrating). ``dark_rate``
     (counts/s) and ``dead_time_ns`` (non-paralyzable) belong to the reference detector, not
-    to the post-selected one.
+    to the post-selected one. ``safe_rate`` (counts/s) is the rate the reference detector must
+    never see: required to run a bench whose reference is the other port (that detector sees
+    nearly the whole beam), optional for a monitor; infinite when not stated.
     """
 
     kind: str = "none"
@@ -173,6 +175,7 @@ class Reference:
     dark_rate: float = 0.0
     efficiency: float | None = None
     dead_time_ns: float = 0.0
+    safe_rate: float = INF
 
     @property
     def dead_time_s(self) -> float:
@@ -821,8 +824,8 @@ def _devices(path: str, table: Mapping[str, Any]) -> dict[str, Device]:
 #: The [reference] keys each kind takes besides ``kind``; the first ones listed are required.
 _REFERENCE_KEYS = {
     "none": ((), ()),
-    "monitor": (("fraction",), ("dark_rate", "dead_time_ns")),
-    "port": (("efficiency", "dead_time_ns"), ("dark_rate",)),
+    "monitor": (("fraction",), ("dark_rate", "dead_time_ns", "safe_rate")),
+    "port": (("efficiency", "dead_time_ns"), ("dark_rate", "safe_rate")),
 }
 _REFERENCE_HELP = {
     "fraction": "reference-channel counts per source photon (pick-off share x monitor "
@@ -834,7 +837,7 @@ _REFERENCE_HELP = {
 
 
 def _reference(path: str, table: Mapping[str, Any]) -> Reference:
-    every = ("kind", "fraction", "dark_rate", "efficiency", "dead_time_ns")
+    every = ("kind", "fraction", "dark_rate", "efficiency", "dead_time_ns", "safe_rate")
     r = _Reader(path, "reference", table, every)
     kind = r.text("kind", "monitor" if r.has("fraction") else "none", REFERENCE_KINDS)
     required, optional = _REFERENCE_KEYS[kind]
@@ -855,6 +858,7 @@ def _reference(path: str, table: Mapping[str, Any]) -> Reference:
         dark_rate=r.number("dark_rate", 0.0, minimum=0.0),
         efficiency=r.number("efficiency", above=0.0, maximum=1.0) if kind == "port" else None,
         dead_time_ns=r.number("dead_time_ns", 0.0, minimum=0.0, maximum=1e9),
+        safe_rate=r.number("safe_rate", INF, above=0.0, allow_inf=True),
     )
 
 

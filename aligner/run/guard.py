@@ -306,6 +306,49 @@ class DetectorGuard:
                 f"safe_rate {self.safe_rate:.3g}); the point is refused"
             )
 
+    def reference_rates(self, readings: Mapping[str, float | NDArray[np.float64]]) -> Any:
+        """Predicted rate (counts/s, before dead time) on the reference detector at
+        ``readings``, the worst case over the stated uncertainties: the other port gets what
+        leaves the analyzer and is not post-selected; a monitor its fixed share."""
+        from ..fit.scanmodel import analyzer_input
+        from ..prediction import predict
+
+        ref, rate = self.bench.reference, self.bench.source.photon_rate
+        if ref.kind == "monitor":
+            return np.asarray(rate * (ref.fraction or 0.0) + ref.dark_rate)
+        if ref.kind != "port":
+            return np.asarray(0.0)
+        other = [
+            np.maximum(analyzer_input(b, readings) - predict(b, readings).leak_rate, 0.0)
+            for b in self._benches
+        ]
+        return rate * (ref.efficiency or 0.0) * np.maximum.reduce(other) + ref.dark_rate
+
+    def check_reference_point(self, readings: Mapping[str, float]) -> None:
+        """Refuse to expose the reference detector above ``headroom`` times its safe rate."""
+        ref = self.bench.reference
+        predicted = float(self.reference_rates(readings))
+        if predicted > self.headroom * ref.safe_rate:
+            raise GuardTrip(
+                f"detector guard: the reference detector ([reference] kind = {ref.kind!r}) "
+                f"would see {predicted:.3g} counts/s ({self.basis}), above "
+                f"{self.headroom:g} x its safe_rate {ref.safe_rate:.3g}; attenuate the beam "
+                "or that detector's path; the point is refused"
+            )
+
+    def check_reference_counts(self, counts: int, dwell_s: float) -> None:
+        """``GuardTrip`` when a gate's reference counts mean the reference detector saw more
+        than its safe rate (its own dead time undone)."""
+        from ..physics.detection import true_rate
+
+        ref = self.bench.reference
+        rate = float(true_rate(counts / dwell_s, ref.dead_time_s))
+        if rate > ref.safe_rate:
+            raise GuardTrip(
+                f"detector guard: the reference detector measured {rate:.3g} counts/s, above "
+                f"its safe_rate {ref.safe_rate:.3g}; the shutter is shut and the run stopped"
+            )
+
     def check_counts(self, counts: int, dwell_s: float) -> float:
         """The exposure rate (counts/s) behind a gate's ``counts``; ``GuardTrip`` above
         safe_rate. CW: dead time undone. Pulsed: clicks per pulse inverted to photons per pulse

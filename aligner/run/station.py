@@ -113,6 +113,22 @@ def bench_sha256(bench: Bench) -> str | None:
         return None
 
 
+def _require_limits(bench: Bench) -> None:
+    """Every detector that can see light has a safe rate: the post-selected one always, the
+    reference one when it is the analyzer's other port (it sees nearly the whole beam)."""
+    from ..errors import BenchFileError
+
+    bench.detector.require_safe_rate(bench.path)
+    ref = bench.reference
+    if ref.kind == "port" and not math.isfinite(ref.safe_rate):
+        raise BenchFileError(
+            str(bench.path or "<bench>"),
+            "reference.safe_rate",
+            "is required with kind = 'port': the other port's detector sees nearly the whole "
+            "beam; give the count rate it must never see (counts/s, from its data sheet)",
+        )
+
+
 class Station:
     """A bench and its devices (see the module docstring). Use :meth:`open`; close it (or use
     it as a context manager) to shut the shutter and release the devices."""
@@ -122,7 +138,7 @@ class Station:
     ) -> None:
         from .. import __version__
 
-        bench.detector.require_safe_rate(bench.path)
+        _require_limits(bench)
         self.devices = devices
         self.options = options or StationOptions()
         self.bench = bench
@@ -148,7 +164,7 @@ class Station:
         """Open ``bench``'s devices (command-line ``overrides`` for the counter, shutter and
         pointer: ``{"counter": (spec, profile)}``), shut the shutter and home the mounts that
         need it. ``seed`` seeds the simulated devices (default: the file's, else fresh)."""
-        bench.detector.require_safe_rate(bench.path)
+        _require_limits(bench)
         devices = open_devices(bench, overrides=overrides, realtime=realtime, seed=seed)
         try:
             station = cls(bench, devices, options)
@@ -169,7 +185,7 @@ class Station:
     def use_bench(self, bench: Bench) -> None:
         """Predict and guard with ``bench`` from now on (e.g. the bench a resumed run was
         logged with); its ``safe_rate`` must be stated."""
-        bench.detector.require_safe_rate(bench.path)
+        _require_limits(bench)
         self.bench = bench
         self.guard = self._guard(bench)
 
@@ -320,6 +336,7 @@ class Station:
         over the bench's stated uncertainties) allows it."""
         predicted = float(self.guard.rates(dict(readings)))
         self.guard.check_point(predicted, readings)
+        self.guard.check_reference_point(readings)
         shutter = self.devices.shutter
         if shutter is not None and not shutter.is_open():
             self.attempt("opening the shutter", idx, shutter.open)
@@ -372,6 +389,8 @@ class Station:
         for gate in self.gates(dwell_s):
             counts = counter.count(gate)
             self.guard.check_counts(counts[0], gate)
+            if len(counts) > 1:
+                self.guard.check_reference_counts(counts[1], gate)
             post += counts[0]
             ref += counts[1] if len(counts) > 1 else 0
         has_reference = counter.channels > 1 and self.bench.reference.kind != "none"

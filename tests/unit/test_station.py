@@ -158,3 +158,33 @@ def test_what_a_device_noticed_becomes_an_event(bench):
     notes = [e for e in station.events if e.kind == "device"]
     assert notes and notes[0].idx == 3 and "discarded" in notes[0].message
     station.close()
+
+
+def _port_bench(bench, safe_rate):
+    from aligner.bench import Reference
+
+    port = Reference(kind="port", efficiency=0.6, dead_time_ns=22.0, dark_rate=50.0)
+    return replace(bench, reference=replace(port, safe_rate=safe_rate))
+
+
+def test_the_other_ports_detector_has_its_own_safe_rate(bench):
+    """With the analyzer's other port as reference, that detector sees nearly the whole beam
+    (4e6 photons/s x 0.92 x 0.6 here): a bench without its safe rate is refused, a point it
+    would be blinded at is refused before the shutter opens, and a bright gate stops the run."""
+    from aligner.errors import GuardTrip
+
+    with pytest.raises(BenchFileError, match=r"reference\.safe_rate: is required"):
+        Station.open(_port_bench(bench, float("inf")))
+    readings = bench.readings()
+    station = Station.open(_port_bench(bench, 1e6), seed=7)  # below the ~2.2e6 it would see
+    with pytest.raises(GuardTrip, match="reference detector"):
+        station.expose(readings)
+    assert not station.devices.shutter.is_open()
+    station.close()
+    station = Station.open(_port_bench(bench, 5e6), seed=7)
+    assert float(station.guard.reference_rates(readings)) == pytest.approx(
+        4.0e6 * 0.92 * 0.6, rel=0.02
+    )
+    with pytest.raises(GuardTrip, match="reference detector measured"):
+        station.guard.check_reference_counts(60_000, 0.01)  # 6e6 counts/s
+    station.close()
