@@ -29,6 +29,7 @@ kind = "port"
 efficiency = 0.55
 dead_time_ns = 45.0
 dark_rate = 300.0
+safe_rate = 5.0e6             # the other port sees nearly the whole beam
 
 """
 
