@@ -1,5 +1,6 @@
 """Post-selected counts -> leak rate with its interval, and verdicts against the bench's
-prediction.
+prediction. With a heralded source, coincidences among heralds (--coincidences, --heralds)
+give the leak per heralded photon instead.
 
 Garwood interval for counted rates, Clopper-Pearson for clicks per pulse in pulsed mode; dead
 time and dark counts are corrected bound by bound. A counted reference (the analyzer turned
@@ -45,9 +46,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument(
         "--counts",
         type=number(0, 1e15, integer=True),
-        required=True,
         metavar="N",
-        help="post-selected counts (clicks in pulsed mode)",
+        help="post-selected counts (clicks in pulsed mode); required unless --coincidences",
     )
     p.add_argument(
         "--dwell",
@@ -55,6 +55,37 @@ def register(sub: argparse._SubParsersAction) -> None:
         required=True,
         metavar="S",
         help="gate time (s)",
+    )
+    herald = p.add_argument_group(
+        "heralded source (coincidences of the post-selected detector with the heralds)"
+    )
+    herald.add_argument(
+        "--coincidences",
+        type=number(0, 1e15, integer=True),
+        metavar="K",
+        help="coincidences of the post-selected detector with a herald in the gate",
+    )
+    herald.add_argument(
+        "--heralds", type=number(1, 1e15, integer=True), metavar="N", help="heralds counted"
+    )
+    herald.add_argument(
+        "--signal-singles",
+        type=number(0, 1e15, integer=True),
+        metavar="N",
+        help="all counts of the post-selected detector in the gate (for the accidentals)",
+    )
+    herald.add_argument(
+        "--window-ns",
+        type=number(0, 1e9, low_open=True),
+        metavar="NS",
+        help="coincidence window, total width (default: the bench's coincidence_window_ns)",
+    )
+    herald.add_argument(
+        "--heralding-efficiency",
+        type=number(0, 1, low_open=True),
+        metavar="X",
+        help="coincidences per herald with the analyzer taken out (measured in a long "
+        "reference run)",
     )
     ref = p.add_mutually_exclusive_group()
     ref.add_argument(
@@ -195,6 +226,10 @@ def run(args: argparse.Namespace) -> int:
     from ..fit.counts import Channel, DarkCounts, Gating, measure_leak
     from .common import emit_json, parse_settings
 
+    if args.coincidences is not None:
+        return _heralded(args)
+    if args.counts is None:
+        raise InputError("give --counts N (or --coincidences K with --heralds N)")
     bench = None
     detector, gating, predicted_rate = Channel(), None, None
     readings = parse_settings(args.set)
@@ -304,3 +339,79 @@ def _rows(m: Any) -> list[tuple[str, str]]:
         if m.leak_verdict is not None:
             rows.append(("leak - predicted", format_sigma(m.leak_verdict.residual_sigma)))
     return rows
+
+
+def _heralded(args: argparse.Namespace) -> int:
+    """The leak per heralded photon from coincidences among heralds
+    (:func:`aligner.physics.heralded.heralded_leak`: Clopper-Pearson on the coincidences per
+    herald, the accidental share removed), the weak value it gives, and the prediction."""
+    from ..errors import InputError
+    from ..physics.heralded import accidental_probability, heralded_leak, weak_value_from_leak
+    from .common import emit_json, parse_settings
+    from .fit import print_table
+
+    missing = [
+        flag
+        for flag, value in (
+            ("--heralds", args.heralds),
+            ("--signal-singles", args.signal_singles),
+            ("--heralding-efficiency", args.heralding_efficiency),
+        )
+        if value is None
+    ]
+    if missing:
+        raise InputError(f"--coincidences needs {', '.join(missing)} too")
+    if args.counts is not None or args.reference is not None or args.reference_rate is not None:
+        raise InputError("--coincidences replaces --counts and the reference options")
+    if args.coincidences > min(args.heralds, args.signal_singles):
+        raise InputError(
+            f"--coincidences {args.coincidences} is more than the --heralds or the "
+            "--signal-singles: the counts are swapped or from different gates"
+        )
+    bench = predicted = None
+    window_s = None if args.window_ns is None else args.window_ns * 1e-9
+    if args.bench:
+        from ..bench import load_bench
+        from ..prediction import predict
+
+        bench = load_bench(args.bench)
+        herald = bench.source.herald
+        if herald is None:
+            raise InputError(f"{bench.path}: [source] is not heralded (type = 'heralded')")
+        window_s = window_s or herald.window_s
+        predicted = float(predict(bench, parse_settings(args.set)).leak_rate)
+    if window_s is None:
+        raise InputError("give --window-ns (the coincidence window) or --bench")
+    uncorrelated = max(args.signal_singles - args.coincidences, 0) / args.dwell
+    accidental = float(accidental_probability(uncorrelated, window_s))
+    m = heralded_leak(
+        args.coincidences, args.heralds, accidental, args.heralding_efficiency, args.level
+    )
+    leak, low, high = float(m.leak), float(m.low), float(m.high)
+    doc = {
+        "coincidences": args.coincidences,
+        "heralds": args.heralds,
+        "accidental_probability": accidental,
+        "leak": leak,
+        "leak_low": low,
+        "leak_high": high,
+        "level": args.level,
+        "weak_value_abs": float(weak_value_from_leak(leak)),
+        "predicted_leak": predicted,
+        "bench": None if bench is None else str(bench.path or args.bench),
+    }
+    if args.json:
+        emit_json(doc)
+        return 0
+    rows = [
+        ("coincidences per herald", f"{args.coincidences / args.heralds:.4g}"),
+        ("accidental per herald", f"{accidental:.3g}"),
+        ("leak per heralded photon", f"{leak:.4g}"),
+        (f"{args.level:.1%} interval", f"{low:.4g} to {high:.4g}"),
+        ("|weak value| (pure states, A^2 = 1)", f"{doc['weak_value_abs']:.4g}"),
+    ]
+    if predicted is not None:
+        rows.append(("predicted leak", f"{predicted:.4g}"))
+    notes = ["Clopper-Pearson on coincidences per herald, accidentals removed"]
+    print_table("leak from heralded coincidences", rows, notes)
+    return 0

@@ -229,7 +229,8 @@ class LeakMeasurement:
     reference. ``mean_photons_per_pulse`` and ``mean_photons_given_click`` only in pulsed
     mode. ``rate_verdict`` compares the signal rate with ``predicted_rate``, ``leak_verdict``
     the leak with ``predicted_leak`` (same units as ``leak``); each uses half the interval on
-    the side of the prediction as the error. ``warnings`` are safety warnings.
+    the side of the prediction as the error. ``warnings`` are safety warnings and data that
+    cannot be right (a leak above 1).
     """
 
     counts: int
@@ -586,6 +587,12 @@ def measure_leak(
     else:
         method = s.method
     leak = fields.get("leak")
+    if leak is not None and fields["leak_low"] > 1.0:
+        warnings.append(
+            f"the leak rate is {leak:.4g}, above 1 beyond its interval: more light in the "
+            "post-selected port than the reference says there is; are the counts and the "
+            "reference swapped, or is the reference kind wrong?"
+        )
     return LeakMeasurement(
         counts=k,
         dwell_s=t,

@@ -2,6 +2,8 @@
 
 import json
 
+import pytest
+
 from aligner.cli import main
 
 
@@ -98,3 +100,27 @@ def test_leak_table_shows_dead_time_and_dark_rows(capsys):
     assert "raw rate" in out and "after dead-time correction (50 ns)" in out
     assert "1.053e+06" in out and "dark rate subtracted" in out
     assert "-0.0 sigma" not in out
+
+
+def test_swapped_counts_give_a_leak_above_one_and_a_warning(capsys):
+    assert main(["leak", "--counts", "5000", "--dwell", "1", "--reference", "100", "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["leak"] > 1 and any("swapped" in w for w in doc["warnings"])
+
+
+def test_heralded_coincidences_give_the_leak_per_heralded_photon(capsys):
+    """Each herald is a trial: p = 1 - (1 - eta P)(1 - a), a = 1 - exp(-R_u T_c) (the
+    accidental formula of physics.md, common practice); the leak inverts it."""
+    import math
+
+    argv = ["leak", "--dwell", "10", "--coincidences", "400", "--heralds", "100000"]
+    argv += ["--signal-singles", "2000", "--window-ns", "2", "--heralding-efficiency", "0.3"]
+    assert main([*argv, "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    a = 1 - math.exp(-(2000 - 400) / 10 * 2e-9)
+    assert doc["accidental_probability"] == pytest.approx(a)
+    assert doc["leak"] == pytest.approx((400 / 1e5 - a) / (1 - a) / 0.3)
+    assert doc["leak_low"] < doc["leak"] < doc["leak_high"]
+    assert doc["weak_value_abs"] == pytest.approx(math.sqrt(1 / doc["leak"] - 1))
+    assert main([*argv[:3], "--coincidences", "400", "--heralds", "100"]) == 2
+    assert "--signal-singles" in capsys.readouterr().err
