@@ -107,19 +107,24 @@ def fit_coupling(
     """Fit ``g`` to pointer readings (see the module docstring); ``mount`` defaults to the
     bench's imbalance mount. ``readings`` (deg, one value or one per point) gives the other
     mounts where they were (a run's read-backs); default: the bench file's readings."""
+    from ..prediction import predict
+
     name = require_mount(bench, mount, bench.imbalance_mount, "coupling", scan)
     c = bench.coupling
-    fwd = forward(bench, {**(readings or {}), name: scan.reading_deg})
+    at = {**(readings or {}), name: scan.reading_deg}
+    fwd = forward(bench, at)
     a = coupling_observable(bench)
     momentum = c.readout == "momentum"
+    # a pointer read from the counted events is diluted by the dark counts among them
+    fraction = np.asarray(predict(bench, at).reading_fraction, float)
 
     def model(theta: np.ndarray) -> np.ndarray:
         g = np.atleast_2d(theta)[:, 0:1]
         r = pointer_response(fwd.rho, fwd.effect, a, g, c.pointer_sigma)
-        return r.momentum if momentum else r.position
+        return fraction * (r.momentum if momentum else r.position)
 
     wv = weak_value(fwd.rho, fwd.effect, a)
-    x = np.imag(wv) / (2 * c.pointer_sigma**2) if momentum else np.real(wv)
+    x = fraction * (np.imag(wv) / (2 * c.pointer_sigma**2) if momentum else np.real(wv))
     w = 1 / scan.pointer_err**2
     info = float(np.sum(w * x * x))
     if not info > 0:

@@ -564,27 +564,33 @@ def _leak_curve(bench: Bench, record: RunRecord, points: Sequence[LoggedPoint]) 
         return None, f"leak curve not fitted ({exc})"
 
 
-def _predicted_at(pred: Any, i: int) -> tuple[float, float, float, float]:
-    """The prediction at point ``i``: exact shift, linear and exact amplification, leak."""
+def _predicted_at(pred: Any, i: int) -> tuple[float, float, float, float, float]:
+    """The prediction at point ``i``: exact shift as the sensor reads it, linear and exact
+    amplification, leak, and the share of the read events that carry the shift."""
+    fraction = float(pred.reading_fraction[i])
     return (
-        float(pred.pointer_shift[i]),
+        float(pred.pointer_shift[i]) * fraction,
         float(pred.amplification_linear[i]),
         float(pred.amplification_exact[i]),
         float(pred.leak_rate[i]),
+        fraction,
     )
 
 
 def _point(
     p: LoggedPoint,
     imbalance: float,
-    predicted: tuple[float, float, float, float],
+    predicted: tuple[float, float, float, float, float],
     g: float,
     scale: float,
     bench: Bench,
 ) -> PointResult:
     """One logged point against its prediction; ``g`` is the coupling the measured
-    amplification divides by, ``scale`` the readout's units per position unit."""
-    exact, linear, amp_exact, leak = predicted
+    amplification divides by, ``scale`` the readout's units per position unit. Shifts are as
+    the sensor reads them (a counter-read pointer diluted by dark counts); the measured
+    amplification undoes the dilution, so it compares with the weak value."""
+    exact, linear, amp_exact, leak, fraction = predicted
+    g = g * fraction
     shift, err = p.pointer, p.pointer_err
     measured = shift is not None and err is not None and err > 0
     return PointResult(
@@ -593,7 +599,7 @@ def _point(
         imbalance_deg=imbalance,
         pointer=shift,
         pointer_err=err,
-        linear_shift=bench.coupling.strength * scale * linear,
+        linear_shift=bench.coupling.strength * scale * linear * fraction,
         exact_shift=exact,
         amplification=shift / (g * scale) if measured and shift is not None else None,
         amplification_err=abs(err / (g * scale)) if measured and err is not None else None,

@@ -220,12 +220,14 @@ class SimBench:
         return counts
 
     def draw_pointer(self, dwell_s: float) -> tuple[float, float]:
-        """Pointer reading (mean, standard error) in the readout's units: the shot noise of the
-        counted photons (spread sigma, or 1/(2 sigma) for a momentum readout) and the technical
+        """Pointer reading (mean, standard error) in the readout's units, as the bench's sensor
+        reads it: the mean shift times the share of read events that carry it (a pointer read
+        from the counted events is diluted by dark counts; a camera is not), the shot noise of
+        the events read (the exact post-selected spread over their number) and the technical
         jitter, ``jitter_rms`` after 1 s, falling as 1/sqrt(dwell)."""
         p = self.expected()
         c = self.truth.coupling
-        photons = max(float(p.measured_rate) * dwell_s, 1.0)
-        spread = 1 / (2 * c.pointer_sigma) if c.readout == "momentum" else c.pointer_sigma
-        sem = math.sqrt(spread**2 / photons + c.jitter_rms**2 / dwell_s)
-        return float(p.pointer_shift) + float(self.rng.normal(0.0, sem)), sem
+        events = max(float(p.reading_rate) * dwell_s, 1.0)
+        mean = float(p.pointer_shift) * float(p.reading_fraction)
+        sem = math.sqrt(float(p.pointer_spread) ** 2 / events + c.jitter_rms**2 / dwell_s)
+        return mean + float(self.rng.normal(0.0, sem)), sem

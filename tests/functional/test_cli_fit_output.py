@@ -60,6 +60,7 @@ def test_waveplate_fit_refuses_a_scan_of_another_mount(tmp_path, capsys):
 def test_coupling_table_compares_with_the_bench_file(tmp_path, capsys):
     from aligner.model import coupling_observable, forward
     from aligner.physics.weak import pointer_response
+    from aligner.prediction import predict
 
     bench = load_bench("demo")
     r = np.linspace(135.3, 137.0, 18)
@@ -71,6 +72,8 @@ def test_coupling_table_compares_with_the_bench_file(tmp_path, capsys):
         bench.coupling.strength,
         bench.coupling.pointer_sigma,
     ).position
+    # the demo reads its pointer from the counted events: dark counts dilute the shift
+    q = q * np.asarray(predict(bench, {"analyzer": r}).reading_fraction)
     err = 1e-2 * float(np.max(np.abs(q)))
     csv = tmp_path / "p.csv"
     csv.write_text(

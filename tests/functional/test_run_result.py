@@ -31,6 +31,9 @@ strength = {G}
 units = "um"
 jitter_rms = 0.05
 
+[readout]
+sensor = "camera"             # a separate sensor: the closed forms apply without dilution
+
 [analyzer]
 mount = "analyzer"
 

@@ -120,16 +120,38 @@ def test_coupling_fit_exact_versus_linear():
     # formula d<q> = g Re A_w (Jozsa, Phys. Rev. A 76, 044103 (2007)) does not.
     from dataclasses import replace
 
-    strong = replace(TRUTH, coupling=replace(TRUTH.coupling, strength=60.0))
+    camera = replace(TRUTH, readout=replace(TRUTH.readout, sensor="camera"))  # undiluted reading
+    strong = replace(camera, coupling=replace(TRUTH.coupling, strength=60.0))
     readings = np.linspace(135.3, 137.0, 18)
     fwd = forward(strong, {"analyzer": readings})
     q = pointer_response(fwd.rho, fwd.effect, coupling_observable(strong), 60.0, 250.0).position
     err = np.full(q.shape, 0.5)
     y = q + np.random.default_rng(1).normal(0, 0.5, q.shape)
-    bench = replace(TRUTH, coupling=replace(TRUTH.coupling, strength=50.0))
+    bench = replace(camera, coupling=replace(TRUTH.coupling, strength=50.0))
     fit = fit_coupling(bench, PointerScan(readings, y, err, "sim"))
     assert abs(fit.strength - 60.0) < 4 * fit.strength_err
     assert abs(fit.linear_bias_sigma) > 3 and "biased" in fit.statement
+
+
+def test_coupling_fit_of_a_pointer_read_from_the_counts_undoes_the_dark_count_dilution():
+    """Read from the counted events, the mean reading is the signal photons' shift times
+    their share S / (S + D) of the events (dark counts carry no shift; common practice, no
+    source): S = photon rate x leak x efficiency with no dead time."""
+    from dataclasses import replace
+
+    from aligner.prediction import predict
+
+    bench = replace(TRUTH, detector=replace(TRUTH.detector, dead_time_ns=0.0, dark_rate=400.0))
+    readings = np.linspace(135.3, 137.0, 18)
+    at = {"analyzer": readings}
+    fwd = forward(bench, at)
+    c = bench.coupling
+    q = pointer_response(fwd.rho, fwd.effect, coupling_observable(bench), c.strength, 250.0)
+    signal = bench.source.photon_rate * np.asarray(predict(bench, at).leak_rate) * 0.62
+    diluted = q.position * signal / (signal + 400.0)
+    assert np.all(signal / (signal + 400.0) < 0.95)  # a dilution the fit must see
+    fit = fit_coupling(bench, PointerScan(readings, diluted, np.full(18, 1e-4), "sim"))
+    assert fit.strength == pytest.approx(c.strength, rel=1e-4)
 
 
 def test_dead_time_and_pulsed_inversions_round_trip():

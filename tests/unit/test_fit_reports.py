@@ -159,15 +159,16 @@ def test_plain_scan_states_the_assumed_mount(tmp_path):
 def test_coupling_fit_is_compared_with_the_bench_strength():
     # exact pointer response (pointer_response, checked against physics.md elsewhere) at a
     # strength 10 % above the file's: the difference in sigma is (fit - file) / error.
+    camera = replace(BENCH, readout=replace(BENCH.readout, sensor="camera"))  # undiluted reading
     g = BENCH.coupling.strength * 1.1
     readings = np.linspace(135.3, 137.0, 18)
-    fwd = forward(BENCH, {"analyzer": readings})
+    fwd = forward(camera, {"analyzer": readings})
     c = BENCH.coupling
     q = pointer_response(
-        fwd.rho, fwd.effect, coupling_observable(BENCH), g, c.pointer_sigma
+        fwd.rho, fwd.effect, coupling_observable(camera), g, c.pointer_sigma
     ).position
     err = np.full(q.shape, 1e-3 * float(np.max(np.abs(q))))
-    fit = fit_coupling(BENCH, PointerScan(readings, q, err, "sim"))
+    fit = fit_coupling(camera, PointerScan(readings, q, err, "sim"))
     assert fit.strength == pytest.approx(g, rel=1e-4)
     assert fit.bench_strength == c.strength
     assert fit.bench_difference_sigma == pytest.approx(
