@@ -103,24 +103,21 @@ class _Formatter(argparse.HelpFormatter):
         return "\n\n".join(out)
 
 
-def number(
-    low: float, high: float, *, integer: bool = False, low_open: bool = False
-) -> Callable[[str], float]:
-    """An argparse ``type`` for a number in ``[low, high]`` (``(low, high]`` with
-    ``low_open``; whole numbers with ``integer``); the error states the allowed range."""
+def number(low: float, high: float, *, integer: bool = False) -> Callable[[str], float]:
+    """An argparse ``type`` for a number in ``[low, high]`` (whole numbers with ``integer``);
+    the error states the allowed range."""
 
     def shown(x: float) -> str:
         return str(int(x)) if integer else f"{x:g}"
 
     def convert(text: str) -> float:
         what = "a whole number" if integer else "a number"
-        start = "above" if low_open else "from"
-        bound = f"{start} {shown(low)} {'up ' if low_open else ''}to {shown(high)}"
+        bound = f"from {shown(low)} to {shown(high)}"
         try:
             value: float = int(text) if integer else float(text)
         except ValueError:
             raise argparse.ArgumentTypeError(f"{text!r} is not {what} ({bound})") from None
-        inside = (low < value if low_open else low <= value) and value <= high
+        inside = low <= value <= high
         if not (math.isfinite(value) and inside):
             raise argparse.ArgumentTypeError(f"{text} is outside the allowed range ({bound})")
         return value

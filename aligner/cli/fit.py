@@ -66,7 +66,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument(
         "--dwell",
-        type=number(0, 1e6, low_open=True),
+        type=number(1e-6, 1e6),
         metavar="S",
         help="gate time (s) when the file has no dwell_s column",
     )
@@ -184,7 +184,12 @@ ROWS: dict[str, tuple[tuple[str, str, str | None, str], ...]] = {
     ),
     "leak": (
         ("imbalance offset", "imbalance_offset_deg", "imbalance_offset_err_deg", "deg"),
-        ("leak floor (fraction of bright)", "leak_floor", "leak_floor_err", ""),
+        (
+            "leak floor (over the analyzer turned to transmission)",
+            "leak_floor",
+            "leak_floor_err",
+            "",
+        ),
         ("implied extinction", "implied_extinction", None, ""),
         ("bench file's predicted floor", "predicted_floor", None, ""),
     ),

@@ -51,7 +51,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument(
         "--dwell",
-        type=number(0, 1e6, low_open=True),
+        type=number(1e-6, 1e6),
         required=True,
         metavar="S",
         help="gate time (s)",
@@ -76,13 +76,13 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     herald.add_argument(
         "--window-ns",
-        type=number(0, 1e9, low_open=True),
+        type=number(1e-3, 1e9),
         metavar="NS",
         help="coincidence window, total width (default: the bench's coincidence_window_ns)",
     )
     herald.add_argument(
         "--heralding-efficiency",
-        type=number(0, 1, low_open=True),
+        type=number(1e-6, 1),
         metavar="X",
         help="coincidences per herald with the analyzer taken out (measured in a long "
         "reference run)",
@@ -93,13 +93,13 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     ref.add_argument(
         "--reference-rate",
-        type=number(0, 1e15, low_open=True),
+        type=number(1e-6, 1e15),
         metavar="R",
         help="full-transmission count rate (counts/s, same detector)",
     )
     p.add_argument(
         "--reference-dwell",
-        type=number(0, 1e6, low_open=True),
+        type=number(1e-6, 1e6),
         metavar="S",
         help="gate of the reference counts (default: --dwell)",
     )
@@ -112,7 +112,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument(
         "--relative-efficiency",
-        type=number(0, 1e6, low_open=True),
+        type=number(1e-6, 1e6),
         metavar="X",
         help="without --bench: efficiency of the post-selected detector over the reference's "
         "(a monitor: over its counts per source photon); default 1",
@@ -132,7 +132,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument(
         "--dark-dwell",
-        type=number(0, 1e6, low_open=True),
+        type=number(1e-6, 1e6),
         metavar="S",
         help="gate of the dark counts (default: --dwell)",
     )
@@ -144,7 +144,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument(
         "--rep-rate",
-        type=number(0, 1e12, low_open=True),
+        type=number(1, 1e12),
         metavar="HZ",
         help="pulsed mode: repetition rate (default: the bench's in pulsed mode)",
     )

@@ -51,22 +51,6 @@ def register(sub: argparse._SubParsersAction) -> None:
     add_json_flag(rescue)
 
 
-def _run_json(r: Any) -> dict[str, Any]:
-    return {
-        "id": r.id,
-        "kind": r.kind,
-        "status": r.status,
-        "data": r.data_label,
-        "points": r.points,
-        "planned": r.planned,
-        "bench": r.bench_name,
-        "schedule": r.schedule,
-        "started_utc": r.started_utc,
-        "ended_utc": r.ended_utc,
-        "message": r.message,
-    }
-
-
 def _show_recipe(console: Any, log: Any, run_id: int, as_json: bool) -> None:
     """``log show`` of a recipe run: its header, devices, every step and the events."""
     from ..recipe.report import step_lines
@@ -79,11 +63,11 @@ def _show_recipe(console: Any, log: Any, run_id: int, as_json: bool) -> None:
     if as_json:
         emit_json(
             {
-                **_run_json(record),
+                **record.to_json(),
                 "recipe": {"name": recipe.name, "path": recipe.path, "steps": recipe.steps},
                 "provenance": record.provenance,
                 "steps": [row.outcome for row in steps],
-                "events": [e.__dict__ for e in events],
+                "events": [e.to_json() for e in events],
             }
         )
         return
@@ -118,7 +102,7 @@ def run(args: argparse.Namespace) -> int:
         if args.action == "list":
             runs = log.runs()
             if args.json:
-                emit_json({"db": str(log.path), "runs": [_run_json(r) for r in runs]})
+                emit_json({"db": str(log.path), "runs": [r.to_json() for r in runs]})
                 return 0
             table = Table(title=f"runs in {safe_text(log.path)}")
             for column in ("run", "status", "data", "points", "schedule", "bench", "started"):
@@ -145,10 +129,10 @@ def run(args: argparse.Namespace) -> int:
             if args.json:
                 emit_json(
                     {
-                        **_run_json(record),
+                        **record.to_json(),
                         "provenance": record.provenance,
-                        "points_detail": [p.__dict__ for p in points],
-                        "events": [e.__dict__ for e in events],
+                        "points": [p.to_json() for p in points],
+                        "events": [e.to_json() for e in events],
                         "result": None if result is None else result.to_json(),
                         "result_note": why,
                     }

@@ -24,14 +24,14 @@ def register(sub: argparse._SubParsersAction) -> None:
     add_device_arguments(p, ("counter", "shutter"))
     p.add_argument(
         "--dwell",
-        type=number(0, 600, low_open=True),
+        type=number(1e-3, 600),
         default=0.2,
         metavar="S",
         help="gate per point (s; default 0.2, at most 600)",
     )
     p.add_argument(
         "--span",
-        type=number(0, 90, low_open=True),
+        type=number(1e-3, 90),
         default=2.0,
         metavar="DEG",
         help="half-width of the coarse scan (deg; narrowed to keep the detector dark)",

@@ -8,7 +8,7 @@ import argparse
 import math
 from typing import Any
 
-from .common import add_bench_argument, emit_json, laser_safety
+from .common import add_bench_argument, emit_json, laser_safety, number
 
 SAFETY = laser_safety("check the expected detector rate before exposing a single-photon detector.")
 
@@ -33,14 +33,14 @@ def register(sub: argparse._SubParsersAction) -> None:
     target = parser.add_mutually_exclusive_group(required=True)
     target.add_argument(
         "--amplification",
-        type=float,
+        type=number(1e-3, 1e6),
         metavar="X",
-        help="size of the amplification (both signs are offered as branches)",
+        help="size of the amplification, 0.001 to 1e6 (both signs are offered as branches)",
     )
     target.add_argument("--weak-value", metavar="RE,IM", help="complex weak value, e.g. 20,-5")
     target.add_argument(
         "--leak-rate",
-        type=float,
+        type=number(1e-15, 1),
         metavar="P",
         help="post-selection probability per source photon, in (0, 1]",
     )
@@ -65,7 +65,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     parser.add_argument(
         "--branch",
-        type=int,
+        type=number(0, 10_000, integer=True),
         metavar="N",
         help="use branch N (a row of the branch table: a distinct optical "
         "setting, at its reading nearest the current one) instead of the "
@@ -73,10 +73,11 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     parser.add_argument(
         "--samples",
-        type=int,
+        type=number(0, 10_000_000, integer=True),
         default=100_000,
         metavar="N",
-        help="Monte Carlo samples of the tolerance budget (0 skips it; default 100000)",
+        help="Monte Carlo samples of the tolerance budget (0 skips it; default 100000; at most "
+        "1e7)",
     )
     parser.add_argument(
         "--json",

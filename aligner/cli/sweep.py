@@ -49,9 +49,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     parser.add_argument(
         "--dwell",
         metavar="S",
-        type=number(0, 3600, low_open=True),
+        type=number(1e-3, 3600),
         default=1.0,
-        help="count time per point, s (default 1; at most 3600)",
+        help="count time per point, s (default 1; 0.001 to 3600)",
     )
     parser.add_argument(
         "--settle",
@@ -175,7 +175,7 @@ def run(args: argparse.Namespace) -> int:
                 **result.to_json(),
                 "db": str(db_path),
                 "data": record.data_label,
-                "points": [_point_json(p) for p in points],
+                "points": [p.to_json() for p in points],
             }
         )
     else:
@@ -227,27 +227,6 @@ class _Progress:
         self.bar.console.print(_line(point, done, total, self.mount))
         self.bar.update(self.task, completed=done)
         sys.stdout.flush()
-
-
-def _point_json(p: Any) -> dict[str, Any]:
-    return {
-        "index": p.idx,
-        "target": p.target,
-        "reading_deg": p.reading_deg,
-        "readback": p.readback,
-        "counts": p.counts,
-        "reference": p.reference,
-        "dwell_s": p.dwell_s,
-        "leak": p.leak,
-        "leak_lo": p.leak_lo,
-        "leak_hi": p.leak_hi,
-        "flag": p.flag,
-        "predicted_leak": p.predicted_leak,
-        "predicted_rate": p.predicted_rate,
-        "imbalance_deg": p.imbalance_deg,
-        "pointer": p.pointer,
-        "pointer_err": p.pointer_err,
-    }
 
 
 def _summary(

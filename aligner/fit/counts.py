@@ -437,11 +437,19 @@ def _pulsed_signal(
     """Pulsed signal rate ``eta mu R`` (Clopper-Pearson on clicks per pulse, mapped through
     the pulsed dead time and the click-probability inversion)."""
     rep = _positive(g.rep_rate_hz, "rep_rate_hz")
+    if k > rep * t:
+        raise ParameterError(
+            "counts",
+            f"= {k} is more than the {rep * t:.6g} pulses in the gate (one click per "
+            "pulse at most): check the repetition rate and the gate time",
+        )
     tau = c.dead_time_s
     p_dark = p_floor = float(g.dark_probability)
     if dark is not None:
         kd = _whole(dark.counts, "dark")
         gates = rep * _positive(dark.dwell_s if dark.dwell_s is not None else t, "dark_dwell_s")
+        if kd > gates:
+            raise ParameterError("dark", f"= {kd} is more than the {gates:.6g} pulses of its gate")
         p_dark, p_floor = kd / gates, float(garwood(kd, level)[0]) / gates
 
     def signal(clicks: np.ndarray, dark_level: float) -> np.ndarray:

@@ -87,15 +87,34 @@ def _check(path: str, row: int, name: str, text: str, spec: Column) -> float:
     return value
 
 
+#: Most data rows a scan may have (a scan of a mount rarely has more than a few thousand), and
+#: most characters a field may hold: a bigger file is refused before it is held in memory.
+MAX_ROWS = 100_000
+MAX_FIELD = 1_000
+
+
 def _read_table(path: str | Path) -> tuple[str, list[str], list[list[str]]]:
     """The file's name, its header row (stripped cells) and its non-empty data rows; lines
     starting with ``#`` (e.g. the header comments of ``aligner log export``) and a byte-order
-    mark are skipped."""
+    mark are skipped; more than :data:`MAX_ROWS` rows are refused."""
     name = str(path)
+    rows: list[list[str]] = []
     try:
         with open(path, newline="", encoding="utf-8-sig") as handle:
             lines = (line for line in handle if not line.lstrip().startswith("#"))
-            rows = [r for r in csv.reader(lines) if any(cell.strip() for cell in r)]
+            for row in csv.reader(lines):
+                if any(len(cell) > MAX_FIELD for cell in row):
+                    raise DataFileError(
+                        f"{name}: row {len(rows) + 1} has a field longer than {MAX_FIELD} "
+                        "characters; is this a CSV scan?"
+                    )
+                if any(cell.strip() for cell in row):
+                    rows.append(row)
+                if len(rows) > MAX_ROWS + 1:
+                    raise DataFileError(
+                        f"{name}: more than {MAX_ROWS:,} data rows; split the scan (a mount "
+                        "scan has at most a few thousand points)"
+                    )
     except FileNotFoundError:
         raise DataFileError(f"{name}: file not found (give the path of a CSV file)") from None
     except (OSError, UnicodeDecodeError, csv.Error) as exc:
@@ -140,6 +159,12 @@ def _columns(
                 )
             values.append(_check(name, number, key, row[index], spec))
         out[key] = np.array(values)
+    readings = out.get("reading_deg")
+    if readings is not None and readings.size and np.ptp(readings) == 0:
+        raise DataFileError(
+            f"{name}: every reading_deg is {readings[0]:g}: the mount did not move, so the scan "
+            "says nothing a fit could use; check the mount and its driver"
+        )
     return out
 
 

@@ -50,8 +50,9 @@ __all__ = ["LeakFit", "fit_leak_curve"]
 @dataclass(frozen=True)
 class LeakFit:
     """Result of :func:`fit_leak_curve`: ``imbalance_offset_deg`` (deg), ``leak_floor``
-    (fraction of the bright rate), the implied extinction ``1/leak_floor``, the bench's
-    predicted floor and the verdict comparing them (in ``ln`` of the floor)."""
+    (over the rate with the analyzer turned to transmission), the implied extinction
+    ``1/leak_floor``, the bench's predicted floor and the verdict comparing them (in ``ln`` of
+    the floor)."""
 
     mount: str
     imbalance_offset_deg: float

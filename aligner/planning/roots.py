@@ -152,7 +152,8 @@ def _ray_directions(
     goal = 1.0 / values
     dx = np.einsum("kij,kj->ki", np.linalg.pinv(jac), np.stack([goal.real, goal.imag], -1))
     dist = np.linalg.norm(dx, axis=-1)
-    return dx / dist[:, None], dist
+    # no direction where the target needs no move (or the null's Jacobian vanishes)
+    return dx / np.where(dist > 0, dist, 1.0)[:, None], dist
 
 
 def _polish(

@@ -17,7 +17,7 @@ Tables:
     or a guard's equivalent reading) / ``readback_json`` (mount -> reading, deg),
     ``reading_deg`` (read-back of the imbalance mount, deg), ``counts`` (post-selected),
     ``reference`` (reference port, NULL with one channel), ``dwell_s``, ``leak`` / ``leak_lo`` /
-    ``leak_hi`` (measured leak rate per incident photon and its interval; NULL when the counts
+    ``leak_hi`` (measured leak rate per source photon and its interval; NULL when the counts
     give none, ``flag`` then says why), ``predicted_leak``,
     ``predicted_rate`` (counts/s at the read-back readings, dead time included),
     ``imbalance_deg`` (predicted at the read-back), ``pointer`` / ``pointer_err`` (pointer
@@ -215,6 +215,10 @@ class Event:
     idx: int | None = None
     t_utc: str = ""
 
+    def to_json(self) -> dict[str, Any]:
+        """The event as JSON (``index``: the point it belongs to, or null)."""
+        return {"kind": self.kind, "message": self.message, "index": self.idx, "t_utc": self.t_utc}
+
 
 @dataclass(frozen=True)
 class LoggedPoint:
@@ -240,6 +244,31 @@ class LoggedPoint:
     started_utc: str
     ended_utc: str
     flag: str = ""
+
+    def to_json(self) -> dict[str, Any]:
+        """The point as JSON, with the names every output uses (docs/json.md): ``index``,
+        ``leak_low`` / ``leak_high`` for the interval."""
+        return {
+            "index": self.idx,
+            "target": self.target,
+            "commanded": dict(self.commanded),
+            "readback": dict(self.readback),
+            "reading_deg": self.reading_deg,
+            "counts": self.counts,
+            "reference": self.reference,
+            "dwell_s": self.dwell_s,
+            "leak": self.leak,
+            "leak_low": self.leak_lo,
+            "leak_high": self.leak_hi,
+            "flag": self.flag,
+            "predicted_leak": self.predicted_leak,
+            "predicted_rate": self.predicted_rate,
+            "imbalance_deg": self.imbalance_deg,
+            "pointer": self.pointer,
+            "pointer_err": self.pointer_err,
+            "started_utc": self.started_utc,
+            "ended_utc": self.ended_utc,
+        }
 
 
 @dataclass(frozen=True)
@@ -270,6 +299,24 @@ class RunRecord:
     def planned(self) -> int:
         """Number of planned points."""
         return len(self.plan)
+
+    def to_json(self) -> dict[str, Any]:
+        """The run's header as JSON (``points_done`` of ``points_total``; the points
+        themselves are listed under ``points`` where a command gives them)."""
+        return {
+            "run": self.id,
+            "kind": self.kind,
+            "status": self.status,
+            "data": self.data_label,
+            "points_done": self.points,
+            "points_total": self.planned,
+            "bench": self.bench_name,
+            "bench_path": self.bench_path,
+            "schedule": self.schedule,
+            "started_utc": self.started_utc,
+            "ended_utc": self.ended_utc,
+            "message": self.message,
+        }
 
     @property
     def device_kinds(self) -> frozenset[str]:

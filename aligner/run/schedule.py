@@ -35,7 +35,11 @@ FORMS: Mapping[str, tuple[str, str]] = {
     "list": ("imbalance_deg", "list:V1,V2,...  explicit imbalances (deg)"),
     "outback": ("imbalance_deg", "outback:START:STOP:N  N imbalances out, then the same back"),
 }
-MAX_POINTS = 100_000
+#: Most points one run may plan (all passes), so a typo cannot start a run of days.
+MAX_POINTS = 10_000
+#: Allowed size of a schedule's values: amplifications, and imbalances (deg).
+AMPLIFICATION_RANGE = (1e-3, 1e6)
+IMBALANCE_LIMIT_DEG = 90.0
 
 
 @dataclass(frozen=True)
@@ -116,11 +120,14 @@ def parse_schedule(
         if not items:
             raise _error(spec, "expected at least one value after list:")
         targets = [_number(spec, t.strip(), "value") for t in items]
+        if len(targets) > MAX_POINTS:
+            raise _error(spec, f"{len(targets)} values is more than {MAX_POINTS}")
     else:
         start, stop, n = _range(spec, rest.split(":"))
         if form == "amplification":
-            if start <= 0 or stop <= 0:
-                raise _error(spec, "amplifications must be > 0 for log spacing")
+            low, high = AMPLIFICATION_RANGE
+            if not (low <= start <= high and low <= stop <= high):
+                raise _error(spec, f"amplifications must be from {low:g} to {high:g}")
             targets = np.geomspace(start, stop, n).tolist()
         else:
             targets = np.linspace(start, stop, n).tolist()
@@ -128,6 +135,10 @@ def parse_schedule(
                 targets = targets + targets[::-1]
     if len(targets) * repeats > MAX_POINTS:
         raise _error(spec, f"{len(targets) * repeats} points is more than {MAX_POINTS}")
+    if form != "amplification" and any(abs(t) > IMBALANCE_LIMIT_DEG for t in targets):
+        raise _error(
+            spec, f"imbalances must be from -{IMBALANCE_LIMIT_DEG:g} to {IMBALANCE_LIMIT_DEG:g} deg"
+        )
     return Schedule(
         spec.strip(),
         form,

@@ -31,7 +31,7 @@ def test_typos_are_named_with_a_suggestion(capsys, argv, words):
     ("argv", "words"),
     [
         (["sweep", "demo", "--schedule", "list:1", "--seed", "-1"], "--seed: -1 is outside"),
-        (["sweep", "demo", "--schedule", "list:1", "--dwell", "inf"], "(above 0 up to 3600)"),
+        (["sweep", "demo", "--schedule", "list:1", "--dwell", "inf"], "(from 0.001 to 3600)"),
         (["sweep", "demo", "--schedule", "list:1", "--settle", "1e10"], "(from 0 to 600)"),
         (["log", "show", str(2**63)], "(from 1 to 9223372036854775807)"),
         (["null", "demo", "--points", "1e7"], "--points: '1e7' is not a whole number"),

@@ -55,11 +55,11 @@ def test_export_csv_has_the_issue_columns(db, tmp_path):
         "counts",
         "reference",
         "leak",
-        "leak_lo",
-        "leak_hi",
+        "leak_low",
+        "leak_high",
         "predicted_leak",
     } <= set(rows[0])
-    assert all(float(r["leak_lo"]) <= float(r["leak"]) <= float(r["leak_hi"]) for r in rows)
+    assert all(float(r["leak_low"]) <= float(r["leak"]) <= float(r["leak_high"]) for r in rows)
     # the export reads back as a count scan for the fits
     from aligner.fit.csvdata import load_count_scan
 
