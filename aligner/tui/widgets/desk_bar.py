@@ -1,33 +1,34 @@
-"""The top bar: the bench's name and the four screens, the current one marked."""
+"""The top bar: the screens with their keys (the current one marked), then the bench's name."""
 
 from __future__ import annotations
+
+from collections.abc import Sequence
+from typing import Any
 
 from rich.text import Text
 from textual.widgets import Static
 
-__all__ = ["SCREENS", "DeskBar"]
+from ..format import literal
 
-#: (mode name, key, label) in the order the bar shows them.
-SCREENS = (
-    ("bench", "F1", "Bench"),
-    ("plan", "F2", "Plan"),
-    ("sweep", "F3", "Sweep"),
-    ("log", "F4", "Log"),
-)
+__all__ = ["DeskBar"]
 
 
 class DeskBar(Static):
-    """``aligner desk · <bench> ·  F1 Bench  F2 Plan ...`` with the current screen marked."""
+    """``F2 Bench  F3 Plan … · <bench>`` with the current screen marked; the screens come
+    first so that none falls off a narrow terminal (the name wraps to a second line)."""
 
-    def __init__(self, bench_name: str, current: str) -> None:
+    def __init__(self, screens: Sequence[Any], bench_name: str, current: str) -> None:
         super().__init__(classes="desk-bar")
+        self.screens = tuple(screens)
         self.bench_name = bench_name
         self.current = current
 
     def on_mount(self) -> None:
-        text = Text.assemble(("aligner desk", "bold"), " · ", (self.bench_name, "italic"), "   ")
-        for mode, key, label in SCREENS:
-            style = "reverse bold" if mode == self.current else "dim"
-            text.append(f" {key} {label} ", style=style)
+        text = Text()
+        for s in self.screens:
+            style = "reverse bold" if s.mode == self.current else ""
+            text.append(f"{s.key.upper()} {s.label}", style=style)
             text.append(" ")
+        text.append("· F1 Help · ", style="dim")
+        text.append_text(literal(self.bench_name or "(unnamed bench)", "italic"))
         self.update(text)
