@@ -13,7 +13,7 @@ from typing import Any
 
 from rich.text import Text
 
-__all__ = ["deg", "literal", "num", "rate", "sci", "stamp"]
+__all__ = ["deg", "interval", "literal", "num", "rate", "sci", "stamp"]
 
 
 def _finite(value: Any) -> float | None:
@@ -51,6 +51,17 @@ def rate(value: Any) -> str:
         if abs(x) >= scale:
             return f"{x / scale:.3g} {prefix}counts/s"
     return f"{x:.3g} counts/s"
+
+
+def interval(low: Any, high: Any) -> str:
+    """A range of small numbers with the upper end's exponent written once
+    (``2.24–2.77e-04``, ``0.97–1.11e-03``); a dash when either end is missing."""
+    lo, hi = _finite(low), _finite(high)
+    if lo is None or hi is None:
+        return "—"
+    mantissa, exponent = sci(hi).split("e")
+    scaled = lo / 10.0 ** int(exponent)
+    return f"{scaled:.3g}–{mantissa}e{exponent}"
 
 
 def literal(text: object, style: str = "") -> Text:

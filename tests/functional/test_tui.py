@@ -12,7 +12,7 @@ from dataclasses import replace
 from pathlib import Path
 
 import pytest
-from test_tui_support import desk, reading_box, settle, shown_in, text_of
+from test_tui_support import desk, limits_shown, reading_box, settle, shown_in, text_of
 from textual.widgets import Checkbox, Input, ProgressBar, Select, Static
 
 from aligner.bench import load_bench
@@ -83,14 +83,15 @@ async def test_bench_shows_the_engine_prediction_and_steps_by_the_mount_resoluti
         p2 = predict(bench, app.readings)
         assert num(p2.amplification_exact, 5) in text_of(app, "#prediction-numbers")
         assert num(p2.amplification_exact, 5) != num(p.amplification_exact, 5)
-        # the beam path shows the element angle the engine gives for the new reading
+        # once the keys pause, the beam path shows the element angle the engine gives
+        await limits_shown(pilot)
         assert f"{float(p2.angles_deg['analyzer']):.3f}°" in text_of(app, "#beam-path")
 
 
 async def test_bench_limits_arrive_from_the_worker(bench, tmp_path):
     app = desk(bench, tmp_path)
     async with app.run_test(size=SIZE) as pilot:
-        await settle(pilot)
+        await limits_shown(pilot)
         lim = limits(bench, bench.readings())
         shown = text_of(app, "#limits")
         assert num(lim.max_amplification, 4) in shown

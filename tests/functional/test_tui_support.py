@@ -91,9 +91,9 @@ async def limits_shown(pilot: Any) -> None:
     """Wait (up to a few seconds) until the bench screen has its limits and curves."""
     for _ in range(100):
         await settle(pilot, 0.05)
-        if pilot.app.screen.query_one("#limits").border_subtitle == "" and (
-            pilot.app.screen.query_one("#bench-plots").curve is not None
-        ):
+        plots = pilot.app.screen.query_one("#bench-plots")
+        limits = pilot.app.screen.query_one("#limits")
+        if limits.border_subtitle == "" and plots.curve is not None and plots.drawn:
             return
     raise AssertionError("the limits never arrived")
 

@@ -8,14 +8,14 @@ after the readings stop changing.
 
 from __future__ import annotations
 
+import time
 from collections.abc import Mapping
-from typing import ClassVar
+from typing import TYPE_CHECKING, ClassVar
 
 from textual import on, work
 from textual.app import ComposeResult
 from textual.binding import BindingType
 from textual.containers import Container, Vertical, VerticalScroll
-from textual.timer import Timer
 from textual.widgets import Static
 from textual.worker import get_current_worker
 
@@ -29,6 +29,9 @@ from ..widgets.readings import ReadingsEditor
 from ..widgets.working_point import Curve, Spot, WorkingPoint, curve_readings
 from .base import DeskScreen
 
+if TYPE_CHECKING:
+    from ...prediction import Prediction
+
 __all__ = ["BenchScreen"]
 
 WHAT_IF = (
@@ -37,6 +40,11 @@ WHAT_IF = (
 )
 #: Seconds without a change before the limits and curves are worked out again.
 SETTLE_S = 0.25
+#: Seconds without a change before the beam path (every element's angle) and the plots'
+#: current point are redrawn: the weak value's frame does not wait for them.
+BEAM_PATH_S = 0.08
+#: How often the screen looks whether the readings have settled (s).
+TICK_S = 0.04
 
 
 class BenchScreen(DeskScreen):
@@ -48,7 +56,9 @@ class BenchScreen(DeskScreen):
     def __init__(self) -> None:
         super().__init__()
         self._pending: dict[str, float] | None = None
-        self._settle: Timer | None = None
+        self._latest: tuple[dict[str, float], Prediction] | None = None
+        self._changed_at = 0.0
+        self._caught_up: set[str] = set()
 
     def compose_body(self) -> ComposeResult:
         bench = self.backend.bench
@@ -71,6 +81,7 @@ class BenchScreen(DeskScreen):
         return self.query_one(ReadingsEditor)
 
     def on_mount(self) -> None:
+        self.set_interval(TICK_S, self.catch_up)
         self.refresh_prediction(self.desk.readings)
         self.editor.input_for(self.backend.bench.imbalance_mount).focus()
 
@@ -94,20 +105,32 @@ class BenchScreen(DeskScreen):
             self.refresh_prediction(readings)
 
     def refresh_prediction(self, readings: Mapping[str, float]) -> None:
-        """Predict at ``readings`` (deg) now; work out the limits and curves once they settle."""
+        """Predict at ``readings`` (deg) now; the rest follows once they settle."""
         try:
             p = self.backend.predict(readings)
         except AlignerError as exc:
             self.say(str(exc), severity="error")
             return
         self.query_one(PredictionPanel).show(p)
-        self.query_one(BeamPath).show(readings, p.angles_deg)
-        self.query_one(WorkingPoint).show_points(current=Spot.of(p))
         self.query_one(LimitsPanel).pending()
-        if self._settle is not None:
-            self._settle.stop()
-        wanted = dict(readings)
-        self._settle = self.set_timer(SETTLE_S, lambda: self.work_out_limits(wanted))
+        self._latest = (dict(readings), p)
+        self._changed_at = time.monotonic()
+        self._caught_up = set()
+
+    def catch_up(self) -> None:
+        """Once the readings have not changed for a moment: the beam path and the plots'
+        current point; a moment later the limits and curves (in a thread)."""
+        if self._latest is None:
+            return
+        readings, p = self._latest
+        quiet = time.monotonic() - self._changed_at
+        if "beam" not in self._caught_up and quiet >= BEAM_PATH_S:
+            self._caught_up.add("beam")
+            self.query_one(BeamPath).show(readings, p.angles_deg)
+            self.query_one(WorkingPoint).show_points(current=Spot.of(p))
+        if "limits" not in self._caught_up and quiet >= SETTLE_S:
+            self._caught_up.add("limits")
+            self.work_out_limits(readings)
 
     @work(thread=True, exclusive=True, group="limits")
     def work_out_limits(self, readings: dict[str, float]) -> None:

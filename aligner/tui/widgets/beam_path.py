@@ -12,6 +12,10 @@ from ..format import deg, literal, num
 
 __all__ = ["BeamPath"]
 
+#: Width of the reading and angle columns (``-170.000°``), fixed so a new reading repaints
+#: the cells without a new layout.
+READING_WIDTH = 9
+
 _KIND = {
     "hwp": "half-wave",
     "qwp": "quarter-wave",
@@ -58,8 +62,8 @@ class BeamPath(DataTable):
     def on_mount(self) -> None:
         self.add_column("element", key="element")
         self.add_column("mount", key="mount")
-        self.add_column("reading", key="reading")
-        self.add_column("angle", key="angle")
+        self.add_column("reading", key="reading", width=READING_WIDTH)
+        self.add_column("angle", key="angle", width=READING_WIDTH)
         self.add_column("", key="detail")
         for n, (label, mount, fixed, detail) in enumerate(self.rows_spec):
             fixed_cells = ("", "") if fixed is None else ("fixed", deg(fixed, 2))
@@ -75,5 +79,5 @@ class BeamPath(DataTable):
         """Refresh with mount ``readings`` and element ``angles_deg`` (both deg, by mount)."""
         for n, (_label, mount, _fixed, _detail) in enumerate(self.rows_spec):
             if mount is not None:
-                self.update_cell(str(n), "reading", deg(readings[mount]), update_width=True)
-                self.update_cell(str(n), "angle", deg(angles_deg.get(mount)), update_width=True)
+                self.update_cell(str(n), "reading", deg(readings[mount]))
+                self.update_cell(str(n), "angle", deg(angles_deg.get(mount)))

@@ -12,6 +12,8 @@ from ..format import literal, num
 
 __all__ = ["LimitsPanel"]
 
+PENDING = "updating…"
+
 
 class LimitsPanel(Static):
     """The combined limit (largest amplification, where, what limits it) and each mechanism
@@ -24,7 +26,8 @@ class LimitsPanel(Static):
 
     def pending(self) -> None:
         """Say that new limits are being worked out."""
-        self.border_subtitle = "updating…"
+        if self.border_subtitle != PENDING:
+            self.border_subtitle = PENDING
 
     def failed(self, message: str) -> None:
         """Show why the limits could not be worked out."""

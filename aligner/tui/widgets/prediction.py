@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from rich.table import Table
+from rich.text import Text
 from textual.app import ComposeResult
 from textual.containers import Vertical
 from textual.widgets import Static
@@ -16,20 +16,25 @@ from ..format import literal, num, rate, sci
 __all__ = ["PredictionPanel"]
 
 _AXIS = {"re": "Re A_w", "im": "Im A_w"}
+#: Width of the label column (characters).
+LABEL_WIDTH = 16
 
 
-class _Grid(Table):
-    """Label and value rows; every value is shown as written (no markup)."""
+class _Grid:
+    """Label and value lines (labels in a column of :data:`LABEL_WIDTH`); every value is shown
+    as written (no markup). Plain lines rather than a table: a keystroke repaints them in a
+    fraction of the time."""
 
     def __init__(self) -> None:
-        super().__init__(
-            box=None, show_header=False, show_edge=False, pad_edge=False, padding=(0, 2)
-        )
-        self.add_column(style="bold", no_wrap=True, min_width=14)
-        self.add_column(ratio=1, overflow="fold")
+        self.text = Text()
+        self.rows = 0
 
     def row(self, label: str, value: str) -> None:
-        self.add_row(literal(label), literal(value))
+        if self.rows:
+            self.text.append("\n")
+        self.text.append_text(literal(label.ljust(LABEL_WIDTH), "bold"))
+        self.text.append_text(literal(value))
+        self.rows += 1
 
 
 class PredictionPanel(Vertical):
@@ -40,6 +45,7 @@ class PredictionPanel(Vertical):
         super().__init__(**kwargs)
         self.bench = bench
         self.border_title = "Prediction at these readings"
+        self._rows: dict[str, int] = {}
 
     def compose(self) -> ComposeResult:
         yield Static(id="prediction-numbers")
@@ -66,8 +72,10 @@ class PredictionPanel(Vertical):
             )
         t.row("pointer shift", f"{num(p.pointer_shift, 4)} {p.units}")
         t.row("SNR", f"{num(p.snr_per_sqrt_s, 4)} per √s of counting")
-        self.query_one("#prediction-numbers", Static).update(t)
-        self.border_subtitle = f"amplification along {_AXIS[p.axis]}"
+        self._update("#prediction-numbers", t)
+        subtitle = f"amplification along {_AXIS[p.axis]}"
+        if self.border_subtitle != subtitle:  # an unchanged border costs no repaint
+            self.border_subtitle = subtitle
         self._detector(p)
 
     def _detector(self, p: Any) -> None:
@@ -84,6 +92,13 @@ class PredictionPanel(Vertical):
             t.row("", "keep the shutter shut or the beam blocked before exposing the detector")
         else:
             t.row("", "below the safe rate, not saturated")
-        box = self.query_one("#detector-status", Static)
-        box.update(t)
-        box.set_class(over or saturated, "danger")
+        self._update("#detector-status", t).set_class(over or saturated, "danger")
+
+    def _update(self, selector: str, grid: _Grid) -> Static:
+        """Put ``grid`` in ``selector``; the layout is redone only when its row count changes
+        (a keystroke then costs one repaint, not a new layout of the screen)."""
+        box = self.query_one(selector, Static)
+        rows = grid.rows
+        box.update(grid.text, layout=self._rows.get(selector) != rows)
+        self._rows[selector] = rows
+        return box

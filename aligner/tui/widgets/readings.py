@@ -125,8 +125,9 @@ class ReadingsEditor(Vertical):
     def problem(self, text: str) -> None:
         """Say what is wrong with a typed reading ("" when nothing is)."""
         line = self.query_one("#reading-problem", Static)
-        line.update(literal(text))
-        line.set_class(not text, "-empty")
+        if text or not line.has_class("-empty"):
+            line.update(literal(text))
+            line.set_class(not text, "-empty")
 
     def on_input_changed(self, event: Input.Changed) -> None:
         if not isinstance(event.input, ReadingInput):

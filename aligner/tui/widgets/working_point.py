@@ -31,8 +31,9 @@ __all__ = ["Curve", "Spot", "WorkingPoint", "curve_readings", "safe_leak"]
 
 #: Points of a curve.
 CURVE_POINTS = 241
-#: Seconds between redraws while the readings change (a burst of keys draws once).
-REDRAW_S = 0.15
+#: Seconds without a change before the plots are drawn again (a burst of keys draws once,
+#: after it).
+REDRAW_S = 0.2
 #: Colours of the curves and marks (plotext names).
 LINEAR, EXACT, LEAK, NOW, PLANNED, LIMIT, SAFE, MEASURED = (
     "cyan",
@@ -260,9 +261,15 @@ class WorkingPoint(Container):
             self.measured = tuple(measured)
         self._soon()
 
+    @property
+    def drawn(self) -> bool:
+        """True when the plots show everything given so far (no redraw is pending)."""
+        return self._timer is None
+
     def _soon(self) -> None:
-        if self._timer is None:
-            self._timer = self.set_timer(REDRAW_S, self._draw)
+        if self._timer is not None:
+            self._timer.stop()
+        self._timer = self.set_timer(REDRAW_S, self._draw)
 
     def _draw(self) -> None:
         self._timer = None
