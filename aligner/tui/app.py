@@ -124,7 +124,7 @@ class DeskApp(App[int]):
         """Quit; while a sweep runs, ask first, then pause it (mounts stopped, shutter shut)."""
         if not self.backend.sweeping:
             self.backend.stop_meter()
-            self.exit(0)
+            self.exit()
             return
         from .screens.confirm import Confirm
 
@@ -146,7 +146,7 @@ class DeskApp(App[int]):
         """Ask a running sweep to pause and exit with ``code`` once it has (at once if none)."""
         self.backend.stop_meter()
         if not self.backend.sweeping:
-            self.exit(code)
+            self.exit(return_code=code)
             return
         self._quit_after_sweep = True
         self._exit_code = code
@@ -156,7 +156,7 @@ class DeskApp(App[int]):
     @on(SweepEnded)
     def sweep_ended(self) -> None:
         if self._quit_after_sweep:
-            self.exit(self._exit_code)
+            self.exit(return_code=self._exit_code)
 
     # -- signals -------------------------------------------------------------------------------
 

@@ -21,7 +21,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from ..bench import Bench
-from ..errors import DeviceError, InputError
+from ..errors import AlignerError, DeviceError, GuardTrip, InputError
 
 if TYPE_CHECKING:
     from ..planning import Plan
@@ -81,12 +81,13 @@ class DeviceLine:
 @dataclass(frozen=True)
 class MoveResult:
     """Mounts moved by the desk: the guarded moves made (bench order), the read-back of every
-    mount afterwards (deg) and the shutter's state at the end (it is shut after every desk
-    move: :data:`aligner.run.station.SHUTTER_STATES`)."""
+    mount afterwards (deg), the shutter's state at the end (it is shut after every desk move:
+    :data:`aligner.run.station.SHUTTER_STATES`) and, when the moves stopped early, why."""
 
     moves: tuple[Move, ...]
     readings: Mapping[str, float]
     shutter: str
+    error: str = ""
 
 
 class DeskBackend:
@@ -313,7 +314,7 @@ class DeskBackend:
             if role == "mount":
                 mount = station.devices.mounts[name]
                 moving = " (moving)" if mount.is_moving() else ""
-                reading = station.readings(fresh=True)[name]
+                reading = float(station.attempt(f"reading {name}", None, mount.position))
                 return f"reads {reading:.4f}°{moving}"
             if role == "shutter":
                 shutter = station.devices.shutter
@@ -341,22 +342,29 @@ class DeskBackend:
     ) -> MoveResult:
         """Turn the mounts to ``targets`` (deg), one after the other in bench order, each
         through the detector guard (:meth:`aligner.run.station.Station.move`), then shut the
-        shutter. Blocking: call it from a worker thread. A device error is remembered for its
-        mount and raised after the bench is secured."""
+        shutter, however the moves ended. Blocking: call it from a worker thread. A device
+        error is remembered for its mount; the result says where the moves stopped."""
         with self.using_devices("moving the mounts", readings) as station:
             station.clear_stop()
-            moves = []
+            moves: list[Move] = []
+            error = ""
+            for name in (n for n in self.bench.mounts if n in targets):
+                if station.stop_requested:
+                    error = "stopped as asked"
+                    break
+                try:
+                    moves.append(station.move(name, float(targets[name])))
+                except AlignerError as exc:
+                    if isinstance(exc, DeviceError) and not isinstance(exc, GuardTrip):
+                        self.note_error(name, exc)
+                    error = f"{name}: {exc}"
+                    break
+            shutter = station.secure()
             try:
-                for name in self.bench.mounts:
-                    if name in targets and not station.stop_requested:
-                        try:
-                            moves.append(station.move(name, float(targets[name])))
-                        except DeviceError as exc:
-                            self.note_error(name, exc)
-                            raise
-            finally:
-                shutter = station.secure()
-            return MoveResult(tuple(moves), station.readings(fresh=True), shutter)
+                after = station.readings(fresh=True)
+            except DeviceError:
+                after = {}
+            return MoveResult(tuple(moves), after, shutter, error)
 
     def guard_limit(self) -> float | None:
         """The highest predicted rate (counts/s) at which the detector guard exposes the

@@ -456,3 +456,40 @@ def test_sweep_progress_messages_of_one_run_merge():
     # each message carries every point so far, so a newer one may stand in for an older one
     assert older.can_replace(newer) and not older.can_replace(other)
     assert not older.can_replace(SweepEnded(error="x"))
+
+
+async def test_plan_beyond_the_combined_limit_names_the_mechanism(bench, tmp_path):
+    lim = limits(bench, bench.readings())
+    target = round(lim.max_amplification * 1.3)
+    app = desk(bench, tmp_path)
+    async with app.run_test(size=SIZE) as pilot:
+        await pilot.press("f3")
+        await settle(pilot)
+        assert text_of(app, "#plan-warning") == ""  # 40 is below the limit
+        app.screen.query_one("#target", Input).value = str(target)
+        await pilot.press("enter")
+        await settle(pilot)
+        warning = text_of(app, "#plan-warning")
+        assert f"{target} is beyond this bench's combined limit of" in warning
+        assert f"{lim.max_amplification:.4g}" in warning and lim.limited_by in warning
+
+
+async def test_a_signal_pauses_the_sweep_and_shuts_the_shutter(bench, tmp_path):
+    import signal
+
+    app = desk(bench, tmp_path, realtime=True)
+    async with app.run_test(size=SIZE) as pilot:
+        await start_sweep(pilot, "linear:0.5:1.5:20", "0.2")
+        await wait_for_first_point(pilot)
+        app.stop_for_signal(signal.SIGTERM)  # what the desk's SIGTERM handler calls
+        for _ in range(200):  # the desk exits by itself once the sweep has paused
+            await pilot.pause(0.05)
+            if app.return_code is not None:
+                break
+        assert app.return_code == 128 + signal.SIGTERM and app.signalled == signal.SIGTERM
+    assert not app.backend.station(app.readings).devices.shutter.is_open()
+    with RunLog(tmp_path / "runs.sqlite") as log:
+        (run,) = log.runs()
+        notes = [e.message for e in log.events(run.id) if e.kind == "note"]
+    assert run.status == "interrupted" and 0 < run.points < 20
+    assert f"the desk was ended by signal {int(signal.SIGTERM)}" in notes

@@ -74,6 +74,12 @@ class DevicesScreen(DeskScreen):
     STATUS = "#devices-status"
     BINDINGS: ClassVar[list[BindingType]] = [keys.READ_AGAIN]
 
+    def __init__(self) -> None:
+        super().__init__()
+        #: What the operator last decided, said with the next listing.
+        self.note = ""
+        self.open_asked = False
+
     def compose_body(self) -> ComposeResult:
         yield Static("", id="devices-status")
         with VerticalScroll(id="devices-body"):
@@ -81,23 +87,27 @@ class DevicesScreen(DeskScreen):
             yield Static(NOTE, id="devices-note", markup=False)
 
     def on_screen_resume(self) -> None:
-        """List the devices each time the screen is shown (read them if they are open)."""
-        self.status("reading the devices…" if self.backend.opened else "reading the bench…")
-        self.list_worker(poll=self.backend.opened)
+        """List the devices each time the screen is shown (read them if they are open, or
+        when the operator just agreed to open them)."""
+        poll = self.backend.opened or self.open_asked
+        self.open_asked = False
+        self.status("reading the devices…" if poll else "reading the bench…")
+        self.list_worker(poll=poll)
 
     def action_read_again(self) -> None:
         """Open the devices if needed (asking first when some are real) and read them."""
+        self.note = ""
         if self.backend.opened or not self._real():
             self.status("reading the devices…")
             self.list_worker(poll=True)
             return
 
         def answered(yes: bool | None) -> None:
+            self.note = "" if yes else "not opened (cancelled)"
+            self.open_asked = bool(yes)  # the listing when the screen shows again reads them
             if yes:
                 self.status("opening and reading the devices…")
                 self.list_worker(poll=True)
-            else:
-                self.status("not opened (cancelled)")
 
         self.app.push_screen(
             Confirm(
@@ -138,7 +148,8 @@ class DevicesScreen(DeskScreen):
         elif self.backend.opened:
             self.status(f"devices open ({', '.join(kinds)}) · Ctrl+R reads them again")
         else:
-            self.status(f"declared ({', '.join(kinds)}); not opened yet · Ctrl+R opens them")
+            note = f"{self.note} · " if self.note else ""
+            self.status(f"{note}declared ({', '.join(kinds)}); not opened yet · Ctrl+R opens them")
         problem = self.backend.errors.get("devices")
         if problem:
             self.query_one("#devices-note", Static).update(

@@ -96,6 +96,7 @@ class PlanScreen(DeskScreen):
             yield Checkbox(exact_label(False), id="exact")
         yield Static("", id="plan-status")
         yield Static("", id="plan-warning", markup=False)
+        yield Static("", id="plan-moved")
         with VerticalScroll(id="plan-body"), Container(id="plan-top"):
             with Vertical(id="plan-left"):
                 yield BranchTable(id="branches")
@@ -264,10 +265,10 @@ class PlanScreen(DeskScreen):
         def answered(yes: bool | None) -> None:
             if yes:
                 self.moving = True
-                self.status("moving the mounts…")
+                self.moved("moving the mounts…")
                 self.move_worker(targets, dict(self.desk.readings))
             else:
-                self.status("not moved (cancelled)")
+                self.moved("not moved (cancelled)")
 
         self.app.push_screen(Confirm(question, detail, yes="Move"), answered)
 
@@ -283,7 +284,7 @@ class PlanScreen(DeskScreen):
     def mounts_moved(self, event: MountsMoved) -> None:
         self.moving = False
         if event.error or event.result is None:
-            self.status(f"the move stopped: {event.error}; shutter shut", error=True)
+            self.moved(f"the move stopped: {event.error}", error=True)
             return
         from ...run.station import shutter_words
 
@@ -291,10 +292,16 @@ class PlanScreen(DeskScreen):
         self.desk.readings = {**self.desk.readings, **r.readings}
         done = ", ".join(f"{m.mount} reads {m.readback_deg:.4f}°" for m in r.moves)
         notes = "".join(f" ({m.note})" for m in r.moves if m.note)
-        self.status(
-            f"moved: {done or 'nothing to move'}{notes}; {shutter_words(r.shutter)}. The bench "
-            "screen now shows these read-backs."
+        stopped = f"STOPPED: {r.error}. " if r.error else ""
+        self.moved(
+            f"{stopped}moved: {done or 'nothing'}{notes}; {shutter_words(r.shutter)}. The bench "
+            "screen now shows these read-backs.",
+            error=bool(r.error) or r.shutter in ("failed", "none"),
         )
+
+    def moved(self, text: str, *, error: bool = False) -> None:
+        """The line saying what the last move to the plan did."""
+        self.status_line("#plan-moved", text, error=error)
 
     def action_toggle_axis(self) -> None:
         axis = self.query_one("#axis", Select)

@@ -19,6 +19,10 @@ from ..messages import ReadingsChanged
 __all__ = ["STEP_BINDINGS", "ReadingInput", "ReadingsEditor"]
 
 
+#: Widest mount-name column (characters).
+NAME_WIDTH_MAX = 24
+
+
 def _decimals(step: float) -> int:
     return max(0, -math.floor(math.log10(step))) if step > 0 else 3
 
@@ -98,9 +102,12 @@ class ReadingsEditor(Vertical):
         self.readings = {k: float(v) for k, v in readings.items()}
 
     def compose(self) -> ComposeResult:
+        width = min(max(len(name) for name in self.mounts) + 1, NAME_WIDTH_MAX)
         for index, (name, mount) in enumerate(self.mounts.items()):
             with Horizontal(classes="reading-row"):
-                yield Label(literal(name), classes="reading-name")
+                label = Label(literal(name), classes="reading-name")
+                label.styles.width = width  # a longer name wraps; none is cut
+                yield label
                 yield ReadingInput(mount, self.readings[name], index)
                 low, high = mount.travel_deg
                 yield Label(

@@ -1,0 +1,150 @@
+"""The quick start's first command, ``aligner desk demo``, in a real terminal: a private tmux
+server with an 80x24 window, keys sent with ``send-keys`` and the screen read back with
+``capture-pane``. Skipped where tmux is not installed.
+
+Checks: the first screen shows every tab, the prediction's numbers and the whole safety text
+at 80x24; a keystroke steps the reading; F1 lists the keys; Ctrl+Q quits and leaves the
+terminal as it was; SIGTERM during a sweep pauses it after its point with the shutter shut,
+records why, says so on the terminal and exits with 128 + 15 (the status is checked where
+this tmux reports it).
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import shutil
+import subprocess
+import sys
+import time
+import uuid
+from collections.abc import Callable, Iterator
+from pathlib import Path
+
+import pytest
+
+from aligner.bench import load_bench
+from aligner.prediction import format_weak_value, predict
+from aligner.run.log import RunLog
+from aligner.tui.format import sci
+from aligner.tui.widgets.safety import SAFETY_TEXT
+
+pytestmark = pytest.mark.skipif(shutil.which("tmux") is None, reason="tmux is not installed")
+
+#: Seconds to wait for the desk to draw or react (a busy 2-core machine).
+PATIENCE_S = 30.0
+
+
+class Terminal:
+    """One tmux window of 80x24 cells running a command on a private tmux server; the window
+    stays after the command ends, so its last screen and exit status can be read."""
+
+    def __init__(self) -> None:
+        self.socket = f"aligner-test-{uuid.uuid4().hex[:8]}"
+
+    def tmux(self, *args: str) -> str:
+        done = subprocess.run(
+            ["tmux", "-L", self.socket, "-f", os.devnull, *args],
+            capture_output=True,
+            text=True,
+            timeout=30,
+            check=True,
+        )
+        return done.stdout
+
+    def start(self, command: list[str]) -> None:
+        self.tmux(
+            *("new-session", "-d", "-s", "desk", "-x", "80", "-y", "24", *command),
+            *(";", "set-option", "-t", "desk", "remain-on-exit", "on"),
+        )
+
+    def screen(self) -> str:
+        return self.tmux("capture-pane", "-p", "-t", "desk")
+
+    def keys(self, *keys: str) -> None:
+        self.tmux("send-keys", "-t", "desk", *keys)
+
+    def wait_for(self, test: Callable[[str], bool], what: str) -> str:
+        deadline = time.monotonic() + PATIENCE_S
+        while time.monotonic() < deadline:
+            text = self.screen()
+            if test(text):
+                return text
+            time.sleep(0.2)
+        raise AssertionError(f"never saw {what}; the screen was:\n{self.screen()}")
+
+    def ended(self) -> int | None:
+        """Wait for the command to end; its exit status when this tmux reports it (some
+        versions report it only for some endings), else None."""
+        deadline = time.monotonic() + PATIENCE_S
+        while time.monotonic() < deadline:
+            dead, _, status = self.tmux(
+                "display", "-p", "-t", "desk", "#{pane_dead} #{pane_dead_status}"
+            ).partition(" ")
+            if dead.strip() == "1":
+                said = re.search(r"Pane is dead \(status (\d+)", self.screen())
+                if status.strip():
+                    return int(status)
+                return int(said.group(1)) if said else None
+            time.sleep(0.2)
+        raise AssertionError(f"the desk did not exit; the screen was:\n{self.screen()}")
+
+    def pid(self) -> int:
+        return int(self.tmux("display", "-p", "-t", "desk", "#{pane_pid}"))
+
+    def close(self) -> None:
+        subprocess.run(["tmux", "-L", self.socket, "kill-server"], capture_output=True)
+
+
+@pytest.fixture
+def terminal() -> Iterator[Terminal]:
+    term = Terminal()
+    yield term
+    term.close()
+
+
+def desk_command(tmp_path: Path) -> list[str]:
+    return [sys.executable, "-m", "aligner", "desk", "demo", "--db", str(tmp_path / "runs.sqlite")]
+
+
+def test_desk_demo_in_an_80x24_terminal(terminal, tmp_path):
+    bench = load_bench("demo")
+    p = predict(bench, bench.readings())
+    terminal.start(desk_command(tmp_path))
+    screen = terminal.wait_for(lambda s: "weak value A_w" in s, "the bench screen")
+    lines = screen.splitlines()
+    assert len(lines) <= 24 and max(len(line) for line in lines) <= 80
+    for tab in ("F2 Bench", "F3 Plan", "F4 Sweep", "F5 Meter", "F6 Devices", "F7 Log", "F1 Help"):
+        assert tab in screen
+    assert format_weak_value(complex(p.weak_value), 5) in screen
+    assert sci(p.leak_rate) in screen and f"{float(p.imbalance_deg):+.4f}°" in screen
+    assert " ".join(SAFETY_TEXT.split()) in " ".join(screen.split())  # not cut
+    terminal.keys("Up")
+    terminal.wait_for(lambda s: "136.001" in s and "+1.0010°" in s, "the stepped reading")
+    terminal.keys("F1")
+    terminal.wait_for(lambda s: "Keys of the bench screen" in s, "the help")
+    terminal.keys("Escape")
+    terminal.wait_for(lambda s: "Keys of the bench" not in s, "the help closed")
+    terminal.keys("C-q")
+    assert terminal.ended() in (0, None)
+    after = terminal.screen()
+    assert "weak value" not in after and "Traceback" not in after  # the shell's screen is back
+
+
+def test_sigterm_during_a_sweep_pauses_it_and_shuts_the_shutter(terminal, tmp_path):
+    terminal.start(desk_command(tmp_path))
+    terminal.wait_for(lambda s: "weak value A_w" in s, "the bench screen")
+    terminal.keys("F4")
+    terminal.wait_for(lambda s: "idle: Ctrl+S starts" in s, "the sweep screen")
+    terminal.keys("C-s")
+    terminal.wait_for(lambda s: "point #0 logged" in s, "the first point")
+    os.kill(terminal.pid(), 15)
+    assert terminal.ended() in (128 + 15, None)
+    after = terminal.screen()
+    assert "aligner desk: stopped by signal 15." in after and "point #" not in after
+    with RunLog(tmp_path / "runs.sqlite") as log:
+        (run,) = log.runs()
+        events = log.events(run.id)
+    assert run.status == "interrupted" and 0 < run.points < run.planned
+    assert any("shutter shut (confirmed by the shutter)" in e.message for e in events)
+    assert any(e.message == "the desk was ended by signal 15" for e in events)
