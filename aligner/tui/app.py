@@ -122,11 +122,14 @@ class DeskApp(App[int]):
 
     async def action_quit(self) -> None:
         """Quit; while a sweep runs, ask first, then pause it (mounts stopped, shutter shut)."""
+        from .screens.confirm import Confirm
+
         if not self.backend.sweeping:
             self.backend.stop_meter()
             self.exit()
             return
-        from .screens.confirm import Confirm
+        if isinstance(self.screen, Confirm):
+            return  # already asking
 
         def answered(yes: bool | None) -> None:
             if yes:
@@ -180,7 +183,7 @@ class DeskApp(App[int]):
         self.end_after_sweep(128 + signum)
 
     def on_unmount(self) -> None:
-        for future in self._asks:
+        for future in list(self._asks):  # a worker waiting for an answer gets none
             if not future.done():
                 future.set_result(None)
         if self._previous_handlers:

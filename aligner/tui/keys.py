@@ -25,7 +25,6 @@ __all__ = [
     "QUIT",
     "READ_AGAIN",
     "START",
-    "STEP_KEYS",
 ]
 
 
@@ -62,11 +61,3 @@ MOVE_TO_PLAN = _key(
     "turn the mounts to the planned readings through the detector guard (asks first)",
 )
 NEW_MIN_MAX = _key("ctrl+n", "new_min_max", "New min/max", "forget the held minimum and maximum")
-
-#: The keys that step a reading or a mount, shown in the help of the screens that have them:
-#: (keys, what they do).
-STEP_KEYS = (
-    ("↑ / ↓", "one step of the focused mount (its resolution)"),
-    ("PgUp / PgDn", "100 steps of the focused mount"),
-    ("Tab / Shift+Tab", "next / previous field or mount"),
-)

@@ -99,12 +99,14 @@ class SweepChecked(Message):
 @dataclass
 class SweepStarted(Message):
     """A sweep created (or resumed) run ``run_id`` of ``total`` points: the planned readings
-    of the imbalance mount (deg) and the points already logged (on a resume)."""
+    of the imbalance mount (deg), the points already logged (on a resume) and what the run's
+    numbers are (:attr:`aligner.run.log.RunRecord.data_label`)."""
 
     run_id: int
     total: int
     imbalance_readings: tuple[float, ...] = ()
     points: tuple[LoggedPoint, ...] = ()
+    label: str = ""
 
 
 @dataclass

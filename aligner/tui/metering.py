@@ -90,11 +90,6 @@ class MeterSession:
         self._stop.set()
         self._requests.put(("stop", None))
 
-    @property
-    def stopping(self) -> bool:
-        """True once a stop was asked."""
-        return self._stop.is_set()
-
     # -- the loop (worker thread) --------------------------------------------------------------
 
     def run(

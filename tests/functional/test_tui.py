@@ -27,6 +27,7 @@ from aligner.tui.backend import DeskBackend
 from aligner.tui.format import num, rate, sci
 from aligner.tui.messages import SweepEnded, SweepProgress
 from aligner.tui.screens.confirm import Confirm
+from aligner.tui.screens.typed import TypedValue
 from aligner.tui.widgets.safety import SAFETY_TEXT
 
 SIZE = (120, 36)
@@ -386,6 +387,39 @@ async def test_sweep_states_bad_input_and_guard_refusals_plainly(bench, tmp_path
         events = text_of(app, "#sweep-events")
         assert "detector guard" in events and "safe_rate" in events
         assert app.screen.query_one("#sweep-status", Static).has_class("problem")
+        assert runs_in(tmp_path) == []  # refused before its first point: no run is logged
+
+
+async def test_a_typed_in_counter_asks_on_the_desk(bench, tmp_path):
+    text = bench.path.read_text(encoding="utf-8")
+    path = tmp_path / "typed-bench.toml"
+    path.write_text(
+        text.replace('[devices.counter]\ndriver = "sim"', '[devices.counter]\ndriver = "manual"'),
+        encoding="utf-8",
+    )
+    app = desk(load_bench(path), tmp_path)
+    async with app.run_test(size=SIZE) as pilot:
+        await start_sweep(pilot, "list:1.0", "0.5")
+        asked = []
+        for _ in range(8):  # a probe gate and the rest of the dwell, two channels each
+            for _ in range(200):
+                await pilot.pause(0.05)
+                if isinstance(app.screen, TypedValue) or not app.backend.sweeping:
+                    break
+            if not isinstance(app.screen, TypedValue):
+                break
+            asked.append(text_of(app, "#typed-prompt"))
+            await pilot.press(*"40", "enter")
+        await settle(pilot)
+        assert asked and all("counts in" in q for q in asked)
+        assert any(q.startswith("post-selected") for q in asked)
+        assert any(q.startswith("reference") for q in asked)
+        assert "complete" in text_of(app, "#sweep-status")
+        with RunLog(tmp_path / "runs.sqlite") as log:
+            (run,) = log.runs()
+            (point,) = log.points(run.id)
+        assert run.data_label == "SIMULATED and TYPED IN"  # the mounts are simulated
+        assert point.counts == 40 * sum(q.startswith("post-selected") for q in asked)
 
 
 # -- log -----------------------------------------------------------------------------------------

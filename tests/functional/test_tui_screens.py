@@ -142,6 +142,7 @@ async def test_meter_screen(bench, tmp_path, size):
         assert post.last == sample.rates[0]
         assert app.screen.query_one(".meter-digits").value == digits(sample.rates[0])
         shown = await seen(pilot, "#meter-post")
+        assert "post-selected port · SIMULATED" in shown  # never passed off as measured
         assert f"min {rate(post.low)}" in shown and f"max {rate(post.high)}" in shown
         assert f"predicted {rate(sample.predicted)}" in shown
         shown = await seen(pilot, "#meter-headroom")

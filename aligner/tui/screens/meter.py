@@ -46,18 +46,22 @@ class MeterScreen(DeskScreen):
         super().__init__()
         self.gate_s = GATE_S
         self.session: MeterSession | None = None
-        self.typed = self._typed_counter()
+        #: The counter's kind as declared (``real``, ``simulated``, ``typed``; "" unknown).
+        self.counter_kind = self._counter_kind()
+        self.typed = self.counter_kind == "typed"
         self.last: MeterSample | None = None
 
-    def _typed_counter(self) -> bool:
+    def _counter_kind(self) -> str:
         try:
-            return any(c.role == "counter" and c.kind == "typed" for c in self.backend.declared())
+            return next(c.kind for c in self.backend.declared() if c.role == "counter")
         except AlignerError:
-            return False  # opening will say what is wrong
+            return ""  # opening will say what is wrong
 
     def compose_body(self) -> ComposeResult:
         bench = self.backend.bench
         safe = bench.detector.safe_rate
+        # simulated or typed-in numbers never pass as measurements
+        kind = {"simulated": " · SIMULATED", "typed": " · TYPED IN"}.get(self.counter_kind, "")
         yield Static(IDLE, id="meter-status")
         with VerticalScroll(id="meter-body"):
             if self.typed:
@@ -68,7 +72,7 @@ class MeterScreen(DeskScreen):
                         yield Input(id="typed-ref", placeholder="reference", type="number")
             with Container(id="meter-top"):
                 with Vertical(id="meter-left"):
-                    yield ChannelMeter("post-selected port", safe, id="meter-post")
+                    yield ChannelMeter(f"post-selected port{kind}", safe, id="meter-post")
                     with Container(id="meter-mounts") as mounts:
                         mounts.border_title = "Mounts · ↑/↓ one step · PgUp/PgDn 100 steps"
                         for index, mount in enumerate(bench.mounts.values()):
@@ -76,7 +80,7 @@ class MeterScreen(DeskScreen):
                 with Vertical(id="meter-right"):
                     yield Static("", id="meter-headroom")
                     if bench.reference.kind != "none":
-                        yield ChannelMeter("reference", safe, id="meter-ref")
+                        yield ChannelMeter(f"reference{kind}", safe, id="meter-ref")
 
     def on_mount(self) -> None:
         self.headroom(None)

@@ -51,6 +51,7 @@ class SweepScreen(DeskScreen):
         super().__init__()
         self.running = False
         self.run_id: int | None = None
+        self.label = ""
         self.paused_run: int | None = None
         self.curve: tuple[Any, Any] | None = None
 
@@ -195,7 +196,8 @@ class SweepScreen(DeskScreen):
                 for p in plan
                 if self.backend.bench.imbalance_mount in p.readings
             ]
-            self.post_message(SweepStarted(run_id, len(plan), tuple(target), tuple(points)))
+            label = log.run(run_id).data_label
+            self.post_message(SweepStarted(run_id, len(plan), tuple(target), tuple(points), label))
             moved = {name for p in plan for name in p.readings}
             for name, (here, wanted) in self.backend.unmoved_differences(readings, moved).items():
                 self.app.call_from_thread(
@@ -234,6 +236,7 @@ class SweepScreen(DeskScreen):
     @on(SweepStarted)
     def sweep_started(self, event: SweepStarted) -> None:
         self.run_id = event.run_id
+        self.label = event.label
         bar = self.query_one(ProgressBar)
         bar.update(total=event.total, progress=len(event.points))
         self.curve = self.prediction_curve(event.imbalance_readings)
@@ -241,7 +244,8 @@ class SweepScreen(DeskScreen):
         self.query_one(PointsTable).show(event.points)
         self.desk.sweep_points = tuple(event.points)
         self.status(
-            f"run {event.run_id}: {len(event.points)} of {event.total} points done; Ctrl+P pauses"
+            f"run {event.run_id} ({event.label}): {len(event.points)} of {event.total} points "
+            "done; Ctrl+P pauses"
         )
 
     @on(SweepProgress)
@@ -253,8 +257,9 @@ class SweepScreen(DeskScreen):
         self.desk.sweep_points = tuple(event.points)
         last = event.points[-1]
         self.status(
-            f"run {event.run_id}: point #{last.idx} logged ({event.done} of {event.total} "
-            f"done), imbalance {last.imbalance_deg:+.4f}°, {last.counts} counts; Ctrl+P pauses"
+            f"run {event.run_id} ({self.label}): point #{last.idx} logged ({event.done} of "
+            f"{event.total} done), imbalance {last.imbalance_deg:+.4f}°, {last.counts} counts; "
+            "Ctrl+P pauses"
         )
 
     @on(SweepEnded)
