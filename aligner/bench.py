@@ -20,12 +20,17 @@ import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import tomlkit
 import tomlkit.exceptions
 
 from .errors import BenchFileError, InputError
+
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
+
+    from .physics.detection import DetectorRates
 
 __all__ = [
     "DEMO_BENCH",
@@ -55,6 +60,14 @@ ELEMENT_TYPES = ("hwp", "qwp", "retarder", "polarizer", "rotator")
 NOMINAL_WAVES = {"hwp": 0.5, "qwp": 0.25}
 READOUTS = ("position", "momentum", "phase")
 DETECTOR_MODES = ("cw", "pulsed")
+#: Largest size of any number in a bench file (angles: :data:`LARGEST_ANGLE`); anything bigger
+#: is a typo, and the physics would lose all precision on it.
+LARGEST = 1e12
+#: Largest size of an angle or a reading (deg): ten turns.
+LARGEST_ANGLE = 3600.0
+#: Most bytes a bench file may have, and most elements per arm and mounts.
+MAX_FILE_BYTES = 1_000_000
+MAX_ITEMS = 64
 #: Devices besides the mounts that a bench file declares under ``[devices.<role>]``.
 DEVICE_ROLES = ("counter", "shutter", "pointer")
 #: What the counter's second channel sees (``[reference] kind``).
@@ -167,6 +180,39 @@ class Detector:
     rep_rate_hz: float | None = None
     gate_dark_probability: float = 0.0
     saturation_rate: float | None = None
+
+    @property
+    def dead_time_s(self) -> float:
+        """Dead time in seconds (the file gives nanoseconds)."""
+        return self.dead_time_ns * 1e-9
+
+    @property
+    def pulse_rate_hz(self) -> float | None:
+        """Repetition rate (Hz) in pulsed mode; None when counting continuously."""
+        return self.rep_rate_hz if self.mode == "pulsed" else None
+
+    def expected_rates(
+        self,
+        photon_rate: ArrayLike,
+        leak_rate: ArrayLike,
+        *,
+        dark_rate: ArrayLike | None = None,
+    ) -> DetectorRates:
+        """Rates this detector shows for ``photon_rate`` photons/s of which the share
+        ``leak_rate`` reaches it (:func:`aligner.physics.detection.expected_rates` with this
+        detector's efficiency, dark counts, dead time and mode); ``dark_rate`` (counts/s)
+        replaces the file's."""
+        from .physics.detection import expected_rates
+
+        return expected_rates(
+            photon_rate,
+            leak_rate,
+            self.efficiency,
+            self.dark_rate if dark_rate is None else dark_rate,
+            self.dead_time_s,
+            rep_rate_hz=self.pulse_rate_hz,
+            dark_probability=self.gate_dark_probability,
+        )
 
     def require_safe_rate(self, path: Path | str | None) -> float:
         """``safe_rate`` (counts/s), or :class:`BenchFileError` when the file does not state it:
@@ -325,6 +371,7 @@ class _Reader:
         above: float | None = None,
         maximum: float | None = None,
         allow_inf: bool = False,
+        limit: float = LARGEST,
     ) -> float:
         if name not in self.table:
             if default is None:
@@ -342,12 +389,35 @@ class _Reader:
             raise self.error(name, f"must be greater than {above:g}, got {value:g}")
         if maximum is not None and value > maximum:
             raise self.error(name, f"must be at most {maximum:g}, got {value:g}")
+        if math.isfinite(value) and abs(value) > limit:
+            raise self.error(name, f"must be between {-limit:g} and {limit:g}, got {value:g}")
         return value
 
-    def integer(self, name: str, default: int, *, minimum: int = 0) -> int:
-        value = self.number(name, float(default), minimum=minimum)
-        if value != int(value):
-            raise self.error(name, f"must be a whole number, got {value:g}")
+    def angle(
+        self,
+        name: str,
+        default: float | None = None,
+        *,
+        minimum: float | None = None,
+        above: float | None = None,
+        maximum: float | None = None,
+    ) -> float:
+        """A number of degrees, at most :data:`LARGEST_ANGLE` in size."""
+        return self.number(
+            name, default, minimum=minimum, above=above, maximum=maximum, limit=LARGEST_ANGLE
+        )
+
+    def integer(self, name: str, default: int, *, minimum: int = 0, maximum: int = 10**6) -> int:
+        if name not in self.table:
+            return default
+        value = self.table[name]
+        whole = isinstance(value, int) or (isinstance(value, float) and value.is_integer())
+        if isinstance(value, bool) or not whole:
+            raise self.error(name, f"must be a whole number, got {value!r}")
+        if not minimum <= int(value) <= maximum:
+            raise self.error(
+                name, f"must be a whole number from {minimum} to {maximum}, got {value}"
+            )
         return int(value)
 
     def text(self, name: str, default: str | None = None, choices: tuple[str, ...] = ()) -> str:
@@ -386,8 +456,12 @@ class _Reader:
 
 def _extinction(r: _Reader) -> float:
     er = r.number("extinction_ratio", INF, allow_inf=True)
-    if er < 1:
-        raise r.error("extinction_ratio", f"must be at least 1 (1e5 for a good prism), got {er:g}")
+    if er <= 1:
+        raise r.error(
+            "extinction_ratio",
+            f"must be above 1 (1 would pass both polarizations alike; 1e5 for a good prism), "
+            f"got {er:g}",
+        )
     return er
 
 
@@ -402,7 +476,7 @@ def _angle_or_mount(r: _Reader, mounts: Mapping[str, Any]) -> tuple[float, str |
             known = ", ".join(mounts) or "none"
             raise r.error("mount", f"unknown mount {name!r} (mounts defined: {known}){hint}")
         return 0.0, name
-    return r.number("angle_deg", 0.0), None
+    return r.angle("angle_deg", 0.0), None
 
 
 def _plate(r: _Reader, element_type: str, wavelength_nm: float) -> tuple[float, Plate | None]:
@@ -509,13 +583,16 @@ def _mount(path: str, name: str, table: Any) -> Mount:
         "readback_tol_deg",
     )
     r = _Reader(path, key, table, allowed)
-    sense = r.number("sense", 1.0)
+    sense = r.number("sense", 1.0, limit=1.0)
     if sense not in (1.0, -1.0):
         raise r.error("sense", f"must be +1 or -1, got {sense:g}")
     travel = r.numbers("travel_deg", 2) if r.has("travel_deg") else (-360.0, 360.0)
     if travel[0] >= travel[1]:
         raise r.error("travel_deg", f"must be [low, high] with low < high, got {list(travel)}")
-    reading = r.number("reading_deg", 0.0)
+    if max(abs(travel[0]), abs(travel[1])) > LARGEST_ANGLE:
+        raise r.error("travel_deg", f"must lie within +/-{LARGEST_ANGLE:g} deg, got {list(travel)}")
+    span = travel[1] - travel[0]
+    reading = r.angle("reading_deg", 0.0)
     if not travel[0] <= reading <= travel[1]:
         raise r.error("reading_deg", f"{reading:g} is outside travel_deg {list(travel)}")
     driver = _driver(r, manual=False, absent=False)
@@ -523,18 +600,20 @@ def _mount(path: str, name: str, table: Any) -> Mount:
         name=name,
         driver=driver,
         reading_deg=reading,
-        offset_deg=r.number("offset_deg", 0.0),
+        offset_deg=r.angle("offset_deg", 0.0),
         sense=int(sense),
-        resolution_deg=r.number("resolution_deg", 0.001, above=0.0),
-        backlash_deg=r.number("backlash_deg", 0.0, minimum=0.0),
+        resolution_deg=r.angle("resolution_deg", 0.001, above=0.0, maximum=span / 10),
+        backlash_deg=r.angle("backlash_deg", 0.0, minimum=0.0, maximum=span / 10),
         travel_deg=(travel[0], travel[1]),
-        repeatability_deg=r.number("repeatability_deg", 0.0, minimum=0.0),
-        offset_err_deg=r.number("offset_err_deg", 0.0, minimum=0.0),
+        repeatability_deg=r.angle("repeatability_deg", 0.0, minimum=0.0, maximum=span / 10),
+        offset_err_deg=r.angle("offset_err_deg", 0.0, minimum=0.0, maximum=90.0),
         speed_deg_s=r.number("speed_deg_s", 20.0, above=0.0),
         profile=r.text("profile") if r.has("profile") else None,
         declared=r.has("driver"),
         readback_tol_deg=(
-            r.number("readback_tol_deg", above=0.0) if r.has("readback_tol_deg") else None
+            r.angle("readback_tol_deg", above=0.0, maximum=span)
+            if r.has("readback_tol_deg")
+            else None
         ),
     )
 
@@ -612,10 +691,16 @@ def _coupling(path: str, table: Mapping[str, Any]) -> Coupling:
                 "axis", "is required when observable = 'axis' (a Stokes direction [S1, S2, S3])"
             )
         axis = r.numbers("axis", 3)
-        if not any(axis):
-            raise r.error("axis", "must not be [0, 0, 0]")
-        eigenvalues = r.numbers("eigenvalues", 2) if r.has("eigenvalues") else (1.0, -1.0)
-        if eigenvalues[0] == eigenvalues[1]:
+        if math.hypot(*axis) < 1e-6 or max(map(abs, axis)) > LARGEST:
+            raise r.error(
+                "axis", f"must be a direction of length 1e-6 to 1e12 (e.g. [1, 0, 0]), got {axis}"
+            )
+        if r.has("eigenvalues"):
+            low, high = r.numbers("eigenvalues", 2)
+            eigenvalues = (low, high)
+        if max(map(abs, eigenvalues)) > 1e6:
+            raise r.error("eigenvalues", f"must be between -1e6 and 1e6, got {eigenvalues}")
+        if abs(eigenvalues[0] - eigenvalues[1]) < 1e-9 * max(map(abs, eigenvalues)):
             raise r.error("eigenvalues", "must differ (equal eigenvalues couple nothing)")
     elif r.has("axis") or r.has("eigenvalues"):
         raise r.error(
@@ -690,10 +775,10 @@ def _simulation(path: str, table: Mapping[str, Any], mounts: Mapping[str, Any]) 
         path, "simulation.true_extinction", extinction_table, ("analyzer", "source")
     )
     return Simulation(
-        seed=r.integer("seed", 0) if r.has("seed") else None,
-        true_offset_deg={name: offsets.number(name) for name in offsets_table},
+        seed=r.integer("seed", 0, maximum=2**63 - 1) if r.has("seed") else None,
+        true_offset_deg={name: offsets.angle(name) for name in offsets_table},
         true_extinction={
-            name: extinction.number(name, minimum=1.0, allow_inf=True) for name in extinction_table
+            name: extinction.number(name, above=1.0, allow_inf=True) for name in extinction_table
         },
         retardance_error_waves=r.number("retardance_error_waves", 0.0),
     )
@@ -721,8 +806,12 @@ def parse_bench(doc: Mapping[str, Any], path: str = "<bench>") -> Bench:
     """Validate a parsed bench document; every error names ``path`` and the key."""
     top = _Reader(path, "", doc, _TOP_KEYS)
     mounts_table = top.table_of("mounts")
+    if len(mounts_table) > MAX_ITEMS:
+        raise top.error(
+            "mounts", f"has {len(mounts_table)} mounts; at most {MAX_ITEMS} are allowed"
+        )
     mounts = {name: _mount(path, name, t) for name, t in mounts_table.items()}
-    wavelength = top.number("wavelength_nm", above=0.0)
+    wavelength = top.number("wavelength_nm", minimum=100.0, maximum=20000.0)
     for table_name in ("source", "coupling", "analyzer", "detector"):
         if table_name not in doc:
             raise BenchFileError(path, f"[{table_name}]", "table is required")
@@ -770,6 +859,8 @@ def parse_bench(doc: Mapping[str, Any], path: str = "<bench>") -> Bench:
         items = doc.get(name, [])
         if not isinstance(items, list):
             raise top.error(name, "must be an array of tables ([[pre]] / [[post]])")
+        if len(items) > MAX_ITEMS:
+            raise top.error(name, f"has {len(items)} elements; at most {MAX_ITEMS} are allowed")
         return tuple(
             _element(path, f"{name}[{i}]", t, mounts, wavelength) for i, t in enumerate(items)
         )
@@ -813,6 +904,14 @@ def resolve_bench_path(path: str | Path) -> Path:
 
 def _read_document(path: Path) -> tomlkit.TOMLDocument:
     try:
+        size = path.stat().st_size if path.is_file() else 0
+        if size > MAX_FILE_BYTES:
+            raise BenchFileError(
+                str(path),
+                None,
+                f"is {size:,} bytes; a bench file may have at most {MAX_FILE_BYTES:,} "
+                "(is this the right file?)",
+            )
         text = path.read_text(encoding="utf-8")
     except FileNotFoundError:
         raise BenchFileError(
@@ -903,11 +1002,18 @@ def write_values(path: str | Path, updates: Mapping[str, float | int | str]) -> 
     """Store values into a bench file by dotted key, keeping comments and layout.
 
     Keys as in error messages: ``mounts.analyzer.offset_deg``, ``pre[1].retardance_waves``.
-    The result is validated before the file is replaced, so a bad update never leaves a broken
-    file behind."""
+    The result is validated before the file is replaced, and the file is replaced in one step
+    (written beside it first), so a bad update or a full disk never leaves a broken file or a
+    stray temporary one behind."""
     p = ensure_writable(path)
     doc = _apply_updates(p, updates)
     parse_bench(doc.unwrap(), str(p))
     tmp = p.with_suffix(p.suffix + ".tmp")
-    tmp.write_text(tomlkit.dumps(doc), encoding="utf-8")
-    tmp.replace(p)
+    try:
+        tmp.write_text(tomlkit.dumps(doc), encoding="utf-8")
+        tmp.replace(p)
+    except OSError as exc:
+        tmp.unlink(missing_ok=True)
+        raise BenchFileError(
+            str(p), None, f"cannot be written ({exc}); the file is unchanged"
+        ) from None

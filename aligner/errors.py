@@ -15,6 +15,7 @@ wrong and what to do; the CLI prints it to stderr and exits with ``exit_code``.
     └── DeviceError                 (exit 3) raised only by drivers/, converted at the boundary
         ├── DeviceTimeout
         ├── BadReply
+        │   └── Unattributable  a reply that cannot be told to belong to its command
         ├── DeviceRefused           the controller answered with an error reply
         ├── Disconnected
         ├── ReadbackMismatch        a mount read back other than it was sent to
@@ -35,6 +36,7 @@ SIGHUP 129). A run that stops for any reason has its shutter shut and can be res
 from __future__ import annotations
 
 __all__ = [
+    "ENDING_STATUS",
     "EXIT_STATUS",
     "AlignerError",
     "BadReply",
@@ -51,6 +53,8 @@ __all__ = [
     "RecipeError",
     "SignalInterrupt",
     "StorageError",
+    "Unattributable",
+    "exit_status",
 ]
 
 #: Exit status of every command, by meaning (the README's table is generated from the same).
@@ -62,6 +66,32 @@ EXIT_STATUS = {
     130: "Ctrl-C (the run is resumable)",
     143: "SIGTERM; 129 SIGHUP (the run is resumable)",
 }
+
+
+#: Why a run (a sweep, a recipe) ended -> the exit status of the command that ran it:
+#: ``""`` done, ``operator`` a pause asked for, ``refused`` a confirmation the operator refused,
+#: ``check`` a recipe check that stops, ``input`` bad input found while running, ``guard`` /
+#: ``device`` / ``storage`` a guard trip, a device fault, a run log that cannot be written,
+#: ``error`` an internal error; ``interrupt`` (Ctrl-C or a signal) is 128 + the signal.
+ENDING_STATUS = {
+    "": 0,
+    "operator": 0,
+    "refused": 2,
+    "check": 2,
+    "input": 2,
+    "guard": 3,
+    "device": 3,
+    "storage": 3,
+    "error": 1,
+}
+
+
+def exit_status(reason: str, signal: int = 0) -> int:
+    """The exit status of a run that ended for ``reason`` (:data:`ENDING_STATUS`); a run
+    stopped by a signal exits with 128 + the signal (Ctrl-C: 130)."""
+    if reason == "interrupt":
+        return 128 + (signal or 2)
+    return ENDING_STATUS[reason]
 
 
 class AlignerError(Exception):
@@ -120,6 +150,11 @@ class DeviceTimeout(DeviceError):
 
 class BadReply(DeviceError):
     """A device answered with something that does not match the profile's reply pattern."""
+
+
+class Unattributable(BadReply):
+    """A reply that cannot be attributed to its command (two replies to one command, a gate
+    that did not start): a fault, never a data point."""
 
 
 class DeviceRefused(DeviceError):

@@ -1,4 +1,4 @@
-"""Hardware adapters: device protocols, simulated, manual and line-protocol devices.
+"""Hardware adapters: device protocols, simulated, manual, line-protocol and plug-in devices.
 
 Installed as ``aligner_drivers`` (the repository keeps it in the top-level ``drivers/`` folder).
 No optics here. The engine talks to devices only through the protocols in
@@ -16,7 +16,9 @@ from typing import Any
 # public name -> submodule that defines it
 _LAZY = {
     "MOUNT_CAPABILITIES": "protocols",
+    "SHUTTER_CAPABILITIES": "protocols",
     "Counter": "protocols",
+    "Identifies": "protocols",
     "PointerReader": "protocols",
     "RotationMount": "protocols",
     "Shutter": "protocols",
@@ -25,6 +27,8 @@ _LAZY = {
     "LineChannel": "lineproto",
     "SerialLike": "lineproto",
     "load_profile": "lineproto",
+    "ENTRY_POINT_GROUP": "plugins",
+    "open_plugin": "plugins",
     "ManualCounter": "manual",
     "ManualPointer": "manual",
     "check_spec": "open",

@@ -37,4 +37,4 @@ def check_channels(channels: object, where: str = "channels") -> int:
         raise InputError(
             f"{where} must be 1 (post-selected) or 2 (post-selected, reference), got {channels!r}"
         )
-    return int(channels)  # type: ignore[call-overload]
+    return int(channels)

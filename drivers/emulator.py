@@ -1,53 +1,52 @@
-"""A simulated controller behind a pseudo-terminal, for driving the real line drivers.
+"""Controller emulators behind a pseudo-terminal (or a TCP socket), for driving the real drivers.
 
-``Emulator`` opens a pty pair (POSIX only), serves the master end from a background thread
-and hands out the slave's path as ``port``, so ``open_mount(emu.port, profile=...)`` goes
-through pyserial and a real tty. It speaks both shipped examples,
-``profiles/example-mount.toml`` and ``profiles/example-counter.toml``:
+``Emulator(shape)`` serves one protocol shape (:mod:`.emulator_shapes`) from a background
+thread: on a pty pair (POSIX only) whose slave path is ``port``, or on a local TCP socket whose
+``port`` is ``socket://127.0.0.1:N``. ``open_mount(emu.port, profile=...)`` then goes through
+pyserial, a real tty or socket, and the real framing. The default shape, ``basic``, speaks the
+shipped ``example-mount`` and ``example-counter`` profiles.
 
-==============  ==============================  ===========================================
-command         reply                           effect
-==============  ==============================  ===========================================
-``GO n``        ``OK``                          start a move to step ``n``
-``AT?``         ``AT n``                        position in steps
-``BUSY?``       ``BUSY 1`` / ``BUSY 0``         is a move running
-``REF``         ``OK``                          move to step 0
-``HALT``        ``OK``                          stop where it is
-``GATE ms``     ``COUNTS a b``                  counts of a gate of ``ms`` milliseconds
-``BEAM ON|OFF`` ``BEAM ON`` / ``BEAM OFF``      shutter output
-anything else   ``ERR 1 unknown command``
-==============  ==============================  ===========================================
+The shape's state is open to tests through ``emu.device`` (a test-only back door: force a
+position, a state, a refusal); ``received`` lists every command received.
 
-Faults (``Faults``): each received command may be hit by one fault, first from ``script``
-(one entry per command, ``None`` for none), then at random with the given probabilities;
-``only`` restricts faults to some command words (``{"AT?"}``). Kinds:
+Faults (``Faults``): each received command may be hit by one fault, first from ``script`` (one
+entry per command, ``None`` for none), then at random with the given probabilities; ``only``
+restricts faults to some command words (``{"AT?"}``). Kinds:
 
 - ``garbage``: the command is carried out but the reply is replaced by random bytes;
-- ``partial``: the command is carried out, half the reply is sent without its terminator;
+- ``partial``: the command is carried out, half the reply is sent without its end marker;
 - ``stall``: the controller hangs for ``stall_s`` and the command is lost;
-- ``error``: an error reply (``ERR 7 ...``) instead of the command;
-- ``disconnect``: the master end is closed (the port vanishes) and the emulator ends;
-- ``offset``: a ``GO`` ends ``offset_steps`` away from its target (a stalled motor).
+- ``error``: the command is refused, in the shape's own way, with the reason "injected fault";
+- ``disconnect``: the port vanishes and the emulator ends;
+- ``offset``: a move ends ``offset_steps`` device units away from its target (a stalled motor);
+- ``late``: the command is carried out, its reply comes ``late_s`` later than it should.
 """
 
 from __future__ import annotations
 
+import contextlib
+import fcntl
+import heapq
 import os
 import select
+import socket
 import threading
 import time
 import tty
-from collections.abc import Callable
 from dataclasses import dataclass, field
 from types import TracebackType
+from typing import Any
 
 import numpy as np
 
 from aligner.errors import InputError
 
+from .emulator_shapes import SHAPES, Answer, Shape
+
 __all__ = ["FAULT_KINDS", "Emulator", "Faults"]
 
-FAULT_KINDS = ("disconnect", "error", "garbage", "offset", "partial", "stall")
+FAULT_KINDS = ("disconnect", "error", "garbage", "late", "offset", "partial", "stall")
+_TICK_S = 0.002
 
 
 @dataclass(frozen=True)
@@ -61,9 +60,11 @@ class Faults:
     error: float = 0.0
     disconnect: float = 0.0
     offset: float = 0.0
+    late: float = 0.0
     only: frozenset[str] | None = None
     stall_s: float = 0.3
     offset_steps: int = 50
+    late_s: float = 0.3
     rates: dict[str, float] = field(init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
@@ -76,39 +77,123 @@ class Faults:
         object.__setattr__(self, "rates", rates)
 
 
-class Emulator:
-    """A pty-backed controller (see the module docstring). Use it as a context manager.
+class _Pty:
+    """The master end of a pty pair; the slave's path is the port."""
 
-    ``speed_steps_s`` (steps/s) makes moves take time (``None``: instant);
-    ``counts_fn(dwell_s) -> (post, ref)`` gives the gate counts (default: Poisson, 1000/s
-    on both channels); ``move_log`` lists every ``GO`` target (steps) in the order received.
+    def __init__(self) -> None:
+        self.master, self.slave = os.openpty()
+        tty.setraw(self.slave)
+        flags = fcntl.fcntl(self.master, fcntl.F_GETFL)
+        fcntl.fcntl(self.master, fcntl.F_SETFL, flags | os.O_NONBLOCK)
+        self.port = os.ttyname(self.slave)
+
+    def read(self, wait_s: float) -> bytes | None:
+        """Bytes received (b"" for none yet); None once the link is gone."""
+        if self.master < 0:
+            return None
+        ready, _, _ = select.select([self.master], [], [], wait_s)
+        if not ready:
+            return b""
+        try:
+            return os.read(self.master, 4096)
+        except BlockingIOError:
+            return b""
+        except OSError:  # no reader on the slave side yet
+            time.sleep(0.01)
+            return b""
+
+    def write(self, data: bytes) -> None:
+        # a full buffer drops bytes, as a real line would lose them
+        with contextlib.suppress(OSError):
+            os.write(self.master, data)
+
+    def hang_up(self) -> None:
+        if self.master >= 0:
+            os.close(self.master)
+            self.master = -1
+
+    def close(self) -> None:
+        self.hang_up()
+        if self.slave >= 0:
+            os.close(self.slave)
+            self.slave = -1
+
+
+class _Tcp:
+    """A listening socket on 127.0.0.1 serving one client at a time."""
+
+    def __init__(self) -> None:
+        self.server = socket.create_server(("127.0.0.1", 0))
+        self.server.setblocking(False)
+        self.client: socket.socket | None = None
+        self.port = f"socket://127.0.0.1:{self.server.getsockname()[1]}"
+        self.gone = False
+
+    def read(self, wait_s: float) -> bytes | None:
+        if self.gone:
+            return None
+        ready, _, _ = select.select([self.client or self.server], [], [], wait_s)
+        if not ready:
+            return b""
+        if self.client is None:
+            self.client, _ = self.server.accept()
+            self.client.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+            return b""
+        try:
+            data = self.client.recv(4096)
+        except OSError:
+            data = b""
+        if not data:  # the client closed: wait for the next one
+            self.client.close()
+            self.client = None
+        return data
+
+    def write(self, data: bytes) -> None:
+        if self.client is not None:
+            with contextlib.suppress(OSError):
+                self.client.sendall(data)
+
+    def hang_up(self) -> None:
+        self.gone = True
+        if self.client is not None:
+            self.client.close()
+            self.client = None
+
+    def close(self) -> None:
+        self.hang_up()
+        self.server.close()
+
+
+class Emulator:
+    """An emulated controller of one shape (see the module docstring); a context manager.
+
+    ``shape`` names a shape of :data:`~.emulator_shapes.SHAPES` (default ``basic``);
+    ``options`` go to the shape (e.g. ``speed_steps_s``, ``counts_fn``). The basic shape's
+    state also shows as ``position_steps``, ``move_log`` and ``beam_on``.
     """
 
     def __init__(
         self,
+        shape: str = "basic",
         *,
         faults: Faults | None = None,
-        speed_steps_s: float | None = None,
-        counts_fn: Callable[[float], tuple[int, int]] | None = None,
         seed: int | None = None,
+        **options: Any,
     ) -> None:
+        if shape not in SHAPES:
+            raise InputError(f"unknown emulator shape {shape!r}; allowed: {', '.join(SHAPES)}")
         self.faults = faults or Faults()
-        self.speed_steps_s = speed_steps_s
-        self._rng = np.random.default_rng(seed)
-        self.counts_fn = counts_fn or (
-            lambda dwell_s: tuple(int(c) for c in self._rng.poisson(1000.0 * dwell_s, 2))
-        )
-        self.move_log: list[int] = []
+        self.rng = np.random.default_rng(seed)
         self.received: list[str] = []
-        self.beam_on = False
         self.disconnected = False
         self._script = list(self.faults.script)
-        self._start_steps, self._target, self._t0, self._duration = 0, 0, 0.0, 0.0
-        self._master, self._slave = os.openpty()
-        tty.setraw(self._slave)
-        self.port = os.ttyname(self._slave)
+        self._queue: list[tuple[float, int, bytes]] = []
+        self._sequence = 0
+        self.device: Shape = SHAPES[shape](self._send_later, self.rng, **options)
+        self._link: _Pty | _Tcp = _Tcp() if self.device.transport == "tcp" else _Pty()
+        self.port = self._link.port
         self._stop = threading.Event()
-        self._thread = threading.Thread(target=self._serve, name="pty-emulator", daemon=True)
+        self._thread = threading.Thread(target=self._serve, name=f"emulator-{shape}", daemon=True)
 
     # -- life cycle ------------------------------------------------------------------------
 
@@ -125,134 +210,100 @@ class Emulator:
         self.close()
 
     def close(self) -> None:
-        """Stop the thread and close both ends of the pty."""
+        """Stop the thread and close the link."""
         self._stop.set()
         if self._thread.is_alive():
             self._thread.join(timeout=5.0)
-        self._close_master()
-        if self._slave >= 0:
-            os.close(self._slave)
-            self._slave = -1
+        self._link.close()
 
-    def _close_master(self) -> None:
-        if self._master >= 0:
-            os.close(self._master)
-            self._master = -1
-
-    # -- motion ----------------------------------------------------------------------------
+    # -- the basic shape's state, by its old names -----------------------------------------
 
     @property
     def position_steps(self) -> int:
-        """Where the axis is now (steps)."""
-        if self._duration <= 0.0:
-            return self._target
-        done = min(1.0, (time.monotonic() - self._t0) / self._duration)
-        return round(self._start_steps + (self._target - self._start_steps) * done)
+        """Where the (first) axis is now, in device units."""
+        return round(self.device.axis().position)
 
-    def _moving(self) -> bool:
-        return self._duration > 0.0 and time.monotonic() - self._t0 < self._duration
+    @property
+    def move_log(self) -> list[float]:
+        """Every move target received by the (first) axis, in device units."""
+        return self.device.axis().move_log
 
-    def _start_move(self, target: int) -> None:
-        start = self.position_steps
-        self._start_steps, self._target, self._t0 = start, target, time.monotonic()
-        self._duration = abs(target - start) / self.speed_steps_s if self.speed_steps_s else 0.0
+    @property
+    def beam_on(self) -> bool:
+        """True while the emulated shutter is open."""
+        return self.device.beam_open
 
-    def _halt(self) -> None:
-        here = self.position_steps
-        self._start_steps = self._target = here
-        self._duration = 0.0
+    # -- serving ---------------------------------------------------------------------------
 
-    # -- protocol --------------------------------------------------------------------------
+    def _send_later(self, data: bytes, delay_s: float = 0.0) -> None:
+        """Queue ``data`` to go out after ``delay_s`` (in order of due time)."""
+        self._sequence += 1
+        heapq.heappush(self._queue, (time.monotonic() + delay_s, self._sequence, data))
 
-    def _execute(self, line: str, offset: bool) -> str:
-        word, _, arg = line.partition(" ")
-        if word in ("GO", "GATE"):
-            try:
-                number = int(arg)
-            except ValueError:
-                return "ERR 2 bad argument"
-            if word == "GATE":
-                post, ref = self.counts_fn(number / 1000.0)
-                return f"COUNTS {post} {ref}"
-            self.move_log.append(number)
-            self._start_move(number + (self.faults.offset_steps if offset else 0))
-            return "OK"
-        match line:
-            case "AT?":
-                return f"AT {self.position_steps}"
-            case "BUSY?":
-                return f"BUSY {int(self._moving())}"
-            case "REF":
-                self._start_move(0)
-                return "OK"
-            case "HALT":
-                self._halt()
-                return "OK"
-            case "BEAM ON" | "BEAM OFF":
-                self.beam_on = line == "BEAM ON"
-                return line
-        return "ERR 1 unknown command"
-
-    def _next_fault(self, line: str) -> str | None:
+    def _next_fault(self, command: bytes) -> str | None:
         only = self.faults.only
-        if only is not None and line.partition(" ")[0] not in only and line not in only:
+        if only is not None and self.device.word(command) not in only:
             return None
         if self._script:
             return self._script.pop(0)
-        draw = self._rng.random()
+        draw = self.rng.random()
         for kind, rate in self.faults.rates.items():
             if draw < rate:
                 return kind
             draw -= rate
         return None
 
-    def _handle(self, line: str) -> None:
-        self.received.append(line)
-        fault = self._next_fault(line)
+    def _handle(self, command: bytes) -> None:
+        self.received.append(command.decode("latin-1").strip())
+        fault = self._next_fault(command)
         if fault == "disconnect":
             self.disconnected = True
-            self._close_master()
+            self._link.hang_up()
             return
         if fault == "stall":
             self._stop.wait(self.faults.stall_s)
             return
         if fault == "error":
-            self._send(b"ERR 7 injected fault\r\n")
+            answer = self.device.refuse(command, "injected fault")
+        else:
+            offset = self.faults.offset_steps if fault == "offset" else 0
+            answer = self.device.handle(command, offset)
+        if answer is None:
             return
-        reply = self._execute(line, offset=fault == "offset").encode("ascii")
+        if isinstance(answer, bytes):
+            answer = Answer(answer)
+        self._answer(answer, fault)
+
+    def _answer(self, answer: Answer, fault: str | None) -> None:
+        data = answer.data
+        end = self.device.reply_end if answer.end is None else answer.end
+        if data is None:  # a command without a reply: only its echo and prompt
+            data, end = b"", b""
         if fault == "garbage":
             pool = np.r_[0x20:0x7F, 0x80:0x100]
-            self._send(bytes(self._rng.choice(pool, 12).tolist()) + b"\r\n")
-        elif fault == "partial":
-            self._send(reply[: max(1, len(reply) // 2)])
-        else:
-            self._send(reply + b"\r\n")
+            data, end = bytes(self.rng.choice(pool, 12).tolist()), self.device.reply_end
+        if fault == "partial":
+            self._send_later(answer.prefix + data[: max(1, len(data) // 2)], answer.after_s)
+            return
+        late = self.faults.late_s if fault == "late" else 0.0
+        self._send_later(answer.prefix + data + end + answer.suffix, answer.after_s + late)
 
-    def _send(self, data: bytes) -> None:
-        try:
-            os.write(self._master, data)
-        except OSError:
-            self._stop.set()
+    def _flush(self) -> None:
+        now = time.monotonic()
+        while self._queue and self._queue[0][0] <= now:
+            self._link.write(heapq.heappop(self._queue)[2])
 
     def _serve(self) -> None:
         buffer = b""
-        while not self._stop.is_set() and self._master >= 0:
-            ready, _, _ = select.select([self._master], [], [], 0.02)
-            if not ready:
-                continue
-            try:
-                chunk = os.read(self._master, 4096)
-            except OSError:
-                time.sleep(0.01)  # no reader on the slave side yet
-                continue
+        while not self._stop.is_set():
+            chunk = self._link.read(_TICK_S)
+            if chunk is None:
+                return
             buffer += chunk
-            while not self._stop.is_set() and self._master >= 0:
-                cut = min(
-                    (i for i in (buffer.find(b"\r"), buffer.find(b"\n")) if i >= 0), default=-1
-                )
-                if cut < 0:
-                    break
-                line, buffer = buffer[:cut], buffer[cut + 1 :]
-                text = line.decode("ascii", errors="replace").strip()
-                if text:
-                    self._handle(text)
+            commands, buffer = self.device.split(buffer)
+            for command in commands:
+                if self._stop.is_set() or self.disconnected:
+                    return
+                self._handle(command)
+            self.device.tick()
+            self._flush()

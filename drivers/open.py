@@ -5,7 +5,9 @@ Specs:
 - a serial port path: ``/dev/ttyUSB0``, ``/dev/tty.usbserial-1``, ``COM3``;
 - a pyserial URL: ``rfc2217://host:port``, ``socket://host:port``, ``loop://``, ``spy://PORT``;
 - ``sim`` or ``sim:?key=value&...``: a simulated device (options below);
-- ``manual`` or ``manual:?...``: the operator types the numbers (counters and pointers).
+- ``manual`` or ``manual:?...``: the operator types the numbers (counters and pointers);
+- ``py:package.module:factory?key=value&...`` or ``plugin:NAME?key=value&...``: a device made
+  by a Python factory (``aligner_drivers.plugins`` describes both forms and their options).
 
 Serial specs need ``profile=`` (a profile file, or a shipped profile by name such as
 ``"example-mount"``). Keyword options override options from the query string; an unknown
@@ -16,7 +18,10 @@ of the bench; follow your local laser-safety rules and your laser safety officer
 
 Options (query keys and keyword names are the same):
 
-- serial, all kinds: ``name``, ``baud``, ``timeout`` (reply timeout, s), ``retries``;
+- serial, all kinds: ``name``, ``baud``, ``timeout`` (reply timeout, s), ``retries``,
+  ``addr`` and ``axis`` (fill ``{addr}`` and ``{axis}`` of the profile's templates: several
+  devices at different addresses share one open port); the keyword ``wire_log(direction,
+  data)`` sees every byte sent (``"->"``) and received (``"<-"``) on the port;
 - ``sim`` mount: ``name``, ``resolution`` (deg), ``backlash`` (deg), ``speed`` (deg/s),
   ``travel`` (``low,high`` deg), ``noise`` (rms deg), ``seed``, ``realtime``, ``start`` (deg);
 - ``sim`` counter: ``name``, ``channels``, ``rate`` and ``ref_rate`` (counts/s, Poisson),
@@ -29,10 +34,10 @@ Options (query keys and keyword names are the same):
 
 from __future__ import annotations
 
-import dataclasses
 import difflib
 import math
 import re
+import socket
 from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import Any
@@ -42,7 +47,15 @@ import serial
 
 from aligner.errors import Disconnected, InputError
 
-from .lineproto import PORT_ERRORS, PROFILE_DIR, DeviceProfile, LineChannel, load_profile
+from .lineproto import (
+    PORT_ERRORS,
+    PROFILE_DIR,
+    DeviceProfile,
+    LineChannel,
+    load_profile,
+    shipped_profiles,
+)
+from .lineproto.bus import attach
 from .manual import ManualCounter, ManualPointer
 from .protocols import Counter, PointerReader, RotationMount, Shutter
 from .serial_counter import LineCounter
@@ -58,13 +71,15 @@ __all__ = [
     "open_pointer",
     "open_shutter",
     "profile_file",
+    "profile_roles",
+    "shipped_profile_list",
 ]
 
 _URL_SCHEMES = ("loop", "rfc2217", "socket", "spy")
 _ALLOWED_SPECS = (
     "a serial port path (/dev/ttyUSB0, COM3), "
     + ", ".join(f"{s}://..." for s in _URL_SCHEMES)
-    + ", sim or sim:?key=value&..."
+    + ", sim or sim:?key=value&..., py:package.module:factory?..., plugin:NAME?..."
 )
 Converter = Callable[[str, str, Any], Any]
 
@@ -119,6 +134,9 @@ _SERIAL_OPTIONS: dict[str, tuple[str, Converter]] = {
     "baud": ("baud", _whole),
     "timeout": ("reply_timeout_s", _number),
     "retries": ("retries", _whole),
+    "addr": ("address", _text),
+    "axis": ("axis", _text),
+    "wire_log": ("wire_log", _function),
 }
 _SIM_MOUNT: dict[str, tuple[str, Converter]] = {
     "name": ("name", _text),
@@ -158,9 +176,12 @@ _MANUAL_COUNTER = {**_MANUAL_POINTER, "channels": ("channels", _whole)}
 
 
 def _parse(spec: str, *, manual: bool) -> tuple[str, dict[str, str]]:
-    """Return (kind, query options); kind is ``sim``, ``manual`` or ``serial``."""
+    """Return (kind, query options); kind is ``sim``, ``manual``, ``serial``, or ``py`` or
+    ``plugin`` (whose options ``aligner_drivers.plugins`` reads itself)."""
     if not isinstance(spec, str) or not spec.strip():
         raise InputError(f"device spec must be a non-empty text, got {spec!r}")
+    if spec.startswith(("py:", "plugin:")):
+        return spec.partition(":")[0], {}
     allowed = _ALLOWED_SPECS + (", manual or manual:?..." if manual else "")
     for kind in ("sim", "manual"):
         if spec == kind or spec.startswith(f"{kind}:"):
@@ -184,15 +205,28 @@ def _parse(spec: str, *, manual: bool) -> tuple[str, dict[str, str]]:
 
 
 def check_spec(spec: str, *, manual: bool = False) -> str:
-    """Check a device spec without opening anything; return its kind (``sim``, ``manual`` or
-    ``serial``) or raise ``InputError`` listing what is allowed (with a did-you-mean)."""
+    """Check a device spec without opening anything; return its kind (``sim``, ``manual``,
+    ``serial``, ``py`` or ``plugin``) or raise ``InputError`` listing what is allowed (with a
+    did-you-mean). A plug-in spec's module is imported to find its factory and check the
+    options; nothing is called."""
     try:
-        return _parse(spec, manual=manual)[0]
+        kind = _parse(spec, manual=manual)[0]
     except InputError as exc:
         close = difflib.get_close_matches(str(spec), ["sim", "manual"] if manual else ["sim"], n=1)
         if close and ":" not in str(spec):
             raise InputError(f"{exc}; did you mean {close[0]!r}?") from None
         raise
+    if kind in ("py", "plugin"):
+        from .plugins import check_plugin  # imported on first use (it imports this module)
+
+        check_plugin(spec)
+    return kind
+
+
+def _plugin(spec: str, role: str, profile: Any, options: Mapping[str, Any]) -> Any:
+    from .plugins import open_plugin
+
+    return open_plugin(spec, role, options, profile=profile)
 
 
 def profile_file(profile: str | Path, *, base: Path | None = None) -> Path | None:
@@ -227,24 +261,48 @@ def _open_channel(
     if profile is None:
         raise InputError(
             f"{spec}: a serial device needs profile= (a profile file, or a shipped profile: "
-            "example-mount, example-counter)"
+            f"{', '.join(shipped_profiles())})"
         )
     loaded = profile if isinstance(profile, DeviceProfile) else load_profile(profile)
     options = _options(spec, _SERIAL_OPTIONS, {}, overrides)
     name = options.pop("name", None)
-    loaded = dataclasses.replace(loaded, **options)
-    if loaded.baud < 1 or loaded.reply_timeout_s <= 0.0 or loaded.retries < 0:
-        raise InputError(f"{spec}: options need baud >= 1, timeout > 0 s and retries >= 0")
-    try:
-        port = serial.serial_for_url(
-            spec, baudrate=loaded.baud, timeout=loaded.reply_timeout_s, write_timeout=2.0
-        )
-    except (*PORT_ERRORS, ValueError) as exc:
-        raise Disconnected(
-            f"cannot open {spec} ({exc}); check that the device is plugged in and powered, the "
-            "port name, and that you may use the port (on Linux: the dialout group)"
-        ) from None
-    return LineChannel(port, loaded, name=name), name
+    wire_log = options.pop("wire_log", None)
+    loaded = loaded.with_options(**options)
+
+    def open_port() -> Any:
+        try:
+            port = serial.serial_for_url(
+                spec, baudrate=loaded.link.baud, timeout=0.005, write_timeout=2.0
+            )
+        except (*PORT_ERRORS, ValueError) as exc:  # type: ignore[misc]
+            raise Disconnected(
+                f"cannot open {spec} ({exc}); check that the device is plugged in and powered, "
+                "the port name, and that you may use the port (on Linux: the dialout group)"
+            ) from None
+        # socket:// ports: short commands go out at once (no waiting for an earlier ACK)
+        sock = getattr(port, "_socket", None)
+        if isinstance(sock, socket.socket):
+            sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+        return port
+
+    bus = attach(spec, loaded.link, open_port, who=loaded.where())
+    if wire_log is not None:
+        bus.set_wire_log(wire_log)
+    return LineChannel(bus, loaded, name=name), name
+
+
+def profile_roles(profile: str | Path) -> frozenset[str]:
+    """Which devices a profile drives (``mount``, ``counter``, ``shutter``, ``pointer``)."""
+    return load_profile(profile).roles
+
+
+def shipped_profile_list() -> list[tuple[str, frozenset[str], str]]:
+    """(name, roles, description) of every shipped example profile, by name."""
+    out = []
+    for name in shipped_profiles():
+        loaded = load_profile(name)
+        out.append((name, loaded.roles, loaded.description))
+    return out
 
 
 def _with_channel(
@@ -266,6 +324,8 @@ def open_mount(
 ) -> RotationMount:
     """Open a rotation mount (see the module docstring for specs and options)."""
     kind, query = _parse(spec, manual=False)
+    if kind in ("py", "plugin"):
+        return _plugin(spec, "mount", profile, options)
     if kind == "sim":
         return SimMount(**_options(spec, _SIM_MOUNT, query, options))
     return _with_channel(spec, profile, options, LineMount)
@@ -276,6 +336,8 @@ def open_counter(
 ) -> Counter:
     """Open a counter (see the module docstring for specs and options)."""
     kind, query = _parse(spec, manual=True)
+    if kind in ("py", "plugin"):
+        return _plugin(spec, "counter", profile, options)
     if kind == "sim":
         opts = _options(spec, _SIM_COUNTER, query, options)
         channels = opts.get("channels", 1)
@@ -294,6 +356,8 @@ def open_shutter(
 ) -> Shutter:
     """Open a shutter (see the module docstring for specs and options)."""
     kind, query = _parse(spec, manual=False)
+    if kind in ("py", "plugin"):
+        return _plugin(spec, "shutter", profile, options)
     if kind == "sim":
         return SimShutter(**_options(spec, _SIM_SHUTTER, query, options))
     return _with_channel(spec, profile, options, LineShutter)
@@ -304,6 +368,8 @@ def open_pointer(
 ) -> PointerReader:
     """Open a pointer reader (see the module docstring for specs and options)."""
     kind, query = _parse(spec, manual=True)
+    if kind in ("py", "plugin"):
+        return _plugin(spec, "pointer", profile, options)
     if kind == "sim":
         opts = _options(spec, _SIM_POINTER, query, options)
         reading = (opts.get("value", 0.0), opts.get("sem", 0.0))

@@ -24,14 +24,27 @@ from contextlib import contextmanager
 __all__ = ["build_parser", "main"]
 
 #: Command modules in the order ``aligner --help`` lists them.
-COMMANDS = ("predict", "plan", "derive", "leak", "fit", "null", "sweep", "log", "recipe", "desk")
+COMMANDS = (
+    "predict",
+    "plan",
+    "derive",
+    "leak",
+    "fit",
+    "null",
+    "sweep",
+    "log",
+    "recipe",
+    "device",
+    "desk",
+)
 
 
 def build_parser() -> argparse.ArgumentParser:
     """The full parser with every command registered."""
     from .. import __version__
+    from .common import AlignerParser
 
-    parser = argparse.ArgumentParser(
+    parser = AlignerParser(
         prog="aligner",
         description="Plan, align and log weak-value amplification measurements on polarization "
         "interferometers. Run 'aligner COMMAND --help' for each command. "
@@ -40,7 +53,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     parser.add_argument("--version", action="version", version=f"aligner {__version__}")
     parser.add_argument("--debug", action="store_true", help="show a traceback on errors")
-    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=AlignerParser)
     for name in COMMANDS:
         try:
             module = importlib.import_module(f"{__name__}.{name}")
@@ -80,7 +93,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     from ..errors import AlignerError, SignalInterrupt
 
     parser = build_parser()
-    args = parser.parse_args(argv)
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # a usage error (status 2) or --help/--version (status 0)
+        return int(exc.code or 0) if not isinstance(exc.code, str) else 2
     if not getattr(args, "handler", None):
         parser.print_help()
         return 0

@@ -6,12 +6,13 @@ import argparse
 import json
 import math
 import sys
-from collections.abc import Mapping
-from typing import Any
+from collections.abc import Callable, Mapping
+from typing import Any, NoReturn
 
 from ..errors import InputError
 
 __all__ = [
+    "AlignerParser",
     "add_bench_argument",
     "add_device_arguments",
     "add_json_flag",
@@ -19,9 +20,117 @@ __all__ = [
     "device_overrides",
     "emit_json",
     "laser_safety",
+    "number",
     "parse_settings",
+    "run_id",
     "to_jsonable",
 ]
+
+#: Help is wrapped for an 80-column terminal whatever the terminal says.
+HELP_WIDTH = 80
+
+
+def _closest(word: str, choices: list[str]) -> str:
+    import difflib
+
+    close = difflib.get_close_matches(word, choices, n=1, cutoff=0.6)
+    return f"; did you mean {close[0]!r}?" if close else ""
+
+
+class AlignerParser(argparse.ArgumentParser):
+    """An argument parser that never guesses: no abbreviated options (``--dwel`` is not
+    ``--dwell``), an unknown option is named with a did-you-mean by the command it was given
+    to (before any complaint about a missing option), and help wraps at 80 columns."""
+
+    def __init__(self, *args: Any, **kwargs: Any) -> None:
+        kwargs.setdefault("allow_abbrev", False)
+        kwargs.setdefault("formatter_class", _Formatter)
+        super().__init__(*args, **kwargs)
+
+    def _is_leaf(self) -> bool:
+        return not any(isinstance(a, argparse._SubParsersAction) for a in self._actions)
+
+    def parse_known_args(  # type: ignore[override]
+        self, args: Any = None, namespace: Any = None
+    ) -> tuple[argparse.Namespace, list[str]]:
+        if self._is_leaf() and args is not None:
+            known = list(self._option_string_actions)
+            for token in args:
+                if token == "--":
+                    break
+                name = token.split("=", 1)[0]
+                if name.startswith("--") and name not in known:
+                    self.error(f"unknown option {name}{_closest(name, known)}")
+        return super().parse_known_args(args, namespace)
+
+    def error(self, message: str) -> NoReturn:
+        import re
+
+        choice = re.search(r"invalid choice: '([^']*)' \(choose from (.*)\)", message)
+        if choice:
+            options = [c.strip(" '") for c in choice.group(2).split(",")]
+            message += _closest(choice.group(1), options)
+        super().error(message)
+
+
+class _Formatter(argparse.HelpFormatter):
+    """Help at 80 columns: descriptions and epilogs are filled paragraph by paragraph, except
+    paragraphs with indented lines (tables, examples), which are kept as written."""
+
+    def __init__(self, prog: str) -> None:
+        super().__init__(prog, width=HELP_WIDTH, max_help_position=30)
+
+    def _fill_text(self, text: str, width: int, indent: str) -> str:
+        import textwrap
+
+        paragraphs = text.strip("\n").split("\n\n")
+        out = []
+        for paragraph in paragraphs:
+            lines = paragraph.splitlines()
+            if any(line.startswith((" ", "\t")) for line in lines[1:]) or (
+                lines and lines[0].startswith((" ", "\t"))
+            ):
+                out.append("\n".join(indent + line for line in lines))
+            else:
+                out.append(
+                    textwrap.fill(
+                        " ".join(paragraph.split()),
+                        width,
+                        initial_indent=indent,
+                        subsequent_indent=indent,
+                    )
+                )
+        return "\n\n".join(out)
+
+
+def number(
+    low: float, high: float, *, integer: bool = False, low_open: bool = False
+) -> Callable[[str], float]:
+    """An argparse ``type`` for a number in ``[low, high]`` (``(low, high]`` with
+    ``low_open``; whole numbers with ``integer``); the error states the allowed range."""
+
+    def shown(x: float) -> str:
+        return str(int(x)) if integer else f"{x:g}"
+
+    def convert(text: str) -> float:
+        what = "a whole number" if integer else "a number"
+        start = "above" if low_open else "from"
+        bound = f"{start} {shown(low)} {'up ' if low_open else ''}to {shown(high)}"
+        try:
+            value: float = int(text) if integer else float(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not {what} ({bound})") from None
+        inside = (low < value if low_open else low <= value) and value <= high
+        if not (math.isfinite(value) and inside):
+            raise argparse.ArgumentTypeError(f"{text} is outside the allowed range ({bound})")
+        return value
+
+    convert.__name__ = "whole number" if integer else "number"
+    return convert
+
+
+#: A run id as the run log stores it (SQLite's signed 64-bit integers, from 1).
+run_id = number(1, 2**63 - 1, integer=True)
 
 
 def laser_safety(advice: str) -> str:

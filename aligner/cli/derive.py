@@ -20,7 +20,9 @@ def register(sub: argparse._SubParsersAction) -> None:
         "mount, the phase mount and any --free mount as symbols (rad), the bench's leaks "
         "(d = 1/extinction ratio) and transmissions (T) as named symbols with their values "
         "listed, and their leading order around the null, extinction floor included. "
-        "Paste-ready for lab notebooks. Takes a few seconds (sympy). Exit status 2 for a bad "
+        "When those mounts cannot reach a null, the first other mount that lets them is freed "
+        "as well and a note says which. Paste-ready for lab notebooks (--latex: a fragment "
+        "for a document that loads amsmath). Takes a few seconds (sympy). Exit status 2 for a bad "
         "bench file or mount name: the message goes to stderr, and with --json nothing is "
         "printed on stdout.",
     )
@@ -42,8 +44,8 @@ def register(sub: argparse._SubParsersAction) -> None:
         "--json",
         action="store_true",
         help="print one JSON document: symbols (meaning, latex, value), "
-        "angles, offsets, null_deg, and expressions (each as text in sympy "
-        "syntax and as latex)",
+        "angles, offsets, null_deg, expressions (each as text in sympy "
+        "syntax and as latex; null without a series) and notes",
     )
     parser.set_defaults(handler=run)
 

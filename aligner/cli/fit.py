@@ -11,7 +11,7 @@ import argparse
 from collections.abc import Iterable
 from typing import Any
 
-from .common import add_json_flag, laser_safety
+from .common import add_json_flag, laser_safety, number
 
 KINDS = ("null", "waveplate", "leak", "coupling")
 SAFETY = laser_safety("never expose a single-photon detector to a bright beam.")
@@ -61,11 +61,14 @@ def register(sub: argparse._SubParsersAction) -> None:
         "analyzer for null, phase_mount for waveplate, imbalance_mount otherwise)",
     )
     p.add_argument(
-        "--dwell", type=float, metavar="S", help="gate time (s) when the file has no dwell_s column"
+        "--dwell",
+        type=number(0, 1e6, low_open=True),
+        metavar="S",
+        help="gate time (s) when the file has no dwell_s column",
     )
     p.add_argument(
         "--dark-rate",
-        type=float,
+        type=number(0, 1e9),
         metavar="R",
         help="dark rate (counts/s) measured "
         "with the shutter closed (default: the bench detector's)",

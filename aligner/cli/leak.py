@@ -10,7 +10,7 @@ from __future__ import annotations
 import argparse
 from typing import Any
 
-from .common import add_json_flag, add_set_argument
+from .common import add_json_flag, add_set_argument, number
 from .fit import SAFETY
 
 
@@ -24,23 +24,31 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument(
         "--counts",
-        type=float,
+        type=number(0, 1e15, integer=True),
         required=True,
         metavar="N",
         help="post-selected counts (clicks in pulsed mode)",
     )
-    p.add_argument("--dwell", type=float, required=True, metavar="S", help="gate time (s)")
+    p.add_argument(
+        "--dwell",
+        type=number(0, 1e6, low_open=True),
+        required=True,
+        metavar="S",
+        help="gate time (s)",
+    )
     ref = p.add_mutually_exclusive_group()
-    ref.add_argument("--reference", type=float, metavar="N2", help="reference counts")
+    ref.add_argument(
+        "--reference", type=number(0, 1e15, integer=True), metavar="N2", help="reference counts"
+    )
     ref.add_argument(
         "--reference-rate",
-        type=float,
+        type=number(0, 1e15, low_open=True),
         metavar="R",
         help="full-transmission count rate (counts/s, same detector)",
     )
     p.add_argument(
         "--reference-dwell",
-        type=float,
+        type=number(0, 1e6, low_open=True),
         metavar="S",
         help="gate of the reference counts (default: --dwell)",
     )
@@ -53,30 +61,38 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument(
         "--relative-efficiency",
-        type=float,
+        type=number(0, 1e6, low_open=True),
         default=1.0,
         metavar="X",
         help="efficiency of the post-selected detector over the reference one",
     )
-    p.add_argument("--dark", type=float, metavar="N3", help="dark counts, shutter closed")
     p.add_argument(
-        "--dark-dwell", type=float, metavar="S", help="gate of the dark counts (default: --dwell)"
+        "--dark",
+        type=number(0, 1e15, integer=True),
+        metavar="N3",
+        help="dark counts, shutter closed",
+    )
+    p.add_argument(
+        "--dark-dwell",
+        type=number(0, 1e6, low_open=True),
+        metavar="S",
+        help="gate of the dark counts (default: --dwell)",
     )
     p.add_argument(
         "--dead-time-ns",
-        type=float,
+        type=number(0, 1e9),
         metavar="NS",
         help="dead time (ns; default: the bench detector's, else 0)",
     )
     p.add_argument(
         "--rep-rate",
-        type=float,
+        type=number(0, 1e12, low_open=True),
         metavar="HZ",
         help="pulsed mode: repetition rate (default: the bench's in pulsed mode)",
     )
     p.add_argument(
         "--level",
-        type=float,
+        type=number(0.5, 0.9999),
         default=0.683,
         help="confidence level of the interval (default 0.683)",
     )

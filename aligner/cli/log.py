@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 from typing import Any
 
-from .common import add_json_flag
+from .common import add_json_flag, run_id
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -29,18 +29,24 @@ def register(sub: argparse._SubParsersAction) -> None:
 
     add_json_flag(action("list", "list the runs"))
     show = action("show", "show one run: header, points and events")
-    show.add_argument("run", metavar="RUN", type=int)
+    show.add_argument("run", metavar="RUN", type=run_id)
     add_json_flag(show)
     export = action("export", "write a run's points as CSV")
-    export.add_argument("run", metavar="RUN", type=int)
+    export.add_argument("run", metavar="RUN", type=run_id)
     export.add_argument("--csv", metavar="FILE", required=True, help="CSV file to write")
     export.add_argument("--force", action="store_true", help="replace an existing CSV file")
     note = action("note", "add an operator note to a run")
-    note.add_argument("run", metavar="RUN", type=int)
+    note.add_argument("run", metavar="RUN", type=run_id)
     note.add_argument("text", metavar="TEXT", nargs="+")
     report = action("report", "write a Markdown summary and a plot of a run")
-    report.add_argument("run", metavar="RUN", type=int)
+    report.add_argument("run", metavar="RUN", type=run_id)
     report.add_argument("--out", metavar="DIR", required=True, help="folder to write into")
+    rescue = action(
+        "salvage",
+        "copy the readable runs of a damaged run log (--db) into a new file (--out)",
+    )
+    rescue.add_argument("--out", metavar="FILE", required=True, help="new run-log file")
+    add_json_flag(rescue)
 
 
 def _run_json(r: Any) -> dict[str, Any]:
@@ -59,6 +65,39 @@ def _run_json(r: Any) -> dict[str, Any]:
     }
 
 
+def _show_recipe(console: Any, log: Any, run_id: int, as_json: bool) -> None:
+    """``log show`` of a recipe run: its header, devices, every step and the events."""
+    from ..recipe.report import step_lines
+    from ..run.report import device_lines
+    from ..text import safe_text
+    from .common import emit_json
+
+    record, steps, events = log.run(run_id), log.recipe_steps(run_id), log.events(run_id)
+    recipe = log.recipe_run(run_id)
+    if as_json:
+        emit_json(
+            {
+                **_run_json(record),
+                "recipe": {"name": recipe.name, "path": recipe.path, "steps": recipe.steps},
+                "provenance": record.provenance,
+                "steps": [row.outcome for row in steps],
+                "events": [e.__dict__ for e in events],
+            }
+        )
+        return
+    console.print(
+        safe_text(
+            f"run {record.id}: recipe {recipe.name} ({recipe.path}), {record.status} "
+            f"({record.data_label}), {len(steps)} of {recipe.steps} steps logged, bench "
+            f"{record.bench_name}" + (f"\n{record.message}" if record.message else "")
+        )
+    )
+    for line in (*device_lines(record), *step_lines(steps)):
+        console.print(f"  {safe_text(line)}")
+    for e in events:
+        console.print(f"{e.t_utc[:19]} {e.kind}: {safe_text(e.message)}")
+
+
 def run(args: argparse.Namespace) -> int:
     """Carry out one ``log`` action."""
     from rich.table import Table
@@ -70,6 +109,8 @@ def run(args: argparse.Namespace) -> int:
     from .common import emit_json
 
     console = make_console()
+    if args.action == "salvage":
+        return _salvage(args, console)
     with RunLog(args.db, create=args.action == "note") as log:
         if args.action == "list":
             runs = log.runs()
@@ -80,16 +121,21 @@ def run(args: argparse.Namespace) -> int:
             for column in ("run", "status", "data", "points", "schedule", "bench", "started"):
                 table.add_column(column)
             for r in runs:
+                recipe = r.kind == "recipe"
                 table.add_row(
                     str(r.id),
                     r.status,
                     r.data_label,
-                    f"{r.points}/{r.planned}",
-                    safe_text(r.schedule),
+                    f"{len(log.recipe_steps(r.id))}/{r.planned} steps"
+                    if recipe
+                    else f"{r.points}/{r.planned}",
+                    safe_text(f"recipe {r.schedule}" if recipe else r.schedule),
                     safe_text(r.bench_name),
                     r.started_utc[:19].replace("T", " ") + " UTC",
                 )
             console.print(table)
+        elif args.action == "show" and log.run(args.run).kind == "recipe":
+            _show_recipe(console, log, args.run, args.json)
         elif args.action == "show":
             record, points, events = log.run(args.run), log.points(args.run), log.events(args.run)
             if args.json:
@@ -142,13 +188,43 @@ def run(args: argparse.Namespace) -> int:
             log.note(args.run, " ".join(args.text))
             console.print(f"note added to run {args.run}")
         else:
-            report = write_report(
-                log.run(args.run), log.points(args.run), log.events(args.run), args.out
-            )
+            record = log.run(args.run)
+            if record.kind == "recipe":
+                from ..recipe.report import write_recipe_report
+
+                report = write_recipe_report(
+                    record,
+                    log.recipe_run(args.run),
+                    log.recipe_steps(args.run),
+                    log.events(args.run),
+                    args.out,
+                )
+            else:
+                report = write_report(record, log.points(args.run), log.events(args.run), args.out)
             console.print(
                 safe_text(
                     f"wrote {report.markdown}"
                     + (f" and {report.plot}" if report.plot else f" ({report.note})")
                 )
             )
+    return 0
+
+
+def _salvage(args: argparse.Namespace, console: Any) -> int:
+    from ..run.log import default_db_path, salvage
+    from ..text import safe_text
+    from .common import emit_json
+
+    result = salvage(args.db or default_db_path(), args.out)
+    if args.json:
+        emit_json(result.to_json())
+        return 0
+    console.print(
+        safe_text(
+            f"copied {result.runs} runs, {result.points} points and {result.events} events "
+            f"from {result.source} into {result.out}"
+        )
+    )
+    for item in result.lost:
+        console.print(f"  not readable: {safe_text(item)}")
     return 0

@@ -10,7 +10,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from .common import add_bench_argument, add_device_arguments, add_json_flag
+from .common import add_bench_argument, add_device_arguments, add_json_flag, number
 from .fit import SAFETY
 
 
@@ -22,17 +22,37 @@ def register(sub: argparse._SubParsersAction) -> None:
     add_bench_argument(p)
     p.add_argument("--mount", metavar="M", help="mount to null (default: the analyzer's)")
     add_device_arguments(p, ("counter", "shutter"))
-    p.add_argument("--dwell", type=float, default=0.2, metavar="S", help="gate per point (s)")
+    p.add_argument(
+        "--dwell",
+        type=number(0, 600, low_open=True),
+        default=0.2,
+        metavar="S",
+        help="gate per point (s; default 0.2, at most 600)",
+    )
     p.add_argument(
         "--span",
-        type=float,
+        type=number(0, 90, low_open=True),
         default=2.0,
         metavar="DEG",
         help="half-width of the coarse scan (deg; narrowed to keep the detector dark)",
     )
-    p.add_argument("--points", type=int, default=21, help="points per scan (default 21)")
-    p.add_argument("--rounds", type=int, default=8, help="most scan-and-fit rounds (default 8)")
-    p.add_argument("--seed", type=int, help="seed of the simulated devices (default: fresh)")
+    p.add_argument(
+        "--points",
+        type=number(5, 1001, integer=True),
+        default=21,
+        help="points per scan (default 21; 5 to 1001)",
+    )
+    p.add_argument(
+        "--rounds",
+        type=number(1, 50, integer=True),
+        default=8,
+        help="most scan-and-fit rounds (default 8; at most 50)",
+    )
+    p.add_argument(
+        "--seed",
+        type=number(0, 2**63 - 1, integer=True),
+        help="seed of the simulated devices (default: fresh)",
+    )
     p.add_argument(
         "--write",
         action="store_true",
@@ -51,8 +71,7 @@ def run(args: argparse.Namespace) -> int:
     from .fit import print_table
 
     bench = load_bench(args.bench)
-    if args.write:
-        ensure_writable(bench.path)  # before any work: the demo bench is not written to
+    target = ensure_writable(bench.path) if args.write else None  # the demo bench is refused
     name = args.mount or bench.analyzer.mount
     if name not in bench.mounts:
         raise InputError(
@@ -72,8 +91,8 @@ def run(args: argparse.Namespace) -> int:
         )
         shutter = shutter_words(result.shutter)
     updates = result.last_fit.bench_updates()
-    if args.write and result.converged:
-        write_values(bench.path, updates)
+    if target is not None and result.converged:
+        write_values(target, updates)
     doc = {**result.to_json(), "written": updates if args.write and result.converged else {}}
     if args.json:
         emit_json(doc)

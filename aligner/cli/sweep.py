@@ -6,7 +6,7 @@ import argparse
 import sys
 from typing import Any
 
-from .common import add_bench_argument, add_device_arguments, add_json_flag
+from .common import add_bench_argument, add_device_arguments, add_json_flag, number, run_id
 
 SAFETY = (
     "Safety: lasers and single-photon detectors can hurt people and equipment. Follow your "
@@ -15,11 +15,11 @@ SAFETY = (
 )
 
 SCHEDULE_HELP = """\
-schedule forms (imbalance in deg, positive on the high-reading side of the null):
-  linear:START:STOP:N         N imbalances evenly spaced, e.g. linear:0.2:2.0:10
-  amplification:START:STOP:N  N amplifications log-spaced, e.g. amplification:5:60:8
-  list:V1,V2,...              explicit imbalances, e.g. list:0.3,0.6,1.2
-  outback:START:STOP:N        N imbalances out and the same N back (hysteresis check)
+schedule forms (imbalance in deg, > 0 on the high-reading side of the null):
+  linear:START:STOP:N         N imbalances evenly spaced (linear:0.2:2.0:10)
+  amplification:START:STOP:N  N amplifications log-spaced (amplification:5:60:8)
+  list:V1,V2,...              explicit imbalances (list:0.3,0.6,1.2)
+  outback:START:STOP:N        N imbalances out, the same N back (hysteresis)
 
 Devices: every device opens from its declaration in the bench file (each mount's driver,
 [devices.counter], [devices.shutter], [devices.pointer]); --counter/--shutter/--pointer
@@ -43,26 +43,29 @@ def register(sub: argparse._SubParsersAction) -> None:
         "post-selected and reference ports at each point and log measured against "
         "predicted leak rates in the run log. " + SAFETY,
         epilog=SCHEDULE_HELP,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     add_bench_argument(parser)
     parser.add_argument("--schedule", metavar="SPEC", help="the schedule (forms below)")
     parser.add_argument(
-        "--dwell", metavar="S", type=float, default=1.0, help="count time per point, s (default 1)"
+        "--dwell",
+        metavar="S",
+        type=number(0, 3600, low_open=True),
+        default=1.0,
+        help="count time per point, s (default 1; at most 3600)",
     )
     parser.add_argument(
         "--settle",
         metavar="S",
-        type=float,
+        type=number(0, 600),
         default=0.0,
-        help="wait after a move before the read-back, s (default 0)",
+        help="wait after a move before the read-back, s (default 0; at most 600)",
     )
     parser.add_argument(
         "--repeats",
         metavar="N",
-        type=int,
+        type=number(1, 1000, integer=True),
         default=1,
-        help="run the schedule N times in a row (default 1)",
+        help="run the schedule N times in a row (default 1; at most 1000)",
     )
     parser.add_argument(
         "--db", metavar="FILE", help="run-log file (default: runs.sqlite in the user data folder)"
@@ -70,16 +73,16 @@ def register(sub: argparse._SubParsersAction) -> None:
     parser.add_argument(
         "--resume",
         metavar="RUN",
-        type=int,
+        type=run_id,
         help="continue an interrupted run (its bench snapshot and schedule)",
     )
     add_device_arguments(parser)
     parser.add_argument(
         "--retries",
         metavar="N",
-        type=int,
+        type=number(0, 10, integer=True),
         default=2,
-        help="retries of a device operation before pausing (default 2)",
+        help="retries of a device operation before pausing (default 2; at most 10)",
     )
     parser.add_argument(
         "--realtime",
@@ -89,7 +92,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     parser.add_argument(
         "--seed",
         metavar="N",
-        type=int,
+        type=number(0, 2**63 - 1, integer=True),
         help="seed of the simulated devices (default: [simulation] seed, else a fresh one; "
         "the seed is logged with the run)",
     )
@@ -98,16 +101,16 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def _line(point: Any, done: int, total: int, mount: str) -> str:
+    ratio = ""
     if point.leak is None:
         measured = f"leak -- ({point.flag})"
-        ratio = ""
     else:
-        ratio = point.leak / point.predicted_leak if point.predicted_leak > 0 else float("nan")
+        value = point.leak / point.predicted_leak if point.predicted_leak > 0 else float("nan")
+        ratio = f"  ratio {value:.2f}"
         measured = (
             f"leak {point.leak:.3e} [{point.leak_lo:.3e}, {point.leak_hi:.3e}]  predicted "
             f"{point.predicted_leak:.3e}"
         )
-        ratio = f"  ratio {ratio:.2f}"
     return (
         f"#{point.idx:<3} ({done}/{total})  {mount} {point.reading_deg:9.4f} deg  imbalance "
         f"{point.imbalance_deg:+7.3f} deg  counts {point.counts:>7}  {measured}{ratio}"

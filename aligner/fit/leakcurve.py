@@ -19,7 +19,6 @@ import numpy as np
 
 from ..bench import Bench
 from ..model import imbalance_deg
-from ..physics.detection import expected_rates
 from .counts import Verdict, compare
 from .csvdata import CountScan
 from .likelihood import FitResult, Poisson, maximize_likelihood
@@ -102,14 +101,8 @@ def fit_leak_curve(
         cols = np.atleast_2d(theta)
         floor = np.exp(cols[:, 1:2])
         leak = (1 - floor) * np.sin(eps - np.deg2rad(cols[:, 0:1])) ** 2 + floor
-        rate = expected_rates(
-            bright * np.exp(cols[:, 2:3]) * weights,
-            leak,
-            det.efficiency,
-            dark,
-            det.dead_time_ns * 1e-9,
-            rep_rate_hz=det.rep_rate_hz if det.mode == "pulsed" else None,
-            dark_probability=det.gate_dark_probability,
+        rate = det.expected_rates(
+            bright * np.exp(cols[:, 2:3]) * weights, leak, dark_rate=dark
         ).measured_rate
         return rate * dwell
 

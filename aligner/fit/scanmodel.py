@@ -18,7 +18,7 @@ from numpy.typing import ArrayLike, NDArray
 from ..bench import Bench, Element
 from ..errors import InputError
 from ..model import coupling_observable, forward
-from ..physics.detection import expected_rates
+from ..nulls import null_in_window
 from ..physics.weak import pointer_response
 from .csvdata import CountScan, PointerScan
 
@@ -117,15 +117,8 @@ def detected_rate(
 ) -> Real:
     """Measured count rate (counts/s) at ``readings`` for a source ``photon_rate`` (photons/s);
     ``dark_rate`` (counts/s) overrides the bench detector's."""
-    d = bench.detector
-    return expected_rates(
-        photon_rate,
-        post_probability(bench, readings),
-        d.efficiency,
-        d.dark_rate if dark_rate is None else dark_rate,
-        d.dead_time_ns * 1e-9,
-        rep_rate_hz=d.rep_rate_hz if d.mode == "pulsed" else None,
-        dark_probability=d.gate_dark_probability,
+    return bench.detector.expected_rates(
+        photon_rate, post_probability(bench, readings), dark_rate=dark_rate
     ).measured_rate
 
 
@@ -189,21 +182,7 @@ def with_retardance(bench: Bench, mount: str, waves: ArrayLike) -> Bench:
 
 
 def null_reading_deg(bench: Bench, mount: str, near_deg: float, span_deg: float = 5.0) -> float:
-    """Reading of ``mount`` (deg) within ``near_deg +/- span_deg`` where the post-selection
-    probability is least."""
-    from scipy.optimize import minimize_scalar
-
-    grid = near_deg + np.linspace(-span_deg, span_deg, 2001)
-    p = post_probability(bench, {mount: grid})
-    i = int(np.argmin(p))
-    step = grid[1] - grid[0]
-    lo, hi = grid[max(i - 1, 0)], grid[min(i + 1, grid.size - 1)]
-    if hi - lo < step:
-        return float(grid[i])
-    best = minimize_scalar(
-        lambda r: float(post_probability(bench, {mount: r})),
-        bounds=(lo, hi),
-        method="bounded",
-        options={"xatol": 1e-7},
-    )
-    return float(best.x)
+    """Reading of ``mount`` (deg) at the null (:mod:`aligner.nulls`: pre- and post-selection
+    crossed) nearest ``near_deg`` within ``near_deg +/- span_deg``; the closest approach when
+    that window holds no null."""
+    return null_in_window(bench, mount, near_deg, span_deg)

@@ -8,22 +8,41 @@ Conventions: hbar = 1; the pointer's intensity ``|phi(q)|^2`` is Gaussian with r
 whole post-selection carried back to the coupling plane; neither needs unit trace. All
 functions broadcast over leading axes of ``rho`` and ``effect`` (..., 2, 2); ``observable`` is
 one Hermitian 2x2 matrix (or a broadcastable stack).
+
+Two forms of the same physics:
+
+* :func:`weak_value` and :func:`pointer_response` work on density matrices in the eigenbasis
+  of ``A``: the readable definition, kept as the reference the fast path is tested against;
+* :class:`StokesResponse` is the closed form in Stokes space, the fast path. With
+  ``rho = (s0 + s.sigma)/2``, ``E = (e0 + e.sigma)/2`` and ``A = alpha + v.sigma``
+  (``beta = |v|``, ``n = v/beta``), every trace is a dot product of 4-vectors:
+  ``T = Tr(E rho) = (s0 e0 + s.e)/2``, ``Tr(E A rho) = alpha T + (X + i Y)/2`` with
+  ``X = s0 (v.e) + e0 (v.s)`` and ``Y = v.(s x e)``; in the eigenbasis of ``A`` the
+  coherence between the two eigenvalues carries ``W/4 = (s.e - (n.s)(n.e))/4`` (real part)
+  and ``Y/(4 beta)`` (imaginary part). With the pointer overlap
+  ``kappa = exp(-g^2 beta^2 / (2 sigma^2))`` the sums of :func:`pointer_response` become
+  ``P = T - (1 - kappa) W/2``, ``<q> = g alpha + g X/(2P)`` and
+  ``<p> = kappa g Y / (4 sigma^2 P)`` (derived here; the two forms agree to rounding).
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from .jones import PAULI, matmul2, named_vector, projector
+from .channels import sum_of_products
+from .jones import PAULI, matmul2, named_vector, projector, stokes_from_density
 
 __all__ = [
     "OBSERVABLE_NAMES",
     "PointerResponse",
+    "StokesResponse",
     "observable_from_axis",
     "observable_matrix",
+    "observable_stokes",
     "pointer_response",
     "weak_value",
 ]
@@ -123,3 +142,105 @@ def pointer_response(
     q_sum = m00 * c0 + m11 * c1 + overlap * np.real(m01) * (c0 + c1)
     p_sum = -2 * overlap * np.imag(m01) * (c1 - c0) / (4 * sigma**2)
     return PointerResponse(probability, q_sum / probability, p_sum / probability)
+
+
+def observable_stokes(observable: ArrayLike) -> tuple[float, tuple[float, float, float]]:
+    """``(alpha, v)`` with ``A = alpha I + v . sigma`` (sigma = HV, DA, RL) for one Hermitian
+    2x2 matrix ``A``."""
+    x = stokes_from_density(np.asarray(observable, complex))
+    return 0.5 * float(x[0]), (0.5 * float(x[1]), 0.5 * float(x[2]), 0.5 * float(x[3]))
+
+
+class StokesResponse:
+    """Weak value and exact Gaussian-pointer response from Stokes vectors (see the module
+    docstring for the closed forms); each result is computed on first use.
+
+    ``state`` and ``effect``: the four Stokes components of ``rho`` and ``E`` at the coupling
+    plane (arrays broadcast together); ``observable``: a Hermitian 2x2 matrix; ``g``, ``sigma``
+    as :func:`pointer_response` (floats). The results equal :func:`weak_value` and
+    :func:`pointer_response` on the same states to rounding.
+    """
+
+    def __init__(
+        self,
+        state: tuple[ArrayLike, ArrayLike, ArrayLike, ArrayLike],
+        effect: tuple[ArrayLike, ArrayLike, ArrayLike, ArrayLike],
+        observable: ArrayLike,
+        g: float,
+        sigma: float,
+    ) -> None:
+        s = tuple(np.asarray(x, float) for x in state)
+        e = tuple(np.asarray(x, float) for x in effect)
+        alpha, v = observable_stokes(observable)
+        self.alpha, self.g, self.sigma = alpha, float(g), float(sigma)
+        beta2 = v[0] ** 2 + v[1] ** 2 + v[2] ** 2
+        vs = sum_of_products([(v[k], s[k + 1], 1.0) for k in range(3)])
+        ve = sum_of_products([(v[k], e[k + 1], 1.0) for k in range(3)])
+        s_e = sum_of_products([(1.0, s[k], e[k]) for k in (1, 2, 3)])  # s.e of the vectors
+        s0e0 = s[0] * e[0]
+        self.plain = 0.5 * (s0e0 + s_e)  # T = Tr(E rho)
+        self.x = sum_of_products([(1.0, s[0], ve), (1.0, e[0], vs)])
+        # Y = v . (s x e), term by term so that zero components cost nothing
+        self.y = sum_of_products(
+            [
+                (v[0], s[2], e[3]),
+                (-v[0], s[3], e[2]),
+                (v[1], s[3], e[1]),
+                (-v[1], s[1], e[3]),
+                (v[2], s[1], e[2]),
+                (-v[2], s[2], e[1]),
+            ]
+        )
+        #: u = g^2 beta^2 / sigma^2; kappa = exp(-u/2), 1 - kappa without cancellation
+        self.u = (self.g / self.sigma) ** 2 * beta2
+        self.kappa = float(np.exp(-0.5 * self.u))
+        self._dephased = -float(np.expm1(-0.5 * self.u))
+        # W = s.e - (n.s)(n.e), the coherence between the eigenstates of A
+        self.w = s_e - vs * ve / beta2 if beta2 > 0 else s_e
+
+    @cached_property
+    def weak_value(self) -> Complex:
+        """``Tr(E A rho) / Tr(E rho)``."""
+        with np.errstate(divide="ignore", invalid="ignore"):
+            half = 0.5 / self.plain
+        out = np.empty(np.shape(half), complex)
+        out.real = self.alpha + self.x * half
+        out.imag = self.y * half
+        return out
+
+    @cached_property
+    def probability(self) -> Real:
+        """Post-selection probability with the pointer overlap (:class:`PointerResponse`)."""
+        return np.asarray(self.plain - self._dephased * 0.5 * self.w)
+
+    @cached_property
+    def _half_over_p(self) -> Real:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return 0.5 / self.probability
+
+    @cached_property
+    def position(self) -> Real:
+        """Mean position shift ``<q>`` (length units of ``g``)."""
+        return self.g * (self.alpha + self.x * self._half_over_p)
+
+    @cached_property
+    def momentum(self) -> Real:
+        """Mean momentum shift ``<p>`` (1/length)."""
+        return (self.kappa * self.g / (2 * self.sigma**2)) * self.y * self._half_over_p
+
+    def shift(self, axis: str) -> Real:
+        """Mean readout shift in position-equivalent units: ``<q>`` (``"re"``) or
+        ``2 sigma^2 <p>`` (``"im"``)."""
+        if axis == "re":
+            return self.position
+        return (self.kappa * self.g) * self.y * self._half_over_p
+
+    def sensitivity(self, axis: str) -> Real:
+        """``g d(shift)/dg`` at fixed states, in closed form: with ``u = g^2 beta^2/sigma^2``
+        and ``w = kappa W/(2P)``, ``<q> + (<q> - g alpha) u w`` for ``"re"`` and
+        ``r (1 - u + u w)`` for ``"im"`` (``r`` = :meth:`shift`)."""
+        w = (self.kappa * self.w) * self._half_over_p
+        if axis == "re":
+            q = self.position
+            return q + (q - self.g * self.alpha) * (self.u * w)
+        return self.shift("im") * (1 - self.u + self.u * w)

@@ -2,11 +2,13 @@
 mounts' element angles, and their leading order around the null.
 
 Everything is built from the parsed bench (numbers and the element list), never from user
-text: no ``sympify`` or ``parse_expr`` of strings. Conventions as the numeric core: Jones
-matrices of retarders are sympy's ``phase_retarder(theta, delta)``; a polarizer passes
-``T (|p><p| + d |p_perp><p_perp|)`` with ``d = 1/ER`` (incoherent leak); the source state is
-``(|s><s| + d_s |s_perp><s_perp|)/(1 + d_s)``; the post-selection is carried back to the
-coupling plane, ``E_c = J^dagger E J``.
+text: no ``sympify`` or ``parse_expr`` of strings. The elements act on Stokes vectors as in the
+numeric core (:mod:`aligner.physics.channels`; retarders as sympy's ``phase_retarder``, a
+polarizer passes ``T (|p><p| + d |p_perp><p_perp|)`` with ``d = 1/ER``, incoherently); the
+source state is ``(|s><s| + d_s |s_perp><s_perp|)/(1 + d_s)``; the post-selection is carried
+back to the coupling plane. Fixed angles and retardances that are not multiples of 22.5 deg and
+1/8 wave enter as evaluated numbers. When the solved mounts cannot reach a null, the first other
+mount that lets them is freed too, and :attr:`Derivation.notes` says so.
 
 * weak value ``A_w = Tr(E A rho) / Tr(E rho)``;
 * leak rate (exact, per source photon) ``P = kappa Tr(E rho) + (1 - kappa) sum_j
@@ -28,8 +30,7 @@ from typing import Any
 import numpy as np
 
 from ..bench import Bench, Element
-from ..errors import InputError
-from .solve import mounts_in_play
+from .targets import mounts_in_play
 
 __all__ = ["Derivation", "derive"]
 
@@ -55,7 +56,10 @@ class Derivation:
     ``meaning``: symbol name -> description with its value on this bench; ``values``: the
     numeric value of every constant symbol (leaks ``d``, transmissions ``T``, ``kappa``,
     ``eta``); ``null_deg``: element angles (deg) of the null the series is taken around;
-    ``latex_names``: symbol -> its LaTeX form (``\\theta_{\\mathrm{pre\\_qwp}}``).
+    ``latex_names``: symbol -> its LaTeX form (``\\theta_{\\mathrm{pre\\_qwp}}``);
+    ``notes``: what the reader must know, such as a mount freed because the others could not
+    reach a null. Without a reachable null the series, the floor and ``null_deg`` are empty
+    (None, None, None, {}).
     """
 
     angles: Mapping[str, Any]  # mount -> element-angle symbol (rad)
@@ -71,10 +75,11 @@ class Derivation:
     floor: Any
     null_deg: Mapping[str, float]
     latex_names: Mapping[Any, str] = field(default_factory=dict)
+    notes: tuple[str, ...] = ()
 
     def _formulas(self) -> list[tuple[str, str, str, Any]]:
-        """(key, plain name, LaTeX name, expression) of every result."""
-        return [
+        """(key, plain name, LaTeX name, expression) of every result that exists."""
+        rows = [
             ("numerator", "N", "N", self.numerator),
             ("denominator", "D", "D", self.denominator),
             ("leak_rate", "P", "P", self.leak_rate),
@@ -82,6 +87,7 @@ class Derivation:
             ("leak_rate_series", "P   ~", r"P \simeq", self.leak_rate_series),
             ("floor", "floor (P at the null) =", r"P_{\mathrm{floor}} =", self.floor),
         ]
+        return [row for row in rows if row[3] is not None]
 
     def latex(self, expr: Any) -> str:
         """``expr`` in LaTeX with the bench's symbol names."""
@@ -104,35 +110,17 @@ class Derivation:
         )
 
     def text(self, latex: bool = False) -> str:
-        """Readable (or LaTeX) rendering for a notebook: the symbol table, A_w = N/D, the leak
-        rate, and the leading order around the null."""
+        """Readable text, or LaTeX for a document with amsmath: the symbol table, A_w = N/D,
+        the leak rate, and the leading order around the null."""
+        return self._latex() if latex else self._plain()
+
+    def _plain(self) -> str:
         import sympy as sp
 
-        forms = {key: (plain, tex, expr) for key, plain, tex, expr in self._formulas()}
-        series = ("weak_value_series", "leak_rate_series", "floor")
-        if latex:
-            rows = [
-                f"  {self._symbol_latex(n)} & \\text{{{_latex_text(t)}}} \\\\"
-                for n, t in self.meaning.items()
-            ]
-            out = [
-                "% symbols",
-                r"\begin{array}{ll}",
-                *rows,
-                r"\end{array}",
-                "",
-                r"% weak value A_w = N / D, leak rate P per source photon",
-                r"A_w = \frac{N}{D}",
-            ]
-            out += [
-                f"{forms[k][1]} = {self.latex(forms[k][2])}"
-                for k in ("numerator", "denominator", "leak_rate")
-            ]
-            out += ["", f"% around the null {self._null_text(True)}, to leading order"]
-            out += [f"{forms[k][1]} {self.latex(forms[k][2])}" for k in series]
-            return "\n".join(out)
         show = sp.sstr
-        lines = ["Symbols:"]
+        forms = {key: (plain, expr) for key, plain, _, expr in self._formulas()}
+        lines = [f"Note: {note}." for note in self.notes]
+        lines += ["Symbols:"]
         lines += [f"  {name}: {text}" for name, text in self.meaning.items()]
         lines += [
             "",
@@ -142,18 +130,59 @@ class Derivation:
             "",
             "Leak rate (per source photon):",
             f"  P = {show(self.leak_rate)}",
-            "",
-            f"Around the null {self._null_text(False)}, to leading order:",
         ]
-        lines += [f"  {forms[k][0]} {show(forms[k][2])}" for k in series]
+        if self.floor is not None:
+            lines += ["", f"Around the null {self._null_text(False)}, to leading order:"]
+            lines += [f"  {forms[k][0]} {show(forms[k][1])}" for k in _SERIES]
         return "\n".join(lines)
+
+    def _latex(self) -> str:
+        forms = {key: (tex, expr) for key, _, tex, expr in self._formulas()}
+        rows = [
+            f"  {self._symbol_latex(n)} & \\text{{{_latex_text(t)}}} \\\\"
+            for n, t in self.meaning.items()
+        ]
+        out = [f"% {_latex_text(note)}" for note in self.notes]
+        out += [
+            "% aligner derive: paste into a LaTeX document that loads amsmath",
+            "% symbols",
+            r"\[",
+            r"\begin{array}{ll}",
+            *rows,
+            r"\end{array}",
+            r"\]",
+            r"% weak value A_w = N / D, leak rate P per source photon",
+            r"\begin{align*}",
+            r"A_w &= \frac{N}{D} \\",
+        ]
+        body = [
+            f"{forms[k][0]} &= {self.latex(forms[k][1])}"
+            for k in ("numerator", "denominator", "leak_rate")
+        ]
+        out += [line + r" \\" for line in body[:-1]] + [body[-1], r"\end{align*}"]
+        if self.floor is not None:
+            out += [f"% around the null {self._null_text(True)}, to leading order"]
+            body = [f"{forms[k][0]} &{self.latex(forms[k][1])}" for k in _SERIES]
+            out += [r"\begin{align*}"]
+            out += [line + r" \\" for line in body[:-1]] + [body[-1], r"\end{align*}"]
+        return "\n".join(out)
 
     def to_dict(self) -> dict[str, Any]:
         """The JSON document of ``aligner derive --json``: every expression as a plain string
-        (sympy syntax) and as LaTeX, and the symbol table (meaning, LaTeX, value)."""
+        (sympy syntax) and as LaTeX (null where there is no series), the symbol table
+        (meaning, LaTeX, value) and the notes."""
         import sympy as sp
 
         values = {str(k): v for k, v in self.values.items()}
+        everything = [
+            ("weak_value", self.weak_value),
+            ("numerator", self.numerator),
+            ("denominator", self.denominator),
+            ("leak_rate", self.leak_rate),
+            ("weak_value_series", self.weak_value_series),
+            ("leak_rate_series", self.leak_rate_series),
+            ("floor", self.floor),
+        ]
         return {
             "symbols": {
                 name: {
@@ -167,10 +196,15 @@ class Derivation:
             "offsets": {m: str(s) for m, s in self.offsets.items()},
             "null_deg": dict(self.null_deg),
             "expressions": {
-                key: {"text": sp.sstr(expr), "latex": self.latex(expr)}
-                for key, _, _, expr in [("weak_value", "", "", self.weak_value), *self._formulas()]
+                key: None if expr is None else {"text": sp.sstr(expr), "latex": self.latex(expr)}
+                for key, expr in everything
             },
+            "notes": list(self.notes),
         }
+
+
+#: The results around the null, in the order shown.
+_SERIES = ("weak_value_series", "leak_rate_series", "floor")
 
 
 def _latex_text(text: str) -> str:
@@ -223,14 +257,14 @@ def _latex_name(text: str) -> str:
 
 
 class _Builder:
-    """Builds the sympy matrices of one bench.
+    """Builds the Stokes vectors of one bench at the coupling plane, symbolically.
 
-    Entries are polynomials in the cos/sin symbols of the free angles (``C_m = cos 2 theta_m``,
-    ``S_m = sin 2 theta_m``, and ``c_m``, ``s_m`` of the single angle), the leak symbols ``d``
-    and the transmission symbols ``T``, with exact numeric coefficients in Q(sqrt 2, i) when the
-    fixed angles are multiples of 22.5 deg and the retardances multiples of 1/8 wave: a fixed
-    element is built at a placeholder angle, brought to double angles (``TR7``/``TR8``) and only
-    then given its value, so no nested radical such as ``cos(pi/8)`` enters the products.
+    Every element acts on Stokes vectors as a real 4x4 matrix (:mod:`aligner.physics.channels`)
+    whose entries are polynomials in ``C_m = cos 2 theta_m`` and ``S_m = sin 2 theta_m`` of a
+    free angle, or numbers for a fixed one: exact in Q(sqrt 2) when the angle is a multiple of
+    22.5 deg and the retardance a multiple of 1/8 wave, else evaluated floats. So the products
+    stay polynomials with numeric coefficients, and no trigonometry of numbers (such as
+    ``cos(2.4 - 0.98 pi)``) is left for sympy to expand.
     """
 
     def __init__(self, bench: Bench, free: Sequence[str]) -> None:
@@ -238,25 +272,20 @@ class _Builder:
 
         self.sp = sp
         self.bench = bench
-        self.free = tuple(free)
         self.readings = bench.readings()
-        self.angles = {m: sp.Symbol(f"theta_{_safe_name(m)}", real=True) for m in self.free}
+        self.angles = {m: sp.Symbol(f"theta_{_safe_name(m)}", real=True) for m in free}
         self.latex: dict[Any, str] = {
             th: rf"\theta_{{{_latex_name(m)}}}" for m, th in self.angles.items()
         }
-        # Matrices are multiplied as polynomials in cos/sin of the free angles (and of twice
-        # them): products of trigonometric functions never get expanded symbolically.
         self.to_poly: dict[Any, Any] = {}
+        self.double: dict[str, tuple[Any, Any]] = {}  # mount -> (C, S) symbols
         for m, th in self.angles.items():
-            for fn, arg, tag in (
-                (sp.cos, 2 * th, "C"),
-                (sp.sin, 2 * th, "S"),
-                (sp.cos, th, "c"),
-                (sp.sin, th, "s"),
-            ):
-                self.to_poly[fn(arg)] = sp.Symbol(f"{tag}_{_safe_name(m)}", real=True)
+            c = sp.Symbol(f"C_{_safe_name(m)}", real=True)
+            t = sp.Symbol(f"S_{_safe_name(m)}", real=True)
+            self.double[m] = (c, t)
+            self.to_poly[sp.cos(2 * th)] = c
+            self.to_poly[sp.sin(2 * th)] = t
         self.from_poly = {v: k for k, v in self.to_poly.items()}
-        self.fixed: dict[Any, Any] = {}  # placeholder angle -> exact fixed angle (rad)
         self.meaning: dict[str, str] = {}
         self.values: dict[Any, float] = {}
         self.small: list[Any] = []  # extinction symbols d (scale as t^2)
@@ -267,18 +296,23 @@ class _Builder:
                 f"{mount.sense:+d} x (reading - {mount.offset_deg:g} deg)"
             )
 
-    def angle(self, angle_deg: float, mount: str | None) -> Any:
-        """The free angle's symbol, or a placeholder for the exact fixed angle (rad)."""
-        if mount in self.angles:
-            return self.angles[mount]
+    def axis(self, angle_deg: float, mount: str | None) -> tuple[Any, Any]:
+        """``(cos 2 theta, sin 2 theta)``: the free angle's symbols, or numbers."""
+        if mount in self.double:
+            return self.double[mount]
         deg = (
             angle_deg
             if mount is None
             else float(self.bench.mounts[mount].element_angle_deg(self.readings[mount]))
         )
-        phi = self.sp.Dummy("phi", real=True)
-        self.fixed[phi] = _exact_angle(deg)
-        return phi
+        return self.cos_sin(2 * _exact_angle(deg))
+
+    def cos_sin(self, x: Any) -> tuple[Any, Any]:
+        """Exact cosine and sine of an exact angle; floats of a float."""
+        sp = self.sp
+        if isinstance(x, sp.Float):
+            return sp.Float(math.cos(float(x)), 17), sp.Float(math.sin(float(x)), 17)
+        return sp.cos(x), sp.sin(x)
 
     def constant(self, name: str, latex: str, value: float, text: str, *, small: bool) -> Any:
         """A named bench number (a leak ``d`` or a transmission ``T``) with its value listed."""
@@ -312,142 +346,101 @@ class _Builder:
             small=False,
         )
 
-    def poly(self, matrix: Any) -> Any:
-        """A matrix of trigonometric entries as polynomials in the cos/sin symbols: double
-        angles first, then the fixed angles' values, then ``exp(i x)`` of a number as
-        ``cos x + i sin x`` (exact for multiples of 45 deg)."""
-        from sympy.simplify.fu import TR7, TR8
-
+    def through(self, x: list[Any], element: Element, backward: bool) -> list[Any]:
+        """Stokes components ``x`` carried through one element: forward (a state) or backward
+        (an effect), as the channels of :mod:`aligner.physics.channels`."""
         sp = self.sp
-
-        def entry(x: Any) -> Any:
-            x = sp.expand(TR8(TR7(sp.expand(x)))).xreplace(self.fixed)
-            x = x.xreplace(
-                {
-                    e: sp.cos(-sp.I * e.exp) + sp.I * sp.sin(-sp.I * e.exp)
-                    for e in x.atoms(sp.exp)
-                    if e.exp.is_number
-                }
-            )
-            return sp.expand(x).xreplace(self.to_poly)
-
-        return matrix.applyfunc(entry)
-
-    def product(self, *factors: Any) -> Any:
-        out = factors[0]
-        for f in factors[1:]:
-            out = (out * f).applyfunc(self.sp.expand)
-        return out
-
-    def projector(self, theta: Any) -> Any:
-        v = self.sp.Matrix([self.sp.cos(theta), self.sp.sin(theta)])
-        return self.poly(v * v.T)
-
-    def element(self, element: Element) -> tuple[str, Any, Any]:
-        """("unitary", J, None), ("rotator", (cos 2 phi, sin 2 phi), None) or ("polarizer",
-        (P, Q), (T, d)) for one element."""
-        sp = self.sp
-        theta = self.angle(element.angle_deg, element.mount)
+        c, t = self.axis(element.angle_deg, element.mount)
+        s0, s1, s2, s3 = x
         if element.type == "polarizer":
             key = _safe_name(element.key)
             d = self.leak(key, element.extinction_ratio, f"polarizer {element.key}")
-            t = self.transmission(key, element.transmission, f"polarizer {element.key}")
-            p = self.projector(theta)
-            return "polarizer", (p, sp.eye(2) - p), (t, d)
-        if element.type == "rotator":
-            cs = self.poly(sp.Matrix([sp.cos(2 * theta), sp.sin(2 * theta)]))
-            return "rotator", (cs[0], cs[1]), None
-        from sympy.physics.optics.polarization import phase_retarder
+            tr = self.transmission(key, element.transmission, f"polarizer {element.key}")
+            along = c * s1 + t * s2
+            polarized = tr * ((1 - d) * s0 + (1 + d) * along) / 2
+            out = [tr * ((1 + d) * s0 + (1 - d) * along) / 2, c * polarized, t * polarized, 0]
+        elif element.type == "rotator":
+            t = -t if backward else t
+            out = [s0, c * s1 - t * s2, t * s1 + c * s2, s3]
+        else:
+            frac = _exact_number(float(np.mod(element.retardance_waves, 1.0)))
+            cd, sd = self.cos_sin(
+                2 * sp.pi * frac if not isinstance(frac, sp.Float) else sp.Float(2 * math.pi * frac)
+            )
+            sd = -sd if backward else sd
+            along = (c * s1 + t * s2) * (1 - cd)
+            out = [
+                s0,
+                s1 * cd + t * s3 * sd + c * along,
+                s2 * cd - c * s3 * sd + t * along,
+                s3 * cd + (c * s2 - t * s1) * sd,
+            ]
+        return [sp.expand(v) for v in out]
 
-        delta = 2 * sp.pi * _exact_number(float(np.mod(element.retardance_waves, 1.0)))
-        # sympy's retarder carries a global phase exp(-i delta/2); it cancels in J X J^dagger
-        return "unitary", self.poly(phase_retarder(theta, delta) * sp.exp(sp.I * delta / 2)), None
+    def start(self, angle_deg: float, mount: str | None, d: Any, scale: Any) -> list[Any]:
+        """``scale (1 + d, (1 - d) cos 2a, (1 - d) sin 2a, 0)``: a polarizer's POVM element
+        with leak ``d``, or (``scale`` 1) the unnormalized state it prepares."""
+        c, t = self.axis(angle_deg, mount)
+        return [
+            self.sp.expand(v)
+            for v in (scale * (1 + d), scale * (1 - d) * c, scale * (1 - d) * t, 0)
+        ]
 
-    def rotate(self, x: Any, cos2: Any, sin2: Any) -> Any:
-        """``R X R^T`` for a rotator ``R`` of angle phi (a rotation by 2 phi of the S1-S2 part of
-        ``X``; ``sin2`` -> ``-sin2`` gives ``R^T X R``)."""
-        sp = self.sp
-        s0, s3 = (x[0, 0] + x[1, 1]) / 2, sp.I * (x[0, 1] - x[1, 0]) / 2
-        s1, s2 = (x[0, 0] - x[1, 1]) / 2, (x[0, 1] + x[1, 0]) / 2
-        r1, r2 = cos2 * s1 - sin2 * s2, sin2 * s1 + cos2 * s2
-        return sp.Matrix([[s0 + r1, r2 - sp.I * s3], [r2 + sp.I * s3, s0 - r1]]).applyfunc(
-            sp.expand
-        )
-
-    def through(self, x: Any, element: Element, backward: bool) -> Any:
-        """``x`` carried through one element: forward (a state) or backward (an effect)."""
-        kind, m, extra = self.element(element)
-        if kind == "rotator":
-            return self.rotate(x, m[0], -m[1] if backward else m[1])
-        if kind == "unitary":
-            return self.product(m.H, x, m) if backward else self.product(m, x, m.H)
-        t, dd = extra
-        return t * (self.product(m[0], x, m[0]) + dd * self.product(m[1], x, m[1]))
-
-    def state(self) -> Any:
-        """Unnormalized pre-selected state at the coupling plane (divide by 1 + d_s)."""
+    def state(self) -> tuple[list[Any], Any]:
+        """Unnormalized Stokes vector of the state at the coupling plane (divide by 1 + d_s)."""
         src = self.bench.source
-        theta = self.angle(src.angle_deg, src.mount)
         d = self.leak("s", src.extinction_ratio, "source polarizer")
-        p = self.projector(theta)
-        rho = (p + d * (self.sp.eye(2) - p)).applyfunc(self.sp.expand)
+        s = self.start(src.angle_deg, src.mount, d, 1)
         for element in self.bench.pre:
-            rho = self.through(rho, element, backward=False)
-        return rho, d
+            s = self.through(s, element, backward=False)
+        return s, d
 
-    def effect(self) -> Any:
+    def effect(self) -> list[Any]:
         an = self.bench.analyzer
-        theta = self.angle(an.angle_deg, an.mount)
         d = self.leak("a", an.extinction_ratio, "analyzer")
         t = self.transmission("a", an.transmission, "analyzer")
-        p = self.projector(theta)
-        e = (t * (p + d * (self.sp.eye(2) - p))).applyfunc(self.sp.expand)
+        e = self.start(an.angle_deg, an.mount, d, t)
         for element in reversed(self.bench.post):
             e = self.through(e, element, backward=True)
         return e
 
-    def trace(self, x: Any, y: Any) -> Any:
-        """``Tr(X Y)`` from the entries, without forming the product matrix."""
-        return self.sp.expand(sum(x[i, j] * y[j, i] for i in range(2) for j in range(2)))
-
-    def observable(self) -> tuple[Any, tuple[Any, Any], tuple[Any, Any]]:
-        """A, its eigenprojectors, its eigenvalues."""
+    def observable(self) -> tuple[Any, list[Any], list[Any], tuple[Any, Any]]:
+        """``alpha``, ``v`` (``A = alpha + v.sigma``), the unit axis ``n`` of A and its
+        eigenvalues."""
         sp = self.sp
         c = self.bench.coupling
-        if c.observable == "axis":
+        axis: Sequence[Any]
+        eig: tuple[Any, Any]
+        if c.observable == "axis" and c.axis is not None:
             raw = [_exact_number(x, 1000) for x in c.axis]
             length = sp.sqrt(sum(x**2 for x in raw))
             axis = [x / length for x in raw]
-            eig = tuple(_exact_number(x) for x in c.eigenvalues)
+            eig = (_exact_number(c.eigenvalues[0]), _exact_number(c.eigenvalues[1]))
         else:
             axis, eig = _NAMED[c.observable]
-        sigma = (
-            axis[0] * sp.Matrix([[1, 0], [0, -1]])
-            + axis[1] * sp.Matrix([[0, 1], [1, 0]])
-            + axis[2] * sp.Matrix([[0, -sp.I], [sp.I, 0]])
-        )
-        pi0 = (sp.eye(2) + sigma) / 2
-        pi1 = (sp.eye(2) - sigma) / 2
-        return eig[0] * pi0 + eig[1] * pi1, (pi0, pi1), (eig[0], eig[1])
+        beta = sp.Rational(1, 2) * (eig[0] - eig[1])
+        return (eig[0] + eig[1]) / 2, [beta * n for n in axis], list(axis), eig
 
 
 def _tidy(expr: Any, small: Sequence[Any], from_poly: Mapping[Any, Any]) -> Any:
-    """Tidy a polynomial in the cos/sin symbols: back to trigonometric functions, products of
-    sines and cosines become sums over combined angles (``TR8``), numeric factors are simplified
-    on their own, and the terms are grouped by powers of the small symbols. Linear in the size
-    of the expression, unlike ``simplify``."""
+    """Tidy a polynomial in the cos/sin symbols: each monomial of them becomes a sum of sines
+    and cosines of combined angles (``TR8``, once per monomial, not on the whole expression),
+    numeric factors are simplified on their own, and the terms are grouped by powers of the
+    small symbols. Linear in the size of the expression, unlike ``simplify``."""
     import sympy as sp
     from sympy.simplify.fu import TR7, TR8
 
-    expr = sp.expand(sp.expand(expr).xreplace(from_poly))
-    expr = sp.expand(TR8(TR7(expr)))
-    free = sorted(expr.free_symbols, key=str)
+    expr = sp.expand(expr)
+    gens = list(from_poly)
     grouped: dict[Any, Any] = {}
-    for term in sp.Add.make_args(expr):
-        number, rest = term.as_independent(*free, as_Add=False)
-        grouped[rest] = grouped.get(rest, 0) + number
-    terms = [_number(n) * rest for rest, n in grouped.items()]
-    out = sp.Add(*terms)
+    monomials = sp.Poly(expr, *gens).terms() if gens else [((), expr)]
+    for powers, coefficient in monomials:
+        product = sp.Mul(*(g**k for g, k in zip(gens, powers, strict=True)))
+        trig = sp.expand(TR8(TR7(product.xreplace(from_poly))))
+        for part in sp.Add.make_args(sp.expand(trig * coefficient)):
+            number, rest = part.as_independent(*part.free_symbols, as_Add=False)
+            grouped[rest] = grouped.get(rest, 0) + number
+    out = sp.Add(*(_number(n) * rest for rest, n in grouped.items()))
     # grouped by powers of the leaks, common factors (transmissions, numbers) in front
     return sp.factor_terms(sp.collect(out, small) if small else out)
 
@@ -459,58 +452,93 @@ def _number(n: Any) -> Any:
 
     if n.has(sp.Float):
         value = complex(n)
-        return (
-            sp.Float(value.real, 15) + sp.I * sp.Float(value.imag, 15)
-            if value.imag
-            else sp.Float(value.real, 15)
-        )
+        return _real(value.real) + sp.I * _real(value.imag) if value.imag else _real(value.real)
     return sp.expand(n)
 
 
-def _chop(expr: Any, tol: float = 1e-12) -> Any:
-    """Drop floating-point dust (|number| < tol) left where an exact cancellation happened."""
+def _real(x: float) -> Any:
+    """A float as a simple fraction when it is one to rounding (a 1.0 left by sums of floats),
+    else to 15 digits."""
     import sympy as sp
 
-    return expr.xreplace({n: 0 for n in expr.atoms(sp.Float) if abs(n) < tol})
+    frac = sp.Rational(x).limit_denominator(8)
+    if abs(float(frac) - x) <= 1e-13 * max(1.0, abs(x)):
+        return frac
+    return sp.Float(x, 15)
 
 
-def _null(bench: Bench, free: Sequence[str]) -> dict[str, float]:
-    """Readings (deg) of the null nearest the file readings, in the free mounts."""
-    from .solve import nulls, segments
+def _chop(expr: Any, tol: float = 1e-12) -> Any:
+    """Drop floating-point dust (|number| < tol) left where an exact cancellation happened, and
+    tidy the other floats (:func:`_real`)."""
+    import sympy as sp
+
+    return expr.xreplace({n: 0 if abs(n) < tol else _real(float(n)) for n in expr.atoms(sp.Float)})
+
+
+def _nulls_of(bench: Bench, names: Sequence[str]) -> dict[str, float] | None:
+    """Readings (deg) of the null nearest the file readings in the mounts ``names`` (others at
+    their readings), or None when they cannot reach one (:mod:`aligner.nulls`)."""
+    from ..errors import InfeasibleTarget
+    from ..nulls import nulls, segments
 
     readings = bench.readings()
-    fixed = {k: v for k, v in readings.items() if k not in free}
-    if len(free) == 1:
-        found = [s.null for s in segments(bench, free[0], fixed) if s.null is not None]
+    fixed = {k: v for k, v in readings.items() if k not in names}
+    if len(names) == 1:
+        try:
+            found = [s.null for s in segments(bench, names[0], fixed) if s.null is not None]
+        except InfeasibleTarget:
+            return None
         if not found:
-            raise InputError(
-                f"mount {free[0]!r} cannot reach a null with the other mounts at "
-                "their readings, so there is no series to expand around"
-            )
-        best = min(found, key=lambda r: abs(r - readings[free[0]]))
-        return {free[0]: best}
-    pts = nulls(bench, free, fixed)
+            return None
+        return {names[0]: min(found, key=lambda r: abs(r - readings[names[0]]))}
+    pts = nulls(bench, names, fixed)
     if len(pts) == 0:
-        raise InputError(
-            f"mounts {', '.join(free)} cannot reach a null, so there is no series to expand around"
-        )
-    here = np.array([readings[m] for m in free])
+        return None
+    here = np.array([readings[m] for m in names])
     best = pts[np.argmin(np.linalg.norm(np.mod(pts - here + 90.0, 180.0) - 90.0, axis=1))]
     best = here + np.mod(best - here + 90.0, 180.0) - 90.0
-    return dict(zip(free, (float(x) for x in best), strict=True))
+    return dict(zip(names, (float(x) for x in best), strict=True))
+
+
+def _null(
+    bench: Bench, names: tuple[str, ...]
+) -> tuple[tuple[str, ...], dict[str, float] | None, tuple[str, ...]]:
+    """The mounts to solve for, the null to expand around and notes for the reader: when
+    ``names`` cannot reach a null, the first other mount (in the file's order) that lets them
+    is freed as well; when none does, there is no null and no series."""
+    found = _nulls_of(bench, names)
+    if found is not None:
+        return names, found, ()
+    which = f"mount {names[0]!r}" if len(names) == 1 else f"mounts {', '.join(names)}"
+    for extra in (m for m in bench.mounts if m not in names):
+        found = _nulls_of(bench, (*names, extra))
+        if found is not None:
+            note = (
+                f"{which} cannot reach a null (pre- and post-selection crossed) with the other "
+                f"mounts at their readings, so mount {extra!r} is freed as well: its element "
+                "angle is a symbol too (choose another with --free MOUNT)"
+            )
+            return (*names, extra), found, (note,)
+    note = (
+        f"{which} cannot reach a null with the other mounts at their readings, and freeing "
+        "one more mount does not help, so there is no series around a null; free the mounts "
+        "that set the pre-selection's ellipticity with --free MOUNT"
+    )
+    return names, None, (note,)
 
 
 def derive(bench: Bench, free: Sequence[str] = ()) -> Derivation:
     """Closed forms of the weak value and leak rate, with the imbalance mount, the phase mount
     (if any) and ``free`` mounts as symbols (element angles, rad), and their leading order
-    around the null nearest the file readings."""
+    around the null nearest the file readings. When those mounts cannot reach a null, another
+    mount is freed (see :attr:`Derivation.notes`)."""
     import sympy as sp
 
-    names = tuple(mounts_in_play(bench, free))
+    names, null, notes = _null(bench, tuple(mounts_in_play(bench, free)))
     b = _Builder(bench, names)
-    rho, d_s = b.state()
-    effect = b.effect()
-    a, (pi0, pi1), (a0, a1) = b.observable()
+    s, d_s = b.state()
+    e = b.effect()
+    alpha, v, n, (a0, a1) = b.observable()
     c = bench.coupling
     kappa = sp.Symbol("kappa", positive=True)
     b.values[kappa] = float(
@@ -522,46 +550,41 @@ def derive(bench: Bench, free: Sequence[str] = ()) -> Derivation:
         f"{c.pointer_sigma:g} {c.units})"
     )
     small = list(dict.fromkeys(b.small))
-    norm = 1 + d_s
     back = b.from_poly
-    numerator = _tidy(b.trace(b.product(effect, a), rho), small, back)
-    denominator = _tidy(b.trace(effect, rho), small, back)
-    dephased = b.product(pi0, effect, pi0) + b.product(pi1, effect, pi1)
-    decohered = _tidy(b.trace(dephased, rho), small, back)
-    leak = (kappa * denominator + (1 - kappa) * decohered) / norm
 
-    null = _null(bench, names)
-    null_deg = {m: float(bench.mounts[m].element_angle_deg(r)) for m, r in null.items()}
-    t = sp.Symbol("t", positive=True)
+    def dot(x: Sequence[Any], y: Sequence[Any]) -> Any:
+        """``x . y`` of a 3-vector and the vector part of Stokes components ``y``."""
+        return sum(x[k] * y[k + 1] for k in range(3))
+
+    # the Stokes closed forms of aligner.physics.weak: Tr(E rho) = (s0 e0 + s.e)/2,
+    # Tr(E A rho) = alpha T + (X + i Y)/2, dephased trace (s0 e0 + (n.s)(n.e))/2
+    plain = (s[0] * e[0] + dot(s[1:], e)) / 2
+    cross = [s[2] * e[3] - s[3] * e[2], s[3] * e[1] - s[1] * e[3], s[1] * e[2] - s[2] * e[1]]
+    x = s[0] * dot(v, e) + e[0] * dot(v, s)
+    y = sum(v[k] * cross[k] for k in range(3))
+    raw = (alpha * plain + (x + sp.I * y) / 2, plain, (s[0] * e[0] + dot(n, s) * dot(n, e)) / 2)
+    numerator, denominator, decohered = (_tidy(r, small, back) for r in raw)
+    leak = (kappa * denominator + (1 - kappa) * decohered) / (1 + d_s)
     eta = sp.Symbol("eta", positive=True)
     b.meaning["eta"] = "1 - kappa (pointer decoherence; small)"
     offsets = {m: sp.Symbol(f"epsilon_{_safe_name(m)}", real=True) for m in names}
-    for m, e in offsets.items():
-        b.meaning[str(e)] = f"offset (rad) of {b.angles[m]} from the null at {null_deg[m]:.6g} deg"
-    scale = {b.angles[m]: _exact_angle(null_deg[m]) + t * offsets[m] for m in names}
-    scale.update({s: t**2 * s for s in small})
-
-    def coefficient(expr: Any, order: int) -> Any:
-        scaled = expr.subs(scale)
-        return _chop(sp.expand(sp.diff(scaled, t, order).subs(t, 0) / math.factorial(order)))
-
-    n1 = coefficient(numerator, 1)
-    d0 = coefficient(denominator, 0)
-    d2 = coefficient(denominator, 2)
-    # P = [(1 - eta t^2) D + eta t^2 Dec] / (1 + d_s t^2): the t^2 coefficient from those of
-    # D and Dec, exactly, without differentiating the whole leak rate
-    dec0 = coefficient(decohered, 0)
-    p2 = _chop(sp.expand(d2 + eta * (dec0 - d0) - d_s * d0))
-    weak_series = sp.factor_terms(sp.cancel(n1 / d2))
-    floor = sp.factor_terms(p2.subs({e: 0 for e in offsets.values()}))
-    values = dict(b.values)
-    values[eta] = 1.0 - values[kappa]
     latex = {
         **b.latex,
         kappa: r"\kappa",
         eta: r"\eta",
         **{e: rf"\epsilon_{{{_latex_name(m)}}}" for m, e in offsets.items()},
     }
+    values = dict(b.values)
+    values[eta] = 1.0 - values[kappa]
+    series: tuple[Any, Any, Any] = (None, None, None)
+    null_deg: dict[str, float] = {}
+    if null is not None:
+        null_deg = {m: float(bench.mounts[m].element_angle_deg(r)) for m, r in null.items()}
+        for m, eps in offsets.items():
+            b.meaning[str(eps)] = (
+                f"offset (rad) of {b.angles[m]} from the null at {null_deg[m]:.6g} deg"
+            )
+        series = _series(raw, d_s, eta, small, b, offsets, null_deg)
     return Derivation(
         b.angles,
         offsets,
@@ -571,9 +594,49 @@ def derive(bench: Bench, free: Sequence[str] = ()) -> Derivation:
         denominator,
         numerator / denominator,
         leak,
-        weak_series,
-        sp.factor_terms(p2),
-        floor,
+        *series,
         null_deg,
         latex,
+        notes,
     )
+
+
+def _series(
+    raw: tuple[Any, Any, Any],
+    d_s: Any,
+    eta: Any,
+    small: Sequence[Any],
+    b: _Builder,
+    offsets: Mapping[str, Any],
+    null_deg: Mapping[str, float],
+) -> tuple[Any, Any, Any]:
+    """Leading order around the null from the polynomial forms ``raw`` (numerator,
+    denominator, dephased trace, in the cos/sin symbols): every free angle is
+    ``theta_0 + eps`` and the small parameters scale together, ``eps ~ t``, ``d ~ t^2``,
+    ``eta ~ t^2`` (module docstring); ``cos 2 theta`` and ``sin 2 theta`` are expanded to
+    second order in ``t``."""
+    import sympy as sp
+
+    t = sp.Symbol("t", positive=True)
+    scale: dict[Any, Any] = {s: t**2 * s for s in small}
+    for m, eps in offsets.items():
+        c0, s0 = b.cos_sin(2 * _exact_angle(null_deg[m]))
+        h = 2 * t * eps
+        cos_sym, sin_sym = b.double[m]
+        scale[cos_sym] = c0 - h * s0 - h**2 / 2 * c0
+        scale[sin_sym] = s0 + h * c0 - h**2 / 2 * s0
+    numerator, denominator, decohered = (sp.expand(r.xreplace(scale)) for r in raw)
+
+    def coefficient(expr: Any, order: int) -> Any:
+        return _chop(sp.expand(expr.coeff(t, order)))
+
+    n1 = coefficient(numerator, 1)
+    d0 = coefficient(denominator, 0)
+    d2 = coefficient(denominator, 2)
+    # P = [(1 - eta t^2) D + eta t^2 Dec] / (1 + d_s t^2): the t^2 coefficient from those of
+    # D and Dec, exactly, without expanding the whole leak rate
+    dec0 = coefficient(decohered, 0)
+    p2 = _chop(sp.expand(d2 + eta * (dec0 - d0) - d_s * d0))
+    weak_series = _chop(sp.factor_terms(sp.cancel(n1 / d2)))
+    floor = sp.factor_terms(p2.subs({e: 0 for e in offsets.values()}))
+    return weak_series, sp.factor_terms(p2), floor

@@ -10,6 +10,7 @@ sensitivity and tolerance are about ``|A_w|``; for a leak-rate target about the 
 from __future__ import annotations
 
 import itertools
+import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -19,18 +20,12 @@ import numpy as np
 from ..bench import Bench
 from ..errors import InfeasibleTarget, InputError
 from ..model import imbalance_deg
+from ..nulls import mount_period_deg
 from ..prediction import readout_axis
-from .solve import (
-    Root,
-    Target,
-    infeasible,
-    make_target,
-    mount_period_deg,
-    observe,
-    pointer_cap,
-    preferred,
-    solve,
-)
+from .infeasible import infeasible, pointer_cap
+from .observe import observe
+from .roots import Root, preferred, solve
+from .targets import Target, make_target
 from .tolerance import Tolerance, tolerance_budget
 
 __all__ = ["Branch", "Plan", "Quantized", "Sensitivity", "plan"]
@@ -51,10 +46,10 @@ class Branch:
     ``value`` is the target quantity (signed amplification, ``|A_w|`` or leak rate).
 
     One branch is one distinct optical setting: readings of a mount that differ by its period
-    (180 deg for polarizers, waveplates and rotators, :func:`.solve.mount_period_deg`) set the
-    same optics and are one branch. ``settings`` is the equivalent reading nearest the current
-    readings; ``equivalent_readings`` lists every equivalent reading inside the travel, that
-    one first, nearest first.
+    (180 deg for polarizers, waveplates and rotators, :func:`aligner.nulls.mount_period_deg`)
+    set the same optics and are one branch. ``settings`` is the equivalent reading nearest the
+    current readings; ``equivalent_readings`` lists every equivalent reading inside the travel,
+    that one first, nearest first.
     """
 
     index: int
@@ -238,7 +233,9 @@ def _branches(
                 amplification_exact=float(ex[i]),
                 leak_rate=float(obs.leak_rate[i]),
                 value=float(value[i]),
-                distance_deg=float(np.linalg.norm([settings[n] - current[n] for n in unknowns])),
+                distance_deg=math.dist(
+                    [settings[n] for n in unknowns], [current[n] for n in unknowns]
+                ),
                 equivalent_readings=tuple(
                     dict(zip(unknowns, roots[order[j]].readings, strict=True)) for j in g
                 ),

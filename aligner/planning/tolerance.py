@@ -26,7 +26,9 @@ import numpy as np
 from numpy.typing import NDArray
 
 from ..bench import Bench, Element
-from .solve import Target, observe
+from ..model import BLOCK
+from .observe import observe
+from .targets import Target
 
 __all__ = ["Spread", "Tolerance", "error_items", "first_order_std", "tolerance_budget"]
 
@@ -148,8 +150,9 @@ def _sample(
     samples: int,
     rng: np.random.Generator,
 ) -> tuple[Real, Real]:
-    readings: dict[str, Real] = {n: np.full(samples, settings[n]) for n in bench.mounts}
-    shifts: dict[tuple[str, int], object] = {}
+    # mounts without an error stay scalars: their elements are evaluated once, not per sample
+    readings: dict[str, Real] = {n: np.asarray(settings[n], float) for n in bench.mounts}
+    shifts: dict[tuple[str, int], Real] = {}
     for _, source, key in items:
         if source == "repeatability":
             readings[key] = readings[key] + rng.normal(
@@ -164,7 +167,14 @@ def _sample(
             arm, i = key
             tol = getattr(bench, arm)[i].retardance_tol_waves
             shifts[key] = rng.uniform(-tol, tol, samples)
-    return _figure_and_leak(_with_retardance(bench, shifts), target, readings)
+    # evaluated in blocks whose temporaries stay in cache (as aligner.prediction does)
+    figure, leak = np.empty(samples), np.empty(samples)
+    for start in range(0, samples, BLOCK):
+        part = slice(start, min(start + BLOCK, samples))
+        block_bench = _with_retardance(bench, {k: v[part] for k, v in shifts.items()})
+        block = {k: v[part] if v.ndim else v for k, v in readings.items()}
+        figure[part], leak[part] = _figure_and_leak(block_bench, target, block)
+    return figure, leak
 
 
 def first_order_std(bench: Bench, target: Target, settings: Mapping[str, float]) -> float:

@@ -15,8 +15,14 @@ through full transmission on the way, so checking the end point is not enough. T
 
 Counting is allowed only where the prediction at the read-back readings is below the limit,
 and every gate's measured rate (corrected for dead time) is checked: above ``safe_rate`` the
-shutter is shut and the sweep stops with ``GuardTrip``. ``headroom`` (default 0.5) covers the
-bench file's offset and extinction errors (common practice, no source).
+shutter is shut and the sweep stops with ``GuardTrip``.
+
+Every predicted rate is the worst case over the bench file's stated uncertainties
+(:func:`uncertainty_benches`): each mount's offset at +/- :data:`OFFSET_SIGMAS` times its
+``offset_err_deg`` and ``repeatability_deg`` combined (rms errors), each waveplate's retardance
+at +/- its ``retardance_tol_waves`` (a bound), every combination of signs. ``headroom``
+(default 0.5) covers what the file does not state (extinction errors, a drifting source;
+common practice, no source).
 
 Approach: every move ends turning towards higher readings by at least ``overshoot_deg``
 (default ``max(2 backlash, 10 resolution)``), so the mechanical play is always taken up on
@@ -36,11 +42,63 @@ from numpy.typing import NDArray
 from ..bench import Bench
 from ..errors import GuardTrip, InputError
 
-__all__ = ["ELEMENT_PERIOD_DEG", "DetectorGuard", "MovePlan"]
+__all__ = [
+    "ELEMENT_PERIOD_DEG",
+    "OFFSET_SIGMAS",
+    "DetectorGuard",
+    "MovePlan",
+    "uncertainty_benches",
+]
 
 #: Every element a mount can hold (polarizer, waveplate, rotator up to a global phase) looks
 #: the same after half a turn.
 ELEMENT_PERIOD_DEG = 180.0
+#: Mount offsets are rms errors: the guard takes them this many standard deviations out.
+OFFSET_SIGMAS = 2.0
+#: Up to this many uncertain parameters every combination of signs is predicted; beyond it
+#: each parameter alone and the two all-same-sign corners (2 k + 2 benches, not 2^k).
+_MAX_CORNER_ITEMS = 5
+_PLATES = ("hwp", "qwp", "retarder")
+
+
+def uncertainty_benches(bench: Bench) -> list[Bench]:
+    """``bench`` with its stated uncertainties pushed to their extremes (see the module
+    docstring); just ``[bench]`` when the file states none."""
+    import itertools
+    from dataclasses import replace
+
+    items: list[tuple[str, Any, float]] = [
+        ("mount", name, OFFSET_SIGMAS * math.hypot(m.offset_err_deg, m.repeatability_deg))
+        for name, m in bench.mounts.items()
+        if m.offset_err_deg > 0 or m.repeatability_deg > 0
+    ]
+    items += [
+        (arm, i, e.retardance_tol_waves)
+        for arm in ("pre", "post")
+        for i, e in enumerate(getattr(bench, arm))
+        if e.type in _PLATES and e.retardance_tol_waves > 0
+    ]
+    if not items:
+        return [bench]
+    k = len(items)
+    if k <= _MAX_CORNER_ITEMS:
+        signs = list(itertools.product((-1.0, 1.0), repeat=k))
+    else:
+        signs = [tuple(s * (i == j) for i in range(k)) for j in range(k) for s in (-1.0, 1.0)]
+        signs += [(1.0,) * k, (-1.0,) * k]
+
+    def shifted(sign: tuple[float, ...]) -> Bench:
+        mounts = dict(bench.mounts)
+        arms = {"pre": list(bench.pre), "post": list(bench.post)}
+        for s, (kind, key, size) in zip(sign, items, strict=True):
+            if kind == "mount":
+                mounts[key] = replace(mounts[key], offset_deg=mounts[key].offset_deg + s * size)
+            else:
+                e = arms[kind][key]
+                arms[kind][key] = replace(e, retardance_waves=e.retardance_waves + s * size)
+        return replace(bench, mounts=mounts, pre=tuple(arms["pre"]), post=tuple(arms["post"]))
+
+    return [shifted(sign) for sign in signs]
 
 
 @dataclass(frozen=True)
@@ -78,6 +136,7 @@ class DetectorGuard:
         if not step_deg > 0:
             raise InputError(f"guard step_deg must be > 0 deg, got {step_deg:g}")
         self.bench = bench
+        self._benches = uncertainty_benches(bench)
         self.has_shutter = has_shutter
         self.safe_rate = bench.detector.safe_rate
         self.headroom = headroom
@@ -92,10 +151,23 @@ class DetectorGuard:
 
     def rates(self, readings: Mapping[str, float | NDArray[np.float64]]) -> NDArray[np.float64]:
         """Predicted exposure rate (photons detected per second before saturation, counts/s)
-        at ``readings`` (arrays broadcast)."""
+        at ``readings`` (arrays broadcast), the worst case over the bench's stated
+        uncertainties."""
         from ..prediction import predict
 
-        return np.asarray(predict(self.bench, readings).exposure_rate, float)
+        return np.maximum.reduce(
+            [np.asarray(predict(b, readings).exposure_rate, float) for b in self._benches]
+        )
+
+    @property
+    def basis(self) -> str:
+        """How the predictions are made, for messages."""
+        if len(self._benches) == 1:
+            return "predicted with the bench file's values (it states no uncertainties)"
+        return (
+            "predicted at the worst case of the bench file's stated uncertainties "
+            "(offset_err_deg, repeatability_deg, retardance_tol_waves)"
+        )
 
     def _table(
         self,
@@ -208,9 +280,9 @@ class DetectorGuard:
                 )
         raise GuardTrip(
             f"detector guard: moving {mount} from {start:g} to {target:g} deg would expose the "
-            f"detector to about {peak:.3g} counts/s (limit {self.limit:.3g}, {self.headroom:g} x "
-            f"safe_rate {self.safe_rate:.3g}) and there is no shutter and no dark way round; "
-            "block the beam and move by hand, or add a shutter"
+            f"detector to about {peak:.3g} counts/s ({self.basis}; limit {self.limit:.3g}, "
+            f"{self.headroom:g} x safe_rate {self.safe_rate:.3g}) and there is no shutter and no "
+            "dark way round; block the beam and move by hand, or add a shutter"
         )
 
     def moved(self, mount: str, reached: float) -> None:
@@ -229,10 +301,9 @@ class DetectorGuard:
         if predicted_rate > self.limit:
             where = ", ".join(f"{k} {v:.4g} deg" for k, v in readings.items())
             raise GuardTrip(
-                f"detector guard: at {where} the predicted rate is "
-                f"{predicted_rate:.3g} counts/s, above the limit {self.limit:.3g} "
-                f"({self.headroom:g} x safe_rate {self.safe_rate:.3g}); the point "
-                "is refused"
+                f"detector guard: at {where} the rate is {predicted_rate:.3g} counts/s "
+                f"({self.basis}), above the limit {self.limit:.3g} ({self.headroom:g} x "
+                f"safe_rate {self.safe_rate:.3g}); the point is refused"
             )
 
     def check_counts(self, counts: int, dwell_s: float) -> float:
@@ -246,7 +317,7 @@ class DetectorGuard:
         )
 
         d = self.bench.detector
-        tau = d.dead_time_ns * 1e-9
+        tau = d.dead_time_s
         if d.mode == "pulsed" and d.rep_rate_hz is not None:
             p = click_probability_from_rate(counts / dwell_s, d.rep_rate_hz, tau)
             with np.errstate(divide="ignore", invalid="ignore"):
@@ -259,7 +330,7 @@ class DetectorGuard:
         if rate > self.safe_rate:
             raise GuardTrip(
                 f"detector guard: measured {rate:.3g} counts/s, above safe_rate "
-                f"{self.safe_rate:.3g}; shutter shut and sweep stopped. Check the "
+                f"{self.safe_rate:.3g}; the shutter is shut and the run stopped. Check the "
                 "beam path and the analyzer before resuming"
             )
         return rate

@@ -25,6 +25,15 @@ Tables:
 ``events``
     ``run_id``, ``idx`` (point, may be NULL), ``kind`` (:data:`EVENT_KINDS`), ``message``,
     ``t_utc``.
+``recipe_runs`` (schema 2)
+    one row per run of kind ``recipe``: ``run_id``, ``name`` and ``path`` of the recipe,
+    ``recipe_text`` (the file's text: a resumed run follows the recipe as it was), ``steps``.
+``recipe_steps`` (schema 2)
+    one row per step of a recipe run, key (``run_id``, ``number``; 1 = the first step):
+    ``do``, ``state`` (:data:`aligner.recipe.results.STEP_STATES`), ``outcome_json`` (the
+    step's :class:`aligner.recipe.results.StepOutcome`: values with units and uncertainties,
+    pass/fail, the operator's answer, the devices used), ``started_utc``, ``ended_utc``. A
+    step done again on a resume replaces its row.
 
 A point and the events raised while taking it are written in one transaction, so a crash
 loses at most the point being counted. Times are UTC ISO 8601 strings. The file's
@@ -35,8 +44,10 @@ place when opened for writing, newer ones refused. One process at a time may dri
 
 from __future__ import annotations
 
+import contextlib
 import json
 import sqlite3
+import sys
 from collections.abc import Iterable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass
@@ -44,17 +55,21 @@ from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 
-from ..errors import DataFileError, InputError
+from ..errors import DataFileError, InputError, StorageError
 
 __all__ = [
     "EVENT_KINDS",
     "RUN_STATUSES",
     "Event",
     "LoggedPoint",
+    "RecipeRunRow",
+    "RecipeStepRow",
     "RunLog",
     "RunRecord",
+    "Salvage",
     "default_db_path",
     "read_run",
+    "salvage",
     "utc_now",
 ]
 
@@ -62,7 +77,12 @@ RUN_STATUSES = ("running", "interrupted", "complete")
 #: ``device``: a device's remark that is not a fault (a late reply discarded, a homing).
 EVENT_KINDS = ("fault", "guard", "pause", "resume", "note", "device")
 #: The schema this code writes (the file's ``PRAGMA user_version``); 0 is the first schema.
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
+#: What to do with a damaged run log (``{path}``: the file).
+SALVAGE_HINT = (
+    "Copy the readable runs into a new file with 'aligner log salvage --db {path} --out "
+    "NEW.sqlite' and keep the damaged file for reference"
+)
 
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS runs (
@@ -115,7 +135,27 @@ CREATE TABLE IF NOT EXISTS events (
     message TEXT NOT NULL,
     t_utc TEXT NOT NULL
 );
+CREATE TABLE IF NOT EXISTS recipe_runs (
+    run_id INTEGER PRIMARY KEY REFERENCES runs(id),
+    name TEXT NOT NULL,
+    path TEXT NOT NULL,
+    recipe_text TEXT NOT NULL,
+    steps INTEGER NOT NULL
+);
+CREATE TABLE IF NOT EXISTS recipe_steps (
+    run_id INTEGER NOT NULL REFERENCES runs(id),
+    number INTEGER NOT NULL,
+    do TEXT NOT NULL,
+    state TEXT NOT NULL,
+    outcome_json TEXT NOT NULL,
+    started_utc TEXT NOT NULL,
+    ended_utc TEXT NOT NULL,
+    PRIMARY KEY (run_id, number)
+);
 """
+
+#: The tables of :data:`SCHEMA_VERSION`.
+_TABLES = frozenset({"runs", "points", "events", "recipe_runs", "recipe_steps"})
 
 #: Schema 0 -> 1: run kind and provenance, nullable leak with a flag, event kinds checked in
 #: Python. SQLite cannot relax NOT NULL or CHECK in place, so points and events are rebuilt.
@@ -252,6 +292,30 @@ class RunRecord:
         return " and ".join(words) + (" (with real devices)" if "real" in kinds else "")
 
 
+@dataclass(frozen=True)
+class RecipeRunRow:
+    """What a recipe run follows: the recipe's ``name``, ``path``, the file's ``text`` as it
+    was when the run started, and its number of ``steps``."""
+
+    run_id: int
+    name: str
+    path: str
+    text: str
+    steps: int
+
+
+@dataclass(frozen=True)
+class RecipeStepRow:
+    """One logged step of a recipe run (``outcome`` is the stored JSON document)."""
+
+    number: int
+    do: str
+    state: str
+    outcome: Mapping[str, Any]
+    started_utc: str
+    ended_utc: str
+
+
 class RunLog:
     """A connection to a run-log file; created (with its folder) when missing.
 
@@ -291,20 +355,42 @@ class RunLog:
             ) from None
 
     def _open(self, durable: bool) -> None:
-        self._db.execute("PRAGMA journal_mode=WAL")
-        # FULL syncs every commit to disk, so a point survives a power cut too; NORMAL (WAL)
-        # survives a crash of the program but may lose the last points to a power cut
-        self._db.execute(f"PRAGMA synchronous={'FULL' if durable else 'NORMAL'}")
-        self._db.execute("PRAGMA foreign_keys=ON")
+        """Check the file before anything is written to it (a newer schema, another program's
+        file, damage), then set it up: WAL journal, the schema created or upgraded."""
         version = int(self._db.execute("PRAGMA user_version").fetchone()[0])
         if version > SCHEMA_VERSION:
             raise DataFileError(
                 f"{self.path}: written by a newer aligner (run-log schema {version}, this one "
                 f"reads up to {SCHEMA_VERSION}); update aligner to read it"
             )
-        tables = {r[0] for r in self._db.execute("SELECT name FROM sqlite_master")}
-        if "runs" in tables and version < SCHEMA_VERSION:
+        tables = {
+            r[0] for r in self._db.execute("SELECT name FROM sqlite_master WHERE type = 'table'")
+        } - {"sqlite_sequence"}
+        if tables and "runs" not in tables:
+            raise DataFileError(
+                f"{self.path}: is an SQLite file but not a run log (it holds "
+                f"{', '.join(sorted(tables))}); give another file with --db"
+            )
+        check = self._db.execute("PRAGMA integrity_check(1)").fetchone()[0]
+        page = int(self._db.execute("PRAGMA page_size").fetchone()[0])
+        if tables and self.path.stat().st_size % page:
+            check = f"its size is not a whole number of {page}-byte pages: it was cut short"
+        if check != "ok":
+            raise DataFileError(
+                f"{self.path}: the run log is damaged ({check}); nothing is written to it. "
+                f"{SALVAGE_HINT.format(path=self.path)}"
+            )
+        self._db.execute("PRAGMA journal_mode=WAL")
+        # FULL syncs every commit to disk, so a point survives a power cut too; NORMAL (WAL)
+        # survives a crash of the program but may lose the last points to a power cut
+        self._db.execute(f"PRAGMA synchronous={'FULL' if durable else 'NORMAL'}")
+        self._db.execute("PRAGMA foreign_keys=ON")
+        if version == SCHEMA_VERSION and tables >= _TABLES:
+            self.runs()  # every run's header decodes: a damaged one is refused here, not later
+            return
+        if "runs" in tables and version < 1:
             self._upgrade()
+        # schema 1 -> 2 adds the recipe tables only: CREATE TABLE IF NOT EXISTS does it
         self._db.executescript(_SCHEMA)
         self._db.execute(f"PRAGMA user_version={SCHEMA_VERSION}")
 
@@ -357,27 +443,30 @@ class RunLog:
         kind: str = "sweep",
     ) -> int:
         """Insert a run with status ``running``; return its id."""
-        cur = self._db.execute(
-            "INSERT INTO runs (kind, status, bench_name, bench_path, bench_toml, schedule, "
-            "plan_json, dwell_s, settle_s, repeats, imbalance_mount, software_version, "
-            "started_utc, provenance_json) "
-            "VALUES (?, 'running', ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
-            (
-                kind,
-                bench_name,
-                bench_path,
-                bench_toml,
-                schedule,
-                json.dumps(list(plan)),
-                dwell_s,
-                settle_s,
-                repeats,
-                imbalance_mount,
-                software_version,
-                utc_now(),
-                json.dumps(dict(provenance)),
-            ),
-        )
+        try:
+            cur = self._db.execute(
+                "INSERT INTO runs (kind, status, bench_name, bench_path, bench_toml, schedule, "
+                "plan_json, dwell_s, settle_s, repeats, imbalance_mount, software_version, "
+                "started_utc, provenance_json) "
+                "VALUES (?, 'running', ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                (
+                    kind,
+                    bench_name,
+                    bench_path,
+                    bench_toml,
+                    schedule,
+                    json.dumps(list(plan)),
+                    dwell_s,
+                    settle_s,
+                    repeats,
+                    imbalance_mount,
+                    software_version,
+                    utc_now(),
+                    json.dumps(dict(provenance)),
+                ),
+            )
+        except sqlite3.OperationalError as exc:
+            raise _storage_error(self.path, exc) from None
         return int(cur.lastrowid or 0)
 
     def add_point(self, run_id: int, point: LoggedPoint, events: Iterable[Event] = ()) -> None:
@@ -441,16 +530,124 @@ class RunLog:
             [(run_id, e.idx, e.kind, e.message, e.t_utc or utc_now()) for e in events],
         )
 
+    # -- recipe runs (schema 2) ----------------------------------------------------------------
+
+    def create_recipe_run(
+        self,
+        *,
+        recipe: Mapping[str, Any],
+        bench_name: str,
+        bench_path: str | None,
+        bench_toml: str,
+        imbalance_mount: str,
+        software_version: str,
+        provenance: Mapping[str, Any],
+    ) -> int:
+        """Insert a run of kind ``recipe`` (status ``running``) and what it follows:
+        ``recipe`` holds ``name``, ``path``, ``text`` and ``steps`` (a list of the steps as
+        plain data, stored as the run's plan). Returns the run's id."""
+        steps = list(recipe["steps"])
+        with self._transaction():
+            run_id = self.create_run(
+                bench_name=bench_name,
+                bench_path=bench_path,
+                bench_toml=bench_toml,
+                schedule=str(recipe["name"]),
+                plan=steps,
+                dwell_s=0.0,
+                settle_s=0.0,
+                repeats=1,
+                imbalance_mount=imbalance_mount,
+                software_version=software_version,
+                provenance=provenance,
+                kind="recipe",
+            )
+            self._db.execute(
+                "INSERT INTO recipe_runs (run_id, name, path, recipe_text, steps) "
+                "VALUES (?, ?, ?, ?, ?)",
+                (run_id, str(recipe["name"]), str(recipe["path"]), str(recipe["text"]), len(steps)),
+            )
+        return run_id
+
+    def put_step(
+        self,
+        run_id: int,
+        outcome: Mapping[str, Any],
+        events: Iterable[Event] = (),
+    ) -> None:
+        """Write (or replace) one recipe step's outcome document (``number``, ``do``,
+        ``state``, ``started_utc``, ``ended_utc`` read from it) and its events in one
+        transaction."""
+        with self._transaction():
+            self._db.execute(
+                "INSERT OR REPLACE INTO recipe_steps (run_id, number, do, state, outcome_json, "
+                "started_utc, ended_utc) VALUES (?, ?, ?, ?, ?, ?, ?)",
+                (
+                    run_id,
+                    int(outcome["number"]),
+                    str(outcome["do"]),
+                    str(outcome["state"]),
+                    json.dumps(dict(outcome)),
+                    str(outcome.get("started_utc") or utc_now()),
+                    str(outcome.get("ended_utc") or utc_now()),
+                ),
+            )
+            self._insert_events(run_id, events)
+
+    def recipe_run(self, run_id: int) -> RecipeRunRow:
+        """What recipe run ``run_id`` follows; a run of another kind raises ``InputError``."""
+        record = self.run(run_id)
+        row = self._db.execute(
+            "SELECT name, path, recipe_text, steps FROM recipe_runs WHERE run_id = ?", (run_id,)
+        ).fetchone()
+        if row is None:
+            raise InputError(
+                f"run {run_id} is a {record.kind} run, not a recipe run; see 'aligner log list'"
+            )
+        return RecipeRunRow(run_id, *row)
+
+    def recipe_steps(self, run_id: int) -> list[RecipeStepRow]:
+        """The logged steps of a recipe run, in step order."""
+        rows = self._db.execute(
+            "SELECT number, do, state, outcome_json, started_utc, ended_utc FROM recipe_steps "
+            "WHERE run_id = ? ORDER BY number",
+            (run_id,),
+        )
+        return [RecipeStepRow(n, do, st, json.loads(o), t0, t1) for n, do, st, o, t0, t1 in rows]
+
+    def recipe_run_ids(self, name: str) -> list[int]:
+        """Ids of the runs of recipe ``name``, newest first."""
+        rows = self._db.execute(
+            "SELECT run_id FROM recipe_runs WHERE name = ? ORDER BY run_id DESC", (name,)
+        )
+        return [int(r[0]) for r in rows]
+
     def _transaction(self) -> _Transaction:
-        return _Transaction(self._db)
+        return _Transaction(self._db, self.path)
 
     # -- reading -----------------------------------------------------------------------------
 
+    @contextmanager
+    def _reading(self, what: str) -> Iterator[None]:
+        """Turn what a damaged file does to a read into one ``DataFileError`` with the way
+        out."""
+        try:
+            yield
+        except (sqlite3.DatabaseError, ValueError, TypeError, KeyError) as exc:
+            raise DataFileError(
+                f"{self.path}: {what} cannot be read: the run log is damaged ({exc}). "
+                f"{SALVAGE_HINT.format(path=self.path)}"
+            ) from None
+
     def run(self, run_id: int) -> RunRecord:
         """A run's record; an unknown id raises ``DataFileError`` naming the file."""
-        row = self._db.execute(
-            f"SELECT {_RUN_COLUMNS} FROM runs WHERE id = ?", (run_id,)
-        ).fetchone()
+        with self._reading(f"run {run_id}"):
+            row = self._db.execute(
+                f"SELECT {_RUN_COLUMNS} FROM runs WHERE id = ?", (run_id,)
+            ).fetchone()
+            return self._found(run_id, row)
+
+    def _found(self, run_id: int, row: Sequence[Any] | None) -> RunRecord:
         if row is None:
             known = [str(r[0]) for r in self._db.execute("SELECT id FROM runs ORDER BY id")]
             listing = ", ".join(known[-10:]) or "none yet"
@@ -461,61 +658,66 @@ class RunLog:
 
     def runs(self) -> list[RunRecord]:
         """All runs, oldest first."""
-        rows = self._db.execute(f"SELECT {_RUN_COLUMNS} FROM runs ORDER BY id")
-        return [self._record(r) for r in rows]
+        with self._reading("the list of runs"):
+            rows = self._db.execute(f"SELECT {_RUN_COLUMNS} FROM runs ORDER BY id")
+            return [self._record(r) for r in rows]
 
     @staticmethod
     def _record(row: Sequence[Any]) -> RunRecord:
         (run_id, kind, status, name, path, toml, schedule, plan, dwell, settle, repeats,
          mount, version, started, ended, message, provenance, points) = row  # fmt: skip
+        plan_rows = json.loads(plan)
+        doc = json.loads(provenance)
+        if not isinstance(plan_rows, list) or not isinstance(doc, dict):
+            raise ValueError(f"run {run_id}: its plan or provenance is not what was written")
         return RunRecord(
-            id=run_id,
-            kind=kind,
-            status=status,
-            bench_name=name,
-            bench_path=path,
-            bench_toml=toml,
-            schedule=schedule,
-            plan=tuple(json.loads(plan)),
-            dwell_s=dwell,
-            settle_s=settle,
-            repeats=repeats,
-            imbalance_mount=mount,
-            software_version=version,
-            started_utc=started,
-            ended_utc=ended,
-            message=message,
-            provenance=json.loads(provenance),
-            points=points,
+            id=int(run_id),
+            kind=str(kind),
+            status=str(status),
+            bench_name=str(name),
+            bench_path=None if path is None else str(path),
+            bench_toml=str(toml),
+            schedule=str(schedule),
+            plan=tuple(plan_rows),
+            dwell_s=float(dwell),
+            settle_s=float(settle),
+            repeats=int(repeats),
+            imbalance_mount=str(mount),
+            software_version=str(version),
+            started_utc=str(started),
+            ended_utc=None if ended is None else str(ended),
+            message=str(message),
+            provenance=doc,
+            points=int(points),
         )
 
     def points(self, run_id: int) -> list[LoggedPoint]:
         """A run's points in index order."""
         self.run(run_id)
-        rows = self._db.execute(
-            f"SELECT {', '.join(_POINT_COLUMNS)} FROM points WHERE run_id = ? ORDER BY idx",
-            (run_id,),
-        )
-        out = []
-        for r in rows:
-            values = dict(zip(_POINT_COLUMNS, r, strict=True))
-            values["commanded"] = json.loads(values.pop("commanded_json"))
-            values["readback"] = json.loads(values.pop("readback_json"))
-            out.append(LoggedPoint(**values))
-        return out
+        with self._reading(f"the points of run {run_id}"):
+            rows = self._db.execute(
+                f"SELECT {', '.join(_POINT_COLUMNS)} FROM points WHERE run_id = ? ORDER BY idx",
+                (run_id,),
+            )
+            return [_point(dict(zip(_POINT_COLUMNS, r, strict=True))) for r in rows]
 
     def done_indices(self, run_id: int) -> set[int]:
         """Indices of the points already logged."""
-        return {
-            r[0] for r in self._db.execute("SELECT idx FROM points WHERE run_id = ?", (run_id,))
-        }
+        with self._reading(f"the points of run {run_id}"):
+            rows = self._db.execute("SELECT idx FROM points WHERE run_id = ?", (run_id,))
+            return {int(r[0]) for r in rows}
 
     def events(self, run_id: int) -> list[Event]:
         """A run's events, oldest first."""
-        rows = self._db.execute(
-            "SELECT kind, message, idx, t_utc FROM events WHERE run_id = ? ORDER BY id", (run_id,)
-        )
-        return [Event(kind, message, idx, t) for kind, message, idx, t in rows]
+        with self._reading(f"the events of run {run_id}"):
+            rows = self._db.execute(
+                "SELECT kind, message, idx, t_utc FROM events WHERE run_id = ? ORDER BY id",
+                (run_id,),
+            )
+            return [
+                Event(str(kind), str(message), None if idx is None else int(idx), str(t))
+                for kind, message, idx, t in rows
+            ]
 
     def integrity_ok(self) -> bool:
         """``PRAGMA integrity_check`` says ``ok``."""
@@ -543,12 +745,44 @@ class RunLog:
             handle.close()
 
 
+def _optional(value: Any) -> float | None:
+    return None if value is None else float(value)
+
+
+def _point(values: dict[str, Any]) -> LoggedPoint:
+    """A points row as a :class:`LoggedPoint`, every column converted to its type (a value of
+    the wrong type raises ``ValueError`` or ``TypeError``: a damaged row)."""
+    commanded = json.loads(values["commanded_json"])
+    readback = json.loads(values["readback_json"])
+    if not isinstance(commanded, dict) or not isinstance(readback, dict):
+        raise ValueError(f"point {values['idx']}: its readings are not what was written")
+    return LoggedPoint(
+        idx=int(values["idx"]),
+        target=float(values["target"]),
+        commanded={str(k): float(v) for k, v in commanded.items()},
+        readback={str(k): float(v) for k, v in readback.items()},
+        reading_deg=float(values["reading_deg"]),
+        counts=int(values["counts"]),
+        reference=None if values["reference"] is None else int(values["reference"]),
+        dwell_s=float(values["dwell_s"]),
+        leak=_optional(values["leak"]),
+        leak_lo=_optional(values["leak_lo"]),
+        leak_hi=_optional(values["leak_hi"]),
+        predicted_leak=float(values["predicted_leak"]),
+        predicted_rate=float(values["predicted_rate"]),
+        imbalance_deg=float(values["imbalance_deg"]),
+        pointer=_optional(values["pointer"]),
+        pointer_err=_optional(values["pointer_err"]),
+        started_utc=str(values["started_utc"]),
+        ended_utc=str(values["ended_utc"]),
+        flag=str(values["flag"]),
+    )
+
+
 def _try_lock(handle: Any, byte: int) -> bool:
     """Lock byte ``byte`` of an open file for this process (exclusive, non-blocking); False
     when another process holds it."""
-    try:
-        import fcntl
-    except ImportError:  # Windows
+    if sys.platform == "win32":
         import msvcrt
 
         handle.seek(byte)
@@ -557,6 +791,8 @@ def _try_lock(handle: Any, byte: int) -> bool:
         except OSError:
             return False
         return True
+    import fcntl
+
     try:
         fcntl.lockf(handle.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB, 1, byte)
     except OSError:
@@ -564,17 +800,38 @@ def _try_lock(handle: Any, byte: int) -> bool:
     return True
 
 
-class _Transaction:
-    """``BEGIN IMMEDIATE`` ... ``COMMIT`` (``ROLLBACK`` on error) on an autocommit connection."""
+def _storage_error(path: Path, exc: sqlite3.Error) -> StorageError:
+    return StorageError(
+        f"{path}: the run log could not be written ({exc}); free disk space (or fix the "
+        "file's permissions, or stop the program holding it), then resume the run"
+    )
 
-    def __init__(self, db: sqlite3.Connection) -> None:
-        self._db = db
+
+class _Transaction:
+    """``BEGIN IMMEDIATE`` ... ``COMMIT`` (``ROLLBACK`` on error) on an autocommit connection;
+    a write the file system refuses (a full disk, a read-only file) is a ``StorageError``."""
+
+    def __init__(self, db: sqlite3.Connection, path: Path) -> None:
+        self._db, self._path = db, path
 
     def __enter__(self) -> None:
-        self._db.execute("BEGIN IMMEDIATE")
+        try:
+            self._db.execute("BEGIN IMMEDIATE")
+        except sqlite3.OperationalError as exc:
+            raise _storage_error(self._path, exc) from None
 
-    def __exit__(self, exc_type: type[BaseException] | None, *exc: object) -> None:
-        self._db.execute("COMMIT" if exc_type is None else "ROLLBACK")
+    def __exit__(
+        self, exc_type: type[BaseException] | None, exc: BaseException | None, *rest: object
+    ) -> None:
+        try:
+            self._db.execute("COMMIT" if exc_type is None else "ROLLBACK")
+        except sqlite3.OperationalError as failed:
+            if exc_type is None:
+                with contextlib.suppress(sqlite3.Error):
+                    self._db.execute("ROLLBACK")
+            raise _storage_error(self._path, failed) from None
+        if isinstance(exc, sqlite3.OperationalError):
+            raise _storage_error(self._path, exc) from None
 
 
 def read_run(run_id: int, db: str | Path | None = None) -> tuple[RunRecord, list[LoggedPoint]]:
@@ -585,3 +842,139 @@ def read_run(run_id: int, db: str | Path | None = None) -> tuple[RunRecord, list
     """
     with RunLog(db, create=False) as log:
         return log.run(run_id), log.points(run_id)
+
+
+@dataclass(frozen=True)
+class Salvage:
+    """What :func:`salvage` copied: the runs, points and events it could read, and what it
+    could not (plain sentences)."""
+
+    source: str
+    out: str
+    runs: int
+    points: int
+    events: int
+    lost: tuple[str, ...]
+
+    def to_json(self) -> dict[str, Any]:
+        """The JSON document of ``aligner log salvage --json``."""
+        return {
+            "source": self.source,
+            "out": self.out,
+            "runs": self.runs,
+            "points": self.points,
+            "events": self.events,
+            "lost": list(self.lost),
+        }
+
+
+#: Runs probed one by one when the damaged file cannot list them.
+_PROBE_RUNS = 10_000
+
+
+def _rows(db: sqlite3.Connection, sql: str, args: Sequence[Any] = ()) -> list[dict[str, Any]]:
+    cur = db.execute(sql, args)
+    names = [d[0] for d in cur.description]
+    return [dict(zip(names, row, strict=True)) for row in cur.fetchall()]
+
+
+def salvage(damaged: str | Path, out: str | Path) -> Salvage:
+    """Copy every run, point and event that can still be read from the run log ``damaged``
+    (opened read-only, never changed) into a new run log ``out`` (which must not exist),
+    keeping run ids; rows that cannot be read are counted in ``lost``."""
+    source, target = Path(damaged), Path(out)
+    if not source.is_file():
+        raise DataFileError(f"{source}: no such file")
+    if target.exists():
+        raise DataFileError(f"{target}: exists; give a new file name for the salvaged runs")
+    try:
+        db = sqlite3.connect(f"file:{source}?mode=ro", uri=True)
+    except sqlite3.Error as exc:
+        raise DataFileError(f"{source}: cannot be opened ({exc})") from None
+    lost: list[str] = []
+    try:
+        try:
+            ids = [r["id"] for r in _rows(db, "SELECT id FROM runs ORDER BY id")]
+        except sqlite3.Error:
+            lost.append("the list of runs (each run id was probed instead)")
+            ids = list(range(1, _PROBE_RUNS + 1))
+        copied = [0, 0, 0]
+        with RunLog(target) as new:
+            for run_id in ids:
+                _salvage_run(db, new._db, run_id, copied, lost, probing=len(ids) == _PROBE_RUNS)
+    finally:
+        db.close()
+    runs, points, events = copied
+    return Salvage(str(source), str(target), runs, points, events, tuple(lost))
+
+
+def _salvage_run(
+    db: sqlite3.Connection,
+    new: sqlite3.Connection,
+    run_id: int,
+    copied: list[int],
+    lost: list[str],
+    *,
+    probing: bool,
+) -> None:
+    """Copy run ``run_id`` (its row, then its points and events as far as they read)."""
+    try:
+        rows = _rows(db, "SELECT * FROM runs WHERE id = ?", (run_id,))
+    except sqlite3.Error as exc:
+        if not probing:
+            lost.append(f"run {run_id} ({exc})")
+        return
+    if not rows:
+        return
+    run = {k: v for k, v in rows[0].items() if k in _SALVAGED_RUN_COLUMNS}
+    new.execute(
+        f"INSERT INTO runs ({', '.join(run)}) VALUES ({', '.join('?' * len(run))})",
+        list(run.values()),
+    )
+    copied[0] += 1
+    for table, key in _SALVAGED_TABLES:
+        try:
+            items = _rows(db, f"SELECT * FROM {table} WHERE run_id = ? ORDER BY {key}", (run_id,))
+        except sqlite3.OperationalError as exc:
+            if "no such table" not in str(exc):  # an older file has no recipe tables
+                lost.append(f"the {table} of run {run_id} ({exc})")
+            continue
+        except sqlite3.Error as exc:
+            lost.append(f"the {table} of run {run_id} ({exc})")
+            continue
+        for item in items:
+            new.execute(
+                f"INSERT INTO {table} ({', '.join(item)}) VALUES ({', '.join('?' * len(item))})",
+                list(item.values()),
+            )
+        if table in ("points", "events"):
+            copied[1 if table == "points" else 2] += len(items)
+
+
+#: Tables a salvage copies row by row after a run's header, and the column to order them by.
+_SALVAGED_TABLES = (
+    ("points", "idx"),
+    ("events", "id"),
+    ("recipe_runs", "run_id"),
+    ("recipe_steps", "number"),
+)
+#: Columns of ``runs`` a salvage copies (older files lack the last two; the defaults apply).
+_SALVAGED_RUN_COLUMNS = (
+    "id",
+    "status",
+    "bench_name",
+    "bench_path",
+    "bench_toml",
+    "schedule",
+    "plan_json",
+    "dwell_s",
+    "settle_s",
+    "repeats",
+    "imbalance_mount",
+    "software_version",
+    "started_utc",
+    "ended_utc",
+    "message",
+    "kind",
+    "provenance_json",
+)

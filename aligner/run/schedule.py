@@ -21,6 +21,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
+from typing import Any
 
 from ..bench import Bench
 from ..errors import InputError
@@ -148,10 +149,11 @@ def plan_points(bench: Bench, schedule: Schedule) -> tuple[PlannedPoint, ...]:
     one_pass: list[dict[str, float]] = []
     near: float | None = None
     for target in schedule.targets:
-        if schedule.quantity == "amplification":
-            solved = readings_for_amplification(bench, target, axis="re")
-        else:
-            solved = readings_for_imbalance(bench, target, near=near)
+        solved: Mapping[str, Any] = (
+            readings_for_amplification(bench, target, axis="re")
+            if schedule.quantity == "amplification"
+            else readings_for_imbalance(bench, target, near=near)
+        )
         readings = {**base, **{name: float(value) for name, value in solved.items()}}
         near = readings[bench.imbalance_mount]
         one_pass.append(readings)

@@ -174,7 +174,7 @@ class SimBench:
             ref.fraction,
             1.0,
             ref.dark_rate,
-            self.truth.detector.dead_time_ns * 1e-9,
+            self.truth.detector.dead_time_s,
         )
         return float(rates.measured_rate)
 
@@ -193,7 +193,7 @@ class SimBench:
         if self.shutter.is_open() if exposed is None else exposed:
             rate = float(self.expected(readings).measured_rate)
         else:
-            rate = float(measured_rate(d.dark_rate, d.dead_time_ns * 1e-9))
+            rate = float(measured_rate(d.dark_rate, d.dead_time_s))
         means = np.array([rate, self.reference_rate()][: self.counter.channels]) * dwell_s
         counts = tuple(int(c) for c in self.rng.poisson(means))
         self._pass_time(dwell_s)

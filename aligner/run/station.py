@@ -218,18 +218,30 @@ class Station:
 
     def attempt(self, what: str, idx: int | None, fn: Callable[[], T]) -> T:
         """Run ``fn``; retry timeouts, garbled replies and refusals ``retries`` times (each
-        failure becomes a fault event and makes every position unknown)."""
+        failure becomes a fault event and makes every position unknown). What the devices
+        noticed meanwhile (late replies discarded, ...) becomes ``device`` events."""
         tries = self.options.retries + 1
         for n in range(1, tries + 1):
             try:
                 return fn()
             except RETRYABLE as exc:
+                self._collect_notices(idx)
                 self.events.append(Event("fault", f"{what}: {exc} (attempt {n} of {tries})", idx))
                 self._positions = dict.fromkeys(self._positions)
                 self.guard.forget()
                 if n == tries:
                     raise
+            finally:
+                self._collect_notices(idx)
         raise AssertionError("unreachable")
+
+    def _collect_notices(self, idx: int | None) -> None:
+        devices = self.devices
+        every = (*devices.mounts.values(), devices.counter, devices.shutter, devices.pointer)
+        for device in {id(d): d for d in every if d is not None}.values():
+            take = getattr(device, "take_notices", None)
+            if take is not None:
+                self.events.extend(Event("device", text, idx) for text in take())
 
     def position(self, name: str, idx: int | None = None) -> float:
         """Read-back of mount ``name`` (deg), cached until the mount moves or a fault."""
@@ -304,24 +316,50 @@ class Station:
         return Move(name, plan.target, reached, plan.shut_for_move, plan.note)
 
     def expose(self, readings: Mapping[str, float], idx: int | None = None) -> None:
-        """Open the shutter, if the predicted exposure at ``readings`` (deg) allows it."""
-        from ..prediction import predict
-
-        predicted = float(predict(self.bench, dict(readings)).exposure_rate)
+        """Open the shutter, if the predicted exposure at ``readings`` (deg; the worst case
+        over the bench's stated uncertainties) allows it."""
+        predicted = float(self.guard.rates(dict(readings)))
         self.guard.check_point(predicted, readings)
         shutter = self.devices.shutter
         if shutter is not None and not shutter.is_open():
             self.attempt("opening the shutter", idx, shutter.open)
 
+    @property
+    def gate_step_s(self) -> float:
+        """The counter's gate step (s): its window or gate resolution; 0 for any gate."""
+        return float(getattr(self.devices.counter, "gate_step_s", 0.0) or 0.0)
+
+    def check_dwell(self, dwell_s: float) -> None:
+        """Refuse a dwell (s) the counter cannot gate: not a whole number of its gate step."""
+        from ..errors import InputError
+
+        step = self.gate_step_s
+        if step > 0 and abs(max(1, round(dwell_s / step)) * step - dwell_s) > 1e-3 * dwell_s:
+            raise InputError(
+                f"dwell_s = {dwell_s:g} s is not a whole number of the counter's {step:g} s "
+                f"gate step; use a multiple of {step:g} s"
+            )
+
     def gates(self, dwell_s: float) -> list[float]:
         """Gate lengths (s) summing to ``dwell_s``: a short probe gate first, so a bright beam
-        is caught within ``probe_s`` of opening the shutter, then gates of at most ``gate_s``."""
-        probe = min(self.options.probe_s, dwell_s)
-        rest = dwell_s - probe
-        if rest <= 1e-9:  # a dwell no longer than the probe
+        is caught within ``probe_s`` of opening the shutter, then gates of at most ``gate_s``;
+        every gate a whole number of the counter's gate step when it has one."""
+        step = self.gate_step_s
+        if step > 0:
+            total = max(1, round(dwell_s / step))
+            probe = max(1, math.ceil(self.options.probe_s / step - 1e-9))
+            if probe >= total:
+                return [total * step]
+            rest = total - probe
+            n = max(1, math.ceil(rest / max(1, math.floor(self.options.gate_s / step))))
+            sizes = [rest // n + (1 if i < rest % n else 0) for i in range(n)]
+            return [probe * step] + [k * step for k in sizes]
+        probe_s = min(self.options.probe_s, dwell_s)
+        rest_s = dwell_s - probe_s
+        if rest_s <= 1e-9:  # a dwell no longer than the probe
             return [dwell_s]
-        n = max(1, math.ceil(rest / self.options.gate_s - 1e-9))
-        return [probe] + [rest / n] * n
+        n = max(1, math.ceil(rest_s / self.options.gate_s - 1e-9))
+        return [probe_s] + [rest_s / n] * n
 
     def count(self, dwell_s: float, idx: int | None = None) -> tuple[int, int | None]:
         """Count for ``dwell_s`` s in gates, every gate's exposure checked: (post-selected
@@ -363,7 +401,7 @@ class Station:
             return self.shut()
         except DeviceError as exc:
             self.events.append(
-                Event("fault", f"the shutter did not confirm it is shut ({exc}): block the beam")
+                Event("fault", f"shutter: did not confirm it is shut ({exc}); block the beam")
             )
             return "failed"
 
@@ -390,6 +428,7 @@ class Station:
         from .sweep import check_plan, run_sweep, start_run
 
         points = tuple(plan) if plan is not None else plan_points(self.bench, schedule)
+        self.check_dwell(schedule.dwell_s)
         check_plan(self, points)
         run_id = start_run(log, self, schedule, points)
         if on_start is not None:
@@ -426,6 +465,7 @@ class Station:
         self.use_bench(bench)
         done = log.done_indices(run_id)
         try:
+            self.check_dwell(record.dwell_s)
             check_plan(self, [p for p in plan if p.index not in done])
         except AlignerError as exc:
             if note:

@@ -31,6 +31,7 @@ from ..errors import (
     InputError,
     SignalInterrupt,
     StorageError,
+    exit_status,
 )
 from .log import Event, LoggedPoint, RunLog, RunRecord, utc_now
 from .schedule import PlannedPoint, Schedule
@@ -49,9 +50,6 @@ __all__ = [
     "run_sweep",
     "start_run",
 ]
-
-#: reason -> exit status of the command that ran the sweep
-_EXIT = {"": 0, "operator": 0, "guard": 3, "device": 3, "storage": 3, "input": 2, "error": 1}
 
 
 @dataclass(frozen=True)
@@ -79,9 +77,7 @@ class SweepResult:
     @property
     def exit_code(self) -> int:
         """The command's exit status for this ending (:data:`aligner.errors.EXIT_STATUS`)."""
-        if self.reason == "interrupt":
-            return 128 + (self.signal or 2)
-        return _EXIT[self.reason]
+        return exit_status(self.reason, self.signal)
 
     def to_json(self) -> dict[str, Any]:
         """The result as JSON (without the points)."""
@@ -241,9 +237,9 @@ def check_plan(station: Station, todo: Sequence[PlannedPoint]) -> None:
         p = todo[worst]
         where = ", ".join(f"{k} {v:.4g} deg" for k, v in p.readings.items())
         raise GuardTrip(
-            f"detector guard: point {p.index} ({where}) is predicted at {rates[worst]:.3g} "
-            f"counts/s, above the limit {guard.limit:.3g} ({guard.headroom:g} x safe_rate "
-            f"{guard.safe_rate:.3g}); choose a schedule nearer the null"
+            f"detector guard: point {p.index} ({where}) is {guard.basis} at "
+            f"{rates[worst]:.3g} counts/s, above the limit {guard.limit:.3g} ({guard.headroom:g}"
+            f" x safe_rate {guard.safe_rate:.3g}); choose a schedule nearer the null"
         )
 
 
@@ -313,7 +309,7 @@ class _Sweep:
         try:
             self.log.add_events(self.run_id, events)
             self.log.set_status(self.run_id, "interrupted", f"{message}; {shutter_words(shut)}")
-        except (sqlite3.Error, OSError) as exc:
+        except (StorageError, sqlite3.Error, OSError) as exc:
             message += f" (the run log could not record this: {exc})"
         return SweepResult(
             self.run_id,
@@ -327,29 +323,20 @@ class _Sweep:
             self.notes,
         )
 
-    def commit(self, point: LoggedPoint) -> None:
-        try:
-            self.log.add_point(self.run_id, point, self.station.take_events())
-        except (sqlite3.Error, OSError) as exc:
-            raise StorageError(
-                f"point {point.idx} could not be written to {self.log.path} ({exc}); free disk "
-                "space (or fix the file's permissions), then resume the run"
-            ) from None
-
     def run(self) -> SweepResult:
         finished = self.log.done_indices(self.run_id)
         todo = [p for p in self.plan if p.index not in finished]
         self.done = len(self.plan) - len(todo)
         st = self.station
         st.clear_stop()
-        self.log.set_status(self.run_id, "running")
         try:
+            self.log.set_status(self.run_id, "running")
             st.shut()
             for p in todo:
                 if st.stop_requested:
                     return self.pause("paused by the operator", "operator")
                 point = self.point(p)
-                self.commit(point)
+                self.log.add_point(self.run_id, point, st.take_events())
                 self.done += 1
                 if self.on_point is not None:
                     self.on_point(point, self.done, len(self.plan))

@@ -24,7 +24,7 @@ from textual.screen import Screen
 
 from . import keys
 from .backend import DeskBackend
-from .messages import ApplyReadings, ReadingsChanged, SweepEnded
+from .messages import ApplyReadings, ReadingsChanged, RecipeEnded, SweepEnded
 
 __all__ = ["SCREENS", "DeskApp", "ScreenEntry", "make_app"]
 
@@ -53,6 +53,7 @@ SCREENS = (
     ScreenEntry("meter", "f5", "Meter", "aligner.tui.screens.meter:MeterScreen"),
     ScreenEntry("devices", "f6", "Devices", "aligner.tui.screens.devices:DevicesScreen"),
     ScreenEntry("log", "f7", "Log", "aligner.tui.screens.log:LogScreen"),
+    ScreenEntry("recipe", "f8", "Recipes", "aligner.tui.screens.recipe:RecipeScreen"),
 )
 
 
@@ -137,7 +138,7 @@ class DeskApp(App[int]):
 
         self.push_screen(
             Confirm(
-                "A sweep is running. Pause it after the point being counted and quit?",
+                "A run is going (a sweep or a recipe). Pause it at its next safe point and quit?",
                 "The mounts stop and the shutter shuts; the run stays resumable.",
                 yes="Pause and quit",
                 no="Keep running",
@@ -157,6 +158,7 @@ class DeskApp(App[int]):
         self.notify("pausing the sweep before quitting…")
 
     @on(SweepEnded)
+    @on(RecipeEnded)
     def sweep_ended(self) -> None:
         if self._quit_after_sweep:
             self.exit(return_code=self._exit_code)

@@ -129,8 +129,9 @@ class DeskBackend:
 
     @property
     def sweeping(self) -> bool:
-        """True while a sweep runs (in its worker thread)."""
-        return self.busy == "sweep"
+        """True while a run (a sweep or a recipe) holds the devices, in its worker thread:
+        quitting then asks first."""
+        return self.busy in ("sweep", "recipe")
 
     # -- bench and predictions ---------------------------------------------------------------
 
@@ -484,6 +485,36 @@ class DeskBackend:
                 finally:
                     if self.signalled is not None and ids:
                         log.note(ids[0], f"the desk was ended by signal {self.signalled}")
+
+    # -- recipes (the recipe screen) -----------------------------------------------------------
+
+    def recipes(self) -> list[Any]:
+        """Bundled and local recipes (:func:`aligner.recipe.catalog`), each with its error if
+        it does not load."""
+        from ..recipe import catalog
+
+        return catalog()
+
+    def run_recipe(
+        self,
+        recipe: Any,
+        operator: Any,
+        readings: Mapping[str, float],
+        *,
+        resume_run: int | None = None,
+    ) -> Any:
+        """Run ``recipe`` (or resume recipe run ``resume_run``) on the desk's station with
+        ``operator`` (:class:`aligner.recipe.Operator`); blocking, for a worker thread.
+        :meth:`request_stop` pauses it at its next safe point. Returns the engine's
+        ``RecipeRunResult``."""
+        from ..recipe import resume_recipe, run_recipe
+
+        with self.using_devices("recipe", readings) as station:
+            if resume_run is not None:
+                return resume_recipe(
+                    resume_run, self.bench, operator, db=self.db_path, station=station
+                )
+            return run_recipe(recipe, self.bench, operator, db=self.db_path, station=station)
 
     # -- the run log --------------------------------------------------------------------------
 

@@ -31,6 +31,10 @@ __all__ = [
     "MountsMoved",
     "PlanReady",
     "ReadingsChanged",
+    "RecipeAsks",
+    "RecipeEnded",
+    "RecipeSaid",
+    "RecipeStepState",
     "SweepChecked",
     "SweepEnded",
     "SweepProgress",
@@ -151,4 +155,42 @@ class DevicesRead(Message):
     """The bench's devices and their states, or why they could not be listed (``error``)."""
 
     lines: tuple[DeviceLine, ...] = ()
+    error: str = ""
+
+
+# -- recipes (posted from the recipe worker) -----------------------------------------------------
+
+
+@dataclass
+class RecipeSaid(Message):
+    """A line the running recipe says (cleaned and escaped by the screen)."""
+
+    text: str
+
+
+@dataclass
+class RecipeStepState(Message):
+    """Step ``number`` is now ``state`` (``running`` or a state of
+    :data:`aligner.recipe.results.STEP_STATES`), with the outcome's ``message``."""
+
+    number: int
+    state: str
+    message: str = ""
+
+
+@dataclass
+class RecipeAsks(Message):
+    """The recipe waits for the operator: ``kind`` ``confirm`` (yes/no) or ``prompt`` (a
+    value), with the question's ``text``."""
+
+    kind: str
+    text: str
+
+
+@dataclass
+class RecipeEnded(Message):
+    """The recipe run ended: the engine's ``RecipeRunResult``, or ``error`` when it could not
+    start."""
+
+    result: Any = None
     error: str = ""

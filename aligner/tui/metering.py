@@ -154,7 +154,8 @@ class MeterSession:
                 continue
             started = time.monotonic()
             post, ref = station.count(self.gate_s)
-            counted = (post / self.gate_s,) + (() if ref is None else (ref / self.gate_s,))
+            counted_s = sum(station.gates(self.gate_s))  # whole steps of the counter's gate
+            counted = (post / counted_s,) + (() if ref is None else (ref / counted_s,))
             on_sample(self._sample(counted, readings, typed=False))
             if station.devices.simulated_time:  # keep a live pace on a simulated clock
                 time.sleep(max(0.0, self.gate_s - (time.monotonic() - started)))

@@ -13,10 +13,12 @@ from dataclasses import replace
 
 import numpy as np
 
+from aligner import nulls as null_module
 from aligner.bench import load_bench, parse_bench
 from aligner.planning import plan
-from aligner.planning import solve as solve_module
-from aligner.planning.solve import Target, observe, solve
+from aligner.planning.observe import observe
+from aligner.planning.roots import solve
+from aligner.planning.targets import Target
 from aligner.planning.tolerance import _sample, error_items
 
 TARGET = 40.0
@@ -53,8 +55,8 @@ def main() -> None:
     t_solve = median_time(lambda: solve(bench, target))
 
     def cold() -> None:
-        solve_module._SEGMENT_CACHE.clear()
-        solve_module._NULL_CACHE.clear()
+        null_module._SEGMENT_CACHE.clear()
+        null_module._NULL_CACHE.clear()
         solve(bench, target)
 
     t_cold = median_time(cold, repeat=5)

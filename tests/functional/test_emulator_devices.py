@@ -51,26 +51,24 @@ def target(request: pytest.FixtureRequest) -> Iterator[Target]:
         yield Target(emu.port, "", emu)
 
 
-def needs(target: Target, example: str, *commands: str) -> str:
+def needs(target: Target, example: str, *entries: str) -> str:
     """The profile to use: the example on the emulator, else the real one if it has them."""
     if target.emulator is not None:
         return example
     profile = load_profile(target.profile)
-    missing = [c for c in commands if not profile.has(c)]
+    missing = [e for e in entries if not profile.has(e)]
     if missing:
-        pytest.skip(f"{target.profile} has no {', '.join(missing)} command")
+        pytest.skip(f"{target.profile} has no entry {', '.join(missing)}")
     return target.profile
 
 
 def test_moves_read_back_within_tolerance(target: Target):
-    mount = open_mount(target.port, profile=needs(target, "example-mount", "move", "query"))
+    mount = open_mount(target.port, profile=needs(target, "example-mount", "position"))
     assert isinstance(mount, LineMount) and "readback" in mount.capabilities
     try:
         for reading in (1.5, -2.25, 0.001, 3.0, 0.0):
             mount.move_to(reading)
-            assert mount.position() == pytest.approx(
-                reading, abs=mount.profile.position_tolerance_deg
-            )
+            assert mount.position() == pytest.approx(reading, abs=mount.profile.axis.tolerance_deg)
             assert not mount.is_moving()
     finally:
         mount.close()
@@ -83,7 +81,7 @@ def test_home_reads_zero(target: Target):
     try:
         mount.move_to(2.0)
         mount.home()
-        assert mount.position() == pytest.approx(0.0, abs=mount.profile.position_tolerance_deg)
+        assert mount.position() == pytest.approx(0.0, abs=mount.profile.axis.tolerance_deg)
     finally:
         mount.close()
 
@@ -101,7 +99,7 @@ def test_counter_gives_one_line_per_gate(target: Target):
 
 
 def test_shutter_starts_shut_and_follows_commands(target: Target):
-    profile = needs(target, "example-counter", "shutter_open", "shutter_shut")
+    profile = needs(target, "example-counter", "shutter")
     shutter = open_shutter(target.port, profile=profile)
     try:
         assert not shutter.is_open()

@@ -17,6 +17,7 @@ from pathlib import Path
 import pytest
 
 from aligner.bench import DEMO_BENCH, load_bench
+from aligner.errors import GuardTrip
 from aligner.run.log import RunLog
 from aligner.run.schedule import parse_schedule
 from aligner.run.simbench import SimBench
@@ -76,8 +77,14 @@ def emulated(tmp_path: Path) -> Iterator[EmulatedBench]:
     bench = EmulatedBench(tmp_path / "bench.toml", mount, None, sim)  # type: ignore[arg-type]
     bench.counter = Emulator(counts_fn=bench.counts, seed=2).__enter__()
     analyzer = f'driver = "{mount.port}"\nprofile = "example-mount"'
+    # the example counter profile with a short reply timeout and no retries, beside the bench
+    quick = profile_file("example-counter").read_text(encoding="utf-8")
+    quick = quick.replace("reply_timeout_s = 0.5", "reply_timeout_s = 0.05")
+    (tmp_path / "quick-counter.toml").write_text(
+        quick.replace("retries = 1 ", "retries = 0 "), encoding="utf-8"
+    )
     devices = (
-        f'[devices.counter]\ndriver = "{bench.counter.port}"\nprofile = "example-counter"\n'
+        f'[devices.counter]\ndriver = "{bench.counter.port}"\nprofile = "quick-counter.toml"\n'
         f'[devices.shutter]\ndriver = "{bench.counter.port}"\nprofile = "example-counter"\n'
         '[devices.pointer]\ndriver = "none"\n'
     )
@@ -126,7 +133,7 @@ def test_a_declared_simulated_counter_runs_and_every_output_says_simulated(tmp_p
     shipped = profile_file("example-mount")
     assert analyzer_record["profile"] == str(shipped)
     assert analyzer_record["profile_sha256"] == hashlib.sha256(shipped.read_bytes()).hexdigest()
-    assert analyzer_record["identity"] == ""  # the example profile has no identity query
+    assert analyzer_record["identity"] == "basic line controller 2.1"  # its identity query
     assert devices["counter"]["kind"] == "simulated" and devices["counter"]["identity"]
     assert devices["pointer"]["kind"] == "absent"
     assert doc["provenance"]["seed"] is not None
@@ -148,7 +155,7 @@ def test_without_safe_rate_nothing_exposes_the_detector_but_predict_works(tmp_pa
     for args in (
         ["sweep", str(path), "--schedule", "list:0.5", "--db", str(tmp_path / "r.db")],
         ["null", str(path)],
-        ["recipe", "run", "find-null", str(path), "--yes", "--db", str(tmp_path / "r.db")],
+        ["recipe", "run", "cross-analyzer", str(path), "--yes", "--db", str(tmp_path / "r.db")],
     ):
         out = _cli(*args)
         assert out.returncode == 2, (args, out.stderr)
@@ -184,7 +191,6 @@ def test_a_counter_timeout_mid_count_pauses_with_the_shutter_shut(emulated, tmp_
     station, log, schedule = _sweep(emulated, tmp_path, retries=0)
     emulated.counter.faults = Faults(script=(None, None, "stall"), only=frozenset({"GATE"}))
     emulated.counter._script = list(emulated.counter.faults.script)
-    station.devices.counter.channel.profile = _quick(station.devices.counter.channel.profile)
     with station:
         result = station.start_sweep(log, schedule)
     assert (result.reason, result.exit_code) == ("device", 3)
@@ -192,12 +198,6 @@ def test_a_counter_timeout_mid_count_pauses_with_the_shutter_shut(emulated, tmp_
     assert log.run(result.run_id).status == "interrupted"
     assert _resumes(emulated, log, result.run_id)
     assert not emulated.counter.beam_on
-
-
-def _quick(profile):
-    from dataclasses import replace
-
-    return replace(profile, reply_timeout_s=0.05, retries=0)
 
 
 def test_a_guard_trip_pauses_with_the_shutter_shut(emulated, tmp_path):
@@ -209,12 +209,12 @@ def test_a_guard_trip_pauses_with_the_shutter_shut(emulated, tmp_path):
         calls.append(dwell_s)
         return (10**6, 0) if len(calls) == 3 else real(dwell_s)
 
-    emulated.counter.counts_fn = bright
+    emulated.counter.device.counts_fn = bright
     with station:
         result = station.start_sweep(log, schedule)
     assert (result.reason, result.exit_code) == ("guard", 3)
     assert not emulated.counter.beam_on
-    emulated.counter.counts_fn = real
+    emulated.counter.device.counts_fn = real
     assert _resumes(emulated, log, result.run_id)
 
 
@@ -241,7 +241,6 @@ def test_an_exception_in_the_counter_shuts_the_shutter(emulated, tmp_path):
 def test_a_timeout_is_not_taken_for_a_point(emulated, tmp_path):
     """A counter that stops answering is a fault, never a logged point."""
     station, log, schedule = _sweep(emulated, tmp_path, retries=0)
-    station.devices.counter.channel.profile = _quick(station.devices.counter.channel.profile)
     emulated.counter.faults = Faults(stall=1.0, only=frozenset({"GATE"}))
     with station:
         result = station.start_sweep(log, schedule)
@@ -280,3 +279,22 @@ def test_a_signal_mid_sweep_shuts_the_shutter_and_the_run_resumes(emulated, tmp_
     assert not emulated.counter.beam_on
     with RunLog(db) as log:
         assert [p.idx for p in log.points(1)] == list(range(12))
+
+
+def test_a_null_search_ends_shut_when_it_converges_and_when_the_guard_trips(emulated, tmp_path):
+    bench = load_bench(emulated.path)
+    with Station.open(bench, seed=6) as station:
+        result = station.null_search("analyzer", dwell_s=0.05, points=9, max_rounds=3)
+        assert not emulated.counter.beam_on and result.shutter == "confirmed"
+        calls = []
+        real = emulated.counts
+
+        def bright(dwell_s):
+            calls.append(dwell_s)
+            return (10**6, 0) if len(calls) == 4 else real(dwell_s)
+
+        emulated.counter.device.counts_fn = bright
+        with pytest.raises(GuardTrip) as trip:
+            station.null_search("analyzer", dwell_s=0.05, points=9, max_rounds=3)
+        assert not emulated.counter.beam_on  # the emulated shutter's own state
+        assert len(trip.value.points) == 1  # each point counts two gates: point 2 tripped

@@ -70,13 +70,14 @@ class Rig:
 
 
 def test_fifty_points_through_the_emulator(tmp_path, bench):
-    schedule = parse_schedule("outback:0.3:1.8:25", dwell_s=0.1)
+    # the emulated counter answers when its gate has ended: short dwells keep the test quick
+    schedule = parse_schedule("outback:0.3:1.8:25", dwell_s=0.02)
     plan = plan_points(bench, schedule)
     rig = Rig(bench)
     try:
         with RunLog(tmp_path / "runs.sqlite") as log:
             run = start_run(log, rig.station, schedule, plan)
-            result = run_sweep(rig.station, log, run, plan, dwell_s=0.1)
+            result = run_sweep(rig.station, log, run, plan, dwell_s=0.02)
             points = log.points(run)
         moves = list(rig.mount_emu.move_log)
     finally:
@@ -117,7 +118,7 @@ def test_fault_drill_200_faults(tmp_path, bench):
 
     remaining = {"mount": script(140, (3, 9), {40, 90}), "counter": script(60, (1, 3), {30})}
     only = {"mount": frozenset({"GO", "AT?", "BUSY?"}), "counter": frozenset({"GATE"})}
-    schedule = parse_schedule("linear:0.3:1.8:40", repeats=3, dwell_s=0.05)
+    schedule = parse_schedule("linear:0.3:1.8:40", repeats=3, dwell_s=0.02)
     plan = plan_points(bench, schedule)
     injected, rounds, reasons = 0, 0, []
     with RunLog(tmp_path / "runs.sqlite") as log:
@@ -132,7 +133,7 @@ def test_fault_drill_200_faults(tmp_path, bench):
             try:
                 if run is None:
                     run = start_run(log, rig.station, schedule, plan)
-                result = run_sweep(rig.station, log, run, plan, dwell_s=0.05)
+                result = run_sweep(rig.station, log, run, plan, dwell_s=0.02)
             finally:
                 rig.devices.close()
                 rig.close()
@@ -159,7 +160,7 @@ def test_fault_drill_200_faults(tmp_path, bench):
     assert len(fault_events) + len(pauses) >= injected
     assert all(e.message and "Traceback" not in e.message for e in events)
     assert all(
-        "analyzer" in e.message or "example-counter" in e.message or "counter" in e.message
+        any(device in e.message for device in ("analyzer", "counter", "shutter"))
         for e in fault_events
     )
     assert "device" in reasons  # the disconnects paused the run; resume finished it
@@ -184,6 +185,6 @@ def test_a_stalled_motor_is_caught_and_the_move_retried(tmp_path, bench):
         rig.devices.close()
         rig.close()
     assert result.status == "complete" and len(points) == 2
-    offs = [e for e in events if e.kind == "fault" and "off (position_tolerance_deg" in e.message]
+    offs = [e for e in events if e.kind == "fault" and "off (axis.tolerance_deg" in e.message]
     assert len(offs) == 2
     assert points[1].reading_deg == pytest.approx(round(plan[1].readings["analyzer"], 3))

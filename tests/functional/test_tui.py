@@ -464,7 +464,7 @@ async def test_quit_during_a_sweep_asks_first_then_pauses_it(bench, tmp_path):
         await pilot.press("ctrl+q")
         await pilot.pause()
         assert isinstance(app.screen, Confirm)
-        assert "A sweep is running" in text_of(app, "#confirm-question")
+        assert "A run is going (a sweep or a recipe)" in text_of(app, "#confirm-question")
         await pilot.press("n")  # keep it running
         await pilot.pause()
         assert app.backend.sweeping and app.is_running

@@ -142,22 +142,53 @@ BAD_FILES = [
         "extinction_ratio = 1e4",
         "extinction_ratio = 0.5",
         "analyzer.extinction_ratio",
-        "at least 1",
+        "must be above 1",
+    ),
+    (
+        "extinction-exactly-one",
+        "extinction_ratio = 1e4",
+        "extinction_ratio = 1",
+        "analyzer.extinction_ratio",
+        "would pass both polarizations alike",
     ),
     (
         "source-extinction-zero",
         "extinction_ratio = 1e5",
         "extinction_ratio = 0",
         "source.extinction_ratio",
-        "at least 1",
+        "must be above 1",
     ),
     (
         "element-extinction-below-one",
         HWP,
         'type = "polarizer"\nangle_deg = 10.0\nextinction_ratio = 0.9',
         "pre[0].extinction_ratio",
-        "at least 1",
+        "must be above 1",
     ),
+    # values the validator used to accept but the physics cannot use (fault hunt)
+    (
+        "resolution-larger-than-travel",
+        "travel_deg = [-10.0, 350.0]",
+        "travel_deg = [-10.0, 350.0]\nresolution_deg = 400.0",
+        "mounts.ana.resolution_deg",
+        "at most 36",
+    ),
+    (
+        "huge-photon-rate",
+        "photon_rate = 1.0e6",
+        "photon_rate = 1e155",
+        "source.photon_rate",
+        "1e+12",
+    ),
+    ("huge-angle", "reading_deg = 22.5", "reading_deg = 1e155", "mounts.hwp.reading_deg", "3600"),
+    (
+        "tiny-observable-axis",
+        'observable = "HV"',
+        'observable = "axis"\naxis = [1e-320, 0.0, 0.0]',
+        "coupling.axis",
+        "must be a direction",
+    ),
+    ("wavelength-far-out", "wavelength_nm = 800.0", "wavelength_nm = 1e-3", "wavelength_nm", "100"),
     (
         "unknown-element-mount",
         'mount = "hwp"',
@@ -310,6 +341,19 @@ def test_bad_bench_file_names_the_key(write_bench, bench_text, old, new, key, ex
     assert extra in str(exc)
     assert "\n" not in str(exc)
     assert isinstance(exc, InputError) and exc.exit_code == 2
+
+
+def test_a_huge_file_is_refused_quickly(tmp_path):
+    big = tmp_path / "big.toml"
+    big.write_text("# padding\n" * 200_000, encoding="utf-8")
+    with pytest.raises(BenchFileError, match="at most 1,000,000"):
+        load_bench(big)
+
+
+def test_too_many_elements_are_refused(write_bench, bench_text):
+    many = bench_text + '\n[[post]]\ntype = "rotator"\nangle_deg = 0.0\n' * 65
+    with pytest.raises(BenchFileError, match="at most 64"):
+        load_bench(write_bench(many))
 
 
 def test_minimal_bench_loads(bench_file):

@@ -85,8 +85,9 @@ def _evaluate(d: Any, bench: Any, angles: dict[str, float]) -> tuple[complex, fl
 
 @pytest.mark.parametrize("which", ["demo", "mixed"])
 def test_closed_forms_equal_numeric_core(which: str) -> None:
-    """sympy expressions (Jones matrices from sympy.physics.optics.polarization.phase_retarder)
-    evaluated at random angles equal the numeric engine to 1e-10."""
+    """sympy expressions (built from the elements' Stokes matrices, which test_channels checks
+    against sympy.physics.optics and py-pol) evaluated at random angles equal the numeric
+    engine to 1e-10."""
     bench = load_bench("demo") if which == "demo" else mixed_bench()
     d = derive(bench)
     rng = np.random.default_rng(3)
@@ -202,7 +203,8 @@ def test_exact_constants_without_nested_radicals() -> None:
 def test_json_document() -> None:
     d = derive(load_bench("demo"))
     doc = d.to_dict()
-    assert set(doc) == {"symbols", "angles", "offsets", "null_deg", "expressions"}
+    assert set(doc) == {"symbols", "angles", "offsets", "null_deg", "expressions", "notes"}
+    assert doc["notes"] == []
     assert doc["symbols"]["T_a"]["value"] == pytest.approx(0.92)
     assert doc["symbols"]["theta_pre_qwp"]["latex"] == r"\theta_{\mathrm{pre\_qwp}}"
     for key in (
@@ -221,3 +223,81 @@ def test_json_document() -> None:
 def test_unknown_free_mount() -> None:
     with pytest.raises(InputError, match="unknown mount"):
         derive(crossed(), free=("nope",))
+
+
+def no_phase_bench() -> Any:
+    """Invented deflection bench without a phase mount, with numbers that are not multiples of
+    anything: an elliptical pre-selection that the analyzer alone cannot cross."""
+    return parse_bench(
+        {
+            "wavelength_nm": 780.0,
+            "imbalance_mount": "analyzer",
+            "source": {"angle_deg": 12.3, "photon_rate": 2e6, "extinction_ratio": 1e5},
+            "pre": [
+                {"type": "hwp", "mount": "pre_hwp", "retardance_waves": 0.4937},
+                {"type": "qwp", "angle_deg": 31.7, "retardance_waves": 0.2437},
+            ],
+            "coupling": {
+                "observable": "HV",
+                "pointer_sigma": 300.0,
+                "strength": 0.8,
+                "units": "um",
+            },
+            "analyzer": {"mount": "analyzer", "extinction_ratio": 1e3, "transmission": 0.95},
+            "detector": {},
+            "mounts": {
+                "pre_hwp": {"reading_deg": 28.9},
+                "analyzer": {"reading_deg": 128.3, "travel_deg": [-10.0, 350.0]},
+            },
+        }
+    )
+
+
+def test_bench_without_a_phase_mount_frees_a_mount_and_says_so() -> None:
+    d = derive(no_phase_bench())
+    assert set(d.angles) == {"analyzer", "pre_hwp"}
+    assert len(d.notes) == 1 and "'pre_hwp' is freed" in d.notes[0] and "--free" in d.notes[0]
+    assert "Note:" in d.text() and "pre\\_hwp" in d.text(latex=True)
+    # numbers are evaluated: no pi times a float, no trigonometry of a number left over
+    for key, item in d.to_dict()["expressions"].items():
+        text = item["text"]
+        assert "pi" not in text and "cos(0." not in text and "sin(0." not in text, key
+
+
+@pytest.mark.parametrize("which", ["demo", "no phase mount"])
+def test_pasted_text_parses_back_and_agrees_with_predict(which: str) -> None:
+    """The --json text of A_w and P, parsed by sympy as a user would paste it, with the listed
+    symbol values, equals the numeric engine to 1e-12 at random readings."""
+    bench = load_bench("demo") if which == "demo" else no_phase_bench()
+    doc = derive(bench).to_dict()
+    names = {name: sp.Symbol(name) for name in doc["symbols"]}
+    values = {names[k]: v["value"] for k, v in doc["symbols"].items() if v["value"] is not None}
+    wv = sp.parse_expr(doc["expressions"]["weak_value"]["text"], local_dict=names)
+    leak = sp.parse_expr(doc["expressions"]["leak_rate"]["text"], local_dict=names)
+    rng = np.random.default_rng(7)
+    for _ in range(4):
+        readings = {m: float(rng.uniform(-90, 90)) for m in doc["angles"]}
+        at = dict(values)
+        for m, symbol in doc["angles"].items():
+            at[names[symbol]] = math.radians(bench.mounts[m].element_angle_deg(readings[m]))
+        p = predict(bench, readings)
+        assert complex(wv.evalf(30, subs=at)) == pytest.approx(
+            complex(p.weak_value), rel=1e-12, abs=1e-12
+        )
+        assert float(leak.evalf(30, subs=at)) == pytest.approx(float(p.leak_rate), rel=1e-12)
+
+
+def test_latex_is_a_complete_amsmath_fragment() -> None:
+    """No TeX engine here to compile it, so the structure a compiler needs: every environment
+    and display opened is closed, braces balance, rows end with a line break."""
+    latex = derive(no_phase_bench()).text(latex=True)
+    code = "\n".join(line for line in latex.splitlines() if not line.startswith("%"))
+    for env in ("array", "align*"):
+        assert code.count(f"\\begin{{{env}}}") == code.count(f"\\end{{{env}}}") > 0
+    assert code.count("\\[") == code.count("\\]") == 1
+    depth = 0
+    for char in code.replace("\\{", "").replace("\\}", ""):
+        depth += {"{": 1, "}": -1}.get(char, 0)
+        assert depth >= 0
+    assert depth == 0
+    assert "\\frac{N}{D}" in code and "&=" in code

@@ -102,3 +102,26 @@ def test_expected_rates_pulsed_and_broadcast():
     assert r.true_rate.shape == (3,)
     # Bright pulses saturate a click detector: at mu = 10 most photons are lost.
     assert r.loss[2] > 0.8 and r.loss[0] < 1e-3
+
+
+def test_bench_detector_methods_use_physics_units():
+    # Knoll, Radiation Detection and Measurement (4th ed.), dead-time chapter: n = 1.0526316e6/s
+    # behind m = 1e6/s at tau = 50 ns; the bench file gives the dead time in ns.
+    from aligner.bench import Detector
+
+    cw = Detector(efficiency=0.5, dark_rate=100.0, dead_time_ns=50.0)
+    assert cw.dead_time_s == pytest.approx(50e-9)
+    assert cw.pulse_rate_hz is None
+    # 2.1050632e6 photons/s at efficiency 0.5 plus 100 dark counts/s: 1.0526316e6 true counts/s
+    rates = cw.expected_rates(2.1050632e6, 1.0)
+    assert float(rates.measured_rate) == pytest.approx(1e6, rel=1e-7)
+    assert float(cw.expected_rates(0.0, 1.0, dark_rate=0.0).true_rate) == 0.0
+    pulsed = Detector(efficiency=0.63, mode="pulsed", rep_rate_hz=1e6, dead_time_ns=50.0)
+    assert pulsed.pulse_rate_hz == 1e6
+    # mu = 3.7 photons per pulse at eta = 0.63: P(no click) = 0.0971985 (physics.md, from the
+    # threshold-detector formula; Lee et al., J. Mod. Opt. 51, 1517 (2004))
+    clicks = pulsed.expected_rates(3.7e6, 1.0)
+    assert float(clicks.true_rate) == pytest.approx(1e6 * (1 - 0.0971985), rel=1e-6)
+    assert float(clicks.true_rate) == pytest.approx(
+        float(expected_rates(3.7e6, 1.0, 0.63, 0.0, 50e-9, rep_rate_hz=1e6).true_rate)
+    )

@@ -1,178 +1,115 @@
-"""Device profiles and LineChannel over a scripted in-memory port (no tty)."""
+"""The bus, the channel and the line drivers over scripted dialogues (no tty)."""
 
 from __future__ import annotations
 
 import copy
+import statistics
+import threading
 import tomllib
 
 import pytest
+import scipy.stats
 import serial
 
-from aligner.errors import BadReply, DeviceRefused, DeviceTimeout, Disconnected, InputError
-from aligner_drivers.lineproto import PROFILE_DIR, DeviceProfile, LineChannel, load_profile
+from aligner.errors import (
+    BadReply,
+    DeviceError,
+    DeviceRefused,
+    DeviceTimeout,
+    Disconnected,
+    InputError,
+    Unattributable,
+)
+from aligner_drivers.dialogue import DialoguePort, Pair
+from aligner_drivers.lineproto import (
+    PROFILE_DIR,
+    Bus,
+    DeviceProfile,
+    LineChannel,
+    load_profile,
+    parse_profile,
+)
+from aligner_drivers.lineproto import bus as bus_module
 from aligner_drivers.serial_counter import LineCounter
 from aligner_drivers.serial_mount import LineMount
 from aligner_drivers.serial_pointer import LinePointer
+from aligner_drivers.serial_shutter import LineShutter
 
-MOUNT_DATA = tomllib.loads((PROFILE_DIR / "example-mount.toml").read_text())
-
-
-class ScriptedPort:
-    """A pyserial-like port answering each write with the next scripted item.
-
-    Items: bytes (returned by read_until), or an exception instance (raised on read).
-    """
-
-    def __init__(self, *replies: bytes | Exception) -> None:
-        self.replies = list(replies)
-        self.written: list[bytes] = []
-        self.timeout: float | None = None
-        self.resets = 0
-        self.closed = False
-
-    def write(self, data: bytes) -> int:
-        self.written.append(data)
-        return len(data)
-
-    def read_until(self, expected: bytes = b"\n", size: int | None = None) -> bytes:
-        item = self.replies.pop(0) if self.replies else b""
-        if isinstance(item, Exception):
-            raise item
-        return item
-
-    def reset_input_buffer(self) -> None:
-        self.resets += 1
-
-    def close(self) -> None:
-        self.closed = True
+MOUNT = tomllib.loads((PROFILE_DIR / "example-mount.toml").read_text())
 
 
-def profile_with(**changes: dict) -> DeviceProfile:
-    data = copy.deepcopy(MOUNT_DATA)
-    for table, values in changes.items():
+def profile_with(base: dict | str = "example-mount", **tables: dict) -> DeviceProfile:
+    data = copy.deepcopy(MOUNT if base == "example-mount" else base)
+    if isinstance(base, str) and base != "example-mount":
+        data = tomllib.loads((PROFILE_DIR / f"{base}.toml").read_text())
+    for table, values in tables.items():
         data.setdefault(table, {}).update(values)
-    return DeviceProfile.from_mapping(data, "bench-rotator.toml")
+    return parse_profile(data, "p.toml")
 
 
-def test_shipped_profiles_load_by_name_and_path():
-    mount = load_profile("example-mount")
-    assert mount.has("home") and mount.steps_per_degree == 1000.0
-    counter = load_profile(PROFILE_DIR / "example-counter.toml")
-    assert counter.channels == 2 and counter.has("shutter_open")
+def channel_for(profile: DeviceProfile, pairs: list[Pair]) -> tuple[LineChannel, DialoguePort]:
+    port = DialoguePort(profile, pairs)
+    return LineChannel(Bus(port, profile.link), profile), port
 
 
-@pytest.mark.parametrize(
-    ("changes", "key", "allowed"),
-    [
-        ({"axis": {"sense": 2}}, "axis.sense", "1 or -1"),
-        ({"axis": {"steps_per_degree": 0}}, "axis.steps_per_degree", "> 0"),
-        ({"axis": {"travel_deg": [10, -10]}}, "axis.travel_deg", "low < high"),
-        ({"axis": {"speed": 3}}, "axis.speed", "allowed: position_tolerance_deg, sense"),
-        ({"link": {"retries": -1}}, "link.retries", ">= 0"),
-        ({"link": {"retries": 1.5}}, "link.retries", "whole number"),
-        ({"link": {"baud": "fast"}}, "link.baud", "whole number"),
-        ({"link": {"encoding": "klingon"}}, "link.encoding", "unknown codec"),
-        ({"link": {"terminator": ""}}, "link.terminator", "non-empty string"),
-        ({"commands": {"move": "GO {angle}"}}, "commands.move", "allowed: steps"),
-        ({"commands": {"move": "GO"}}, "commands.move", "must contain {steps}"),
-        ({"commands": {"move": "GO {steps"}}, "commands.move", "bad template"),
-        ({"commands": {"move": "GO {steps:q}"}}, "commands.move", "bad template"),
-        ({"commands": {"move": "GO {steps} {}"}}, "commands.move", "unknown field {}"),
-        ({"commands": {"jog": "J"}}, "commands.jog", "unknown key; allowed: count, home"),
-        ({"replies": {"query": "AT (\\d+)"}}, "replies.query", "named group(s) steps"),
-        ({"replies": {"query": "AT (?P<steps>"}}, "replies.query", "not a valid regular"),
-        ({"replies": {"count": "C (?P<ch1>\\d+)"}}, "commands.count", "has no command"),
-        ({"counter": {"channels": 3}}, "counter.channels", "1 or 2"),
-        ({"gearbox": {"ratio": 2}}, "gearbox", "unknown table; allowed: axis, commands"),
-    ],
-)
-def test_profile_errors_name_file_key_and_what_is_allowed(changes, key, allowed):
-    with pytest.raises(InputError) as info:
-        profile_with(**changes)
-    message = str(info.value)
-    assert message.startswith(f"bench-rotator.toml: {key}:")
-    assert allowed in message
+class BrokenPort(DialoguePort):
+    """A port whose reads fail with ``error``."""
+
+    def __init__(self, profile: DeviceProfile, error: Exception) -> None:
+        super().__init__(profile, [("AT?", None)])
+        self.error = error
+
+    def read(self, size: int = 1, /) -> bytes:
+        raise self.error
 
 
-def test_missing_reply_pattern_and_two_channel_groups_are_named():
-    data = copy.deepcopy(MOUNT_DATA)
-    del data["replies"]["home"]
-    with pytest.raises(InputError, match=r"replies\.home: is missing: commands\.home"):
-        DeviceProfile.from_mapping(data, "p.toml")
-    counter = tomllib.loads((PROFILE_DIR / "example-counter.toml").read_text())
-    counter["replies"]["count"] = r"COUNTS (?P<ch1>\d+)"
-    with pytest.raises(InputError, match=r"replies\.count: needs the named group\(s\) ch2"):
-        DeviceProfile.from_mapping(counter, "c.toml")
+FAST = {"reply_timeout_s": 0.02}
 
 
-def test_missing_and_broken_files_are_input_errors(tmp_path):
-    with pytest.raises(InputError, match=r"no such profile file.*example-mount"):
-        load_profile(tmp_path / "absent.toml")
-    broken = tmp_path / "broken.toml"
-    broken.write_text("[link\nbaud = 1")
-    with pytest.raises(InputError, match=r"broken\.toml: not valid TOML"):
-        load_profile(broken)
-
-
-def test_steps_and_readings_with_sense():
-    plus, minus = profile_with(), profile_with(axis={"sense": -1, "steps_per_degree": 400.0})
-    assert plus.to_steps(12.3456) == 12346
-    assert minus.to_steps(10.0) == -4000
-    assert minus.to_degrees(minus.to_steps(-33.25)) == -33.25
-    assert plus.position_tolerance_deg == 0.002
-    assert profile_with(axis={"position_tolerance_deg": 0}).position_tolerance_deg == 0
-
-
-def test_default_tolerance_is_one_and_a_half_steps():
-    data = copy.deepcopy(MOUNT_DATA)
-    del data["axis"]["position_tolerance_deg"]
-    assert DeviceProfile.from_mapping(data).position_tolerance_deg == pytest.approx(0.0015)
-
-
-def test_channel_sends_template_with_terminator_and_parses_groups():
-    port = ScriptedPort(b"AT -1200\r\n")
-    channel = LineChannel(port, profile_with())
-    assert channel.transact("query") == {"steps": "-1200"}
-    assert port.written == [b"AT?\r\n"] and port.resets == 1 and port.timeout == 0.5
+def test_channel_sends_the_template_and_decodes_the_reply():
+    channel, port = channel_for(profile_with(), [("AT?", "AT -1200")])
+    assert channel.read("position") == {"value": -1.2}
+    assert port.sent == [b"AT?\r\n"]
+    port.check_done()
 
 
 @pytest.mark.parametrize(
     "first",
-    [b"", b"AT 12", b"\xff\xfe\r\n", b"XX 12\r\n"],
+    [None, b"AT 12", b"\xff\xfe\r\n", "XX 12"],
     ids=["silent", "partial", "undecodable", "garbled"],
 )
-def test_channel_retries_a_transient_fault(first):
-    port = ScriptedPort(first, b"AT 12\r\n")
-    assert LineChannel(port, profile_with()).transact("query") == {"steps": "12"}
-    assert len(port.written) == 2 and port.resets == 2
+def test_a_transient_fault_is_retried(first):
+    channel, port = channel_for(profile_with(link=FAST), [("AT?", first), ("AT?", "AT 12")])
+    assert channel.read("position") == {"value": 0.012}
+    port.check_done()
 
 
 def test_persistent_silence_is_a_timeout_with_advice():
-    port = ScriptedPort()
+    profile = profile_with(link={**FAST, "retries": 3})
+    channel, port = channel_for(profile, [("AT?", None)] * 4)
     with pytest.raises(DeviceTimeout) as info:
-        LineChannel(port, profile_with(link={"retries": 3})).transact("query", timeout_s=0.01)
-    assert len(port.written) == 4
-    assert "no reply to 'AT?' within 0.01 s (4 attempt(s))" in str(info.value)
-    assert "baud rate (profile: 115200)" in str(info.value)
+        channel.read("position")
+    assert "no reply to 'AT?' within 0.02 s (4 attempt(s))" in str(info.value)
+    assert "baud rate (link.baud = 115200 in p.toml; the command is entry.position)" in str(
+        info.value
+    )
+    port.check_done()
 
 
-def test_persistent_partial_line_points_at_the_terminator():
-    port = ScriptedPort(b"AT 1", b"AT 1", b"AT 1")
-    with pytest.raises(BadReply, match=r"cut short.*link\.terminator \('\\r\\n'\)"):
-        LineChannel(port, profile_with()).transact("query")
-
-
-def test_persistent_garbage_names_the_pattern():
-    port = ScriptedPort(*[b"POS=12\r\n"] * 3)
-    with pytest.raises(BadReply, match=r"does not match replies\.query"):
-        LineChannel(port, profile_with()).transact("query")
+def test_persistent_partial_and_garbled_replies_name_the_key_to_check():
+    channel, _ = channel_for(profile_with(link=FAST), [("AT?", b"AT 1")] * 3)
+    with pytest.raises(BadReply, match=r"cut short.*link\.reply_end \('\\r\\n'\)"):
+        channel.read("position")
+    channel, _ = channel_for(profile_with(link=FAST), [("AT?", "POS=12")] * 3)
+    with pytest.raises(BadReply, match=r"does not have the form 'AT \{value:int\}' .*entry\.pos"):
+        channel.read("position")
 
 
 def test_error_reply_is_refused_at_once_with_the_device_text():
-    port = ScriptedPort(b"ERR 4 limit switch\r\n", b"AT 0\r\n")
-    with pytest.raises(DeviceRefused, match="refused 'AT\\?': limit switch"):
-        LineChannel(port, profile_with()).transact("query")
-    assert len(port.written) == 1
+    channel, port = channel_for(profile_with(), [("AT?", "ERR 4 limit switch")])
+    with pytest.raises(DeviceRefused, match=r"refused 'AT\?': limit switch"):
+        channel.read("position")
+    port.check_done()
 
 
 @pytest.mark.parametrize(
@@ -184,80 +121,262 @@ def test_error_reply_is_refused_at_once_with_the_device_text():
     ],
 )
 def test_port_errors_become_device_errors(error, kind, advice):
+    profile = profile_with()
+    channel = LineChannel(Bus(BrokenPort(profile, error), profile.link), profile)
     with pytest.raises(kind, match=advice) as info:
-        LineChannel(ScriptedPort(error), profile_with()).transact("query")
+        channel.read("position")
     assert not isinstance(info.value, serial.SerialException | OSError)
 
 
-def test_closed_channel_is_disconnected_and_close_never_raises():
-    class BrokenClose(ScriptedPort):
-        def close(self) -> None:
-            raise OSError(9, "Bad file descriptor")
-
-    channel = LineChannel(BrokenClose(), profile_with())
+def test_closed_channel_is_disconnected():
+    channel, _ = channel_for(profile_with(), [])
     channel.close()
     with pytest.raises(Disconnected, match="closed"):
-        channel.transact("query")
+        channel.read("position")
 
 
-def test_line_mount_converts_and_verifies_over_a_scripted_port():
-    profile = profile_with(axis={"sense": -1})
-    port = ScriptedPort(b"OK\r\n", b"BUSY 1\r\n", b"BUSY 0\r\n", b"AT -12500\r\n")
-    LineMount(LineChannel(port, profile)).move_to(12.5)
-    assert port.written == [b"GO -12500\r\n", b"BUSY?\r\n", b"BUSY?\r\n", b"AT?\r\n"]
-    port = ScriptedPort(b"OK\r\n", b"BUSY 0\r\n", b"AT -12400\r\n")
-    with pytest.raises(BadReply, match=r"reads 12\.4 deg, -0\.1 deg off"):
-        LineMount(LineChannel(port, profile)).move_to(12.5)
+# -- attribution ----------------------------------------------------------------------------
 
 
-def test_line_mount_refuses_moves_outside_travel_and_missing_capabilities():
-    data = copy.deepcopy(MOUNT_DATA)
-    for table in ("commands", "replies"):
-        for key in ("home", "stop", "status"):
-            del data[table][key]
-    port = ScriptedPort()
-    mount = LineMount(LineChannel(port, DeviceProfile.from_mapping(data, "plain.toml")))
-    assert mount.capabilities == frozenset({"readback"})
-    assert mount.is_moving() is False
-    with pytest.raises(InputError, match=r"cannot home: plain\.toml has no commands\.home"):
+def test_a_late_reply_is_drained_before_the_next_command_and_reported():
+    profile = profile_with(link={"reply_timeout_s": 0.05, "late_reply_s": 0.5, "retries": 0})
+    channel, port = channel_for(profile, [("AT?", "AT 5", 0.1), ("AT?", "AT 7")])
+    with pytest.raises(DeviceTimeout):
+        channel.read("position")
+    assert channel.read("position") == {"value": 0.007}  # not the late 'AT 5'
+    assert channel.take_notices() == ["example-mount: discarded a late or unsolicited reply 'AT 5'"]
+    port.check_done()
+
+
+def test_counts_that_come_before_the_gate_can_have_ended_are_not_this_gate():
+    """A reply in the count's form that comes sooner than the gate is a late reply to an
+    earlier gate: discarded (and reported), and the true one is waited for."""
+    channel, port = channel_for(load_profile("example-counter"), [("GATE 100", "COUNTS 4 5", 0.11)])
+    counter = LineCounter(channel)
+    port.later(b"COUNTS 9 9\r\n", 0.02)  # an earlier gate's counts, arriving during this one
+    assert counter.count(0.1) == (4, 5)
+    assert "discarded" in counter.take_notices()[0]
+    port.check_done()
+
+
+def test_two_replies_to_one_command_cannot_be_attributed():
+    channel, _ = channel_for(profile_with(), [("AT?", b"AT 5\r\nAT 7\r\n")])
+    with pytest.raises(Unattributable, match=r"two replies \('AT 5', 'AT 7'\)"):
+        channel.read("position")
+
+
+def test_the_minimum_gap_between_commands_is_kept(monkeypatch):
+    waits: list[float] = []
+    monkeypatch.setattr(bus_module.time, "sleep", waits.append)
+    channel, _ = channel_for(profile_with(link={"gap_s": 0.25}), [("AT?", "AT 1")] * 2)
+    channel.read("position")
+    channel.read("position")
+    assert len(waits) == 1 and 0.2 < waits[0] <= 0.25
+
+
+# -- silent set commands, chaining, echo and prompt, byte commands --------------------------
+
+
+def test_a_silent_set_command_is_checked_with_the_error_query():
+    profile = load_profile("silent-set-mount")
+    channel, port = channel_for(profile, [("1PA10", None), ("1TE", "1TE0")])
+    assert channel.write("position", value=10.0) == {}
+    channel, port = channel_for(profile, [("1PA200", None), ("1TE", "1TE2")])
+    with pytest.raises(InputError, match=r"200 is outside -170 to 170"):
+        channel.write("position", value=200.0)
+    channel, port = channel_for(profile, [("1PA100", None), ("1TE", "1TE3")])
+    with pytest.raises(DeviceRefused, match=r"'1PA100': the axis is not referenced .*error 3"):
+        channel.write("position", value=100.0)
+    port.check_done()
+
+
+def test_a_silent_set_command_is_chained_with_the_error_query():
+    profile = load_profile("chained-open-loop-mount")
+    channel, port = channel_for(profile, [("1PA2000;TB?", "0, NO ERROR")])
+    channel.write("position", value=10.0)
+    channel, port = channel_for(profile, [("1PA2000;TB?", "26, INTERLOCK OPEN")])
+    with pytest.raises(DeviceRefused, match=r"refused '1PA2000': INTERLOCK OPEN"):
+        channel.write("position", value=10.0)
+    port.check_done()
+
+
+def test_echo_reply_and_prompt_are_framed_and_errors_between_them_refused():
+    profile = load_profile("echo-prompt-shutter")
+    channel, port = channel_for(profile, [("ens?", "1"), ("ens", None), ("ens", "! interlock")])
+    assert channel.read("shutter") == {"state": "1"}
+    assert channel.write("shutter", retries=0) == {}
+    with pytest.raises(DeviceRefused, match="interlock"):
+        channel.write("shutter", retries=0)
+    port.check_done()
+    assert port.sent == [b"ens?\r", b"ens\r", b"ens\r"]
+
+
+def test_a_control_byte_query_gets_a_one_byte_reply_without_end_marker():
+    profile = load_profile("mnemonic-servo-mount")
+    channel, port = channel_for(profile, [("\x05", b"1"), ("\x05", b"0")])
+    assert channel.read("status") == {"state": "1"}
+    assert channel.read("status") == {"state": "0"}
+    assert port.sent == [b"\x05", b"\x05"]
+    port.check_done()
+
+
+# -- the drivers ----------------------------------------------------------------------------
+
+
+def test_mount_converts_moves_polls_and_verifies():
+    profile = profile_with(entry={"position": {**MOUNT["entry"]["position"], "scale": -1000.0}})
+    channel, port = channel_for(
+        profile,
+        [("GO -12500", "OK"), ("BUSY?", "BUSY 1"), ("BUSY?", "BUSY 0"), ("AT?", "AT -12500")],
+    )
+    LineMount(channel).move_to(12.5)
+    port.check_done()
+    channel, port = channel_for(
+        profile, [("GO -12500", "OK"), ("BUSY?", "BUSY 0"), ("AT?", "AT -12400")]
+    )
+    with pytest.raises(BadReply, match=r"reads 12\.4 deg, -0\.1 deg off.*number format"):
+        LineMount(channel).move_to(12.5)
+
+
+def test_a_position_decoded_in_the_wrong_base_is_caught_on_the_first_move():
+    """The controller answers in hex; a profile reading decimal would see 18049 pulses as the
+    hex string '00004681' = 4681 decimal: the read-back check refuses it."""
+    data = tomllib.loads((PROFILE_DIR / "hex-addressed-mount.toml").read_text())
+    data["entry"]["position"]["reply"] = "{addr}PS{value:int}"
+    profile = parse_profile(data, "wrong-base.toml")
+    channel, _ = channel_for(profile, [("1mv00004681", "1MD00004681"), ("1gp", "1PS00004681")])
+    with pytest.raises(BadReply, match=r"after the move to 45\.1225 deg the position reads 11\.70"):
+        LineMount(channel).move_to(45.1225)
+
+
+def test_mount_refuses_moves_outside_its_limits_and_missing_capabilities():
+    data = copy.deepcopy(MOUNT)
+    for key in ("home", "stop"):
+        del data["entry"][key]
+    channel, port = channel_for(parse_profile(data, "plain.toml"), [])
+    mount = LineMount(channel)
+    assert mount.capabilities == frozenset({"readback", "status"})
+    with pytest.raises(InputError, match=r"cannot home: plain\.toml has no entry\.home"):
         mount.home()
-    with pytest.raises(InputError, match=r"-170 to 170 deg \(axis\.travel_deg"):
+    with pytest.raises(InputError, match=r"-180 is outside -170 to 170.*entry\.position\.limits"):
         mount.move_to(-180.0)
-    assert port.written == []
+    assert port.sent == []
 
 
-def test_line_mount_without_status_waits_for_the_move_reply():
-    data = copy.deepcopy(MOUNT_DATA)
-    for table in ("commands", "replies"):
-        del data[table]["status"]
-    data["link"]["move_timeout_s"] = 7.0
-    port = ScriptedPort(b"OK\r\n", b"AT 1000\r\n")
-    LineMount(LineChannel(port, DeviceProfile.from_mapping(data))).move_to(1.0)
-    assert port.written == [b"GO 1000\r\n", b"AT?\r\n"]
+def test_mount_init_sequence_needs_home_and_a_status_that_says_not_referenced():
+    profile = load_profile("silent-set-mount")
+    channel, port = channel_for(profile, [("1PA10", None), ("1TE", "1TE0"), ("1TS00000A", None)])
+    mount = LineMount(channel)
+    assert "needs_home" in mount.capabilities
+    port.pairs[-1] = ("1TS", "1TS00000A")
+    with pytest.raises(DeviceRefused, match="not referenced; home it first"):
+        mount.move_to(10.0)
+    servo = load_profile("mnemonic-servo-mount")
+    channel, port = channel_for(servo, [("SVO 1 1", None), ("ERR?", "0")])
+    LineMount(channel)
+    port.check_done()
 
 
-def test_profile_lacking_required_commands_is_refused_by_the_driver():
-    with pytest.raises(InputError, match=r"commands\.count: is required for a counter"):
-        LineCounter(LineChannel(ScriptedPort(), profile_with()))
+def test_a_blocking_move_is_stopped_from_another_thread():
+    profile = load_profile("hex-addressed-mount")
+    channel, port = channel_for(profile, [("1mv00009C40", None)])
+    mount = LineMount(channel)
+    errors: list[DeviceError] = []
+
+    def run() -> None:
+        try:
+            mount.move_to(100.0)
+        except DeviceError as exc:
+            errors.append(exc)
+
+    worker = threading.Thread(target=run)
+    worker.start()
+    while port.pairs:  # the move went out
+        threading.Event().wait(0.001)
+    port.pairs = [("1st", "1MD00001000"), ("1gp", "1PS00001000")]
+    mount.stop()
+    worker.join(2.0)
+    assert len(errors) == 1 and "stopped by stop() at 10.24 deg" in str(errors[0])
+    port.check_done()
 
 
-def test_line_pointer_parses_mean_and_error():
-    data = {
-        "link": {"terminator": "\n", "reply_timeout_s": 0.2},
-        "commands": {"pointer_read": "MEAN? {dwell_ms}"},
-        "replies": {"pointer_read": r"MEAN (?P<mean>\S+) (?P<sem>\S+)"},
-    }
-    port = ScriptedPort(b"MEAN 0.125 0.002\n", b"MEAN 0.1 -3\n", b"MEAN x 1\n")
-    pointer = LinePointer(LineChannel(port, DeviceProfile.from_mapping(data)))
-    assert pointer.read(1.5) == (0.125, 0.002)
-    assert port.written == [b"MEAN? 1500\n"] and port.timeout == pytest.approx(1.7)
-    with pytest.raises(BadReply, match="standard error >= 0"):
-        pointer.read(1.0)
-    with pytest.raises(BadReply, match="group 'mean'"):
-        pointer.read(1.0)
+def test_gated_counter_checks_the_gate_ran_before_reading_the_channels():
+    profile = load_profile("gated-counter")
+    script: list[Pair] = [
+        ("GT 200000", "OK"),
+        ("GO", "OK"),
+        ("ST?", "RUN"),
+        ("ST?", "RUN"),
+        ("ST?", "IDLE"),
+        ("CT? A", "117"),
+        ("CT? B", "95"),
+    ]
+    channel, port = channel_for(profile, script)
+    assert LineCounter(channel).count(0.02) == (117, 95)
+    port.check_done()
+    channel, port = channel_for(profile, [("GT 2000000", "OK"), ("GO", "OK"), ("ST?", "IDLE")])
+    with pytest.raises(Unattributable, match=r"did not start.*previous gate"):
+        LineCounter(channel).count(0.2)
 
 
-def test_gate_below_one_millisecond_is_an_input_error():
-    counter = LineCounter(LineChannel(ScriptedPort(), load_profile("example-counter")))
-    with pytest.raises(InputError, match=r"1 ms step of commands\.count"):
-        counter.count(0.0001)
+def test_free_running_counter_sums_whole_windows_and_refuses_gaps():
+    profile = load_profile("free-running-counter")
+    channel, port = channel_for(profile, [])
+    counter = LineCounter(channel)
+    port.later(b"C 5 7 7\r\n")  # before the count: dropped
+    for k, line in enumerate((b"C 6 1 1\r\n", b"C 7 10 20\r\n", b"C 8 30 40\r\n")):
+        port.later(line, 0.01 + 0.02 * k)  # C 6 covers a window begun before: skipped
+    assert counter.count(0.04) == (40, 60) and counter.last_windows == 2
+    for k, line in enumerate((b"C 2 0 0\r\n", b"C 3 1 1\r\n", b"C 5 1 1\r\n")):
+        port.later(line, 0.01 + 0.02 * k)
+    with pytest.raises(Unattributable, match=r"window numbers \[3, 5\] are not consecutive"):
+        counter.count(0.04)
+    with pytest.raises(InputError, match=r"0\.05 s is not on the 0\.02 s step"):
+        counter.count(0.05)
+
+
+def test_counter_refuses_a_gate_off_its_step():
+    counter = LineCounter(channel_for(load_profile("example-counter"), [])[0])
+    with pytest.raises(InputError, match=r"0\.0123 s is not on the 0\.001 s step"):
+        counter.count(0.0123)
+    assert counter.gate_step_s == pytest.approx(0.001)
+
+
+def test_pointer_averages_its_queries():
+    profile = profile_with(
+        {
+            "format": 1,
+            "pointer": {"samples": 4},
+            "entry": {"pointer": {"read": "R?", "reply": "{value}"}},
+        }
+    )
+    readings = [0.125, 0.121, 0.13, 0.118]
+    channel, port = channel_for(profile, [("R?", f"{r:+.6E}") for r in readings])
+    mean, sem = LinePointer(channel).read(0.004)
+    # scipy.stats.sem: standard error with ddof=1 (reference library)
+    assert mean == pytest.approx(statistics.fmean(readings))
+    assert sem == pytest.approx(scipy.stats.sem(readings))
+    port.check_done()
+
+
+def test_toggle_shutter_reads_back_and_never_resends_a_toggle():
+    profile = load_profile("echo-prompt-shutter")
+    script: list[Pair] = [("ens?", "1"), ("ens", None), ("ens?", "0")]  # created: shut it
+    channel, port = channel_for(profile, script)
+    shutter = LineShutter(channel)
+    assert shutter.capabilities == frozenset({"readback"})
+    port.pairs = [("ens?", "0"), ("ens", None), ("ens?", "0")]  # the toggle did nothing
+    with pytest.raises(DeviceError, match="did not open"):
+        shutter.open()
+    port.pairs = [("ens?", "0")]
+    assert shutter.is_open() is False
+    port.check_done()
+
+
+def test_byte_shutter_without_readback_repeats_the_last_command():
+    profile = load_profile("byte-shutter")
+    channel, port = channel_for(profile, [(b"\x80", None), (b"\x81", None)])
+    shutter = LineShutter(channel)
+    assert shutter.capabilities == frozenset() and not shutter.is_open()
+    shutter.open()
+    assert shutter.is_open() and port.sent == [b"\x80", b"\x81"]

@@ -79,7 +79,7 @@ def test_bad_specs_and_options_say_what_is_allowed(spec, options, message):
 def test_serial_specs_need_a_profile_and_check_options():
     with pytest.raises(InputError, match="needs profile="):
         open_mount("/dev/ttyUSB0")
-    with pytest.raises(InputError, match="unknown option 'speed'; allowed: baud, name"):
+    with pytest.raises(InputError, match="unknown option 'speed'; allowed: addr, axis, baud, name"):
         open_mount("loop://", profile="example-mount", speed=3)
     with pytest.raises(InputError, match="retries >= 0"):
         open_mount("loop://", profile="example-mount", retries=-1)
@@ -94,7 +94,7 @@ def test_loop_url_opens_through_pyserial_and_an_echo_is_a_bad_reply():
     # loop:// echoes every command back: a real transport, but no controller behind it
     mount = open_mount("loop://", profile="example-mount", timeout=0.05, retries=1)
     assert isinstance(mount, LineMount) and mount.name == "example-mount"
-    with pytest.raises(BadReply, match=r"'AT\?' does not match replies\.query"):
+    with pytest.raises(BadReply, match=r"'AT\?' does not have the form 'AT \{value:int\}'"):
         mount.position()
     mount.close()
     with pytest.raises(Disconnected):
@@ -102,5 +102,21 @@ def test_loop_url_opens_through_pyserial_and_an_echo_is_a_bad_reply():
 
 
 def test_profile_that_cannot_drive_the_device_closes_the_port():
-    with pytest.raises(InputError, match=r"commands\.move: is required for a rotation mount"):
+    with pytest.raises(InputError, match=r"entry\.position: is required for a rotation mount"):
         open_mount("loop://", profile="example-counter")
+
+
+def test_devices_on_one_port_share_one_open_port_and_the_last_closes_it():
+    first = open_mount("loop://", profile="example-mount", timeout=0.05)
+    second = open_mount("loop://", profile="example-mount", name="second")
+    assert first.channel.bus is second.channel.bus
+    port = first.channel.bus.port
+    first.close()
+    assert port.is_open
+    second.close()
+    assert not port.is_open
+    third = open_mount("loop://", profile="example-mount")
+    assert third.channel.bus.port is not port
+    with pytest.raises(InputError, match=r"loop:// is already open with other link settings"):
+        open_counter("loop://", profile="query-pointer")
+    third.close()

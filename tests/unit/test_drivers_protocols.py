@@ -10,9 +10,10 @@ import pytest
 
 import aligner_drivers as drivers
 from aligner_drivers import (
+    SHUTTER_CAPABILITIES,
     Counter,
-    DeviceProfile,
     FunctionCounter,
+    Identifies,
     LineChannel,
     LineCounter,
     LineMount,
@@ -28,34 +29,16 @@ from aligner_drivers import (
     SimShutter,
     load_profile,
 )
+from aligner_drivers.dialogue import DialoguePort, Pair
+from aligner_drivers.lineproto import Bus
 
 
-class SilentPort:
-    timeout = None
-
-    def write(self, data: bytes) -> int:
-        return len(data)
-
-    def read_until(self, expected: bytes = b"\n", size: int | None = None) -> bytes:
-        return b"BEAM OFF\r\n"
-
-    def reset_input_buffer(self) -> None: ...
-
-    def close(self) -> None: ...
-
-
-def channel(profile: str) -> LineChannel:
-    return LineChannel(SilentPort(), load_profile(profile))
+def channel(profile: str, *pairs: Pair) -> LineChannel:
+    loaded = load_profile(profile)
+    return LineChannel(Bus(DialoguePort(loaded, pairs), loaded.link), loaded)
 
 
 def implementations() -> list[tuple[type, object]]:
-    pointer_profile = DeviceProfile.from_mapping(
-        {
-            "link": {"terminator": "\n"},
-            "commands": {"pointer_read": "P? {dwell_s}"},
-            "replies": {"pointer_read": r"P (?P<mean>\S+) (?P<sem>\S+)"},
-        }
-    )
     return [
         (RotationMount, SimMount()),
         (RotationMount, LineMount(channel("example-mount"))),
@@ -63,11 +46,15 @@ def implementations() -> list[tuple[type, object]]:
         (Counter, LineCounter(channel("example-counter"))),
         (Counter, ManualCounter()),
         (Shutter, SimShutter()),
-        (Shutter, LineShutter(channel("example-counter"))),
+        (Shutter, LineShutter(channel("example-counter", *SHUT))),
         (PointerReader, SimPointer(lambda d: (0.0, 0.0))),
-        (PointerReader, LinePointer(LineChannel(SilentPort(), pointer_profile))),
+        (PointerReader, LinePointer(channel("query-pointer"))),
         (PointerReader, ManualPointer()),
     ]
+
+
+#: what the example shutter says when the driver shuts it on creation
+SHUT: tuple[Pair, ...] = (("BEAM OFF", "BEAM OFF"), ("BEAM?", "BEAM OFF"))
 
 
 @pytest.mark.parametrize(("protocol", "device"), implementations(), ids=lambda v: type(v).__name__)
@@ -84,6 +71,19 @@ def test_device_satisfies_its_protocol(protocol, device):
         assert isinstance(device.name, str)
     if protocol is Counter:
         assert device.channels in (1, 2)
+    if protocol is Shutter:
+        assert device.capabilities <= SHUTTER_CAPABILITIES
+
+
+@pytest.mark.parametrize(
+    "device",
+    [LineMount(channel("example-mount")), LineShutter(channel("example-counter", *SHUT))],
+    ids=type,
+)
+def test_line_devices_identify_themselves(device):
+    assert isinstance(device, Identifies)
+    device.channel.bus.framer.port.pairs = [("WHO?", "basic\x1b[2J controller")]
+    assert device.identify() == "basic [2J controller"  # control characters never pass
 
 
 def test_a_counter_is_not_a_mount():

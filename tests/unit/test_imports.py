@@ -112,3 +112,11 @@ def test_dependencies_point_one_way():
                 )
             if name.split(".")[0] == "textual":
                 assert part in ("tui", "cli"), f"{path} imports {name}"
+
+
+def test_predict_json_needs_no_scipy_or_sympy():
+    # The prediction, the null and the limits are numpy only on a bench whose nulls are
+    # reachable (the demo): scipy.optimize alone costs a quarter of a second to import.
+    loaded = _loaded(_HELP, "predict", "demo", "--json")
+    assert "numpy" in loaded
+    assert not loaded & set(HEAVY)

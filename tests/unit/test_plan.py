@@ -300,7 +300,7 @@ def test_mount_period_guard() -> None:
     """Every element type on a mount folds at 180 deg; an unknown type would not be folded."""
     from dataclasses import replace
 
-    from aligner.planning.solve import mount_period_deg
+    from aligner.nulls import mount_period_deg
 
     bench = make_bench(qwp=45.0)
     assert mount_period_deg(bench, "ana") == 180.0 and mount_period_deg(bench, "qwp") == 180.0

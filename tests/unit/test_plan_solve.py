@@ -12,7 +12,9 @@ from aligner.bench import load_bench, parse_bench
 from aligner.errors import InfeasibleTarget, InputError
 from aligner.model import imbalance_deg
 from aligner.planning import readings_for_amplification, readings_for_imbalance
-from aligner.planning.solve import Target, observe, solve
+from aligner.planning.observe import observe
+from aligner.planning.roots import solve
+from aligner.planning.targets import Target
 
 
 def crossed_bench(

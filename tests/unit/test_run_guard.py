@@ -157,3 +157,36 @@ def test_pulsed_guard_limits_photons_not_clicks(bench_text, write_bench):
     clicks = float(pulsed_measured_rate(click_probability(50.0, 0.5), 1.0e6, 20e-9))
     with np.errstate(divide="ignore"), pytest.raises(GuardTrip):
         guard.check_counts(int(clicks * 0.01), 0.01)
+
+
+def test_the_guard_predicts_the_worst_case_of_the_stated_uncertainties():
+    """A bright bench whose file offset is off by its stated error: with the file's values
+    alone the guard would let the true detector see up to ~1.3 x safe_rate; at the worst case
+    of the stated uncertainties no allowed reading exceeds safe_rate (the simulated truth is
+    this test's reference)."""
+    from dataclasses import replace
+
+    from aligner.bench import load_bench
+    from aligner.prediction import predict
+    from aligner.run.guard import DetectorGuard, uncertainty_benches
+    from aligner.run.simbench import true_bench
+
+    demo = load_bench("demo")
+    err, safe = 0.15, 1500.0
+    bench = replace(
+        demo.with_mounts(analyzer=replace(demo.mounts["analyzer"], offset_err_deg=err)),
+        simulation=replace(demo.simulation, true_offset_deg={"analyzer": -err}),
+        detector=replace(demo.detector, safe_rate=safe),
+    )
+    readings = {**bench.readings(), "analyzer": np.linspace(132.0, 138.0, 600)}
+    true = np.asarray(predict(true_bench(bench), readings).exposure_rate)
+    guard = DetectorGuard(bench, has_shutter=True)
+    nominal = np.asarray(predict(bench, readings).exposure_rate)
+    assert np.any((nominal <= guard.limit) & (true > safe))  # the file's values alone fail
+    allowed = guard.rates(readings) <= guard.limit
+    assert allowed.sum() > 10 and not np.any(allowed & (true > safe))
+    # three mounts (offset error or repeatability) and two plate tolerances: every
+    # combination of signs
+    assert len(uncertainty_benches(bench)) == 2**5
+    with pytest.raises(GuardTrip, match="worst case of the bench file's stated uncertainties"):
+        guard.check_point(float(guard.rates({**bench.readings(), "analyzer": 138.0})), {})

@@ -6,7 +6,7 @@ from pathlib import Path
 import pytest
 
 from aligner.errors import DataFileError, InputError
-from aligner.run.log import Event, LoggedPoint, RunLog, read_run
+from aligner.run.log import SCHEMA_VERSION, Event, LoggedPoint, RunLog, read_run
 
 
 def _point(idx: int) -> LoggedPoint:
@@ -147,7 +147,7 @@ def test_a_log_of_the_first_schema_is_upgraded_with_its_rows(tmp_path):
     con.close()
     with RunLog(db) as log:
         record, points, events = log.run(1), log.points(1), log.events(1)
-        assert log._db.execute("PRAGMA user_version").fetchone()[0] == 1
+        assert log._db.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION
     assert record.kind == "sweep" and record.data_label == "devices not recorded"
     assert points[0].counts == 10 and points[0].flag == ""
     assert [e.message for e in events] == ["kept"]

@@ -268,14 +268,18 @@ def test_an_internal_error_shuts_the_shutter_and_is_raised_again(tmp_path, bench
 
 
 def test_a_log_that_cannot_be_written_pauses_the_sweep(tmp_path, bench, plan):
-    """A full disk shows up as an SQLite error on commit: shutter shut, the points committed
-    kept, the run resumable once there is space again."""
+    """A full disk shows up as a StorageError on commit (the run log's own conversion of the
+    SQLite error; a real full disk: tests/functional/test_full_disk.py): shutter shut, the
+    points committed kept, the run resumable once there is space again."""
     import sqlite3
+
+    from aligner.run.log import _storage_error
 
     station = _open(bench)
     log, run = _start(tmp_path, station, plan)
     real = log.add_point
-    log.add_point = Flaky(real, {3}, sqlite3.OperationalError("database or disk is full"))
+    full = _storage_error(log.path, sqlite3.OperationalError("database or disk is full"))
+    log.add_point = Flaky(real, {3}, full)
     result = run_sweep(station, log, run, plan, dwell_s=0.5)
     assert (result.reason, result.exit_code, result.points_done) == ("storage", 3, 2)
     assert not station.devices.shutter.is_open()

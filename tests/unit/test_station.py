@@ -133,3 +133,28 @@ def test_reference_normalised_leak_interval_covers_at_its_level(bench, dark_frac
         m = measured_leak(b, int(k), dwell, int(r))
         hits += m.low <= leak_true <= m.high
     assert 0.65 <= hits / 2000 <= 0.71
+
+
+def test_gates_follow_a_counter_with_fixed_windows(bench):
+    """A free-running counter sums whole 20 ms windows: the probe gate and every later gate
+    are whole windows, and a dwell off the window step is refused before anything moves."""
+    station = Station.open(bench, seed=4)
+    station.devices.counter.gate_step_s = 0.02
+    gates = station.gates(2.5)
+    assert sum(gates) == pytest.approx(2.5)
+    assert gates[0] == pytest.approx(0.02)  # the probe: one window, not 10 ms
+    assert all(abs(g / 0.02 - round(g / 0.02)) < 1e-9 for g in gates)
+    assert max(gates) <= station.options.gate_s + 1e-9
+    with pytest.raises(InputError, match=r"0\.02 s gate step"):
+        station.check_dwell(0.015)
+    station.close()
+
+
+def test_what_a_device_noticed_becomes_an_event(bench):
+    station = Station.open(bench, seed=5)
+    counter = station.devices.counter
+    counter.take_notices = lambda: ["a late reply to GATE 100 was discarded"]
+    station.count(0.1, idx=3)
+    notes = [e for e in station.events if e.kind == "device"]
+    assert notes and notes[0].idx == 3 and "discarded" in notes[0].message
+    station.close()
