@@ -42,7 +42,8 @@ class ScreenEntry:
     def make(self) -> Screen[Any]:
         """A new instance of the screen."""
         module, name = self.target.split(":")
-        return getattr(importlib.import_module(module), name)()  # type: ignore[no-any-return]
+        screen: Screen[Any] = getattr(importlib.import_module(module), name)()
+        return screen
 
 
 #: The desk's screens in the order the top bar lists them; add a screen with one entry here.
