@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import contextlib
 import importlib
+import os
 import threading
 from collections.abc import Callable
 from concurrent.futures import Future
@@ -151,7 +152,7 @@ class DeskApp(App[int]):
         """Ask a running sweep to pause and exit with ``code`` once it has (at once if none)."""
         self.backend.stop_meter()
         if not self.backend.sweeping:
-            self.exit(return_code=code)
+            self._leave(code)
             return
         self._quit_after_sweep = True
         self._exit_code = code
@@ -162,7 +163,18 @@ class DeskApp(App[int]):
     @on(RecipeEnded)
     def sweep_ended(self) -> None:
         if self._quit_after_sweep:
-            self.exit(return_code=self._exit_code)
+            self._leave(self._exit_code)
+
+    def _leave(self, code: int) -> None:
+        """Exit with ``code``. After a hang-up the terminal is gone: the bench is secured and
+        the process ends without the UI's own shutdown, whose writes to a terminal that no
+        longer exists can block for ever."""
+        import signal
+
+        if self.signalled == getattr(signal, "SIGHUP", None):
+            self.backend.shutdown()  # waits for the meter to stop; shuts the shutter
+            os._exit(code)
+        self.exit(return_code=code)
 
     # -- signals -------------------------------------------------------------------------------
 

@@ -5,7 +5,8 @@ server with an 80x24 window, keys sent with ``send-keys`` and the screen read ba
 Checks: the first screen shows every tab, the prediction's numbers and the whole safety text
 at 80x24; a keystroke steps the reading; F1 lists the keys; Ctrl+Q quits and leaves the
 terminal as it was; SIGTERM during a sweep pauses it after its point with the shutter shut,
-records why, and exits with 128 + 15 saying so.
+records why, and exits with 128 + 15 saying so; closing the terminal (SIGHUP) does the same
+and ends the desk.
 """
 
 from __future__ import annotations
@@ -28,7 +29,10 @@ from aligner.run.log import RunLog
 from aligner.tui.format import sci
 from aligner.tui.widgets.safety import SAFETY_TEXT
 
-pytestmark = pytest.mark.skipif(shutil.which("tmux") is None, reason="tmux is not installed")
+pytestmark = pytest.mark.skipif(
+    shutil.which("tmux") is None or shutil.which("pgrep") is None or not Path("/proc").is_dir(),
+    reason="needs tmux, pgrep and /proc",
+)
 
 #: Seconds to wait for the desk to draw or react (a busy 2-core machine).
 PATIENCE_S = 30.0
@@ -106,7 +110,9 @@ def test_desk_demo_in_an_80x24_terminal(terminal, tmp_path):
     bench = load_bench("demo")
     p = predict(bench, bench.readings())
     terminal.start(desk_command(tmp_path))
-    screen = terminal.wait_for(lambda s: "weak value A_w" in s, "the bench screen")
+    screen = terminal.wait_for(
+        lambda s: "weak value A_w" in s and "safety officer" in s, "the bench screen"
+    )
     lines = screen.splitlines()
     assert len(lines) <= 24 and max(len(line) for line in lines) <= 80
     for tab in ("F2 Bench", "F3 Plan", "F4 Sweep", "F5 Meter", "F6 Devices", "F7 Log", "F1 Help"):
@@ -143,3 +149,26 @@ def test_sigterm_during_a_sweep_pauses_it_and_shuts_the_shutter(terminal, tmp_pa
     assert run.status == "interrupted" and 0 < run.points < run.planned
     assert any("shutter shut (confirmed by the shutter)" in e.message for e in events)
     assert any(e.message == "the desk was ended by signal 15" for e in events)
+
+
+def test_a_hang_up_during_a_sweep_pauses_it_and_ends_the_desk(terminal, tmp_path):
+    # closing the terminal sends SIGHUP; the terminal is gone, so the desk secures the bench
+    # and ends without drawing anything
+    terminal.start(desk_command(tmp_path))
+    terminal.wait_for(lambda s: "weak value A_w" in s, "the bench screen")
+    terminal.keys("F4")
+    terminal.wait_for(lambda s: "idle: Ctrl+S starts" in s, "the sweep screen")
+    terminal.keys("C-s")
+    terminal.wait_for(lambda s: "point #0 logged" in s, "the first point")
+    pid = terminal.pid()
+    terminal.tmux("kill-session", "-t", "desk")
+    deadline = time.monotonic() + PATIENCE_S
+    while Path(f"/proc/{pid}").exists() and time.monotonic() < deadline:
+        time.sleep(0.2)
+    assert not Path(f"/proc/{pid}").exists(), "the desk is still running after the hang-up"
+    with RunLog(tmp_path / "runs.sqlite") as log:
+        (run,) = log.runs()
+        events = log.events(run.id)
+    assert run.status == "interrupted" and 0 < run.points < run.planned
+    assert any("shutter shut (confirmed by the shutter)" in e.message for e in events)
+    assert any(e.message == "the desk was ended by signal 1" for e in events)

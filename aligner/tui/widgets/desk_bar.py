@@ -18,17 +18,18 @@ class DeskBar(Static):
     first so that none falls off a narrow terminal (the name wraps to a second line)."""
 
     def __init__(self, screens: Sequence[Any], bench_name: str, current: str) -> None:
-        super().__init__(classes="desk-bar")
+        super().__init__(_bar_text(screens, bench_name, current), classes="desk-bar")
         self.screens = tuple(screens)
         self.bench_name = bench_name
         self.current = current
 
-    def on_mount(self) -> None:
-        text = Text()
-        for s in self.screens:
-            style = "reverse bold" if s.mode == self.current else ""
-            text.append(f"{s.key.upper()} {s.label}", style=style)
-            text.append(" ")
-        text.append("· F1 Help · ", style="dim")
-        text.append_text(literal(self.bench_name or "(unnamed bench)", "italic"))
-        self.update(text)
+
+def _bar_text(screens: Sequence[Any], bench_name: str, current: str) -> Text:
+    """The bar's text (made with the widget, so the first frame already has it)."""
+    text = Text()
+    for s in screens:
+        text.append(f"{s.key.upper()} {s.label}", style="reverse bold" if s.mode == current else "")
+        text.append(" ")
+    text.append("· F1 Help · ", style="dim")
+    text.append_text(literal(bench_name or "(unnamed bench)", "italic"))
+    return text

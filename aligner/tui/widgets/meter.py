@@ -74,9 +74,9 @@ class LogBar(Widget):
         scale = [" "] * width
         for exponent in range(round(math.log10(self.top)) + 1):
             label = _DECADES.get(exponent, f"1e{exponent}")
-            at = self.place(10.0**exponent, width)
-            for k, ch in enumerate(label[: width - at]):
-                scale[at + k] = ch
+            at = min(self.place(10.0**exponent, width), width - len(label))  # never cut
+            for k, ch in enumerate(label):
+                scale[max(at, 0) + k] = ch
         return Text.assemble(bar, "\n", Text("".join(scale), style="dim"))
 
 
