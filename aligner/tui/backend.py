@@ -38,6 +38,8 @@ __all__ = ["DeskBackend", "DeviceLine", "MoveResult", "PointHook", "SweepPreview
 PointHook = Callable[["LoggedPoint", int, int, "RunLog"], None]
 #: How long an operation waits for the devices to be free (s): a meter finishing its gate.
 DEVICE_WAIT_S = 5.0
+#: How long a read of the device states waits for them (s); busy devices are not asked.
+POLL_WAIT_S = 0.5
 
 
 @dataclass(frozen=True)
@@ -244,20 +246,30 @@ class DeskBackend:
             self.tell(text)
 
     @contextmanager
+    def _holding(self, what: str, wait_s: float) -> Iterator[bool]:
+        """Hold the devices for ``what`` if they come free within ``wait_s`` s (yields
+        whether they did)."""
+        held = self._devices.acquire(timeout=wait_s)
+        if held:
+            self.busy = what
+        try:
+            yield held
+        finally:
+            if held:
+                self.busy = ""
+                self._devices.release()
+
+    @contextmanager
     def using_devices(self, what: str, readings: Mapping[str, float]) -> Iterator[Station]:
         """Hold the devices for ``what`` (one operation at a time; waits up to
         :data:`DEVICE_WAIT_S` for the one before to finish), opening them with the mounts at
         ``readings`` (deg) if they are not open yet."""
-        if not self._devices.acquire(timeout=DEVICE_WAIT_S):
-            raise InputError(
-                f"the devices are busy ({self.busy}); stop that first, then try {what} again"
-            )
-        try:
-            self.busy = what
+        with self._holding(what, DEVICE_WAIT_S) as held:
+            if not held:
+                raise InputError(
+                    f"the devices are busy ({self.busy}); stop that first, then try {what} again"
+                )
             yield self.station(readings)
-        finally:
-            self.busy = ""
-            self._devices.release()
 
     def declared(self) -> tuple[Any, ...]:
         """Every device the bench declares (:func:`aligner.run.devices.choose_devices`);
@@ -271,16 +283,14 @@ class DeskBackend:
         asks each for its state unless another operation holds them. Blocking: call it from a
         worker thread."""
         choices = {(c.role, c.name): c for c in self.declared()}
-        if poll and self._devices.acquire(timeout=0.5):
-            try:
-                self.busy = "reading the devices"
-                station = self.station(readings)
-                states = {r.name: self._poll(station, r.role, r.name) for r in _records(station)}
-            finally:
-                self.busy = ""
-                self._devices.release()
-        else:
-            states = {}
+        states: dict[str, str] = {}
+        if poll:
+            with self._holding("reading the devices", POLL_WAIT_S) as held:
+                if held:
+                    station = self.station(readings)
+                    states = {
+                        r.name: self._poll(station, r.role, r.name) for r in _records(station)
+                    }
         lines = []
         records = {(r.role, r.name): r for r in _records(self._station)}
         for key, c in choices.items():
@@ -529,9 +539,8 @@ class DeskBackend:
         the meter to stop, wait up to ``wait_s`` s for them to secure the bench, then shut the
         shutter and close."""
         self.request_stop()
-        if self._devices.acquire(timeout=wait_s):
-            self._devices.release()
-        self.close()
+        with self._holding("closing the devices", wait_s):
+            self.close()
 
     def close(self) -> None:
         """Shut the shutter and close the devices, if they were opened."""
