@@ -17,7 +17,6 @@ import shutil
 import subprocess
 import sys
 import time
-import uuid
 from collections.abc import Callable, Iterator
 from pathlib import Path
 
@@ -43,12 +42,12 @@ class Terminal:
     shell that afterwards prints the command's exit status and stays, so the terminal can be
     read as the operator would see it after the desk has ended."""
 
-    def __init__(self) -> None:
-        self.socket = f"aligner-test-{uuid.uuid4().hex[:8]}"
+    def __init__(self, folder: Path) -> None:
+        self.socket = str(folder / "tmux.sock")  # a private server, its socket removed with it
 
     def tmux(self, *args: str) -> str:
         done = subprocess.run(
-            ["tmux", "-L", self.socket, "-f", os.devnull, *args],
+            ["tmux", "-S", self.socket, "-f", os.devnull, *args],
             capture_output=True,
             text=True,
             timeout=30,
@@ -92,12 +91,12 @@ class Terminal:
         return int(child.stdout.split()[0])
 
     def close(self) -> None:
-        subprocess.run(["tmux", "-L", self.socket, "kill-server"], capture_output=True)
+        subprocess.run(["tmux", "-S", self.socket, "kill-server"], capture_output=True)
 
 
 @pytest.fixture
-def terminal() -> Iterator[Terminal]:
-    term = Terminal()
+def terminal(tmp_path_factory) -> Iterator[Terminal]:
+    term = Terminal(tmp_path_factory.mktemp("tmux"))  # short: a socket path has a length limit
     yield term
     term.close()
 
