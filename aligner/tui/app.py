@@ -1,58 +1,106 @@
-"""The desk app: four screens over one bench, switched with F1-F4.
+"""The desk app: the screens over one bench, switched with F2 and up; F1 lists the keys.
 
-The app holds the backend (bench, engine calls, devices) and the current readings; the screens
-do the rest. Build it with :func:`make_app` (the command line and the tests both do).
+The app holds the backend (bench, engine calls, devices), the current readings and the points
+of the latest sweep; the screens do the rest. Each screen is imported the first time it is
+shown, so the desk starts with only what the bench screen needs. Build the app with
+:func:`make_app` (the command line and the tests both do).
 """
 
 from __future__ import annotations
 
+import contextlib
+import importlib
+import os
+import threading
+from collections.abc import Callable
+from concurrent.futures import Future
+from dataclasses import dataclass
 from pathlib import Path
-from typing import ClassVar
+from typing import Any, ClassVar
 
 from textual import on
 from textual.app import App
 from textual.binding import Binding, BindingType
+from textual.screen import Screen
 
+from . import keys
 from .backend import DeskBackend
 from .messages import ApplyReadings, ReadingsChanged, RecipeEnded, SweepEnded
-from .screens.bench import BenchScreen
-from .screens.log import LogScreen
-from .screens.plan import PlanScreen
-from .screens.recipe import RecipeScreen
-from .screens.sweep import SweepScreen
 
-__all__ = ["DeskApp", "make_app"]
+__all__ = ["SCREENS", "DeskApp", "ScreenEntry", "make_app"]
+
+
+@dataclass(frozen=True)
+class ScreenEntry:
+    """One screen of the desk: its mode name, the key that shows it, its label in the top bar
+    and where its class lives (``"module:Class"``, imported when first shown)."""
+
+    mode: str
+    key: str
+    label: str
+    target: str
+
+    def make(self) -> Screen[Any]:
+        """A new instance of the screen."""
+        module, name = self.target.split(":")
+        screen: Screen[Any] = getattr(importlib.import_module(module), name)()
+        return screen
+
+
+#: The desk's screens in the order the top bar lists them; add a screen with one entry here.
+SCREENS = (
+    ScreenEntry("bench", "f2", "Bench", "aligner.tui.screens.bench:BenchScreen"),
+    ScreenEntry("plan", "f3", "Plan", "aligner.tui.screens.plan:PlanScreen"),
+    ScreenEntry("sweep", "f4", "Sweep", "aligner.tui.screens.sweep:SweepScreen"),
+    ScreenEntry("meter", "f5", "Meter", "aligner.tui.screens.meter:MeterScreen"),
+    ScreenEntry("devices", "f6", "Devices", "aligner.tui.screens.devices:DevicesScreen"),
+    ScreenEntry("log", "f7", "Log", "aligner.tui.screens.log:LogScreen"),
+    ScreenEntry("recipe", "f8", "Recipes", "aligner.tui.screens.recipe:RecipeScreen"),
+)
 
 
 class DeskApp(App[int]):
-    """The operator's desk for one bench."""
+    """The operator's desk for one bench.
+
+    ``catch_signals`` (the command line sets it) makes SIGTERM and SIGHUP end the desk the
+    way quitting does: a running sweep is paused after its point (mounts stopped, shutter
+    shut) and the meter stops; the app then exits with 128 + the signal number.
+    """
 
     CSS_PATH: ClassVar = ["desk.tcss"]
     TITLE = "aligner desk"
     ENABLE_COMMAND_PALETTE = False
-    MODES: ClassVar = {
-        "bench": BenchScreen,
-        "plan": PlanScreen,
-        "sweep": SweepScreen,
-        "log": LogScreen,
-        "recipe": RecipeScreen,
-    }
+    HORIZONTAL_BREAKPOINTS = [(0, "-narrow"), (120, "-wide")]  # noqa: RUF012
+    MODES: ClassVar = {s.mode: s.make for s in SCREENS}
     DEFAULT_MODE = "bench"
     BINDINGS: ClassVar[list[BindingType]] = [
-        Binding("f1", "switch_mode('bench')", "Bench", priority=True),
-        Binding("f2", "switch_mode('plan')", "Plan", priority=True),
-        Binding("f3", "switch_mode('sweep')", "Sweep", priority=True),
-        Binding("f4", "switch_mode('log')", "Log", priority=True),
-        Binding("f5", "switch_mode('recipe')", "Recipes", priority=True),
-        Binding("ctrl+q", "quit", "Quit", priority=True),
+        keys.HELP,
+        *(
+            Binding(s.key, f"switch_mode('{s.mode}')", s.label, priority=True, show=False)
+            for s in SCREENS
+        ),
+        keys.QUIT,
     ]
 
-    def __init__(self, backend: DeskBackend) -> None:
+    def __init__(self, backend: DeskBackend, *, catch_signals: bool = False) -> None:
         super().__init__()
         self.backend = backend
+        self.screens = SCREENS
         #: The readings (deg) the bench screen shows and the plan and sweep start from.
         self.readings: dict[str, float] = dict(backend.bench.readings())
+        #: The points of the latest sweep (for the working-point plots).
+        self.sweep_points: tuple[Any, ...] = ()
+        #: The signal that ended the desk, if one did.
+        self.signalled: int | None = None
+        self._catch_signals = catch_signals
+        self._previous_handlers: dict[int, Any] = {}
         self._quit_after_sweep = False
+        self._asks: set[Future[str | None]] = set()
+        self._exit_code = 0
+        backend.ask = self.ask_operator
+        backend.tell = self.tell_operator
+
+    # -- readings ------------------------------------------------------------------------------
 
     @on(ReadingsChanged)
     def readings_changed(self, event: ReadingsChanged) -> None:
@@ -64,32 +112,147 @@ class DeskApp(App[int]):
         self.switch_mode("bench")
         self.notify(f"readings from {event.origin} put on the bench screen (nothing moved)")
 
+    # -- help and quitting ---------------------------------------------------------------------
+
+    def action_help(self) -> None:
+        """List every key of the current screen."""
+        from .screens.help import HelpScreen
+
+        if isinstance(self.screen, HelpScreen):
+            self.screen.dismiss()
+        else:
+            self.push_screen(HelpScreen(self.screen))
+
     async def action_quit(self) -> None:
-        """Quit; a running sweep is paused first (mounts stopped, shutter shut)."""
-        if self.backend.sweeping:
-            self._quit_after_sweep = True
-            self.backend.request_stop()
-            self.notify("pausing the sweep before quitting…")
+        """Quit; while a sweep runs, ask first, then pause it (mounts stopped, shutter shut)."""
+        from .screens.confirm import Confirm
+
+        if not self.backend.sweeping:
+            self.backend.stop_meter()
+            self.exit()
             return
-        self.exit(0)
+        if isinstance(self.screen, Confirm):
+            return  # already asking
+
+        def answered(yes: bool | None) -> None:
+            if yes:
+                self.end_after_sweep(0)
+
+        self.push_screen(
+            Confirm(
+                "A run is going (a sweep or a recipe). Pause it at its next safe point and quit?",
+                "The mounts stop and the shutter shuts; the run stays resumable.",
+                yes="Pause and quit",
+                no="Keep running",
+            ),
+            answered,
+        )
+
+    def end_after_sweep(self, code: int) -> None:
+        """Ask a running sweep to pause and exit with ``code`` once it has (at once if none)."""
+        self.backend.stop_meter()
+        if not self.backend.sweeping:
+            self._leave(code)
+            return
+        self._quit_after_sweep = True
+        self._exit_code = code
+        self.backend.request_stop()
+        self.notify("pausing the sweep before quitting…")
 
     @on(SweepEnded)
     @on(RecipeEnded)
     def sweep_ended(self) -> None:
         if self._quit_after_sweep:
-            self.exit(0)
+            self._leave(self._exit_code)
+
+    def _leave(self, code: int) -> None:
+        """Exit with ``code``. After a hang-up the terminal is gone: the bench is secured and
+        the process ends without the UI's own shutdown, whose writes to a terminal that no
+        longer exists can block for ever."""
+        import signal
+
+        if self.signalled == getattr(signal, "SIGHUP", None):
+            self.backend.shutdown()  # waits for the meter to stop; shuts the shutter
+            os._exit(code)
+        self.exit(return_code=code)
+
+    # -- signals -------------------------------------------------------------------------------
+
+    def on_mount(self) -> None:
+        if self._catch_signals and threading.current_thread() is threading.main_thread():
+            import asyncio
+            import signal
+
+            loop = asyncio.get_running_loop()
+            for name in ("SIGTERM", "SIGHUP"):
+                signum = getattr(signal, name, None)
+                if signum is not None:
+                    self._previous_handlers[signum] = signal.getsignal(signum)
+                    loop.add_signal_handler(signum, self.stop_for_signal, int(signum))
+
+    def stop_for_signal(self, signum: int) -> None:
+        """End the desk for signal ``signum``: pause a sweep, stop the meter, then exit with
+        128 + ``signum``."""
+        self.signalled = signum
+        self.backend.signalled = signum
+        self.end_after_sweep(128 + signum)
 
     def on_unmount(self) -> None:
-        self.backend.close()
+        for future in list(self._asks):  # a worker waiting for an answer gets none
+            if not future.done():
+                future.set_result(None)
+        if self._previous_handlers:
+            import asyncio
+            import signal
+
+            loop = asyncio.get_running_loop()
+            for signum, handler in self._previous_handlers.items():
+                loop.remove_signal_handler(signum)
+                signal.signal(signum, handler)  # the command line's handler, for the clean-up
+        self.backend.stop_meter()
+
+    # -- questions from worker threads ---------------------------------------------------------
+
+    def ask_operator(self, prompt: str) -> str | None:
+        """Ask the operator for one typed value (from a worker thread: a typed-in counter or
+        pointer reader); None when the desk ends before an answer."""
+        from .screens.typed import TypedValue
+
+        answer: Future[str | None] = Future()
+        self._asks.add(answer)
+        try:
+            self.call_from_thread(
+                self.push_screen, TypedValue(prompt), lambda value: answer.set_result(value)
+            )
+            return answer.result()
+        except RuntimeError:  # the app is no longer running
+            return None
+        finally:
+            self._asks.discard(answer)
+
+    def tell_operator(self, text: str) -> None:
+        """Show a typed-in device's note (from a worker thread)."""
+        from ..text import clean
+
+        with contextlib.suppress(RuntimeError):  # the app is no longer running
+            self.call_from_thread(self.notify, clean(text), markup=False, timeout=10)
 
 
 def make_app(
-    bench: str | Path = "demo", *, db: str | Path | None = None, realtime: bool = False
+    bench: str | Path = "demo",
+    *,
+    db: str | Path | None = None,
+    realtime: bool = False,
+    catch_signals: bool = False,
+    station_factory: Callable[..., Any] | None = None,
 ) -> DeskApp:
     """The desk for a bench file (or ``"demo"``) with its run log ``db`` (default: the user
-    data folder). ``realtime`` makes simulated devices take real time to move and count."""
+    data folder). ``realtime`` makes simulated devices take real time to move and count;
+    ``catch_signals`` see :class:`DeskApp`; ``station_factory`` opens the devices (tests)."""
     from ..bench import load_bench
 
-    backend = DeskBackend(load_bench(bench), db_path=db, realtime=realtime)
+    backend = DeskBackend(
+        load_bench(bench), db_path=db, realtime=realtime, station_factory=station_factory
+    )
     backend.run_log().close()  # a run log that cannot be opened is refused before the UI starts
-    return DeskApp(backend)
+    return DeskApp(backend, catch_signals=catch_signals)

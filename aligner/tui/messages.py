@@ -9,13 +9,26 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from textual.message import Message
 
+if TYPE_CHECKING:
+    from ..planning import Plan
+    from ..prediction import Limits
+    from ..run.log import Event, LoggedPoint
+    from ..run.sweep import SweepResult
+    from .backend import DeviceLine, MoveResult, SweepPreview
+    from .metering import MeterSample, MeterState
+    from .widgets.working_point import Curve
+
 __all__ = [
     "ApplyReadings",
+    "DevicesRead",
     "LimitsReady",
+    "MeterChanged",
+    "MeterRead",
+    "MountsMoved",
     "PlanReady",
     "ReadingsChanged",
     "RecipeAsks",
@@ -46,22 +59,35 @@ class ApplyReadings(Message):
 
 @dataclass
 class LimitsReady(Message):
-    """The limits of amplification for ``readings``; ``error`` instead when they failed."""
+    """The limits of amplification for ``readings`` and the prediction curve along the
+    imbalance mount there; ``error`` instead when they failed."""
 
     readings: Mapping[str, float]
-    limits: Any = None
+    limits: Limits | None = None
+    curve: Curve | None = None
     error: str = ""
 
 
 @dataclass
 class PlanReady(Message):
-    """A planner result for ``request`` (the target), or the engine's message when the target
-    is infeasible or the input bad (``error``, with ``limit`` naming what limits it)."""
+    """A planner result for ``request`` (the target) with the bench's limits and the curve
+    through the planned point, or the engine's message when the target is infeasible or the
+    input bad (``error``, with ``limit`` naming what limits it)."""
 
     request: Mapping[str, Any]
-    plan: Any = None
+    plan: Plan | None = None
+    limits: Limits | None = None
+    curve: Curve | None = None
     error: str = ""
     limit: str = ""
+
+
+@dataclass
+class MountsMoved(Message):
+    """The desk moved mounts (``result``), or ``error`` says why it stopped."""
+
+    result: MoveResult | None = None
+    error: str = ""
 
 
 @dataclass
@@ -70,19 +96,21 @@ class SweepChecked(Message):
     the operator asked to start it (Ctrl+S) rather than only to check it (Enter)."""
 
     start: bool
-    preview: Any = None
+    preview: SweepPreview | None = None
     error: str = ""
 
 
 @dataclass
 class SweepStarted(Message):
     """A sweep created (or resumed) run ``run_id`` of ``total`` points: the planned readings
-    of the imbalance mount (deg) and the points already logged (on a resume)."""
+    of the imbalance mount (deg), the points already logged (on a resume) and what the run's
+    numbers are (:attr:`aligner.run.log.RunRecord.data_label`)."""
 
     run_id: int
     total: int
     imbalance_readings: tuple[float, ...] = ()
-    points: tuple[Any, ...] = ()
+    points: tuple[LoggedPoint, ...] = ()
+    label: str = ""
 
 
 @dataclass
@@ -93,7 +121,7 @@ class SweepProgress(Message):
     done: int
     total: int
     points: tuple[Any, ...]
-    events: tuple[Any, ...] = field(default=())
+    events: tuple[Event, ...] = field(default=())
 
     def can_replace(self, message: Message) -> bool:
         return isinstance(message, SweepProgress) and message.run_id == self.run_id
@@ -104,7 +132,29 @@ class SweepEnded(Message):
     """The sweep ended: the engine's ``SweepResult``, or ``error`` when it could not start
     or stopped on an error before a result."""
 
-    result: Any = None
+    result: SweepResult | None = None
+    error: str = ""
+
+
+@dataclass
+class MeterRead(Message):
+    """One gate of the meter (or one typed line)."""
+
+    sample: MeterSample
+
+
+@dataclass
+class MeterChanged(Message):
+    """The meter started counting, was refused by the guard, or stopped."""
+
+    state: MeterState
+
+
+@dataclass
+class DevicesRead(Message):
+    """The bench's devices and their states, or why they could not be listed (``error``)."""
+
+    lines: tuple[DeviceLine, ...] = ()
     error: str = ""
 
 

@@ -12,6 +12,7 @@ from dataclasses import replace
 from pathlib import Path
 
 import pytest
+from test_tui_support import desk, limits_shown, reading_box, settle, shown_in, text_of
 from textual.widgets import Checkbox, Input, ProgressBar, Select, Static
 
 from aligner.bench import load_bench
@@ -25,7 +26,8 @@ from aligner.tui.app import DeskApp
 from aligner.tui.backend import DeskBackend
 from aligner.tui.format import num, rate, sci
 from aligner.tui.messages import SweepEnded, SweepProgress
-from aligner.tui.screens.confirm import ConfirmStart
+from aligner.tui.screens.confirm import Confirm
+from aligner.tui.screens.typed import TypedValue
 from aligner.tui.widgets.safety import SAFETY_TEXT
 
 SIZE = (120, 36)
@@ -36,40 +38,20 @@ def bench():
     return load_bench("demo")
 
 
-def desk(bench, tmp_path: Path, *, realtime: bool = False) -> DeskApp:
-    return DeskApp(DeskBackend(bench, db_path=tmp_path / "runs.sqlite", realtime=realtime))
-
-
-_BOX = str.maketrans(dict.fromkeys("│╭╮╰╯─▔▁▎▊", " "))
-
-
-def text_of(app: DeskApp, selector: str) -> str:
-    """The words a widget shows on the screen (borders dropped, lines joined by one space)."""
-    widget = app.screen.query_one(selector)
-    lines = widget.render_lines(widget.region.reset_offset)
-    return " ".join(" ".join(strip.text for strip in lines).translate(_BOX).split())
-
-
-def shown_in(app: DeskApp, selector: str) -> str:
-    """The words on the screen inside a widget's region, its children's included."""
-    region = app.screen.query_one(selector).region
-    strips = app.screen._compositor.render_strips()[region.y : region.bottom]
-    lines = [strip.crop(region.x, region.right).text for strip in strips]
-    return " ".join(" ".join(lines).translate(_BOX).split())
-
-
-async def settle(pilot) -> None:
-    await pilot.app.workers.wait_for_complete()
-    await pilot.pause()
-
-
 # -- every screen ------------------------------------------------------------------------------
 
 
 async def test_every_screen_has_the_safety_line_and_its_own_bar(bench, tmp_path):
     app = desk(bench, tmp_path)
     async with app.run_test(size=SIZE) as pilot:
-        for key, mode in (("f1", "bench"), ("f2", "plan"), ("f3", "sweep"), ("f4", "log")):
+        for key, mode in (
+            ("f2", "bench"),
+            ("f3", "plan"),
+            ("f4", "sweep"),
+            ("f5", "meter"),
+            ("f6", "devices"),
+            ("f7", "log"),
+        ):
             await pilot.press(key)
             await settle(pilot)
             assert app.current_mode == mode
@@ -102,14 +84,15 @@ async def test_bench_shows_the_engine_prediction_and_steps_by_the_mount_resoluti
         p2 = predict(bench, app.readings)
         assert num(p2.amplification_exact, 5) in text_of(app, "#prediction-numbers")
         assert num(p2.amplification_exact, 5) != num(p.amplification_exact, 5)
-        # the beam path shows the element angle the engine gives for the new reading
+        # once the keys pause, the beam path shows the element angle the engine gives
+        await limits_shown(pilot)
         assert f"{float(p2.angles_deg['analyzer']):.3f}°" in text_of(app, "#beam-path")
 
 
 async def test_bench_limits_arrive_from_the_worker(bench, tmp_path):
     app = desk(bench, tmp_path)
     async with app.run_test(size=SIZE) as pilot:
-        await settle(pilot)
+        await limits_shown(pilot)
         lim = limits(bench, bench.readings())
         shown = text_of(app, "#limits")
         assert num(lim.max_amplification, 4) in shown
@@ -124,7 +107,7 @@ async def test_bench_warns_plainly_above_the_safe_rate(bench, tmp_path):
         await settle(pilot)
         status = app.screen.query_one("#detector-status")
         assert not status.has_class("danger")
-        box = app.screen.query_one("#reading-analyzer", Input)
+        box = reading_box(app, "analyzer")
         box.value = "50"  # far from the null: nearly full transmission
         await settle(pilot)
         p = predict(bench, {**bench.readings(), "analyzer": 50.0})
@@ -133,7 +116,7 @@ async def test_bench_warns_plainly_above_the_safe_rate(bench, tmp_path):
         shown = text_of(app, "#detector-status")
         assert "ABOVE THE SAFE RATE" in shown and rate(bench.detector.safe_rate) in shown
         # back to the file readings: the warning goes away
-        await pilot.press("ctrl+r")
+        await pilot.press("ctrl+f")
         await settle(pilot)
         assert not status.has_class("danger")
         assert app.readings == bench.readings()
@@ -144,12 +127,12 @@ async def test_bench_refuses_a_reading_outside_travel(bench, tmp_path):
     async with app.run_test(size=SIZE) as pilot:
         await settle(pilot)
         before = dict(app.readings)
-        app.screen.query_one("#reading-pre_hwp", Input).value = "400"
+        reading_box(app, "pre_hwp").value = "400"
         await settle(pilot)
         problem = text_of(app, "#reading-problem")
         assert "pre_hwp" in problem and "outside its travel" in problem and "170" in problem
         assert app.readings == before
-        app.screen.query_one("#reading-pre_hwp", Input).value = "abc"
+        reading_box(app, "pre_hwp").value = "abc"
         await settle(pilot)
         assert "not a number" in text_of(app, "#reading-problem")
         assert app.readings == before
@@ -161,29 +144,30 @@ async def test_bench_refuses_a_reading_outside_travel(bench, tmp_path):
 async def test_plan_shows_the_engine_plan_and_applies_it_to_the_bench(bench, tmp_path):
     app = desk(bench, tmp_path)
     async with app.run_test(size=SIZE) as pilot:
-        await pilot.press("f2")
+        await pilot.press("f3")
         await settle(pilot)
         expected = plan(bench, amplification=40.0, axis="re", exact=False)
         assert "planned" in text_of(app, "#plan-status")
         shown = text_of(app, "#plan-result")
         for name, reading in expected.quantized.settings.items():
             assert f"{name} {reading:.4f}° {expected.settings[name]:.5f}°" in shown
-        assert f"Branches: {len(expected.branches)}" in shown
+        assert app.screen.query_one("#branches").row_count == len(expected.branches)
         assert expected.tolerance is not None and expected.tolerance.dominant in shown
         for s in expected.sensitivity:
             assert f"{s.mount} {num(s.derivative, 4)} per deg" in shown
-        await pilot.press("ctrl+a")
+        await pilot.press("ctrl+o")  # the readings to the bench screen; nothing moves
         await settle(pilot)
         assert app.current_mode == "bench"
         for name, reading in expected.quantized.settings.items():
             assert app.readings[name] == pytest.approx(reading)
-            assert app.screen.query_one(f"#reading-{name}", Input).value == f"{reading:.{3}f}"
+            assert reading_box(app, name).value == f"{reading:.{3}f}"
+        assert not app.backend.opened  # no device was even opened
 
 
 async def test_plan_infeasible_target_shows_the_engine_message(bench, tmp_path):
     app = desk(bench, tmp_path)
     async with app.run_test(size=SIZE) as pilot:
-        await pilot.press("f2")
+        await pilot.press("f3")
         await settle(pilot)
         target = app.screen.query_one("#target", Input)
         target.value = "500"
@@ -195,26 +179,28 @@ async def test_plan_infeasible_target_shows_the_engine_message(bench, tmp_path):
         assert info.value.limit in text_of(app, "#plan-status")
         assert " ".join(str(info.value).split())[:60] in text_of(app, "#plan-result")
         before = dict(app.readings)
-        await pilot.press("ctrl+a")  # nothing to apply
+        await pilot.press("ctrl+o")  # nothing to copy
         assert app.readings == before and app.current_mode == "plan"
 
 
 async def test_plan_form_states_axis_and_exact_in_words(bench, tmp_path):
     app = desk(bench, tmp_path)
     async with app.run_test(size=SIZE) as pilot:
-        await pilot.press("f2")
+        await pilot.press("f3")
         await settle(pilot)
         assert "axis: re (position)" in shown_in(app, "#axis")
-        assert "exact pointer response: off" in shown_in(app, "#exact")
-        assert text_of(app, "#plan-axis-note") == ""  # the demo's position readout sees Re
-        await pilot.press("ctrl+t", "ctrl+e")
+        assert "exact response: off" in shown_in(app, "#exact")
+        assert text_of(app, "#plan-warning") == ""  # the demo's position readout sees Re
+        await pilot.press("ctrl+t")
+        await pilot.click("#exact")
         await settle(pilot)
         assert "axis: im (momentum)" in shown_in(app, "#axis")
-        assert "exact pointer response: on" in shown_in(app, "#exact")
+        assert "exact response: on" in shown_in(app, "#exact")
         assert app.screen.query_one("#axis", Select).value == "im"
         assert app.screen.query_one("#exact", Checkbox).value
         assert text_of(app, "#plan-status").startswith("planned")
         assert "(im axis)" in text_of(app, "#plan-result")
+        assert "exact amplification" in text_of(app, "#plan-result")
 
 
 async def test_plan_for_the_axis_the_readout_does_not_see_says_so(bench, tmp_path):
@@ -223,15 +209,15 @@ async def test_plan_for_the_axis_the_readout_does_not_see_says_so(bench, tmp_pat
     assert bench.coupling.readout == "position"
     app = desk(bench, tmp_path)
     async with app.run_test(size=SIZE) as pilot:
-        await pilot.press("f2")
+        await pilot.press("f3")
         await settle(pilot)
         await pilot.press("ctrl+t")
         await settle(pilot)
-        note = text_of(app, "#plan-axis-note")
+        note = text_of(app, "#plan-warning")
         assert "position readout, which measures Re A_w" in note
         assert "imaginary weak value" in note and "momentum readout" in note
         expected = plan(bench, amplification=40.0, axis="im", exact=False)
-        await pilot.press("ctrl+a")
+        await pilot.press("ctrl+o")
         await settle(pilot)
         p = predict(bench, app.readings)
         assert p.axis == "re" and abs(complex(p.weak_value).imag) > abs(complex(p.weak_value).real)
@@ -244,7 +230,7 @@ async def test_plan_for_the_axis_the_readout_does_not_see_says_so(bench, tmp_pat
 async def test_plan_target_typed_in_a_burst_keeps_every_key(bench, tmp_path):
     app = desk(bench, tmp_path)
     async with app.run_test(size=SIZE) as pilot:
-        await pilot.press("f2")
+        await pilot.press("f3")
         await settle(pilot)
         app.screen.query_one("#target", Input).focus()
         await pilot.press("end", "backspace", "backspace", "7", "5", "enter")
@@ -260,7 +246,7 @@ async def test_plan_target_typed_in_a_burst_keeps_every_key(bench, tmp_path):
 
 
 async def start_sweep(pilot, schedule: str, dwell: str) -> None:
-    await pilot.press("f3")
+    await pilot.press("f4")
     await pilot.pause()
     app = pilot.app
     app.screen.query_one("#schedule", Input).value = schedule
@@ -276,7 +262,7 @@ def runs_in(tmp_path: Path) -> list:
 async def test_enter_in_a_sweep_field_only_checks_it(bench, tmp_path):
     app = desk(bench, tmp_path)
     async with app.run_test(size=SIZE) as pilot:
-        await pilot.press("f3")
+        await pilot.press("f4")
         await pilot.pause()
         app.screen.query_one("#schedule", Input).value = "linear:0.5:2.0:4"
         dwell = app.screen.query_one("#dwell", Input)
@@ -312,14 +298,14 @@ async def test_sweep_with_real_mounts_asks_first(bench, tmp_path):
     async with app.run_test(size=SIZE) as pilot:
         await start_sweep(pilot, schedule, "0.5")
         await settle(pilot)
-        assert isinstance(app.screen, ConfirmStart)
+        assert isinstance(app.screen, Confirm)
         question = text_of(app, "#confirm-question")
         assert f"Start sweep: {len(expected)} points" in question
         assert "mounts analyzer will move" in question and "beam blocks in place?" in question
         assert "laser safety officer" in text_of(app, "#confirm-detail")
         await pilot.press("enter")  # Cancel has the focus: Enter does not start
         await settle(pilot)
-        assert not isinstance(app.screen, ConfirmStart)
+        assert not isinstance(app.screen, Confirm)
         assert "cancelled" in text_of(app, "#sweep-status") and runs_in(tmp_path) == []
         await pilot.press("ctrl+s")
         await settle(pilot)
@@ -360,11 +346,8 @@ async def test_sweep_pause_leaves_the_bench_safe_and_resume_completes(bench, tmp
     app = desk(bench, tmp_path, realtime=True)
     async with app.run_test(size=SIZE) as pilot:
         await start_sweep(pilot, "linear:0.5:1.5:6", "0.2")
-        for _ in range(200):  # wait for the first point
-            await pilot.pause(0.05)
-            if app.screen.query_one("#sweep-points").row_count:
-                break
-        await pilot.press("ctrl+b")
+        await wait_for_first_point(pilot)
+        await pilot.press("ctrl+p")
         await settle(pilot)
         status = text_of(app, "#sweep-status")
         assert "paused as you asked" in status and "shutter shut" in status
@@ -379,7 +362,7 @@ async def test_sweep_pause_leaves_the_bench_safe_and_resume_completes(bench, tmp
         with RunLog(tmp_path / "runs.sqlite") as log:
             (run,) = log.runs()
         assert run.status == "interrupted" and 0 < run.points < 6
-        await pilot.press("ctrl+r")
+        await pilot.press("ctrl+g")
         await settle(pilot)
         assert "complete" in text_of(app, "#sweep-status")
         with RunLog(tmp_path / "runs.sqlite") as log:
@@ -404,6 +387,39 @@ async def test_sweep_states_bad_input_and_guard_refusals_plainly(bench, tmp_path
         events = text_of(app, "#sweep-events")
         assert "detector guard" in events and "safe_rate" in events
         assert app.screen.query_one("#sweep-status", Static).has_class("problem")
+        assert runs_in(tmp_path) == []  # refused before its first point: no run is logged
+
+
+async def test_a_typed_in_counter_asks_on_the_desk(bench, tmp_path):
+    text = bench.path.read_text(encoding="utf-8")
+    path = tmp_path / "typed-bench.toml"
+    path.write_text(
+        text.replace('[devices.counter]\ndriver = "sim"', '[devices.counter]\ndriver = "manual"'),
+        encoding="utf-8",
+    )
+    app = desk(load_bench(path), tmp_path)
+    async with app.run_test(size=SIZE) as pilot:
+        await start_sweep(pilot, "list:1.0", "0.5")
+        asked = []
+        for _ in range(8):  # a probe gate and the rest of the dwell, two channels each
+            for _ in range(200):
+                await pilot.pause(0.05)
+                if isinstance(app.screen, TypedValue) or not app.backend.sweeping:
+                    break
+            if not isinstance(app.screen, TypedValue):
+                break
+            asked.append(text_of(app, "#typed-prompt"))
+            await pilot.press(*"40", "enter")
+        await settle(pilot)
+        assert asked and all("counts in" in q for q in asked)
+        assert any(q.startswith("post-selected") for q in asked)
+        assert any(q.startswith("reference") for q in asked)
+        assert "complete" in text_of(app, "#sweep-status")
+        with RunLog(tmp_path / "runs.sqlite") as log:
+            (run,) = log.runs()
+            (point,) = log.points(run.id)
+        assert run.data_label == "SIMULATED and TYPED IN"  # the mounts are simulated
+        assert point.counts == 40 * sum(q.startswith("post-selected") for q in asked)
 
 
 # -- log -----------------------------------------------------------------------------------------
@@ -416,11 +432,11 @@ async def test_log_lists_runs_and_shows_the_points_of_the_selected_one(bench, tm
     backend.close()
     app = desk(bench, tmp_path)
     async with app.run_test(size=SIZE) as pilot:
-        await pilot.press("f4")
+        await pilot.press("f7")
         await settle(pilot)
         runs = app.screen.query_one("#runs")
         assert runs.row_count == 2
-        assert [runs.get_row_at(i)[2] for i in range(2)] == ["2/2", "3/3"]
+        assert [runs.get_row_at(i)[4] for i in range(2)] == ["2/2", "3/3"]
         points = app.screen.query_one("#log-points")
         assert points.row_count == 3  # the newest run is selected first
         await pilot.press("up")
@@ -432,15 +448,29 @@ async def test_log_lists_runs_and_shows_the_points_of_the_selected_one(bench, tm
         assert "run 1" in str(points.border_title)
 
 
-async def test_quit_during_a_sweep_pauses_it_first(bench, tmp_path):
+async def wait_for_first_point(pilot) -> None:
+    for _ in range(200):
+        await pilot.pause(0.05)
+        if pilot.app.screen.query_one("#sweep-points").row_count:
+            return
+    raise AssertionError("no point was taken")
+
+
+async def test_quit_during_a_sweep_asks_first_then_pauses_it(bench, tmp_path):
     app = desk(bench, tmp_path, realtime=True)
     async with app.run_test(size=SIZE) as pilot:
         await start_sweep(pilot, "linear:0.5:1.5:20", "0.2")
-        for _ in range(200):
-            await pilot.pause(0.05)
-            if app.screen.query_one("#sweep-points").row_count:
-                break
+        await wait_for_first_point(pilot)
         await pilot.press("ctrl+q")
+        await pilot.pause()
+        assert isinstance(app.screen, Confirm)
+        assert "A run is going (a sweep or a recipe)" in text_of(app, "#confirm-question")
+        await pilot.press("n")  # keep it running
+        await pilot.pause()
+        assert app.backend.sweeping and app.is_running
+        await pilot.press("ctrl+q")
+        await pilot.pause()
+        await pilot.press("y")
         # the desk waits for the sweep to pause after its current point, then exits
         for _ in range(200):
             await pilot.pause(0.05)
@@ -460,3 +490,40 @@ def test_sweep_progress_messages_of_one_run_merge():
     # each message carries every point so far, so a newer one may stand in for an older one
     assert older.can_replace(newer) and not older.can_replace(other)
     assert not older.can_replace(SweepEnded(error="x"))
+
+
+async def test_plan_beyond_the_combined_limit_names_the_mechanism(bench, tmp_path):
+    lim = limits(bench, bench.readings())
+    target = round(lim.max_amplification * 1.3)
+    app = desk(bench, tmp_path)
+    async with app.run_test(size=SIZE) as pilot:
+        await pilot.press("f3")
+        await settle(pilot)
+        assert text_of(app, "#plan-warning") == ""  # 40 is below the limit
+        app.screen.query_one("#target", Input).value = str(target)
+        await pilot.press("enter")
+        await settle(pilot)
+        warning = text_of(app, "#plan-warning")
+        assert f"{target} is beyond this bench's combined limit of" in warning
+        assert f"{lim.max_amplification:.4g}" in warning and lim.limited_by in warning
+
+
+async def test_a_signal_pauses_the_sweep_and_shuts_the_shutter(bench, tmp_path):
+    import signal
+
+    app = desk(bench, tmp_path, realtime=True)
+    async with app.run_test(size=SIZE) as pilot:
+        await start_sweep(pilot, "linear:0.5:1.5:20", "0.2")
+        await wait_for_first_point(pilot)
+        app.stop_for_signal(signal.SIGTERM)  # what the desk's SIGTERM handler calls
+        for _ in range(200):  # the desk exits by itself once the sweep has paused
+            await pilot.pause(0.05)
+            if app.return_code is not None:
+                break
+        assert app.return_code == 128 + signal.SIGTERM and app.signalled == signal.SIGTERM
+    assert not app.backend.station(app.readings).devices.shutter.is_open()
+    with RunLog(tmp_path / "runs.sqlite") as log:
+        (run,) = log.runs()
+        notes = [e.message for e in log.events(run.id) if e.kind == "note"]
+    assert run.status == "interrupted" and 0 < run.points < 20
+    assert f"the desk was ended by signal {int(signal.SIGTERM)}" in notes

@@ -1,6 +1,6 @@
 """The desk's recipe screen, driven as an operator would with Pilot: a bundled recipe runs to
 its end on the simulated demo bench, its question answered in place; a pause stops it shut and
-resumable, and Ctrl+R goes on where it stopped."""
+resumable, and Ctrl+G goes on where it stopped."""
 
 from __future__ import annotations
 
@@ -22,7 +22,7 @@ def _desk(tmp_path: Path) -> DeskApp:
 
 
 async def _choose(pilot, app: DeskApp, name: str) -> None:
-    await pilot.press("f5")
+    await pilot.press("f8")
     await pilot.pause()
     screen = app.screen
     index = next(i for i, e in enumerate(screen.entries) if e.name == name)
@@ -74,12 +74,12 @@ async def test_a_paused_recipe_is_shut_and_goes_on_with_ctrl_r(tmp_path):
             if app.screen.asking:
                 break
             await pilot.pause(0.02)
-        await pilot.press("ctrl+b")  # pause while the question is open
+        await pilot.press("ctrl+p")  # pause while the question is open
         await app.workers.wait_for_complete()
         await pilot.pause()
         assert "STOPPED (operator)" in _status(app) and app.screen.paused_run is not None
         assert app.backend._station.shutter_open() is False
-        await pilot.press("ctrl+r")
+        await pilot.press("ctrl+g")
         await _answer(pilot, app, "y")
         await app.workers.wait_for_complete()
         await pilot.pause()

@@ -1,4 +1,4 @@
-"""A small yes/no question before the desk moves real mounts."""
+"""A small yes/no question before the desk does something that cannot be taken back."""
 
 from __future__ import annotations
 
@@ -7,35 +7,39 @@ from typing import ClassVar
 from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
-from textual.containers import Horizontal, Vertical
+from textual.containers import Horizontal, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Button, Static
 
-__all__ = ["ConfirmStart"]
+from ..format import literal
+
+__all__ = ["Confirm"]
 
 
-class ConfirmStart(ModalScreen[bool]):
-    """Ask before a sweep starts: True for "start", False for "cancel" (Escape, N, or Enter
-    while Cancel has the focus, which it has first)."""
+class Confirm(ModalScreen[bool]):
+    """Ask first: True for ``yes``, False for ``no`` (Escape, N, or Enter while the ``no``
+    button has the focus, which it has first). Texts are shown as written."""
 
     BINDINGS: ClassVar[list[BindingType]] = [
-        Binding("escape,n", "answer(False)", "Cancel"),
-        Binding("y", "answer(True)", "Start"),
+        Binding("escape,n", "answer(False)", "No"),
+        Binding("y", "answer(True)", "Yes"),
     ]
 
-    def __init__(self, question: str, detail: str = "") -> None:
+    def __init__(self, question: str, detail: str = "", *, yes: str = "Start", no: str = "Cancel"):
         super().__init__()
         self.question = question
         self.detail = detail
+        self.yes = yes
+        self.no = no
 
     def compose(self) -> ComposeResult:
-        with Vertical(id="confirm-box"):
-            yield Static(self.question, id="confirm-question")
+        with VerticalScroll(id="confirm-box"):
+            yield Static(literal(self.question), id="confirm-question")
             if self.detail:
-                yield Static(self.detail, id="confirm-detail")
+                yield Static(literal(self.detail), id="confirm-detail")
             with Horizontal(id="confirm-buttons"):
-                yield Button("Cancel (N)", id="confirm-no", variant="primary")
-                yield Button("Start (Y)", id="confirm-yes", variant="warning")
+                yield Button(f"{self.no} (N)", id="confirm-no", variant="primary")
+                yield Button(f"{self.yes} (Y)", id="confirm-yes", variant="warning")
 
     def on_mount(self) -> None:
         self.query_one("#confirm-no", Button).focus()
@@ -44,5 +48,5 @@ class ConfirmStart(ModalScreen[bool]):
     def pressed(self, event: Button.Pressed) -> None:
         self.dismiss(event.button.id == "confirm-yes")
 
-    def action_answer(self, start: bool) -> None:
-        self.dismiss(start)
+    def action_answer(self, yes: bool) -> None:
+        self.dismiss(yes)

@@ -9,7 +9,7 @@ from typing import Any, ClassVar
 from rich.text import Text
 from textual import on, work
 from textual.app import ComposeResult
-from textual.binding import Binding, BindingType
+from textual.binding import BindingType
 from textual.containers import Horizontal, Vertical
 from textual.widgets import Input, OptionList, Static
 
@@ -17,13 +17,14 @@ from ...errors import AlignerError
 from ...recipe import Operator, OperatorPause, parse_answer
 from ...run.station import shutter_words
 from ...text import clean, safe_text
+from .. import keys
 from ..messages import RecipeAsks, RecipeEnded, RecipeSaid, RecipeStepState
 from ..widgets.recipe_steps import RecipeSteps
 from .base import DeskScreen
 
 __all__ = ["DeskOperator", "RecipeScreen"]
 
-IDLE = "pick a recipe; Ctrl+S starts it, Ctrl+B pauses it, Ctrl+R resumes a paused run"
+IDLE = "pick a recipe; Ctrl+S starts it, Ctrl+P pauses it, Ctrl+G goes on with a paused run"
 #: What the answer box stands for while the recipe waits for nothing.
 _PAUSE = object()
 
@@ -66,11 +67,7 @@ class RecipeScreen(DeskScreen):
     """Run written recipes on the desk's bench (engine: :mod:`aligner.recipe`)."""
 
     MODE = "recipe"
-    BINDINGS: ClassVar[list[BindingType]] = [
-        Binding("ctrl+s", "start", "Start", priority=True),
-        Binding("ctrl+b", "pause", "Pause", priority=True),
-        Binding("ctrl+r", "resume", "Resume", priority=True),
-    ]
+    BINDINGS: ClassVar[list[BindingType]] = [keys.START, keys.PAUSE, keys.GO_ON]
 
     def __init__(self) -> None:
         super().__init__()
@@ -126,7 +123,7 @@ class RecipeScreen(DeskScreen):
 
     def action_start(self) -> None:
         if self.running:
-            self.status("a recipe is running; Ctrl+B pauses it first", error=True)
+            self.status("a recipe is running; Ctrl+P pauses it first", error=True)
             return
         if self.chosen is None:
             self.status("no recipe chosen (or it does not load)", error=True)
@@ -142,7 +139,7 @@ class RecipeScreen(DeskScreen):
             self.operator.answers.put(_PAUSE)
         self.status("pausing at the next safe point…")
 
-    def action_resume(self) -> None:
+    def action_go_on(self) -> None:
         if self.running:
             return
         if self.paused_run is None:
@@ -244,7 +241,7 @@ class RecipeScreen(DeskScreen):
             return
         self.paused_run = r.run_id
         self.status(
-            f"recipe run {r.run_id} STOPPED ({r.reason}): {safe_text(r.message)}. Ctrl+R goes on "
+            f"recipe run {r.run_id} STOPPED ({r.reason}): {safe_text(r.message)}. Ctrl+G goes on "
             "where it stopped.",
             error=r.reason not in ("operator",),
         )

@@ -1,4 +1,8 @@
-"""Sweep screen: schedule and dwell, start / pause / resume, the live plot, points and events."""
+"""Sweep screen: schedule and dwell, start / pause / go on, the live plot, points and events.
+
+Points are numbered as the run log numbers them (``#0`` first) in the status line and the
+table alike; the status line adds how many of the planned points are done.
+"""
 
 from __future__ import annotations
 
@@ -7,19 +11,19 @@ from typing import Any, ClassVar
 import numpy as np
 from textual import on, work
 from textual.app import ComposeResult
-from textual.binding import Binding, BindingType
-from textual.containers import Horizontal
+from textual.binding import BindingType
+from textual.containers import Container, Horizontal, VerticalScroll
 from textual.widgets import Input, Label, ProgressBar, Static
 
 from ...errors import AlignerError
 from ...run.station import shutter_words
-from ...text import safe_text
+from .. import keys
 from ..messages import SweepChecked, SweepEnded, SweepProgress, SweepStarted
 from ..widgets.event_list import EventList
 from ..widgets.leak_plot import LeakPlot
 from ..widgets.points_table import PointsTable
 from .base import DeskScreen
-from .confirm import ConfirmStart
+from .confirm import Confirm
 
 __all__ = ["SweepScreen"]
 
@@ -28,7 +32,7 @@ IDLE = "idle: Ctrl+S starts a new run; Enter in a field only checks it"
 #: How each kind of pause reads in the status line, and whether it is a problem.
 PAUSED = {
     "operator": ("paused as you asked", False),
-    "interrupt": ("paused by Ctrl-C", False),
+    "interrupt": ("stopped by a signal", False),
     "guard": ("STOPPED BY THE DETECTOR GUARD", True),
     "device": ("STOPPED BY A DEVICE FAULT", True),
 }
@@ -40,16 +44,14 @@ class SweepScreen(DeskScreen):
     """Run a sweep in a worker thread; the engine moves, counts, guards and logs."""
 
     MODE = "sweep"
-    BINDINGS: ClassVar[list[BindingType]] = [
-        Binding("ctrl+s", "start", "Start", priority=True),
-        Binding("ctrl+b", "pause", "Pause", priority=True),
-        Binding("ctrl+r", "resume", "Resume", priority=True),
-    ]
+    STATUS = "#sweep-status"
+    BINDINGS: ClassVar[list[BindingType]] = [keys.START, keys.PAUSE, keys.GO_ON]
 
     def __init__(self) -> None:
         super().__init__()
         self.running = False
         self.run_id: int | None = None
+        self.label = ""
         self.paused_run: int | None = None
         self.curve: tuple[Any, Any] | None = None
 
@@ -61,10 +63,11 @@ class SweepScreen(DeskScreen):
             yield Input("1", id="dwell", type="number")
             yield ProgressBar(id="progress", show_eta=False)
         yield Static(IDLE, id="sweep-status")
-        with Horizontal(id="sweep-body"):
-            yield LeakPlot(id="sweep-plot")
-            yield EventList(id="sweep-events")
-        yield PointsTable(id="sweep-points")
+        with VerticalScroll(id="sweep-scroll"):
+            with Container(id="sweep-body"):
+                yield LeakPlot(id="sweep-plot")
+                yield EventList(id="sweep-events")
+            yield PointsTable(id="sweep-points")
 
     def on_mount(self) -> None:
         self.query_one(ProgressBar).update(total=1, progress=0)
@@ -75,7 +78,7 @@ class SweepScreen(DeskScreen):
     def action_start(self) -> None:
         """Check the form and start a new run (after a question when real mounts move)."""
         if self.running:
-            self.status("a sweep is running; Ctrl+B pauses it first", error=True)
+            self.status("a sweep is running; Ctrl+P pauses it first", error=True)
             return
         self.check(start=True)
 
@@ -114,12 +117,12 @@ class SweepScreen(DeskScreen):
     def checked(self, event: SweepChecked) -> None:
         if self.running:
             return
-        if event.error:
+        preview = event.preview
+        if event.error or preview is None:
             verdict = "not started" if event.start else "not valid"
             self.status(f"{verdict}: {event.error}", error=True)
             self.query_one(EventList).show((), extra=event.error)
             return
-        preview = event.preview
         moves = ", ".join(preview.moves) or "none"
         if not event.start:
             self.status(
@@ -146,9 +149,10 @@ class SweepScreen(DeskScreen):
             else:
                 self.status("not started (cancelled); nothing moved")
 
-        self.app.push_screen(ConfirmStart(question, detail), answered)
+        self.app.push_screen(Confirm(question, detail), answered)
 
-    def action_resume(self) -> None:
+    def action_go_on(self) -> None:
+        """Resume the run paused on this screen."""
         if self.running:
             return
         if self.paused_run is None:
@@ -161,6 +165,7 @@ class SweepScreen(DeskScreen):
         self.begin(None, self.paused_run)
 
     def action_pause(self) -> None:
+        """Pause the running sweep after the point being counted."""
         if not self.running:
             self.status("no sweep is running", error=True)
             return
@@ -191,11 +196,12 @@ class SweepScreen(DeskScreen):
                 for p in plan
                 if self.backend.bench.imbalance_mount in p.readings
             ]
-            self.post_message(SweepStarted(run_id, len(plan), tuple(target), tuple(points)))
+            label = log.run(run_id).data_label
+            self.post_message(SweepStarted(run_id, len(plan), tuple(target), tuple(points), label))
             moved = {name for p in plan for name in p.readings}
             for name, (here, wanted) in self.backend.unmoved_differences(readings, moved).items():
                 self.app.call_from_thread(
-                    self.notify,
+                    self.say,
                     f"{name} reads {here:.4f}° on the bench but {wanted:.4f}° on "
                     "the bench screen; this sweep does not move it",
                     severity="warning",
@@ -230,13 +236,16 @@ class SweepScreen(DeskScreen):
     @on(SweepStarted)
     def sweep_started(self, event: SweepStarted) -> None:
         self.run_id = event.run_id
+        self.label = event.label
         bar = self.query_one(ProgressBar)
         bar.update(total=event.total, progress=len(event.points))
         self.curve = self.prediction_curve(event.imbalance_readings)
         self.query_one(LeakPlot).show(event.points, self.curve)
         self.query_one(PointsTable).show(event.points)
+        self.desk.sweep_points = tuple(event.points)
         self.status(
-            f"run {event.run_id}: {len(event.points)} of {event.total} points; Ctrl+B pauses"
+            f"run {event.run_id} ({event.label}): {len(event.points)} of {event.total} points "
+            "done; Ctrl+P pauses"
         )
 
     @on(SweepProgress)
@@ -245,20 +254,22 @@ class SweepScreen(DeskScreen):
         self.query_one(LeakPlot).show(event.points, self.curve)
         self.query_one(PointsTable).show(event.points)
         self.query_one(EventList).show(event.events)
+        self.desk.sweep_points = tuple(event.points)
         last = event.points[-1]
         self.status(
-            f"run {event.run_id}: point {event.done} of {event.total}, imbalance "
-            f"{last.imbalance_deg:+.4f}°, {last.counts} counts; Ctrl+B pauses"
+            f"run {event.run_id} ({self.label}): point #{last.idx} logged ({event.done} of "
+            f"{event.total} done), imbalance {last.imbalance_deg:+.4f}°, {last.counts} counts; "
+            "Ctrl+P pauses"
         )
 
     @on(SweepEnded)
     def sweep_ended(self, event: SweepEnded) -> None:
         self.running = False
-        if event.error:
+        r = event.result
+        if event.error or r is None:
             self.status(f"not started: {event.error}", error=True)
             self.query_one(EventList).show((), extra=event.error)
             return
-        r = event.result
         with self.backend.run_log() as log:
             events = log.events(r.run_id)
         self.query_one(EventList).show(events)
@@ -270,11 +281,11 @@ class SweepScreen(DeskScreen):
             return
         self.paused_run = r.run_id
         why, problem = PAUSED.get(r.reason, (f"stopped ({r.reason})", True))
-        detail = f": {safe_text(r.message)}" if problem else ""
+        detail = f": {r.message}" if problem or r.reason == "interrupt" else ""
         unsafe = r.shutter in ("failed", "none")
         self.status(
             f"run {r.run_id} {why}{detail}. Mounts stopped; {shutter_words(r.shutter)}; "
-            f"{r.points_done} of {r.points_total} points logged. Ctrl+R resumes.",
+            f"{r.points_done} of {r.points_total} points logged. Ctrl+G goes on.",
             error=problem or unsafe,
         )
 
@@ -293,9 +304,3 @@ class SweepScreen(DeskScreen):
             return None
         order = np.argsort(p.imbalance_deg)
         return p.imbalance_deg[order].tolist(), p.leak_rate[order].tolist()
-
-    def status(self, text: str, *, error: bool = False) -> None:
-        """Say what the sweep is doing (errors in the warning style)."""
-        line = self.query_one("#sweep-status", Static)
-        line.update(text)
-        line.set_class(error, "problem")

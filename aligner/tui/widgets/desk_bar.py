@@ -1,34 +1,35 @@
-"""The top bar: the bench's name and the four screens, the current one marked."""
+"""The top bar: the screens with their keys (the current one marked), then the bench's name."""
 
 from __future__ import annotations
+
+from collections.abc import Sequence
+from typing import Any
 
 from rich.text import Text
 from textual.widgets import Static
 
-__all__ = ["SCREENS", "DeskBar"]
+from ..format import literal
 
-#: (mode name, key, label) in the order the bar shows them.
-SCREENS = (
-    ("bench", "F1", "Bench"),
-    ("plan", "F2", "Plan"),
-    ("sweep", "F3", "Sweep"),
-    ("log", "F4", "Log"),
-    ("recipe", "F5", "Recipes"),
-)
+__all__ = ["DeskBar"]
 
 
 class DeskBar(Static):
-    """``aligner desk · <bench> ·  F1 Bench  F2 Plan ...`` with the current screen marked."""
+    """``F2 Bench  F3 Plan … · <bench>`` with the current screen marked; the screens come
+    first so that none falls off a narrow terminal (the name wraps to a second line)."""
 
-    def __init__(self, bench_name: str, current: str) -> None:
-        super().__init__(classes="desk-bar")
+    def __init__(self, screens: Sequence[Any], bench_name: str, current: str) -> None:
+        super().__init__(_bar_text(screens, bench_name, current), classes="desk-bar")
+        self.screens = tuple(screens)
         self.bench_name = bench_name
         self.current = current
 
-    def on_mount(self) -> None:
-        text = Text.assemble(("aligner desk", "bold"), " · ", (self.bench_name, "italic"), "   ")
-        for mode, key, label in SCREENS:
-            style = "reverse bold" if mode == self.current else "dim"
-            text.append(f" {key} {label} ", style=style)
-            text.append(" ")
-        self.update(text)
+
+def _bar_text(screens: Sequence[Any], bench_name: str, current: str) -> Text:
+    """The bar's text (made with the widget, so the first frame already has it)."""
+    text = Text()
+    for s in screens:
+        text.append(f"{s.key.upper()} {s.label}", style="reverse bold" if s.mode == current else "")
+        text.append(" ")
+    text.append("· F1 Help · ", style="dim")
+    text.append_text(literal(bench_name or "(unnamed bench)", "italic"))
+    return text

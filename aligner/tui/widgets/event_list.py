@@ -8,6 +8,8 @@ from typing import Any
 from rich.text import Text
 from textual.widgets import Static
 
+from ...text import clean
+
 __all__ = ["EventList"]
 
 _STYLE = {
@@ -40,15 +42,16 @@ class EventList(Static):
         for e in list(events)[-self.limit :]:
             where = f" (point {e.idx})" if e.idx is not None else ""
             label, style = _LABEL.get(e.kind, e.kind), _STYLE.get(e.kind, "")
-            if e.message.lower().startswith(label.lower()):
+            message = clean(e.message)
+            if message.lower().startswith(label.lower()):
                 # "paused by the operator" says it already: no "paused: " in front
-                text.append(e.message, style=style)
+                text.append(message, style=style)
                 text.append(f"{where}\n")
             else:
                 text.append(f"{label}{where}: ", style=style)
-                text.append(f"{e.message}\n")
+                text.append(f"{message}\n")
         if extra:
-            text.append(extra, style="bold red")
+            text.append(clean(extra), style="bold red")
         if not text.plain:
             text.append("none", style="dim")
         self.update(text)

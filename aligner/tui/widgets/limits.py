@@ -6,12 +6,13 @@ from typing import Any
 
 from rich.console import Group
 from rich.table import Table
-from rich.text import Text
 from textual.widgets import Static
 
-from ..format import num
+from ..format import literal, num
 
 __all__ = ["LimitsPanel"]
+
+PENDING = "updating…"
 
 
 class LimitsPanel(Static):
@@ -20,17 +21,18 @@ class LimitsPanel(Static):
 
     def __init__(self, mount: str, **kwargs: Any) -> None:
         super().__init__("working out the limits…", **kwargs)
-        self.mount = mount
+        self.mount_name = mount
         self.border_title = "Limits of amplification"
 
     def pending(self) -> None:
         """Say that new limits are being worked out."""
-        self.border_subtitle = "updating…"
+        if self.border_subtitle != PENDING:
+            self.border_subtitle = PENDING
 
     def failed(self, message: str) -> None:
         """Show why the limits could not be worked out."""
         self.border_subtitle = ""
-        self.update(Text(message, style="bold red"))
+        self.update(literal(message, "bold red"))
 
     def show(self, lim: Any) -> None:
         """Show an :class:`aligner.prediction.Limits`."""
@@ -38,12 +40,13 @@ class LimitsPanel(Static):
         head = Table.grid(padding=(0, 2))
         head.add_column(style="bold", no_wrap=True)
         head.add_column()
-        head.add_row("largest amplification", f"{num(lim.max_amplification, 4)} (axis {lim.axis})")
-        head.add_row(
-            "at imbalance", f"{lim.at_imbalance_deg:+.4f}° (reading {lim.at_reading_deg:.4f}°)"
-        )
-        head.add_row("null at", f"{lim.null_reading_deg:.4f}° ({self.mount})")
-        head.add_row("limited by", lim.limited_by)
+        for label, value in (
+            ("largest amplification", f"{num(lim.max_amplification, 4)} (axis {lim.axis})"),
+            ("at imbalance", f"{lim.at_imbalance_deg:+.4f}° (reading {lim.at_reading_deg:.4f}°)"),
+            ("null at", f"{lim.null_reading_deg:.4f}° ({self.mount_name})"),
+            ("limited by", lim.limited_by),
+        ):
+            head.add_row(label, literal(value))
         alone = Table(box=None, padding=(0, 1), show_edge=False, header_style="bold")
         alone.add_column("each alone")
         alone.add_column("max", justify="right")
@@ -51,6 +54,8 @@ class LimitsPanel(Static):
         for name, m in lim.mechanisms.items():
             mark = "▶ " if name == lim.limited_by else "  "
             alone.add_row(
-                f"{mark}{name}", num(m.max_amplification, 4), f"{m.at_imbalance_deg:+.4f}°"
+                literal(f"{mark}{name}"),
+                num(m.max_amplification, 4),
+                f"{m.at_imbalance_deg:+.4f}°",
             )
-        self.update(Group(head, Text(lim.explanation, style="italic"), alone))
+        self.update(Group(head, literal(lim.explanation, "italic"), alone))

@@ -1,21 +1,20 @@
-"""A planner result: readings to set, branches, sensitivity and the tolerance budget."""
+"""A planner result: readings to set, sensitivity and the tolerance budget (the branches are
+in :class:`BranchTable`, where the operator picks one)."""
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Any, ClassVar
 
 from rich.console import Group
 from rich.table import Table
 from rich.text import Text
-from textual.widgets import Static
+from textual.widgets import DataTable, Static
 
 from ...bench import Bench
-from ..format import num, sci
+from ..format import literal, num, sci
 
-__all__ = ["PlanResult"]
+__all__ = ["BranchTable", "PlanResult"]
 
-#: Branches listed (nearest the current readings first); the rest are counted.
-MAX_BRANCHES = 6
 #: A reading change beyond a full turn is shown as "no practical effect".
 FULL_TURN_DEG = 360.0
 
@@ -23,12 +22,12 @@ FULL_TURN_DEG = 360.0
 def _table(*columns: str) -> Table:
     table = Table(box=None, padding=(0, 2), show_edge=False, header_style="bold")
     for c in columns:
-        table.add_column(c)
+        table.add_column(literal(c))
     return table
 
 
 def _heading(text: str) -> Text:
-    return Text(text, style="bold underline")
+    return literal(text, "bold underline")
 
 
 class PlanResult(Static):
@@ -45,75 +44,51 @@ class PlanResult(Static):
             Group(
                 Text("Infeasible target", style="bold red"),
                 Text(""),
-                Text(message),
+                literal(message),
                 Text(""),
                 Text("Readings on the bench screen are unchanged.", style="dim"),
             )
         )
 
     def show(self, plan: Any) -> None:
-        """Settings (rounded to the mounts' steps), branches, sensitivity, tolerance and the
-        planner's own summary of ``plan``."""
+        """Settings (rounded to the mounts' steps), sensitivity, tolerance and the planner's
+        own summary of ``plan``."""
         q = plan.quantized
         settings = _table("mount", "reading", "exact solution", "step")
         for name, reading in q.settings.items():
             settings.add_row(
-                name,
+                literal(name),
                 f"{float(reading):.4f}°",
                 f"{float(plan.settings[name]):.5f}°",
                 f"{self.bench.mounts[name].resolution_deg:g}°",
             )
-        reached = Text(
+        reached = literal(
             f"reached at the rounded readings: {num(q.value, 6)} "
             f"({q.relative_error * 100:+.2g} % from the exact solution); one step of "
             f"{self.bench.imbalance_mount} changes it by {q.step_change * 100:.2g} %"
         )
         parts: list[Any] = [
-            _heading(f"Set the mounts to (rounded to their steps) for the {plan.quantity}"),
+            _heading(
+                f"Branch {plan.chosen}: the mounts' readings (rounded to their steps) for the "
+                f"{plan.quantity}"
+            ),
             settings,
             reached,
+            literal(f"chosen: {plan.reason}", "dim"),
             Text(""),
         ]
-        parts += self._branches(plan) + self._sensitivity(plan) + self._tolerance(plan)
+        parts += self._sensitivity(plan) + self._tolerance(plan)
         for warning in plan.warnings:
-            parts.append(Text(f"⚠ {warning}", style="yellow"))
-        parts += [Text(""), Text("Planner summary", style="bold"), Text(plan.message)]
+            parts.append(literal(f"⚠ {warning}", "yellow"))
+        parts += [Text(""), Text("Planner summary", style="bold"), literal(plan.message)]
         self.update(Group(*parts))
-
-    def _branches(self, plan: Any) -> list[Any]:
-        names = list(plan.settings)
-        table = _table("#", *names, "side", "regime", "imbalance", "ampl. exact", "leak rate")
-        for b in plan.branches[:MAX_BRANCHES]:
-            mark = "▶" if b.index == plan.chosen else " "
-            table.add_row(
-                f"{mark}{b.index}",
-                *(f"{b.settings[n]:.4f}°" for n in names),
-                b.side,
-                b.regime,
-                f"{b.imbalance_deg:+.4f}°",
-                num(b.amplification_exact, 5),
-                sci(b.leak_rate),
-            )
-        more = len(plan.branches) - MAX_BRANCHES
-        extra = (
-            [Text(f"  … {more} more branches (other nulls and plate orientations)", style="dim")]
-            if more > 0
-            else []
-        )
-        return [
-            _heading(f"Branches: {len(plan.branches)}"),
-            Text(f"chosen {plan.reason}"),
-            table,
-            *extra,
-            Text(""),
-        ]
 
     def _sensitivity(self, plan: Any) -> list[Any]:
         table = _table("mount", "d(value)/d(reading)", "change for 1 %")
         for s in plan.sensitivity:
             change = s.reading_for_1pct_deg
             table.add_row(
-                s.mount,
+                literal(s.mount),
                 f"{num(s.derivative, 4)} per deg",
                 f"{num(change, 3)}°"
                 if change <= FULL_TURN_DEG
@@ -136,7 +111,7 @@ class PlanResult(Static):
         by = _table("error source", "68 % half-width alone")
         for name, width in tol.by_source.items():
             mark = "  ◀ dominant" if name == tol.dominant else ""
-            by.add_row(name, f"{num(width, 3)}{mark}")
+            by.add_row(literal(name), f"{num(width, 3)}{mark}")
         return [
             _heading(f"Tolerance budget ({tol.samples} Monte Carlo samples)"),
             table,
@@ -144,3 +119,42 @@ class PlanResult(Static):
             by,
             Text(""),
         ]
+
+
+class BranchTable(DataTable[Any]):
+    """Every branch (distinct optical setting) of a plan; the cursor marks the chosen one and
+    Enter plans that branch instead. Row keys are the branch indices. The sign of the
+    imbalance says the side of the null (+: the high-reading side)."""
+
+    HELP_KEYS: ClassVar = (("↑ / ↓ then Enter", "plan the branch under the cursor"),)
+
+    def __init__(self, **kwargs: Any) -> None:
+        super().__init__(zebra_stripes=True, cursor_type="row", **kwargs)
+        self.border_title = "Branches · ↑/↓ then Enter to plan that branch"
+
+    def show(self, plan: Any) -> None:
+        """List ``plan``'s branches, the cursor on the chosen one."""
+        self.clear(columns=True)
+        names = list(plan.settings)
+        self.add_column("#", key="index")
+        for name in names:
+            self.add_column(literal(name), key=f"mount-{names.index(name)}")
+        for label in ("imbalance", "regime", "exact A", "leak rate"):
+            self.add_column(label, key=label)
+        for b in plan.branches:
+            self.add_row(
+                f"{'▶' if b.index == plan.chosen else ' '}{b.index}",
+                *(f"{b.settings[n]:.4f}°" for n in names),
+                f"{b.imbalance_deg:+.4f}°",
+                b.regime,
+                num(b.amplification_exact, 5),
+                sci(b.leak_rate),
+                key=str(b.index),
+            )
+        self.border_subtitle = f"{len(plan.branches)} branches"
+        self.move_cursor(row=self.get_row_index(str(plan.chosen)))
+
+    def failed(self) -> None:
+        """No plan: no branches."""
+        self.clear(columns=True)
+        self.border_subtitle = ""

@@ -7,13 +7,16 @@ from typing import Any
 
 from textual.widgets import DataTable
 
-from ..format import num, sci
+from ..format import interval, literal, num, sci
 
 __all__ = ["PointsTable"]
 
 
 class PointsTable(DataTable):
-    """One row per logged point (:class:`aligner.run.log.LoggedPoint`), newest kept in view."""
+    """One row per logged point (:class:`aligner.run.log.LoggedPoint`), newest kept in view;
+    numbered as the run log numbers them (``#0`` first). Reading and imbalance in degrees,
+    leak rates per source photon (``pred.``: the prediction at the read-back). Narrow enough
+    for an 80-column terminal."""
 
     def __init__(self, **kwargs: Any) -> None:
         super().__init__(zebra_stripes=True, cursor_type="row", **kwargs)
@@ -21,14 +24,17 @@ class PointsTable(DataTable):
         self._shown = 0
 
     def on_mount(self) -> None:
-        self.add_column("#", key="idx")
-        self.add_column("target", key="target")
-        self.add_column("reading °", key="reading")
-        self.add_column("imbal. °", key="imbalance")
-        self.add_column("counts", key="counts")
-        self.add_column("leak rate", key="leak")
-        self.add_column("68 % interval", key="interval")
-        self.add_column("predicted", key="predicted")
+        for label, key in (
+            ("#", "idx"),
+            ("target", "target"),
+            ("reading", "reading"),
+            ("imbal.", "imbalance"),
+            ("counts", "counts"),
+            ("leak", "leak"),
+            ("68 % interval", "interval"),
+            ("pred.", "predicted"),
+        ):
+            self.add_column(label, key=key)
 
     def show(self, points: Sequence[Any]) -> None:
         """Show ``points``: rows are appended when the list only grew, else rebuilt."""
@@ -42,8 +48,8 @@ class PointsTable(DataTable):
                 f"{p.reading_deg:.4f}",
                 f"{p.imbalance_deg:+.4f}",
                 str(p.counts),
-                sci(p.leak),
-                f"{sci(p.leak_lo)} … {sci(p.leak_hi)}",
+                sci(p.leak) if p.leak is not None else literal(p.flag or "—", "yellow"),
+                interval(p.leak_lo, p.leak_hi),
                 sci(p.predicted_leak),
                 key=str(p.idx),
             )

@@ -1,24 +1,29 @@
-"""The runs in the run log: id, status, schedule, points."""
+"""The runs in the run log: id, start time, status, what the numbers are, points, schedule."""
 
 from __future__ import annotations
 
 from collections.abc import Sequence
-from typing import Any
+from typing import Any, ClassVar
 
 from textual.widgets import DataTable
+
+from ..format import literal, stamp
 
 __all__ = ["RunList"]
 
 
-class RunList(DataTable):
-    """One row per run (:class:`aligner.run.log.RunRecord`); row keys are the run ids."""
+class RunList(DataTable[Any]):
+    """One row per run (:class:`aligner.run.log.RunRecord`); row keys are the run ids. The
+    start time is shown in full with its zone; schedules are shown as written."""
+
+    HELP_KEYS: ClassVar = (("↑ / ↓", "choose a run (its points, plot and events follow)"),)
 
     def __init__(self, **kwargs: Any) -> None:
         super().__init__(zebra_stripes=True, cursor_type="row", **kwargs)
         self.border_title = "Runs"
 
     def on_mount(self) -> None:
-        self.add_columns("id", "status", "points", "schedule", "started UTC")
+        self.add_columns("id", "started", "status", "data", "points", "schedule")
 
     def show(self, runs: Sequence[Any]) -> None:
         """Show ``runs``, keeping the cursor on the same run when it is still there (else on
@@ -26,12 +31,14 @@ class RunList(DataTable):
         keep = self.selected_run()
         self.clear()
         for r in runs:
+            label = r.data_label
             self.add_row(
                 str(r.id),
-                r.status,
+                literal(stamp(r.started_utc)),
+                literal(r.status),
+                literal(label, "" if label == "measured" else "bold yellow"),
                 f"{r.points}/{r.planned}",
-                r.schedule,
-                r.started_utc[5:16].replace("T", " "),
+                literal(r.schedule),
                 key=str(r.id),
             )
         if keep is not None and str(keep) in self.rows:

@@ -6,15 +6,15 @@ from textual.widgets import Static
 
 __all__ = ["SAFETY_TEXT", "SafetyLine"]
 
+#: Two lines at 80 columns, one at 160.
 SAFETY_TEXT = (
-    "⚠ LASER  Protect your eyes, keep beam blocks in place, never let a bright beam "
-    "reach the detector.\n         Local laser-safety rules and your laser safety "
-    "officer come first."
+    "⚠ LASER  Protect your eyes, keep beam blocks in place, no bright beam on the detector. "
+    "Local laser-safety rules and your laser safety officer come first."
 )
 
 
 class SafetyLine(Static):
-    """Laser and detector safety in two short lines, always visible."""
+    """Laser and detector safety, always visible (wrapped, never cut)."""
 
     def __init__(self) -> None:
         super().__init__(SAFETY_TEXT, classes="safety-line", markup=False)
