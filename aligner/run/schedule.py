@@ -96,7 +96,7 @@ def _range(spec: str, fields: list[str]) -> tuple[float, float, int]:
     except ValueError:
         raise _error(spec, f"N {fields[2]!r} is not a whole number of points") from None
     if not 1 <= n <= MAX_POINTS:
-        raise _error(spec, f"N must be 1 to {MAX_POINTS}, got {n}")
+        raise _error(spec, f"N must be at least 1 and at most {MAX_POINTS}, got {n}")
     return start, stop, n
 
 

@@ -133,9 +133,7 @@ NUMBERS = st.sampled_from(
     suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow],
 )
 @given(value=NUMBERS)
-def test_every_numeric_option_takes_any_value_without_crashing(
-    tmp_path, capsys, template, value
-):
+def test_every_numeric_option_takes_any_value_without_crashing(tmp_path, capsys, template, value):
     argv = [part.replace("{}", value) for part in template]
     if argv[0] in ("sweep", "log"):
         argv += ["--db", str(tmp_path / "runs.sqlite")]

@@ -34,7 +34,7 @@ def db(tmp_path_factory):
 
 def test_list_json_and_show(db):
     doc = json.loads(_cli("log", "list", "--db", db, "--json").stdout)
-    assert [(r["id"], r["status"], r["points"]) for r in doc["runs"]] == [(1, "complete", 6)]
+    assert [(r["run"], r["status"], r["points_done"]) for r in doc["runs"]] == [(1, "complete", 6)]
     show = _cli("log", "show", "1", "--db", db)
     assert show.returncode == 0 and "complete" in show.stdout and "135.2" in show.stdout
 

@@ -29,7 +29,7 @@ observable = "HV"
 readout = "position"
 pointer_sigma = 100.0
 strength = 1.0
-units = "µm [i]"
+units = "um"
 
 [analyzer]
 mount = "ana lyzer [b]"
@@ -66,7 +66,7 @@ async def test_names_that_look_like_markup_show_as_written(names_bench, tmp_path
         assert "Bänch [/] :-1: one.two" in bar
         shown = await seen(pilot, "#readings")
         assert HWP in shown and ANALYZER in shown
-        assert "µm [i]" in await seen(pilot, "#prediction")
+        assert "um" in await seen(pilot, "#prediction")  # units are checked names now
         assert f"({ANALYZER})" in await seen(pilot, "#limits")
         assert HWP in await seen(pilot, "#beam-path")
         # typing a bad reading: the message quotes the mount and the text as typed

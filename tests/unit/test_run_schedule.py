@@ -33,7 +33,7 @@ def test_amplification_is_log_spaced():
         ("linear:0:1", "START:STOP:N"),
         ("linear:a:1:3", "START"),
         ("linear:0:1:x", "whole number"),
-        ("amplification:0:10:3", "> 0"),
+        ("amplification:0:10:3", "from 0.001 to 1e+06"),
         ("list:", "at least"),
         ("linear:0:1:0", "N must be"),
         ("linear:0:inf:3", "finite"),
