@@ -251,7 +251,7 @@ def forward_stokes(
 def coupling_observable(bench: Bench) -> Complex:
     """The coupled observable ``A`` as a Hermitian 2x2 matrix."""
     c = bench.coupling
-    if c.observable == "axis":
+    if c.observable == "axis" and c.axis is not None:  # the loader requires an axis there
         return observable_from_axis(c.axis, c.eigenvalues)
     return observable_matrix(c.observable)
 

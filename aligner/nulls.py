@@ -281,7 +281,9 @@ def nulls(bench: Bench, names: Sequence[str], fixed: Mapping[str, float]) -> Rea
 
 def _readings(names: Sequence[str], x: Real, fixed: Mapping[str, float]) -> dict[str, Real]:
     """Readings dict for points ``x`` (..., n) of the mounts ``names``."""
-    return {**fixed, **{name: x[..., k] for k, name in enumerate(names)}}
+    out: dict[str, Real] = {name: np.asarray(value, float) for name, value in fixed.items()}
+    out.update({name: x[..., k] for k, name in enumerate(names)})
+    return out
 
 
 def _find_nulls(bench: Bench, names: tuple[str, ...], fixed: Mapping[str, float]) -> Real:

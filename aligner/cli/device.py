@@ -318,7 +318,7 @@ def _profiles(args: argparse.Namespace) -> int:
     else:
         for row in rows:
             roles = "+".join(row["roles"])
-            print(f"{row['name']:<26} {roles:<16} {clean(row['description'])}")
+            print(f"{row['name']:<26} {roles:<16} {clean(str(row['description']))}")
     return 0
 
 

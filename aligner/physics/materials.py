@@ -85,7 +85,7 @@ def plate_retardance_waves(
         path_nm = nominal_waves * design_nm / dn_design
     elif kind == "multi-order":
         if thickness_um is not None:
-            path_nm = thickness_um * 1000.0
+            path_nm = np.asarray(thickness_um * 1000.0)
         else:
             path_nm = (order + nominal_waves) * design_nm / dn_design
     else:

@@ -108,11 +108,12 @@ class PointerResponse:
 
 def _in_basis(x: Complex, vectors: Complex, j: int, k: int) -> Complex:
     """Element ``(j, k)`` of ``V^dagger x V`` (only the elements needed, for large stacks)."""
-    return sum(
+    terms = [
         np.conj(vectors[..., a, j]) * vectors[..., b, k] * x[..., a, b]
         for a in (0, 1)
         for b in (0, 1)
-    )
+    ]
+    return np.asarray(terms[0] + terms[1] + terms[2] + terms[3])
 
 
 def pointer_response(

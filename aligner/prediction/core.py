@@ -280,11 +280,11 @@ def predict(bench: Bench, readings: Readings | None = None) -> Prediction:
         for name, values in computed.items():
             values[part] = _LAZY[name](block)
     out = {k: v.reshape(shape) for k, v in fields.items()}
-    wv = wv.reshape(shape)
+    weak = wv.reshape(shape)
     return Prediction(
-        weak_value=wv,
+        weak_value=weak,
         leak_rate=out["leak"],
-        amplification_linear=wv.real if axis == "re" else wv.imag,
+        amplification_linear=weak.real if axis == "re" else weak.imag,
         amplification_exact=out["exact"],
         pointer_shift=out["shift"],
         detector_rate=out["true"],

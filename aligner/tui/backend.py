@@ -223,17 +223,19 @@ class DeskBackend:
             return
         from aligner_drivers.open import open_counter, open_pointer
 
-        options = {"input_fn": self._typed_input, "output_fn": self._typed_note}
+        ask, note = self._typed_input, self._typed_note
         for record in station.provenance.devices:
             if record.kind != "typed":
                 continue
             if record.role == "counter":
                 channels = station.devices.counter.channels
                 station.devices.counter = open_counter(
-                    "manual", name=record.name, channels=channels, **options
+                    "manual", name=record.name, channels=channels, input_fn=ask, output_fn=note
                 )
             elif record.role == "pointer":
-                station.devices.pointer = open_pointer("manual", name=record.name, **options)
+                station.devices.pointer = open_pointer(
+                    "manual", name=record.name, input_fn=ask, output_fn=note
+                )
 
     def _typed_input(self, prompt: str) -> str:
         answer = self.ask(prompt) if self.ask is not None else None
