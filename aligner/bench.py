@@ -85,6 +85,9 @@ SOURCE_TYPES = ("beam", "heralded")
 #: Largest size of any number in a bench file (angles: :data:`LARGEST_ANGLE`); anything bigger
 #: is a typo, and the physics would lose all precision on it.
 LARGEST = 1e12
+#: Smallest size of a nonzero number in a bench file: below it a number is a typo too (a
+#: subnormal width would overflow every ratio the physics forms with it).
+SMALLEST = 1e-12
 #: Largest size of an angle or a reading (deg): ten turns.
 LARGEST_ANGLE = 3600.0
 #: Most bytes a bench file may have, and most elements per arm and mounts.
@@ -559,6 +562,10 @@ class _Reader:
             raise self.error(name, f"must be at most {maximum:g}, got {value:g}")
         if math.isfinite(value) and abs(value) > limit:
             raise self.error(name, f"must be between {-limit:g} and {limit:g}, got {value:g}")
+        if value != 0.0 and abs(value) < SMALLEST:
+            raise self.error(
+                name, f"must be 0 or of size {SMALLEST:g} to {limit:g}, got {value:g}"
+            )
         return value
 
     def angle(
@@ -948,11 +955,18 @@ def _coupling(path: str, table: Mapping[str, Any]) -> Coupling:
         if r.has("probe_photons"):
             raise r.error("probe_photons", "applies only to readout = 'phase'")
         sigma = r.number("pointer_sigma", above=0.0)
+    strength = r.number("strength", above=0.0)
+    if strength / sigma > LARGEST:
+        raise r.error(
+            "strength",
+            f"must be at most {LARGEST:g} pointer widths ({LARGEST * sigma:g} {units}), "
+            f"got {strength:g}",
+        )
     return Coupling(
         observable=observable,
         readout=readout,
         pointer_sigma=sigma,
-        strength=r.number("strength", above=0.0),
+        strength=strength,
         units=units,
         axis=(axis[0], axis[1], axis[2]) if axis else None,
         eigenvalues=(eigenvalues[0], eigenvalues[1]),

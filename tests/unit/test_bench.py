@@ -307,6 +307,21 @@ BAD_FILES = [
         "must be one of",
     ),
     (
+        # common practice, no source: a subnormal width overflows every ratio formed with it
+        "subnormal-pointer-width",
+        "pointer_sigma = 100.0",
+        "pointer_sigma = 2.225073858507203e-309",
+        "coupling.pointer_sigma",
+        "of size 1e-12 to 1e+12",
+    ),
+    (
+        "coupling-beyond-double-precision",
+        "pointer_sigma = 100.0\nstrength = 1.0",
+        "pointer_sigma = 1.0e-6\nstrength = 1.0e7",
+        "coupling.strength",
+        "pointer widths",
+    ),
+    (
         "source-not-a-table",
         "[source]\nangle_deg = 0.0\nextinction_ratio = 1e5\nphoton_rate = 1.0e6\n",
         "source = 5\n",
