@@ -563,9 +563,7 @@ class _Reader:
         if math.isfinite(value) and abs(value) > limit:
             raise self.error(name, f"must be between {-limit:g} and {limit:g}, got {value:g}")
         if value != 0.0 and abs(value) < SMALLEST:
-            raise self.error(
-                name, f"must be 0 or of size {SMALLEST:g} to {limit:g}, got {value:g}"
-            )
+            raise self.error(name, f"must be 0 or of size {SMALLEST:g} to {limit:g}, got {value:g}")
         return value
 
     def angle(
