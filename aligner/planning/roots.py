@@ -73,7 +73,7 @@ def _residual_scalar(target: Target, obs: Observed, value: ArrayLike, n: int) ->
     return np.where(on_im, w.imag, w.real) / np.where(on_im, v.imag, v.real) - 1.0
 
 
-def _readings(names: Sequence[str], x: Real, fixed: Mapping[str, float]) -> dict[str, Real]:
+def _readings(names: Sequence[str], x: Real, fixed: Mapping[str, float]) -> dict[str, float | Real]:
     """Readings dict for points ``x`` (..., n) of the unknown mounts ``names``."""
     return {**fixed, **{name: x[..., k] for k, name in enumerate(names)}}
 
@@ -87,9 +87,9 @@ def _solve_one_mount(
     segs = segments(bench, name, fixed)
     rays = []  # (centre, direction, length)
     for seg in segs:
-        for side, length in ((1.0, seg.high - seg.centre), (-1.0, seg.centre - seg.low)):
+        for sign, length in ((1.0, seg.high - seg.centre), (-1.0, seg.centre - seg.low)):
             if length > 1e-6:
-                rays.append((seg.centre, side, length))
+                rays.append((seg.centre, sign, length))
     if not rays:
         return Solution((name,), (), float("nan"), 0)
     offsets = np.stack([_ray_offsets(length) for _, _, length in rays])  # (R, S)
@@ -137,7 +137,7 @@ def _solve_one_mount(
 
 def _ray_directions(
     bench: Bench, names: Sequence[str], fixed: Mapping[str, float], centres: Real, values: Real
-) -> Real:
+) -> tuple[Real, Real]:
     """Unit search directions (deg space) from each null towards the target, from the ideal
     closed form: the extinction-free ``1/A_w`` is linear near a null, ``1/A_w ~ J dx``, so the
     target weak value ``T`` lies along ``dx = J^+ (1/T)`` (``eps = arccot X`` in the crossed

@@ -19,20 +19,23 @@ errors the two agree.
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
+from typing import NamedTuple, cast
 
 import numpy as np
-from numpy.typing import NDArray
+from numpy.typing import ArrayLike, NDArray
 
 from ..bench import Bench, Element
 from ..model import BLOCK
 from .observe import observe
 from .targets import Target
 
-__all__ = ["Spread", "Tolerance", "error_items", "first_order_std", "tolerance_budget"]
+__all__ = ["ErrorItem", "Spread", "Tolerance", "error_items", "first_order_std", "tolerance_budget"]
 
 Real = NDArray[np.float64]
+#: A plate's position in the bench: arm (``pre``/``post``) and index in that arm.
+PlateKey = tuple[str, int]
 
 _PLATES = ("hwp", "qwp", "retarder")
 _STEP_DEG = 1e-4  # finite-difference step of the first-order propagation (reading, deg)
@@ -52,11 +55,15 @@ class Spread:
 
     @classmethod
     def of(cls, values: Real) -> Spread:
+        """The spread of the finite ``values`` (all NaN when none is finite)."""
         v = values[np.isfinite(values)]
         if v.size == 0:
-            return cls(*(float("nan"),) * 6)
-        q = np.percentile(v, [50.0, 15.865, 84.135, 2.275, 97.725])
-        return cls(*(float(x) for x in q), float(np.std(v)))
+            nan = float("nan")
+            return cls(nan, nan, nan, nan, nan, nan)
+        median, low68, high68, low95, high95 = (
+            float(x) for x in np.percentile(v, [50.0, 15.865, 84.135, 2.275, 97.725])
+        )
+        return cls(median, low68, high68, low95, high95, float(np.std(v)))
 
     @property
     def half_width68(self) -> float:
@@ -77,7 +84,7 @@ class Tolerance:
     first_order_std: float  # linear propagation through the sensitivities
 
     def to_dict(self) -> dict[str, object]:
-        def spread(s: Spread) -> dict[str, float]:
+        def spread(s: Spread) -> dict[str, float | list[float]]:
             return {
                 "median": s.median,
                 "range68": [s.low68, s.high68],
@@ -104,15 +111,19 @@ def _plates(bench: Bench) -> list[tuple[str, int, Element]]:
     ]
 
 
-def _with_retardance(bench: Bench, shifts: Mapping[tuple[str, int], object]) -> Bench:
-    """A bench whose plates carry extra retardance (waves; floats or per-sample arrays)."""
+def _with_retardance(bench: Bench, shifts: Mapping[PlateKey, Real]) -> Bench:
+    """A bench whose plates carry extra retardance (waves; per-sample arrays, which
+    :func:`aligner.model.forward` broadcasts like readings)."""
+
+    def shifted(arm: str, i: int, e: Element) -> Element:
+        if (arm, i) not in shifts:
+            return e
+        # Element declares the file's float; the model broadcasts an array there like a reading
+        waves = cast(float, e.retardance_waves + shifts[(arm, i)])
+        return replace(e, retardance_waves=waves)
+
     pre, post = (
-        tuple(
-            replace(e, retardance_waves=e.retardance_waves + shifts[(arm, i)])
-            if (arm, i) in shifts
-            else e
-            for i, e in enumerate(getattr(bench, arm))
-        )
+        tuple(shifted(arm, i, e) for i, e in enumerate(getattr(bench, arm)))
         for arm in ("pre", "post")
     )
     return replace(bench, pre=pre, post=post)
@@ -121,25 +132,34 @@ def _with_retardance(bench: Bench, shifts: Mapping[tuple[str, int], object]) -> 
 def _figure_and_leak(
     bench: Bench,
     target: Target,
-    readings: Mapping[str, object],
+    readings: Mapping[str, ArrayLike],
 ) -> tuple[Real, Real]:
     obs = observe(bench, readings)
     return np.asarray(target.figure(obs), float), obs.leak_rate
 
 
-def error_items(bench: Bench) -> list[tuple[str, str, object]]:
-    """Every error the bench file declares: (label, source, key), key = mount name or plate
-    position ``(arm, index)``; label as reported, e.g. ``analyzer repeatability``."""
-    items: list[tuple[str, str, object]] = []
+class ErrorItem(NamedTuple):
+    """One error the bench file declares, labelled as reported (e.g. ``analyzer
+    repeatability``). ``source``: ``repeatability`` or ``offset`` of the mount ``key``, or
+    ``retardance`` of the plate at ``key`` = (arm, index)."""
+
+    label: str
+    source: str
+    key: str | PlateKey
+
+
+def error_items(bench: Bench) -> list[ErrorItem]:
+    """Every error the bench file declares, mounts first, then plates."""
+    items: list[ErrorItem] = []
     for name, m in bench.mounts.items():
         if m.repeatability_deg > 0:
-            items.append((f"{name} repeatability", "repeatability", name))
+            items.append(ErrorItem(f"{name} repeatability", "repeatability", name))
         if m.offset_err_deg > 0:
-            items.append((f"{name} offset", "offset", name))
+            items.append(ErrorItem(f"{name} offset", "offset", name))
     for arm, i, e in _plates(bench):
         if e.retardance_tol_waves > 0:
             where = f"{e.mount} plate" if e.mount else f"{arm}[{i}] plate"
-            items.append((f"{where} retardance", "retardance", (arm, i)))
+            items.append(ErrorItem(f"{where} retardance", "retardance", (arm, i)))
     return items
 
 
@@ -147,27 +167,28 @@ def _sample(
     bench: Bench,
     target: Target,
     settings: Mapping[str, float],
-    items: list[tuple[str, str, object]],
+    items: Sequence[ErrorItem],
     samples: int,
     rng: np.random.Generator,
 ) -> tuple[Real, Real]:
+    """Figure and leak rate of ``samples`` fresh draws of the errors ``items``."""
     # mounts without an error stay scalars: their elements are evaluated once, not per sample
     readings: dict[str, Real] = {n: np.asarray(settings[n], float) for n in bench.mounts}
-    shifts: dict[tuple[str, int], Real] = {}
+    shifts: dict[PlateKey, Real] = {}
     for _, source, key in items:
-        if source == "repeatability":
+        if isinstance(key, tuple):
+            arm, i = key
+            tol = getattr(bench, arm)[i].retardance_tol_waves
+            shifts[key] = rng.uniform(-tol, tol, samples)
+        elif source == "repeatability":
             readings[key] = readings[key] + rng.normal(
                 0.0, bench.mounts[key].repeatability_deg, samples
             )
-        elif source == "offset":
+        else:
             # element angle = sense*(reading - offset): an offset error acts as a reading error
             readings[key] = readings[key] - rng.normal(
                 0.0, bench.mounts[key].offset_err_deg, samples
             )
-        else:
-            arm, i = key
-            tol = getattr(bench, arm)[i].retardance_tol_waves
-            shifts[key] = rng.uniform(-tol, tol, samples)
     # evaluated in blocks whose temporaries stay in cache (as aligner.prediction does)
     figure, leak = np.empty(samples), np.empty(samples)
     for start in range(0, samples, BLOCK):
