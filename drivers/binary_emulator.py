@@ -22,11 +22,9 @@ from __future__ import annotations
 
 import os
 import select
-import threading
 import time
 import tty
 from dataclasses import dataclass, replace
-from types import TracebackType
 
 from aligner.errors import InputError
 
@@ -41,6 +39,7 @@ from .adapters.framed import (
     FrameReader,
     Msg,
 )
+from .emulator import Served
 
 __all__ = ["BinaryEmulator"]
 
@@ -77,7 +76,7 @@ class _Flip:
     to: int = 1
 
 
-class BinaryEmulator:
+class BinaryEmulator(Served):
     """A pty-served controller (module docstring); use it as a context manager."""
 
     def __init__(
@@ -113,28 +112,10 @@ class BinaryEmulator:
         self._master, self._slave = os.openpty()
         tty.setraw(self._slave)
         self.port = os.ttyname(self._slave)
-        self._stop = threading.Event()
-        self._thread = threading.Thread(target=self._serve, name="binary-emulator", daemon=True)
+        super().__init__("binary-emulator")
 
-    # -- life cycle --------------------------------------------------------------------------
-
-    def __enter__(self) -> BinaryEmulator:
-        self._thread.start()
-        return self
-
-    def __exit__(
-        self,
-        exc_type: type[BaseException] | None,
-        exc: BaseException | None,
-        tb: TracebackType | None,
-    ) -> None:
-        self.close()
-
-    def close(self) -> None:
-        """Stop serving and close both ends of the pty."""
-        self._stop.set()
-        if self._thread.is_alive():
-            self._thread.join(timeout=5.0)
+    def release(self) -> None:
+        """Close both ends of the pty."""
         self.disconnect()
         if self._slave >= 0:
             os.close(self._slave)

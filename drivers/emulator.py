@@ -35,7 +35,7 @@ import time
 import tty
 from dataclasses import dataclass, field
 from types import TracebackType
-from typing import Any
+from typing import Any, Self
 
 import numpy as np
 
@@ -164,7 +164,42 @@ class _Tcp:
         self.server.close()
 
 
-class Emulator:
+class Served:
+    """The serving thread of an emulator and its context-manager life cycle: ``with`` starts
+    ``_serve`` on a daemon thread, leaving stops it and calls :meth:`release`."""
+
+    def __init__(self, name: str) -> None:
+        self._stop = threading.Event()
+        self._thread = threading.Thread(target=self._serve, name=name, daemon=True)
+
+    def _serve(self) -> None:
+        raise NotImplementedError
+
+    def release(self) -> None:
+        """Close what the emulator holds (its link) once the thread has stopped."""
+        raise NotImplementedError
+
+    def __enter__(self) -> Self:
+        self._thread.start()
+        return self
+
+    def __exit__(
+        self,
+        exc_type: type[BaseException] | None,
+        exc: BaseException | None,
+        tb: TracebackType | None,
+    ) -> None:
+        self.close()
+
+    def close(self) -> None:
+        """Stop serving and release the link."""
+        self._stop.set()
+        if self._thread.is_alive():
+            self._thread.join(timeout=5.0)
+        self.release()
+
+
+class Emulator(Served):
     """An emulated controller of one shape (see the module docstring); a context manager.
 
     ``shape`` names a shape of :data:`~.emulator_shapes.SHAPES` (default ``basic``);
@@ -192,28 +227,9 @@ class Emulator:
         self.device: Shape = SHAPES[shape](self._send_later, self.rng, **options)
         self._link: _Pty | _Tcp = _Tcp() if self.device.transport == "tcp" else _Pty()
         self.port = self._link.port
-        self._stop = threading.Event()
-        self._thread = threading.Thread(target=self._serve, name=f"emulator-{shape}", daemon=True)
+        super().__init__(f"emulator-{shape}")
 
-    # -- life cycle ------------------------------------------------------------------------
-
-    def __enter__(self) -> Emulator:
-        self._thread.start()
-        return self
-
-    def __exit__(
-        self,
-        exc_type: type[BaseException] | None,
-        exc: BaseException | None,
-        tb: TracebackType | None,
-    ) -> None:
-        self.close()
-
-    def close(self) -> None:
-        """Stop the thread and close the link."""
-        self._stop.set()
-        if self._thread.is_alive():
-            self._thread.join(timeout=5.0)
+    def release(self) -> None:
         self._link.close()
 
     # -- the basic shape's state, by its old names -----------------------------------------
