@@ -16,7 +16,7 @@ from collections.abc import Callable
 from concurrent.futures import Future
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, ClassVar
+from typing import TYPE_CHECKING, Any, ClassVar
 
 from textual import on
 from textual.app import App
@@ -26,6 +26,9 @@ from textual.screen import Screen
 from . import keys
 from .backend import DeskBackend
 from .messages import ApplyReadings, ReadingsChanged, RecipeEnded, SweepEnded
+
+if TYPE_CHECKING:
+    from ..run.log import LoggedPoint
 
 __all__ = ["SCREENS", "DeskApp", "ScreenEntry", "make_app"]
 
@@ -89,7 +92,7 @@ class DeskApp(App[int]):
         #: The readings (deg) the bench screen shows and the plan and sweep start from.
         self.readings: dict[str, float] = dict(backend.bench.readings())
         #: The points of the latest sweep (for the working-point plots).
-        self.sweep_points: tuple[Any, ...] = ()
+        self.sweep_points: tuple[LoggedPoint, ...] = ()
         #: The signal that ended the desk, if one did.
         self.signalled: int | None = None
         self._catch_signals = catch_signals

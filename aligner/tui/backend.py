@@ -18,7 +18,9 @@ from collections.abc import Callable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
+
+from numpy.typing import ArrayLike
 
 from ..bench import Bench
 from ..errors import AlignerError, DeviceError, GuardTrip, InputError
@@ -26,10 +28,13 @@ from ..errors import AlignerError, DeviceError, GuardTrip, InputError
 if TYPE_CHECKING:
     from ..planning import Plan
     from ..prediction import Limits, Prediction
+    from ..recipe import Entry, Operator, Recipe, RecipeRunResult
+    from ..run.devices import DeviceChoice, DeviceRecord
     from ..run.log import LoggedPoint, RunLog
     from ..run.schedule import PlannedPoint, Schedule
     from ..run.station import Move, Station
     from ..run.sweep import SweepResult
+    from .messages import PlanRequest
     from .metering import MeterSession
 
 __all__ = ["DeskBackend", "DeviceLine", "MoveResult", "PointHook", "SweepPreview"]
@@ -152,13 +157,15 @@ class DeskBackend:
             }
         )
 
-    def predict(self, readings: Mapping[str, Any]) -> Prediction:
+    def predict(self, readings: Mapping[str, ArrayLike]) -> Prediction:
         """:func:`aligner.prediction.predict` at ``readings`` (deg; arrays broadcast)."""
         from ..prediction import predict
 
         return predict(self.bench, dict(readings))
 
-    def predict_curve(self, readings: Mapping[str, float], imbalance_readings: Any) -> Prediction:
+    def predict_curve(
+        self, readings: Mapping[str, float], imbalance_readings: ArrayLike
+    ) -> Prediction:
         """The prediction along the imbalance mount (an array of its readings, deg), the other
         mounts at ``readings``."""
         return self.predict({**readings, self.bench.imbalance_mount: imbalance_readings})
@@ -175,11 +182,14 @@ class DeskBackend:
 
         return find_null(self.bench, dict(readings))
 
-    def plan(self, readings: Mapping[str, float], **target: Any) -> Plan:
-        """:func:`aligner.planning.plan` for ``target`` on the bench at ``readings`` (deg)."""
+    def plan(self, readings: Mapping[str, float], request: PlanRequest) -> Plan:
+        """:func:`aligner.planning.plan` for ``request`` on the bench at ``readings`` (deg)."""
         from ..planning import plan
 
-        return plan(self.bench_at(readings), **target)
+        r = request
+        return plan(
+            self.bench_at(readings), r.amplification, axis=r.axis, exact=r.exact, branch=r.branch
+        )
 
     def reference_rate(self) -> float | None:
         """The reference channel's expected count rate (counts/s) from the bench file: source
@@ -273,7 +283,7 @@ class DeskBackend:
                 )
             yield self.station(readings)
 
-    def declared(self) -> tuple[Any, ...]:
+    def declared(self) -> tuple[DeviceChoice, ...]:
         """Every device the bench declares (:func:`aligner.run.devices.choose_devices`);
         ``InputError`` when the declarations are incomplete on a bench with real devices."""
         from ..run.devices import choose_devices
@@ -500,7 +510,7 @@ class DeskBackend:
 
     # -- recipes (the recipe screen) -----------------------------------------------------------
 
-    def recipes(self) -> list[Any]:
+    def recipes(self) -> list[Entry]:
         """Bundled and local recipes (:func:`aligner.recipe.catalog`), each with its error if
         it does not load."""
         from ..recipe import catalog
@@ -509,12 +519,12 @@ class DeskBackend:
 
     def run_recipe(
         self,
-        recipe: Any,
-        operator: Any,
+        recipe: Recipe | None,
+        operator: Operator,
         readings: Mapping[str, float],
         *,
         resume_run: int | None = None,
-    ) -> Any:
+    ) -> RecipeRunResult:
         """Run ``recipe`` (or resume recipe run ``resume_run``) on the desk's station with
         ``operator`` (:class:`aligner.recipe.Operator`); blocking, for a worker thread.
         :meth:`request_stop` pauses it at its next safe point. Returns the engine's
@@ -526,6 +536,8 @@ class DeskBackend:
                 return resume_recipe(
                     resume_run, self.bench, operator, db=self.db_path, station=station
                 )
+            if recipe is None:
+                raise InputError("choose a recipe first (or go on with a paused recipe run)")
             return run_recipe(recipe, self.bench, operator, db=self.db_path, station=station)
 
     # -- the run log --------------------------------------------------------------------------
@@ -551,5 +563,5 @@ class DeskBackend:
             self._station = None
 
 
-def _records(station: Station | None) -> tuple[Any, ...]:
+def _records(station: Station | None) -> tuple[DeviceRecord, ...]:
     return station.provenance.devices if station is not None else ()

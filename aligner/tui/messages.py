@@ -9,13 +9,14 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
 
 from textual.message import Message
 
 if TYPE_CHECKING:
     from ..planning import Plan
     from ..prediction import Limits
+    from ..recipe.runner import RecipeRunResult
     from ..run.log import Event, LoggedPoint
     from ..run.sweep import SweepResult
     from .backend import DeviceLine, MoveResult, SweepPreview
@@ -30,6 +31,7 @@ __all__ = [
     "MeterRead",
     "MountsMoved",
     "PlanReady",
+    "PlanRequest",
     "ReadingsChanged",
     "RecipeAsks",
     "RecipeEnded",
@@ -68,13 +70,24 @@ class LimitsReady(Message):
     error: str = ""
 
 
+@dataclass(frozen=True)
+class PlanRequest:
+    """What the plan screen asks the planner for: ``amplification`` on ``axis`` (``re`` or
+    ``im``), the exact pointer response when ``exact``, a chosen ``branch`` or the planner's."""
+
+    amplification: float
+    axis: str
+    exact: bool
+    branch: int | None
+
+
 @dataclass
 class PlanReady(Message):
     """A planner result for ``request`` (the target) with the bench's limits and the curve
     through the planned point, or the engine's message when the target is infeasible or the
     input bad (``error``, with ``limit`` naming what limits it)."""
 
-    request: Mapping[str, Any]
+    request: PlanRequest
     plan: Plan | None = None
     limits: Limits | None = None
     curve: Curve | None = None
@@ -120,7 +133,7 @@ class SweepProgress(Message):
     run_id: int
     done: int
     total: int
-    points: tuple[Any, ...]
+    points: tuple[LoggedPoint, ...]
     events: tuple[Event, ...] = field(default=())
 
     def can_replace(self, message: Message) -> bool:
@@ -192,5 +205,5 @@ class RecipeEnded(Message):
     """The recipe run ended: the engine's ``RecipeRunResult``, or ``error`` when it could not
     start."""
 
-    result: Any = None
+    result: RecipeRunResult | None = None
     error: str = ""

@@ -155,8 +155,8 @@ class BenchScreen(DeskScreen):
         if dict(event.readings) != dict(self.editor.readings):
             return  # stale: the readings moved on while they were worked out
         panel = self.query_one(LimitsPanel)
-        if event.error:
-            panel.failed(event.error)
+        if event.error or event.limits is None:
+            panel.failed(event.error or "no limits were worked out")
             return
         panel.show(event.limits)
         self.query_one(WorkingPoint).show_curve(event.curve, event.limits)

@@ -10,7 +10,8 @@ turn) and reads every state again.
 
 from __future__ import annotations
 
-from typing import Any, ClassVar
+from collections.abc import Sequence
+from typing import TYPE_CHECKING, ClassVar
 
 from rich.table import Table
 from rich.text import Text
@@ -27,6 +28,9 @@ from ..messages import DevicesRead
 from .base import DeskScreen
 from .confirm import Confirm
 
+if TYPE_CHECKING:
+    from ..backend import DeviceLine
+
 __all__ = ["KIND_WORDS", "DevicesScreen", "device_table"]
 
 #: How each kind reads on screen, and its style.
@@ -42,7 +46,7 @@ NOTE = (
 )
 
 
-def device_table(lines: Any) -> Table:
+def device_table(lines: Sequence[DeviceLine]) -> Table:
     """One row per :class:`aligner.tui.backend.DeviceLine`: the device, then its kind, spec,
     state, last error, profile and identity in words that wrap (every text shown as
     written)."""

@@ -3,7 +3,7 @@ selected run (read only; notes, exports and reports are ``aligner log``)."""
 
 from __future__ import annotations
 
-from typing import Any, ClassVar
+from typing import TYPE_CHECKING, ClassVar
 
 from rich.text import Text
 from textual import on
@@ -21,10 +21,13 @@ from ..widgets.points_table import PointsTable
 from ..widgets.run_list import RunList
 from .base import DeskScreen
 
+if TYPE_CHECKING:
+    from ...run.log import Event, LoggedPoint, RunRecord
+
 __all__ = ["LogScreen"]
 
 
-def run_details(record: Any) -> Text:
+def run_details(record: RunRecord) -> Text:
     """What the selected run is: its data label, times with their zone, status and message,
     and what every device was (:func:`aligner.run.report.device_lines`)."""
     from ...run.report import device_lines
@@ -89,8 +92,8 @@ class LogScreen(DeskScreen):
 
     def show_run(self, run_id: int | None) -> None:
         """Show the devices, points, plot and events of run ``run_id`` (nothing when None)."""
-        points: list[Any] = []
-        events: list[Any] = []
+        points: list[LoggedPoint] = []
+        events: list[Event] = []
         title: Text = Text("Points")
         details = Text("no runs yet: sweeps started here or with 'aligner sweep' appear here")
         if run_id is not None:

@@ -10,7 +10,7 @@ moves), and move the mounts to the plan (through the detector guard, after a que
 from __future__ import annotations
 
 import math
-from typing import Any, ClassVar
+from typing import TYPE_CHECKING, ClassVar
 
 from textual import on, work
 from textual.app import ComposeResult
@@ -22,11 +22,15 @@ from textual.worker import get_current_worker
 
 from ...errors import AlignerError, InfeasibleTarget
 from .. import keys
-from ..messages import ApplyReadings, MountsMoved, PlanReady
+from ..messages import ApplyReadings, MountsMoved, PlanReady, PlanRequest
 from ..widgets.plan_result import BranchTable, PlanResult
 from ..widgets.working_point import Curve, Spot, WorkingPoint, curve_readings
 from .base import DeskScreen
 from .confirm import Confirm
+
+if TYPE_CHECKING:
+    from ...planning import Plan
+    from ...prediction import Limits
 
 __all__ = ["PlanScreen"]
 
@@ -60,7 +64,7 @@ def axis_note(readout: str, readout_axis: str, planned_axis: str) -> str:
     )
 
 
-def beyond_limit(target: float, axis: str, lim: Any) -> str:
+def beyond_limit(target: float, axis: str, lim: Limits | None) -> str:
     """A warning when ``target`` lies beyond the bench's combined limit (an
     :class:`aligner.prediction.Limits` for the readout's axis), naming the mechanism."""
     if lim is None or axis != lim.axis or abs(target) <= lim.max_amplification:
@@ -82,7 +86,7 @@ class PlanScreen(DeskScreen):
 
     def __init__(self) -> None:
         super().__init__()
-        self.result: Any = None
+        self.result: Plan | None = None
         self.branch: int | None = None
         self.moving = False
         self._axis_note = ""
@@ -109,7 +113,7 @@ class PlanScreen(DeskScreen):
 
     # -- the request ---------------------------------------------------------------------------
 
-    def target(self) -> dict[str, Any] | None:
+    def target(self) -> PlanRequest | None:
         """The planner request from the form, or None (with a message) when it is not valid."""
         text = self.query_one("#target", Input).value.strip()
         try:
@@ -120,12 +124,12 @@ class PlanScreen(DeskScreen):
         if not math.isfinite(value) or value == 0:
             self.status("target amplification: give a finite number other than 0", error=True)
             return None
-        return {
-            "amplification": value,
-            "axis": str(self.query_one("#axis", Select).value),
-            "exact": self.query_one("#exact", Checkbox).value,
-            "branch": self.branch,
-        }
+        return PlanRequest(
+            amplification=value,
+            axis=str(self.query_one("#axis", Select).value),
+            exact=self.query_one("#exact", Checkbox).value,
+            branch=self.branch,
+        )
 
     @on(Input.Changed, "#target")
     def target_typed(self) -> None:
@@ -163,18 +167,18 @@ class PlanScreen(DeskScreen):
         bench = self.backend.bench
         readings = dict(self.desk.readings)
         self._axis_note = axis_note(
-            bench.coupling.readout, self.backend.predict(readings).axis, request["axis"]
+            bench.coupling.readout, self.backend.predict(readings).axis, request.axis
         )
         self.query_one("#plan-warning", Static).update(self._axis_note)
-        which = f" (branch {request['branch']})" if request["branch"] is not None else ""
+        which = f" (branch {request.branch})" if request.branch is not None else ""
         self.status(
-            f"planning amplification {request['amplification']:g} on axis "
-            f"{request['axis']}{' (exact)' if request['exact'] else ''}{which}…"
+            f"planning amplification {request.amplification:g} on axis "
+            f"{request.axis}{' (exact)' if request.exact else ''}{which}…"
         )
         self.plan_worker(request, readings)
 
     @work(thread=True, exclusive=True, group="plan")
-    def plan_worker(self, request: dict[str, Any], readings: dict[str, float]) -> None:
+    def plan_worker(self, request: PlanRequest, readings: dict[str, float]) -> None:
         """The plan, the bench's limits at the desk's readings and the curve through the
         planned point (in a thread)."""
         try:
@@ -182,7 +186,7 @@ class PlanScreen(DeskScreen):
         except AlignerError:
             lim = None  # the plan says what is wrong
         try:
-            found = self.backend.plan(readings, **request)
+            found = self.backend.plan(readings, request)
             planned = {**readings, **found.quantized.settings}
             grid = curve_readings(
                 self.backend.bench.mounts[self.backend.bench.imbalance_mount],
@@ -205,7 +209,7 @@ class PlanScreen(DeskScreen):
         panel = self.query_one(PlanResult)
         plots = self.query_one(WorkingPoint)
         plots.show_points(current=Spot.of(self.backend.predict(self.desk.readings)))
-        warning = beyond_limit(event.request["amplification"], event.request["axis"], event.limits)
+        warning = beyond_limit(event.request.amplification, event.request.axis, event.limits)
         self.query_one("#plan-warning", Static).update(
             "\n".join(w for w in (warning, self._axis_note) if w)
         )
@@ -251,7 +255,7 @@ class PlanScreen(DeskScreen):
         """Turn the mounts to the planned readings through the detector guard, after a
         question that lists every move."""
         targets = self.planned_readings()
-        if targets is None or self.moving:
+        if targets is None or self.result is None or self.moving:
             return
         moves = "; ".join(f"{name} → {value:.4f}°" for name, value in targets.items())
         kinds = "real" if self.backend.hardware_mounts() else "simulated"

@@ -14,7 +14,7 @@ from textual.containers import Horizontal, Vertical
 from textual.widgets import Input, OptionList, Static
 
 from ...errors import AlignerError
-from ...recipe import Operator, OperatorPause, parse_answer
+from ...recipe import Entry, Operator, OperatorPause, Recipe, Step, StepOutcome, parse_answer
 from ...run.station import shutter_words
 from ...text import clean, safe_text
 from .. import keys
@@ -50,16 +50,16 @@ class DeskOperator(Operator):
     def confirm(self, text: str) -> bool:
         return bool(self._wait("confirm", text))
 
-    def ask(self, step: Any) -> float | None:
+    def ask(self, step: Step) -> float | None:
         a = step.args
         text = f"{a['text']} ({a['unit']}, {a['min']:g} to {a['max']:g})"
         answer = self._wait("prompt", text)
         return None if answer is None else float(answer)
 
-    def step_started(self, step: Any) -> None:
+    def step_started(self, step: Step) -> None:
         self.screen.post_message(RecipeStepState(step.number, "running"))
 
-    def step_ended(self, outcome: Any) -> None:
+    def step_ended(self, outcome: StepOutcome) -> None:
         self.screen.post_message(RecipeStepState(outcome.number, outcome.state, outcome.message))
 
 
@@ -71,8 +71,8 @@ class RecipeScreen(DeskScreen):
 
     def __init__(self) -> None:
         super().__init__()
-        self.entries: list[Any] = []
-        self.chosen: Any = None
+        self.entries: list[Entry] = []
+        self.chosen: Recipe | None = None
         self.running = False
         self.states: dict[int, str] = {}
         self.asking: str = ""
@@ -162,7 +162,11 @@ class RecipeScreen(DeskScreen):
 
     @work(thread=True, exclusive=True, group="recipe")
     def recipe_worker(
-        self, recipe: Any, operator: DeskOperator, readings: dict[str, float], resume: int | None
+        self,
+        recipe: Recipe | None,
+        operator: DeskOperator,
+        readings: dict[str, float],
+        resume: int | None,
     ) -> None:
         try:
             result = self.backend.run_recipe(recipe, operator, readings, resume_run=resume)
@@ -185,8 +189,12 @@ class RecipeScreen(DeskScreen):
             if text.lower() == "stop":
                 answer = None
             else:
-                step = next(s for s in self.chosen.steps if self.states.get(s.number) == "running")
-                answer = parse_answer(step, text)
+                steps = self.chosen.steps if self.chosen else ()
+                running = [s for s in steps if self.states.get(s.number) == "running"]
+                if not running:
+                    self.status("no step of the chosen recipe is waiting for a value", error=True)
+                    return
+                answer = parse_answer(running[0], text)
                 if isinstance(answer, str):
                     self.status(safe_text(answer), error=True)
                     return
@@ -206,9 +214,12 @@ class RecipeScreen(DeskScreen):
     @on(RecipeStepState)
     def step_state(self, event: RecipeStepState) -> None:
         self.states[event.number] = event.state
-        self.query_one(RecipeSteps).show(self.chosen.steps, self.states)
-        step = self.chosen.steps[event.number - 1]
-        head = f"step {event.number} of {len(self.chosen.steps)}: {step.label()}"
+        if self.chosen is None:
+            return
+        steps = self.chosen.steps
+        self.query_one(RecipeSteps).show(steps, self.states)
+        step = steps[event.number - 1]
+        head = f"step {event.number} of {len(steps)}: {step.label()}"
         body = str(step.args.get("text", "")) if event.state == "running" else event.message
         self.current(f"{head}\n{body}")
 
@@ -230,6 +241,8 @@ class RecipeScreen(DeskScreen):
             self.status(f"not started: {safe_text(event.error)}", error=True)
             return
         r = event.result
+        if r is None:
+            return
         if r.status == "complete":
             failed = f"; checks FAILED at steps {', '.join(map(str, r.failed))}" if r.failed else ""
             self.status(

@@ -6,7 +6,8 @@ table alike; the status line adds how many of the planned points are done.
 
 from __future__ import annotations
 
-from typing import Any, ClassVar
+from collections.abc import Sequence
+from typing import TYPE_CHECKING, Any, ClassVar
 
 import numpy as np
 from textual import on, work
@@ -24,6 +25,11 @@ from ..widgets.leak_plot import LeakPlot
 from ..widgets.points_table import PointsTable
 from .base import DeskScreen
 from .confirm import Confirm
+
+if TYPE_CHECKING:
+    from ...run.log import LoggedPoint, RunLog
+    from ...run.schedule import PlannedPoint
+    from ..backend import SweepPreview
 
 __all__ = ["SweepScreen"]
 
@@ -172,7 +178,7 @@ class SweepScreen(DeskScreen):
         self.backend.request_stop()
         self.status("pausing after the point being counted…")
 
-    def begin(self, preview: Any, resume_run: int | None = None) -> None:
+    def begin(self, preview: SweepPreview | None, resume_run: int | None = None) -> None:
         """Run a checked ``preview`` (or resume run ``resume_run``) in a worker thread."""
         self.running = True
         self.paused_run = None
@@ -183,12 +189,12 @@ class SweepScreen(DeskScreen):
 
     @work(thread=True, exclusive=True, group="sweep")
     def sweep_worker(
-        self, preview: Any, readings: dict[str, float], resume_run: int | None
+        self, preview: SweepPreview | None, readings: dict[str, float], resume_run: int | None
     ) -> None:
-        points: list[Any] = []
+        points: list[LoggedPoint] = []
         started: dict[str, int] = {}
 
-        def on_start(run_id: int, plan: Any, log: Any) -> None:
+        def on_start(run_id: int, plan: Sequence[PlannedPoint], log: RunLog) -> None:
             started["run"] = run_id
             points.extend(log.points(run_id))
             target = [
@@ -208,7 +214,7 @@ class SweepScreen(DeskScreen):
                     timeout=10,
                 )
 
-        def on_point(point: Any, done: int, total: int, log: Any) -> None:
+        def on_point(point: LoggedPoint, done: int, total: int, log: RunLog) -> None:
             points.append(point)
             self.post_message(
                 SweepProgress(

@@ -3,12 +3,15 @@
 from __future__ import annotations
 
 from collections.abc import Mapping
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from textual.widgets import DataTable
 
 from ...bench import Bench
 from ..format import deg, literal, num
+
+if TYPE_CHECKING:
+    from ...bench import Element
 
 __all__ = ["BeamPath"]
 
@@ -40,7 +43,7 @@ def _element_rows(bench: Bench) -> list[tuple[str, str | None, float | None, str
     return rows
 
 
-def _detail(element: Any) -> str:
+def _detail(element: Element) -> str:
     if element.type in ("hwp", "qwp", "retarder"):
         return f"{num(element.retardance_waves, 4)} λ"
     if element.type == "polarizer":

@@ -3,12 +3,15 @@
 from __future__ import annotations
 
 from collections.abc import Sequence
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from rich.text import Text
 from textual.widgets import Static
 
 from ...text import clean
+
+if TYPE_CHECKING:
+    from ...run.log import Event
 
 __all__ = ["EventList"]
 
@@ -36,7 +39,7 @@ class EventList(Static):
         self.limit = limit
         self.border_title = "Events"
 
-    def show(self, events: Sequence[Any], extra: str = "") -> None:
+    def show(self, events: Sequence[Event], extra: str = "") -> None:
         """Show the last ``limit`` events, then ``extra`` (an error to state plainly)."""
         text = Text()
         for e in list(events)[-self.limit :]:

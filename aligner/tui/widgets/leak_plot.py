@@ -3,9 +3,12 @@
 from __future__ import annotations
 
 from collections.abc import Sequence
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from textual_plotext import PlotextPlot
+
+if TYPE_CHECKING:
+    from ...run.log import LoggedPoint
 
 __all__ = ["LeakPlot"]
 
@@ -21,7 +24,7 @@ class LeakPlot(PlotextPlot):
     def __init__(self, **kwargs: Any) -> None:
         super().__init__(**kwargs)
         self.border_title = "Leak rate vs imbalance"
-        self._points: tuple[Any, ...] = ()
+        self._points: tuple[LoggedPoint, ...] = ()
         self._curve: tuple[Sequence[float], Sequence[float]] | None = None
 
     def on_mount(self) -> None:
@@ -29,7 +32,9 @@ class LeakPlot(PlotextPlot):
         self._draw()
 
     def show(
-        self, points: Sequence[Any], curve: tuple[Sequence[float], Sequence[float]] | None = None
+        self,
+        points: Sequence[LoggedPoint],
+        curve: tuple[Sequence[float], Sequence[float]] | None = None,
     ) -> None:
         """Plot logged points (``imbalance_deg``, ``leak``, ``leak_lo``, ``leak_hi``,
         ``predicted_leak``) and optionally a prediction ``curve`` (imbalance deg, leak)."""

@@ -2,13 +2,16 @@
 
 from __future__ import annotations
 
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from rich.console import Group
 from rich.table import Table
 from textual.widgets import Static
 
 from ..format import literal, num
+
+if TYPE_CHECKING:
+    from ...prediction import Limits
 
 __all__ = ["LimitsPanel"]
 
@@ -34,7 +37,7 @@ class LimitsPanel(Static):
         self.border_subtitle = ""
         self.update(literal(message, "bold red"))
 
-    def show(self, lim: Any) -> None:
+    def show(self, lim: Limits) -> None:
         """Show an :class:`aligner.prediction.Limits`."""
         self.border_subtitle = ""
         head = Table.grid(padding=(0, 2))

@@ -3,7 +3,7 @@ in :class:`BranchTable`, where the operator picks one)."""
 
 from __future__ import annotations
 
-from typing import Any, ClassVar
+from typing import TYPE_CHECKING, Any, ClassVar
 
 from rich.console import Group
 from rich.table import Table
@@ -12,6 +12,9 @@ from textual.widgets import DataTable, Static
 
 from ...bench import Bench
 from ..format import literal, num, sci
+
+if TYPE_CHECKING:
+    from ...planning import Plan
 
 __all__ = ["BranchTable", "PlanResult"]
 
@@ -50,7 +53,7 @@ class PlanResult(Static):
             )
         )
 
-    def show(self, plan: Any) -> None:
+    def show(self, plan: Plan) -> None:
         """Settings (rounded to the mounts' steps), sensitivity, tolerance and the planner's
         own summary of ``plan``."""
         q = plan.quantized
@@ -83,7 +86,7 @@ class PlanResult(Static):
         parts += [Text(""), Text("Planner summary", style="bold"), literal(plan.message)]
         self.update(Group(*parts))
 
-    def _sensitivity(self, plan: Any) -> list[Any]:
+    def _sensitivity(self, plan: Plan) -> list[Any]:
         table = _table("mount", "d(value)/d(reading)", "change for 1 %")
         for s in plan.sensitivity:
             change = s.reading_for_1pct_deg
@@ -96,7 +99,7 @@ class PlanResult(Static):
             )
         return [_heading("Sensitivity"), table, Text("")]
 
-    def _tolerance(self, plan: Any) -> list[Any]:
+    def _tolerance(self, plan: Plan) -> list[Any]:
         tol = plan.tolerance
         if tol is None:
             return []
@@ -132,7 +135,7 @@ class BranchTable(DataTable[Any]):
         super().__init__(zebra_stripes=True, cursor_type="row", **kwargs)
         self.border_title = "Branches · ↑/↓ then Enter to plan that branch"
 
-    def show(self, plan: Any) -> None:
+    def show(self, plan: Plan) -> None:
         """List ``plan``'s branches, the cursor on the chosen one."""
         self.clear(columns=True)
         names = list(plan.settings)

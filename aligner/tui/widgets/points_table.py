@@ -3,11 +3,14 @@
 from __future__ import annotations
 
 from collections.abc import Sequence
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from textual.widgets import DataTable
 
 from ..format import interval, literal, num, sci
+
+if TYPE_CHECKING:
+    from ...run.log import LoggedPoint
 
 __all__ = ["PointsTable"]
 
@@ -36,7 +39,7 @@ class PointsTable(DataTable):
         ):
             self.add_column(label, key=key)
 
-    def show(self, points: Sequence[Any]) -> None:
+    def show(self, points: Sequence[LoggedPoint]) -> None:
         """Show ``points``: rows are appended when the list only grew, else rebuilt."""
         if len(points) < self._shown:
             self.clear()

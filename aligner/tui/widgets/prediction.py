@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from rich.text import Text
 from textual.app import ComposeResult
@@ -12,6 +12,9 @@ from textual.widgets import Static
 from ...bench import Bench
 from ...prediction import format_weak_value
 from ..format import literal, num, rate, sci
+
+if TYPE_CHECKING:
+    from ...prediction import Prediction
 
 __all__ = ["PredictionPanel"]
 
@@ -51,7 +54,7 @@ class PredictionPanel(Vertical):
         yield Static(id="prediction-numbers")
         yield Static(id="detector-status", classes="detector-status")
 
-    def show(self, p: Any) -> None:
+    def show(self, p: Prediction) -> None:
         """Show a scalar :class:`aligner.prediction.Prediction`."""
         wv = complex(p.weak_value)
         t = _Grid()
@@ -78,7 +81,7 @@ class PredictionPanel(Vertical):
             self.border_subtitle = subtitle
         self._detector(p)
 
-    def _detector(self, p: Any) -> None:
+    def _detector(self, p: Prediction) -> None:
         d = self.bench.detector
         over, saturated = bool(p.over_safe_rate), bool(p.saturated)
         t = _Grid()

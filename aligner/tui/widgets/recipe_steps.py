@@ -3,12 +3,15 @@
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from rich.text import Text
 from textual.widgets import Static
 
 from ...text import clean
+
+if TYPE_CHECKING:
+    from ...recipe import Step
 
 __all__ = ["RecipeSteps"]
 
@@ -33,7 +36,7 @@ class RecipeSteps(Static):
         super().__init__("", **kwargs)
         self.border_title = "Steps"
 
-    def show(self, steps: Sequence[Any], states: Mapping[int, str]) -> None:
+    def show(self, steps: Sequence[Step], states: Mapping[int, str]) -> None:
         """Show ``steps`` (:class:`aligner.recipe.Step`) with ``states`` by step number,
         from two steps before the latest one that has a state (a small screen shows the
         current step)."""

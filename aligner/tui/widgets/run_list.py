@@ -3,11 +3,14 @@
 from __future__ import annotations
 
 from collections.abc import Sequence
-from typing import Any, ClassVar
+from typing import TYPE_CHECKING, Any, ClassVar
 
 from textual.widgets import DataTable
 
 from ..format import literal, stamp
+
+if TYPE_CHECKING:
+    from ...run.log import RunRecord
 
 __all__ = ["RunList"]
 
@@ -25,7 +28,7 @@ class RunList(DataTable[Any]):
     def on_mount(self) -> None:
         self.add_columns("id", "started", "status", "data", "points", "schedule")
 
-    def show(self, runs: Sequence[Any]) -> None:
+    def show(self, runs: Sequence[RunRecord]) -> None:
         """Show ``runs``, keeping the cursor on the same run when it is still there (else on
         the newest)."""
         keep = self.selected_run()

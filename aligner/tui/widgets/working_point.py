@@ -15,9 +15,10 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
+from numpy.typing import ArrayLike
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.containers import Container
@@ -26,6 +27,10 @@ from textual.widgets import Static
 from textual_plotext import PlotextPlot
 
 from ..format import num, sci
+
+if TYPE_CHECKING:
+    from ...prediction import Limits, Prediction
+    from ...run.log import LoggedPoint
 
 __all__ = ["Curve", "Spot", "WorkingPoint", "curve_readings", "safe_leak"]
 
@@ -59,11 +64,11 @@ class Curve:
     exposure: tuple[float, ...]
 
     @classmethod
-    def of(cls, p: Any) -> Curve:
+    def of(cls, p: Prediction) -> Curve:
         """From an array :class:`aligner.prediction.Prediction`."""
         order = np.argsort(np.asarray(p.imbalance_deg, float))
 
-        def col(values: Any) -> tuple[float, ...]:
+        def col(values: ArrayLike) -> tuple[float, ...]:
             return tuple(np.asarray(values, float)[order].tolist())
 
         return cls(
@@ -84,7 +89,7 @@ class Spot:
     leak: float
 
     @classmethod
-    def of(cls, p: Any) -> Spot:
+    def of(cls, p: Prediction) -> Spot:
         """From a scalar :class:`aligner.prediction.Prediction`."""
         return cls(float(p.imbalance_deg), float(p.amplification_exact), float(p.leak_rate))
 
@@ -196,10 +201,11 @@ def _leak(plt: Any, view: WorkingPoint) -> None:
                 [p.imbalance_deg, p.imbalance_deg], _log([p.leak_lo, p.leak_hi]), color=MEASURED
             )
     if measured:
-        ys += _log([p.leak for p in measured])
+        leaks = [p.leak for p in measured if p.leak is not None]  # all of them (filtered above)
+        ys += _log(leaks)
         plt.scatter(
             [p.imbalance_deg for p in measured],
-            _log([p.leak for p in measured]),
+            _log(leaks),
             marker="+",
             color=MEASURED,
             label="measured",
@@ -224,10 +230,10 @@ class WorkingPoint(Container):
         super().__init__(**kwargs)
         self.safe_rate = safe_rate
         self.curve: Curve | None = None
-        self.limits: Any = None
+        self.limits: Limits | None = None
         self.current: Spot | None = None
         self.planned: Spot | None = None
-        self.measured: tuple[Any, ...] = ()
+        self.measured: tuple[LoggedPoint, ...] = ()
         self._timer: Timer | None = None
 
     def compose(self) -> ComposeResult:
@@ -239,7 +245,7 @@ class WorkingPoint(Container):
     def on_mount(self) -> None:
         self._draw()
 
-    def show_curve(self, curve: Curve | None, limits: Any = None) -> None:
+    def show_curve(self, curve: Curve | None, limits: Limits | None = None) -> None:
         """A new prediction curve and the limits (None: unknown)."""
         self.curve, self.limits = curve, limits
         self._soon()
@@ -249,7 +255,7 @@ class WorkingPoint(Container):
         *,
         current: Spot | None = None,
         planned: Spot | None = None,
-        measured: Sequence[Any] | None = None,
+        measured: Sequence[LoggedPoint] | None = None,
     ) -> None:
         """Move the marked points (arguments left out are kept); ``measured`` are logged
         points of a sweep (``imbalance_deg``, ``leak``, ``leak_lo``, ``leak_hi``)."""
