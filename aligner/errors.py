@@ -31,7 +31,7 @@ driver layer catches ``serial.SerialException`` or ``OSError`` from a device.
 Exit status of every command (:data:`EXIT_STATUS`): 0 success; 1 an internal error (a bug:
 please report it); 2 bad input or an infeasible request; 3 a device fault, a detector-guard
 stop or a run log that cannot be written; 130 Ctrl-C; 128 + N another signal N (SIGTERM 143,
-SIGHUP 129). A run that stops for any reason has its shutter shut and can be resumed.
+SIGHUP 129; a closed output pipe 141). A run that stops for any reason has its shutter shut and can be resumed.
 """
 
 from __future__ import annotations
@@ -50,6 +50,7 @@ __all__ = [
     "GuardTrip",
     "InfeasibleTarget",
     "InputError",
+    "OutputClosed",
     "ParameterError",
     "ReadbackMismatch",
     "RecipeError",
@@ -66,7 +67,7 @@ EXIT_STATUS = {
     2: "bad input, or a request the bench cannot meet",
     3: "device fault, detector-guard stop or run log not writable (the run is resumable)",
     130: "Ctrl-C (the run is resumable)",
-    143: "SIGTERM; 129 SIGHUP (the run is resumable)",
+    143: "SIGTERM; 129 SIGHUP; 141 a closed output pipe (the run is resumable)",
 }
 
 
@@ -201,6 +202,23 @@ class SignalInterrupt(KeyboardInterrupt):
         super().__init__(f"signal {signum}")
 
     @property
+    def cause(self) -> str:
+        """What stopped the command, in words."""
+        return f"signal {self.signum}"
+
+    @property
     def exit_code(self) -> int:
         """128 + the signal number (the shell's convention)."""
         return 128 + self.signum
+
+
+class OutputClosed(SignalInterrupt):
+    """The reader of the command's output went away (``aligner sweep ... | head``): stop as
+    for SIGPIPE (exit status 141), the shutter shut and the run resumable."""
+
+    def __init__(self) -> None:
+        super().__init__(13)  # SIGPIPE on every POSIX system
+
+    @property
+    def cause(self) -> str:
+        return "a closed output pipe"

@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import signal
 import sys
 from collections.abc import Iterator, Sequence
@@ -109,12 +110,13 @@ def main(argv: Sequence[str] | None = None) -> int:
         print(f"aligner {args.command}: {exc}", file=sys.stderr)
         return exc.exit_code
     except SignalInterrupt as exc:
-        print(f"aligner {args.command}: stopped by signal {exc.signum}.", file=sys.stderr)
+        print(f"aligner {args.command}: stopped by {exc.cause}.", file=sys.stderr)
         return exc.exit_code
     except KeyboardInterrupt:
         print(f"aligner {args.command}: interrupted.", file=sys.stderr)
         return 130
-    except BrokenPipeError:
+    except BrokenPipeError:  # the reader of plain output went away: nothing more to say
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return 0
     except Exception as exc:  # a bug: say so in one line, keep the traceback for --debug
         if args.debug:

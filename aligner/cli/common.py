@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import json
 import math
+import os
 import sys
 from collections.abc import Callable, Mapping
 from typing import Any, NoReturn
@@ -183,7 +184,18 @@ def console(*, stderr: bool = False) -> Any:
     devices may contain ``:name:``), long lines kept whole."""
     from rich.console import Console
 
-    return Console(stderr=stderr, highlight=False, emoji=False, soft_wrap=True)
+    class _Console(Console):
+        def on_broken_pipe(self) -> None:
+            """The reader went away: later output goes nowhere, and the command stops as for
+            SIGPIPE (a running sweep secures the bench and stays resumable)."""
+            from ..errors import OutputClosed
+
+            self.quiet = True
+            devnull = os.open(os.devnull, os.O_WRONLY)
+            os.dup2(devnull, (sys.stderr if stderr else sys.stdout).fileno())
+            raise OutputClosed
+
+    return _Console(stderr=stderr, highlight=False, emoji=False, soft_wrap=True)
 
 
 def add_json_flag(parser: argparse.ArgumentParser) -> None:

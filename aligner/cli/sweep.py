@@ -215,7 +215,8 @@ class _Progress:
             return
         kinds = ", ".join(sorted(self.station.provenance.kinds))
         self.console.print(
-            f"run {run_id}: {len(plan)} points on {safe_text(self.station.bench.name or '')}, "
+            f"run {run_id}: {len(plan)} point{'s' if len(plan) != 1 else ''} on "
+            f"{safe_text(self.station.bench.name or '')}, "
             f"devices: {kinds}, log {safe_text(str(self.log.path))}"
         )
         done = len(self.log.done_indices(run_id))

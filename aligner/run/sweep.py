@@ -330,15 +330,18 @@ class _Sweep:
 
         shut = st.secure()
         kind = "guard" if reason == "guard" else "pause"
+        # every point logged (the stop came while the last one was being reported): the run
+        # is complete, and still says what stopped the command
+        status = "complete" if self.done == len(self.plan) else "interrupted"
         events = [*st.take_events(), Event(kind, f"{message}; {shutter_words(shut)}")]
         try:
             self.log.add_events(self.run_id, events)
-            self.log.set_status(self.run_id, "interrupted", f"{message}; {shutter_words(shut)}")
+            self.log.set_status(self.run_id, status, f"{message}; {shutter_words(shut)}")
         except (StorageError, sqlite3.Error, OSError) as exc:
             message += f" (the run log could not record this: {exc})"
         return SweepResult(
             self.run_id,
-            "interrupted",
+            status,
             self.done,
             len(self.plan),
             message,
@@ -367,7 +370,7 @@ class _Sweep:
                     self.on_point(point, self.done, len(self.plan))
             shut = st.secure()
         except SignalInterrupt as exc:
-            return self.pause(f"stopped by signal {exc.signum}", "interrupt", exc.signum)
+            return self.pause(f"stopped by {exc.cause}", "interrupt", exc.signum)
         except KeyboardInterrupt:
             return self.pause("interrupted by the operator (Ctrl-C)", "interrupt", 2)
         except GuardTrip as exc:
