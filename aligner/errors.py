@@ -31,7 +31,8 @@ driver layer catches ``serial.SerialException`` or ``OSError`` from a device.
 Exit status of every command (:data:`EXIT_STATUS`): 0 success; 1 an internal error (a bug:
 please report it); 2 bad input or an infeasible request; 3 a device fault, a detector-guard
 stop or a run log that cannot be written; 130 Ctrl-C; 128 + N another signal N (SIGTERM 143,
-SIGHUP 129; a closed output pipe 141). A run that stops for any reason has its shutter shut and can be resumed.
+SIGHUP 129; a closed output pipe 141). A run that stops for any reason has its shutter
+shut and can be resumed.
 """
 
 from __future__ import annotations
