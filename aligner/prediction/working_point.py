@@ -99,16 +99,24 @@ def best_snr_imbalance(bench: Bench, readings: Mapping[str, float] | None = None
         merit = np.where(allowed, merit, -1.0) if feasible else merit
         i = pick_best(x, merit, null, r[name])
         best[key] = _refine(x, np.asarray(p.imbalance_deg), merit, i)
-    i = pick_best(
-        x,
-        np.where(allowed, p.snr_per_sqrt_s, -1.0) if feasible else p.snr_per_sqrt_s,
-        null,
-        r[name],
-    )
+    # the working point is the refined centroid best where the detector allows it there too
+    # (one number in the table and the sentence), else the best scanned point
+    c = best["centroid"]
+    at = predict(bench, {**r, name: c.reading_deg})
+    if not feasible or at.saturated or at.over_safe_rate:
+        i = pick_best(
+            x,
+            np.where(allowed, p.snr_per_sqrt_s, -1.0) if feasible else p.snr_per_sqrt_s,
+            null,
+            r[name],
+        )
+        at = predict(bench, {**r, name: float(x[i])})
+        best["centroid"] = Best(float(at.imbalance_deg), float(x[i]), float(at.snr_per_sqrt_s))
+    c = best["centroid"]
     standard = standard_snr_per_sqrt_s(bench, r)
     limited = standard_snr_per_sqrt_s(bench, r, within_limits=True)
     information_standard = standard_information_snr(bench, r)
-    snr = float(p.snr_per_sqrt_s[i])
+    snr = float(at.snr_per_sqrt_s)
 
     def ratio(value: float, x: float) -> float:
         return value / x if x > 0 else INF
@@ -116,8 +124,8 @@ def best_snr_imbalance(bench: Bench, readings: Mapping[str, float] | None = None
     if feasible:
         fisher = best["information"]
         message = (
-            f"Best SNR {snr:.4g}/sqrt(s) at an imbalance of {p.imbalance_deg[i]:.4g} deg "
-            f"({name} at {x[i]:.4f} deg), {ratio(snr, limited):.3g} times the standard "
+            f"Best SNR {snr:.4g}/sqrt(s) at an imbalance of {c.imbalance_deg:.4g} deg "
+            f"({name} at {c.reading_deg:.4f} deg), {ratio(snr, limited):.3g} times the standard "
             f"measurement kept within the detector's limits and {ratio(snr, standard):.3g} "
             f"times it with the detector overexposed. The Cramer-Rao bound of the "
             f"post-selected events is best at {fisher.imbalance_deg:.4g} deg "
@@ -131,12 +139,12 @@ def best_snr_imbalance(bench: Bench, readings: Mapping[str, float] | None = None
         )
     return SnrChoice(
         feasible,
-        float(x[i]),
-        float(p.imbalance_deg[i]),
+        c.reading_deg,
+        c.imbalance_deg,
         snr,
-        float(p.amplification_exact[i]),
-        float(p.leak_rate[i]),
-        float(p.detector_rate[i]),
+        float(at.amplification_exact),
+        float(at.leak_rate),
+        float(at.detector_rate),
         standard,
         limited,
         ratio(snr, standard),
