@@ -138,9 +138,12 @@ def run(args: argparse.Namespace) -> int:
     bench.detector.require_safe_rate(bench.path)
     schedule = None
     if args.schedule is not None:
+        from ..run.schedule import plan_points
+
         schedule = parse_schedule(
             args.schedule, repeats=args.repeats, dwell_s=args.dwell, settle_s=args.settle
         )
+        planned = plan_points(bench, schedule)  # a target the bench cannot reach stops here
     make_console(stderr=True).print(SAFETY, style="yellow")
     if schedule is not None:
         from ..run.sweep import plan_warnings
@@ -161,7 +164,7 @@ def run(args: argparse.Namespace) -> int:
         with progress:
             if schedule is not None:
                 result = station.start_sweep(
-                    log, schedule, on_start=progress.start, on_point=progress.point
+                    log, schedule, plan=planned, on_start=progress.start, on_point=progress.point
                 )
             else:
                 result = station.resume_sweep(

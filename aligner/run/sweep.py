@@ -261,10 +261,13 @@ def plan_warnings(bench: Bench, schedule: Schedule) -> tuple[str, ...]:
     beyond = sorted({t for t in schedule.targets if t > lim.max_amplification})
     if not beyond:
         return ()
-    targets = ", ".join(f"{t:.4g}" for t in beyond)
+    why = beyond_limit(bench, lim, beyond[-1]).rstrip().rstrip(".")
+    others = ", ".join(f"{t:.4g}" for t in beyond[:-1])
+    also = f" So {'does' if len(beyond) == 2 else 'do'} {others}." if others else ""
+    them = "them" if others else "it"
     return (
-        f"targets {targets} of {schedule.spec}: {beyond_limit(bench, lim, beyond[-1])} The "
-        "sweep measures them, but their shift per unit coupling stays below the limit.",
+        f"{schedule.spec}: {why}.{also} The sweep measures {them}, but the shift per unit "
+        "coupling stays below the limit.",
     )
 
 

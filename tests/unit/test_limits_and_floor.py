@@ -98,8 +98,11 @@ def test_photon_rate_advice_lifts_the_dark_count_limit():
 def test_sweep_names_targets_beyond_the_limit_before_it_starts():
     bench = load_bench("demo")
     beyond = plan_warnings(bench, parse_schedule("amplification:20:80:3"))
-    assert len(beyond) == 1 and "targets 80 of amplification:20:80:3" in beyond[0]
+    assert len(beyond) == 1 and beyond[0].startswith("amplification:20:80:3: ")
+    assert "an amplification of 80 lies beyond" in beyond[0] and "measures it," in beyond[0]
     assert "dark counts" in beyond[0]
+    two = plan_warnings(bench, parse_schedule("amplification:55:80:2"))[0]
+    assert "of 80 lies beyond" in two and "So does 55." in two and "measures them," in two
     assert plan_warnings(bench, parse_schedule("amplification:5:40:4")) == ()
     assert plan_warnings(bench, parse_schedule("linear:0.2:2.0:4")) == ()
 
