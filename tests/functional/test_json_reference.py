@@ -34,7 +34,7 @@ from aligner.run.station import Station
 
 DOC = Path(__file__).resolve().parents[2] / "docs" / "json.md"
 
-Path_ = tuple[str, ...]
+KeyPath = tuple[str, ...]
 
 _HEADING = re.compile(r"^### (.+?)\s*$")
 _ROW = re.compile(r"^\|\s*`([^`]+)`\s*\|([^|]*)\|")
@@ -42,7 +42,7 @@ _SHARED = re.compile(r"^\{([a-z ]+)\}$")
 _REFERENCE = re.compile(r"\{([a-z ]+)\}")
 
 
-def _segments(key: str) -> Path_:
+def _segments(key: str) -> KeyPath:
     """``runs[].bench_name`` -> ``("runs", "[]", "bench_name")``."""
     out: list[str] = []
     for part in key.split("."):
@@ -70,9 +70,11 @@ def parse_doc(text: str) -> dict[str, list[tuple[str, str]]]:
     return sections
 
 
-def expand(sections: dict[str, list[tuple[str, str]]], name: str, prefix: Path_ = ()) -> set[Path_]:
+def expand(
+    sections: dict[str, list[tuple[str, str]]], name: str, prefix: KeyPath = ()
+) -> set[KeyPath]:
     """The documented paths of a section, shared objects (``{name}``) expanded."""
-    out: set[Path_] = set()
+    out: set[KeyPath] = set()
     for key, kind in sections[name]:
         whole = _SHARED.match(key)
         if whole:  # the shared object's keys at this level
@@ -85,9 +87,9 @@ def expand(sections: dict[str, list[tuple[str, str]]], name: str, prefix: Path_ 
     return out
 
 
-def flatten(doc: Any, prefix: Path_ = ()) -> set[Path_]:
+def flatten(doc: Any, prefix: KeyPath = ()) -> set[KeyPath]:
     """Every path of a JSON document, containers included; an empty array still has ``[]``."""
-    out: set[Path_] = {prefix} if prefix else set()
+    out: set[KeyPath] = {prefix} if prefix else set()
     if isinstance(doc, dict):
         for key, value in doc.items():
             out |= flatten(value, (*prefix, key))
@@ -98,14 +100,14 @@ def flatten(doc: Any, prefix: Path_ = ()) -> set[Path_]:
     return out
 
 
-def matches(pattern: Path_, path: Path_) -> bool:
+def matches(pattern: KeyPath, path: KeyPath) -> bool:
     """``*`` stands for one key (a name), never for ``[]``."""
     return len(pattern) == len(path) and all(
         p == q or (p == "*" and q != "[]") for p, q in zip(pattern, path, strict=True)
     )
 
 
-def _with_prefixes(paths: set[Path_]) -> set[Path_]:
+def _with_prefixes(paths: set[KeyPath]) -> set[KeyPath]:
     return {p[:i] for p in paths for i in range(1, len(p) + 1)}
 
 
@@ -258,9 +260,9 @@ def _documents(tmp: Path) -> Iterator[tuple[str, Any]]:
 
 
 @pytest.fixture(scope="module")
-def emitted(tmp_path_factory: pytest.TempPathFactory) -> dict[str, set[Path_]]:
+def emitted(tmp_path_factory: pytest.TempPathFactory) -> dict[str, set[KeyPath]]:
     """Section heading -> every path its scenarios printed."""
-    out: dict[str, set[Path_]] = {}
+    out: dict[str, set[KeyPath]] = {}
     for section, doc in _documents(tmp_path_factory.mktemp("json")):
         out.setdefault(section, set()).update(flatten(doc))
     return out
@@ -276,7 +278,7 @@ def _commands(sections: dict[str, list[tuple[str, str]]]) -> list[str]:
 
 
 def test_every_documented_key_is_printed_and_every_printed_key_documented(
-    sections: dict[str, list[tuple[str, str]]], emitted: dict[str, set[Path_]]
+    sections: dict[str, list[tuple[str, str]]], emitted: dict[str, set[KeyPath]]
 ) -> None:
     assert set(_commands(sections)) == set(emitted), "a command section without a run, or back"
     problems = []
