@@ -200,7 +200,9 @@ def console(*, stderr: bool = False) -> Any:
 
 def add_json_flag(parser: argparse.ArgumentParser) -> None:
     """``--json``: print one JSON document on stdout instead of the readable table."""
-    parser.add_argument("--json", action="store_true", help="print machine-readable JSON")
+    parser.add_argument(
+        "--json", action="store_true", help="print one JSON document (every key: docs/json.md)"
+    )
 
 
 def add_set_argument(parser: argparse.ArgumentParser) -> None:

@@ -45,7 +45,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         action="store_true",
         help="print one JSON document: symbols (meaning, latex, value), "
         "angles, offsets, null_deg, expressions (each as text in sympy "
-        "syntax and as latex; null without a series) and notes",
+        "syntax and as latex; null without a series) and notes; every key in docs/json.md",
     )
     parser.set_defaults(handler=run)
 

@@ -215,7 +215,7 @@ def _rows(kind: str, doc: dict[str, Any]) -> list[tuple[str, str]]:
         rows.append(("fitted - bench file", format_sigma(doc["bench_difference_sigma"])))
     gof = doc["goodness_of_fit"]
     rows += [
-        ("points", str(doc["points"])),
+        ("points", str(doc["points_fitted"])),
         (
             "deviance / degrees of freedom",
             f"{gof['deviance']:.1f} / {gof['dof']} (p = {gof['p_value']:.3g})",
@@ -266,7 +266,7 @@ def run(args: argparse.Namespace) -> int:
         result = fit_leak_curve(bench, scan, args.mount, **options)
     doc = result.to_json()
     doc["mount_basis"] = mount_statement(bench, scan, args.mount, result.mount)
-    doc["bench"] = bench_words
+    doc["bench_used"] = bench_words
     updates = result.bench_updates()
     if args.write:
         ensure_writable(bench.path)  # before any work: the demo bench is not written to
@@ -284,9 +284,9 @@ def run(args: argparse.Namespace) -> int:
         doc["mount_basis"],
         doc.get("ambiguity", ""),
         doc.get("statement", ""),
-        doc.get("reference", ""),
+        doc.get("reference_text", ""),
         getattr(result, "bench_comparison", ""),
-        f"verdict: {doc['verdict']}" if doc.get("verdict") else "",
+        f"verdict: {doc['verdict']['text']}" if doc.get("verdict") else "",
         "" if result.fit.success else f"the fit failed: {result.fit.message}",
     ]
     if written:

@@ -13,6 +13,7 @@ units, with the difference in standard deviations.
 from __future__ import annotations
 
 import argparse
+from dataclasses import asdict, dataclass
 from typing import Any
 
 from .common import add_json_flag, add_set_argument, number
@@ -264,10 +265,8 @@ def run(args: argparse.Namespace) -> int:
         )
     except ParameterError as exc:
         raise InputError(f"{FLAGS.get(exc.parameter, exc.parameter)} {exc.problem}") from None
-    doc = m.to_json()
-    doc["bench"] = None if bench is None else str(bench.path or args.bench)
     if args.json:
-        emit_json(doc)
+        emit_json({**m.to_json(), "bench_path": _bench_path(bench, args)})
         return 0
     from .fit import print_table
 
@@ -341,12 +340,46 @@ def _rows(m: Any) -> list[tuple[str, str]]:
     return rows
 
 
+def _bench_path(bench: Any, args: argparse.Namespace) -> str | None:
+    """The bench file the numbers used (None without ``--bench``)."""
+    return None if bench is None else str(bench.path or args.bench)
+
+
+@dataclass(frozen=True)
+class HeraldedLeakResult:
+    """The leak per heralded photon from coincidences among heralds: ``leak`` with its
+    interval ``leak_low``..``leak_high`` at ``level``, the accidental coincidence probability
+    per herald removed, ``|A_w|`` from it, the prediction and the bench file used (None
+    without ``--bench``)."""
+
+    coincidences: int
+    heralds: int
+    accidental_probability: float
+    leak: float
+    leak_low: float
+    leak_high: float
+    level: float
+    predicted_leak: float | None
+    bench_path: str | None
+
+    @property
+    def weak_value_abs(self) -> float:
+        """``|A_w|`` from the leak (pure states, ``A^2 = 1``)."""
+        from ..physics.heralded import weak_value_from_leak
+
+        return float(weak_value_from_leak(self.leak))
+
+    def to_json(self) -> dict[str, Any]:
+        """The JSON document of ``aligner leak --coincidences ... --json`` (docs/json.md)."""
+        return {**asdict(self), "weak_value_abs": self.weak_value_abs}
+
+
 def _heralded(args: argparse.Namespace) -> int:
     """The leak per heralded photon from coincidences among heralds
     (:func:`aligner.physics.heralded.heralded_leak`: Clopper-Pearson on the coincidences per
     herald, the accidental share removed), the weak value it gives, and the prediction."""
     from ..errors import InputError
-    from ..physics.heralded import accidental_probability, heralded_leak, weak_value_from_leak
+    from ..physics.heralded import accidental_probability, heralded_leak
     from .common import emit_json, parse_settings
     from .fit import print_table
 
@@ -387,28 +420,26 @@ def _heralded(args: argparse.Namespace) -> int:
     m = heralded_leak(
         args.coincidences, args.heralds, accidental, args.heralding_efficiency, args.level
     )
-    leak, low, high = float(m.leak), float(m.low), float(m.high)
-    doc = {
-        "coincidences": args.coincidences,
-        "heralds": args.heralds,
-        "accidental_probability": accidental,
-        "leak": leak,
-        "leak_low": low,
-        "leak_high": high,
-        "level": args.level,
-        "weak_value_abs": float(weak_value_from_leak(leak)),
-        "predicted_leak": predicted,
-        "bench": None if bench is None else str(bench.path or args.bench),
-    }
+    h = HeraldedLeakResult(
+        coincidences=args.coincidences,
+        heralds=args.heralds,
+        accidental_probability=accidental,
+        leak=float(m.leak),
+        leak_low=float(m.low),
+        leak_high=float(m.high),
+        level=args.level,
+        predicted_leak=predicted,
+        bench_path=_bench_path(bench, args),
+    )
     if args.json:
-        emit_json(doc)
+        emit_json(h.to_json())
         return 0
     rows = [
         ("coincidences per herald", f"{args.coincidences / args.heralds:.4g}"),
         ("accidental per herald", f"{accidental:.3g}"),
-        ("leak per heralded photon", f"{leak:.4g}"),
-        (f"{args.level:.1%} interval", f"{low:.4g} to {high:.4g}"),
-        ("|weak value| (pure states, A^2 = 1)", f"{doc['weak_value_abs']:.4g}"),
+        ("leak per heralded photon", f"{h.leak:.4g}"),
+        (f"{args.level:.1%} interval", f"{h.leak_low:.4g} to {h.leak_high:.4g}"),
+        ("|weak value| (pure states, A^2 = 1)", f"{h.weak_value_abs:.4g}"),
     ]
     if predicted is not None:
         rows.append(("predicted leak", f"{predicted:.4g}"))

@@ -64,7 +64,7 @@ def _show_recipe(console: Any, log: Any, run_id: int, as_json: bool) -> None:
         emit_json(
             {
                 **record.to_json(),
-                "recipe": {"name": recipe.name, "path": recipe.path, "steps": recipe.steps},
+                **recipe.to_json(),
                 "provenance": record.provenance,
                 "steps": [row.outcome for row in steps],
                 "events": [e.to_json() for e in events],
@@ -183,16 +183,7 @@ def run(args: argparse.Namespace) -> int:
                     overwrite=args.force,
                 )
             if args.json:
-                emit_json(
-                    {
-                        "run": record.id,
-                        "data": record.data_label,
-                        "markdown": str(report.markdown),
-                        "plot": None if report.plot is None else str(report.plot),
-                        "note": report.note,
-                        "result": None if report.result is None else report.result.to_json(),
-                    }
-                )
+                emit_json({"run": record.id, "data": record.data_label, **report.to_json()})
                 return 0
             console.print(
                 safe_text(

@@ -83,9 +83,10 @@ def register(sub: argparse._SubParsersAction) -> None:
         "--json",
         action="store_true",
         help="print one JSON document on stdout (keys: target, unknowns, "
-        "settings, chosen, branches with equivalent_readings, quantized, "
-        "predict, sensitivity, tolerance, warnings, message); on an error "
-        "stdout stays empty, the message goes to stderr, exit status 2",
+        "readings, chosen, branches with equivalent_readings, quantized, "
+        "predict, sensitivity, tolerance, warnings, message; every key in "
+        "docs/json.md); on an error stdout stays empty, the message goes to "
+        "stderr, exit status 2",
     )
     parser.add_argument(
         "--write",

@@ -160,7 +160,7 @@ def _print_tables(
     rows = [
         ("imbalance", f"{block['imbalance_deg']:.5g}", "deg"),
         ("weak value A_w", format_weak_value(complex(wv["re"], wv["im"])), ""),
-        ("leak rate", f"{block['leak_rate']:.5g}", "per source photon"),
+        ("leak rate", f"{block['leak']:.5g}", "per source photon"),
         (f"amplification, linear ({axis})", f"{block['amplification']['linear']:.5g}", ""),
         ("amplification, exact", f"{block['amplification']['exact']:.5g}", ""),
         *_pointer_rows(bench, block, diluted),

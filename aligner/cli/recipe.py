@@ -150,10 +150,13 @@ class TerminalOperator(Operator):
             self.say(f"  {answer}")
 
     def _input(self, question: str) -> str:
+        """The operator's answer; the question goes to ``out`` like every other line (stderr
+        with ``--json``, so stdout holds the JSON document alone)."""
         from ..text import clean
 
+        print(clean(question), end="", file=self.out, flush=True)
         try:
-            return input(clean(question))
+            return input()
         except EOFError:
             return ""
 

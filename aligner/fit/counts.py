@@ -269,22 +269,21 @@ class LeakMeasurement:
         return self.leak_verdict or self.rate_verdict
 
     def to_json(self) -> dict[str, Any]:
-        """The JSON document of ``aligner leak --json``: every field, the two verdicts as
-        objects, and the leading verdict's ``residual_sigma``, ``verdict`` and ``status``."""
+        """The JSON document of ``aligner leak --json`` (docs/json.md): every field, the
+        reference in words as ``reference_text`` (``reference`` is a count elsewhere), the
+        predicted signal rate as ``predicted_signal_rate``, and the verdicts as objects (the
+        leading one again as ``verdict``; null where there is none)."""
+        renamed = {"reference": "reference_text", "predicted_rate": "predicted_signal_rate"}
         doc: dict[str, Any] = {
-            name: getattr(self, name)
+            renamed.get(name, name): getattr(self, name)
             for name in self.__dataclass_fields__
             if name not in ("rate_verdict", "leak_verdict", "notes", "warnings")
         }
         doc["notes"] = list(self.notes)
         doc["warnings"] = list(self.warnings)
-        for name in ("rate_verdict", "leak_verdict"):
+        for name in ("rate_verdict", "leak_verdict", "verdict"):
             v = getattr(self, name)
             doc[name] = None if v is None else v.to_json()
-        if self.verdict is not None:
-            doc["residual_sigma"] = self.verdict.residual_sigma
-            doc["verdict"] = self.verdict.text
-            doc["status"] = self.verdict.status
         return doc
 
 

@@ -76,9 +76,8 @@ class LeakFit:
             "leak_floor_err": self.leak_floor_err,
             "implied_extinction": self.implied_extinction,
             "predicted_floor": self.predicted_floor,
-            "residual_sigma": self.verdict.residual_sigma,
-            "verdict": self.verdict.text,
-            "reference": self.reference,
+            "verdict": self.verdict.to_json(),
+            "reference_text": self.reference,
             **self.fit.summary(),
         }
 

@@ -34,7 +34,15 @@ from typing import Protocol
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-__all__ = ["GOF_P_MIN", "FitResult", "Gaussian", "Poisson", "PoissonPair", "maximize_likelihood"]
+__all__ = [
+    "GOF_P_MIN",
+    "FitResult",
+    "Gaussian",
+    "Poisson",
+    "PoissonPair",
+    "goodness_of_fit",
+    "maximize_likelihood",
+]
 
 Real = NDArray[np.float64]
 Model = Callable[[Real], Real]
@@ -234,23 +242,29 @@ class FitResult:
 
     def summary(self) -> dict[str, object]:
         """The keys every fit's JSON shares: ``success``, ``message``, ``optimizer_message``,
-        ``goodness_of_fit`` and ``points``."""
+        ``goodness_of_fit`` and ``points_fitted`` (a count: ``points`` is always a list)."""
         return {
             "success": self.success,
             "message": self.message,
             "optimizer_message": self.optimizer_message,
             "goodness_of_fit": self.goodness(),
-            "points": self.n_points,
+            "points_fitted": self.n_points,
         }
 
     def goodness(self) -> dict[str, float | int]:
         """Goodness of fit as plain numbers (for JSON)."""
-        return {
-            "deviance": self.deviance,
-            "dof": self.dof,
-            "p_value": self.p_value,
-            "reduced": self.deviance / self.dof if self.dof > 0 else math.nan,
-        }
+        return goodness_of_fit(self.deviance, self.dof, self.p_value)
+
+
+def goodness_of_fit(deviance: float, dof: int, p_value: float) -> dict[str, float | int]:
+    """The ``goodness_of_fit`` object of every fit's JSON: ``deviance`` for ``dof`` degrees of
+    freedom, its tail probability ``p_value`` and ``reduced`` = deviance / dof (NaN at 0)."""
+    return {
+        "deviance": deviance,
+        "dof": dof,
+        "p_value": p_value,
+        "reduced": deviance / dof if dof > 0 else math.nan,
+    }
 
 
 def _stencil(theta: Real, steps: Real) -> Real:

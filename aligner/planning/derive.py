@@ -179,9 +179,9 @@ class Derivation:
             ("weak_value", self.weak_value),
             ("numerator", self.numerator),
             ("denominator", self.denominator),
-            ("leak_rate", self.leak_rate),
+            ("leak", self.leak_rate),
             ("weak_value_series", self.weak_value_series),
-            ("leak_rate_series", self.leak_rate_series),
+            ("leak_series", self.leak_rate_series),
             ("floor", self.floor),
         ]
         return {

@@ -47,10 +47,10 @@ class Branch:
 
     One branch is one distinct optical setting: readings of a mount that differ by its period
     (180 deg for polarizers, waveplates and rotators, 90 deg for a half-wave plate of exactly
-    half a wave, :func:`aligner.nulls.mount_period_deg`)
-    set the same optics and are one branch. ``settings`` is the equivalent reading nearest the
-    current readings; ``equivalent_readings`` lists every equivalent reading inside the travel,
-    that one first, nearest first.
+    half a wave, :func:`aligner.nulls.mount_period_deg`) set the same optics and are one
+    branch. ``settings`` (``readings`` in JSON) is the equivalent reading nearest the current
+    readings; ``equivalent_readings`` lists every equivalent reading inside the travel, that
+    one first, nearest first.
     """
 
     index: int
@@ -70,7 +70,7 @@ class Branch:
     def to_dict(self) -> dict[str, Any]:
         return {
             "index": self.index,
-            "settings": dict(self.settings),
+            "readings": dict(self.settings),
             "side": self.side,
             "regime": self.regime,
             "null_deg": dict(self.null_deg),
@@ -80,7 +80,7 @@ class Branch:
                 "linear": self.amplification_linear,
                 "exact": self.amplification_exact,
             },
-            "leak_rate": self.leak_rate,
+            "leak": self.leak_rate,
             "value": self.value,
             "distance_deg": self.distance_deg,
             "equivalent_readings": [dict(r) for r in self.equivalent_readings],
@@ -132,22 +132,26 @@ class Plan:
         return self.branches[self.chosen]
 
     def to_dict(self) -> dict[str, Any]:
-        """The JSON document of ``aligner plan --json`` (stable keys)."""
+        """The JSON document of ``aligner plan --json`` (stable keys, docs/json.md; the mount
+        readings are under ``readings``)."""
         t = self.target
-        target: dict[str, Any] = {"kind": t.kind, "quantity": self.quantity}
-        if t.kind == "amplification":
-            target.update(value=t.value.real, axis=t.axis, exact=t.exact)
-        else:
-            target["value"] = t.value if t.kind == "weak_value" else t.value.real
+        amplification = t.kind == "amplification"
+        target = {
+            "kind": t.kind,
+            "quantity": self.quantity,
+            "value": t.value if t.kind == "weak_value" else t.value.real,
+            "axis": t.axis if amplification else None,
+            "exact": t.exact if amplification else None,
+        }
         q = self.quantized
         return {
             "target": target,
             "unknowns": list(self.unknowns),
-            "settings": dict(self.settings),
+            "readings": dict(self.settings),
             "chosen": {"index": self.chosen, "reason": self.reason},
             "branches": [b.to_dict() for b in self.branches],
             "quantized": {
-                "settings": dict(q.settings),
+                "readings": dict(q.settings),
                 "value": q.value,
                 "relative_error": q.relative_error,
                 "step_change": q.step_change,

@@ -94,8 +94,8 @@ class Tolerance:
 
         return {
             "samples": self.samples,
-            "amplification": spread(self.figure),
-            "leak_rate": spread(self.leak_rate),
+            "value": spread(self.figure),
+            "leak": spread(self.leak_rate),
             "by_source": dict(self.by_source),
             "dominant": self.dominant,
             "first_order_std": self.first_order_std,

@@ -1,5 +1,5 @@
 """The stable JSON block of ``aligner predict``: a scalar prediction, the pointer as its sensor
-reads it, the SNR figures and the bench's limits."""
+reads it, the SNR figures and the bench's limits (every key: docs/json.md)."""
 
 from __future__ import annotations
 
@@ -42,12 +42,11 @@ def block_of(p: Prediction, lim: Limits) -> dict[str, Any]:
         "angles_deg": {k: float(v) for k, v in p.angles_deg.items()},
         "imbalance_deg": float(p.imbalance_deg),
         "weak_value": {"re": wv.real, "im": wv.imag},
-        "leak_rate": float(p.leak_rate),
+        "leak": float(p.leak_rate),
         "amplification": {
             "linear": float(p.amplification_linear),
             "exact": float(p.amplification_exact),
         },
-        "pointer_shift": float(p.pointer_shift),
         "units": p.units,
         "detector": {
             "rate": float(p.detector_rate),
@@ -60,7 +59,6 @@ def block_of(p: Prediction, lim: Limits) -> dict[str, Any]:
             "at_imbalance_deg": lim.at_imbalance_deg,
             "limited_by": lim.limited_by,
         },
-        "snr_per_sqrt_s": float(p.snr_per_sqrt_s),
         "pointer": {
             "sensor": bench.readout.sensor,
             "method": bench.readout.method,

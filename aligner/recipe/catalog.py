@@ -49,14 +49,15 @@ class Entry:
         return self.path.stem
 
     def to_json(self) -> dict[str, object]:
-        """The entry as plain data."""
+        """The entry as plain data (``aligner recipe list --json``; the step count is
+        ``steps_total``, as a recipe run's)."""
         r = self.recipe
         return {
             "name": self.name,
             "origin": self.origin,
             "path": str(self.path),
             "title": r.title if r else None,
-            "steps": len(r.steps) if r else None,
+            "steps_total": len(r.steps) if r else None,
             "duration_min": r.duration_min if r else None,
             "error": self.error,
         }

@@ -301,16 +301,18 @@ class RunRecord:
         return len(self.plan)
 
     def to_json(self) -> dict[str, Any]:
-        """The run's header as JSON (``points_done`` of ``points_total``; the points
-        themselves are listed under ``points`` where a command gives them)."""
+        """The run's header as JSON (docs/json.md): ``points_done`` of ``points_total`` for a
+        sweep, null for a recipe run (it logs steps, not points; its sweeps are runs of their
+        own); the points themselves are listed under ``points`` where a command gives them."""
+        sweep = self.kind != "recipe"
         return {
             "run": self.id,
             "kind": self.kind,
             "status": self.status,
             "data": self.data_label,
-            "points_done": self.points,
-            "points_total": self.planned,
-            "bench": self.bench_name,
+            "points_done": self.points if sweep else None,
+            "points_total": self.planned if sweep else None,
+            "bench_name": self.bench_name,
             "bench_path": self.bench_path,
             "schedule": self.schedule,
             "started_utc": self.started_utc,
@@ -349,6 +351,12 @@ class RecipeRunRow:
     path: str
     text: str
     steps: int
+
+    def to_json(self) -> dict[str, Any]:
+        """The recipe a run follows, as the keys of ``aligner log show --json``: ``recipe`` is
+        its name (as in ``aligner recipe run --json``), the count is ``steps_total`` (``steps``
+        is always a list)."""
+        return {"recipe": self.name, "recipe_path": self.path, "steps_total": self.steps}
 
 
 @dataclass(frozen=True)
@@ -904,13 +912,13 @@ class Salvage:
     lost: tuple[str, ...]
 
     def to_json(self) -> dict[str, Any]:
-        """The JSON document of ``aligner log salvage --json``."""
+        """The JSON document of ``aligner log salvage --json`` (counts as ``*_copied``)."""
         return {
             "source": self.source,
             "out": self.out,
-            "runs": self.runs,
-            "points": self.points,
-            "events": self.events,
+            "runs_copied": self.runs,
+            "points_copied": self.points,
+            "events_copied": self.events,
             "lost": list(self.lost),
         }
 

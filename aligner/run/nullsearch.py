@@ -53,18 +53,14 @@ class NullSearchResult:
     shutter: str = "none"
 
     def to_json(self) -> dict[str, Any]:
-        """The JSON document of ``aligner null --json``."""
+        """The JSON document of ``aligner null --json`` (docs/json.md): the search, and its
+        last fit as ``aligner fit null --json`` gives it (the floor, the extinction ratios)."""
         return {
             "mount": self.mount,
             "null_reading_deg": self.null_reading_deg,
             "null_reading_err_deg": self.null_reading_err_deg,
             "final_reading_deg": self.final_reading_deg,
-            "extinction_ratio": self.last_fit.extinction_ratio,
-            "extinction_ratio_err": self.last_fit.extinction_ratio_err,
-            "floor": self.last_fit.floor,
-            "floor_err": self.last_fit.floor_err,
-            "effective_extinction_ratio": self.last_fit.effective_extinction_ratio,
-            "attribution": self.last_fit.attribution,
+            "last_fit": self.last_fit.to_json(),
             "rounds": self.rounds,
             "counter_reads": self.counter_reads,
             "steps_deg": list(self.steps_deg),

@@ -25,6 +25,7 @@ import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 from ..errors import InputError
 from ..text import clean
@@ -64,6 +65,16 @@ class Report:
     plot: Path | None
     note: str = ""
     result: RunResult | None = None
+
+    def to_json(self) -> dict[str, Any]:
+        """What was written, as JSON (``aligner log report --json``, docs/json.md): the note
+        is ``plot_note`` (a note of the run log is an event)."""
+        return {
+            "markdown": str(self.markdown),
+            "plot": None if self.plot is None else str(self.plot),
+            "plot_note": self.note,
+            "result": None if self.result is None else self.result.to_json(),
+        }
 
 
 def device_lines(record: RunRecord) -> list[str]:

@@ -37,7 +37,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import asdict, dataclass, field
 from typing import Any
 
 import numpy as np
@@ -89,6 +89,12 @@ class PointResult:
     predicted_leak: float
     flag: str = ""
 
+    def to_json(self) -> dict[str, Any]:
+        """The point as JSON (``result.points[]`` in docs/json.md): ``index`` as every point
+        output names it, and ``leak_sigma``."""
+        doc = asdict(self)
+        return {"index": doc.pop("idx"), **doc, "leak_sigma": self.leak_sigma}
+
     @property
     def leak_sigma(self) -> float | None:
         """(leak - predicted) over half the interval on the side of the prediction."""
@@ -110,6 +116,10 @@ class Curve:
     amplification_linear: tuple[float, ...]
     amplification_exact: tuple[float, ...]
     leak: tuple[float, ...]
+
+    def to_json(self) -> dict[str, Any]:
+        """The curve as JSON: one array per field."""
+        return asdict(self)
 
 
 @dataclass(frozen=True)
@@ -133,6 +143,26 @@ class CouplingEstimate:
     units: str
     statement: str
     warning: str = ""
+
+    def to_json(self) -> dict[str, Any]:
+        """The estimate as JSON, with the names of ``aligner fit coupling --json``
+        (``bench_difference_sigma``, ``goodness_of_fit``, ``points_fitted``)."""
+        from ..fit.likelihood import goodness_of_fit
+
+        return {
+            "strength": self.strength,
+            "strength_err": self.strength_err,
+            "linear_strength": self.linear_strength,
+            "linear_strength_err": self.linear_strength_err,
+            "bench_strength": self.bench_strength,
+            "bench_difference_sigma": self.difference_sigma,
+            "goodness_of_fit": goodness_of_fit(self.deviance, self.dof, self.p_value),
+            "points_fitted": self.points,
+            "success": self.success,
+            "units": self.units,
+            "statement": self.statement,
+            "warning": self.warning,
+        }
 
 
 @dataclass(frozen=True)
@@ -169,6 +199,10 @@ class Benefit:
     cap_mechanism: str
     limited_by: str
     statement: str
+
+    def to_json(self) -> dict[str, Any]:
+        """The benefit as JSON: every field."""
+        return asdict(self)
 
 
 @dataclass(frozen=True)
@@ -221,21 +255,20 @@ class RunResult:
         )
 
     def to_json(self) -> dict[str, Any]:
-        """The result as one JSON document (``result`` of ``aligner log show --json``)."""
-        from dataclasses import asdict
-
+        """The result as one JSON document (``result`` of ``aligner log show --json``;
+        ``bench_used`` says in words which bench the numbers come from)."""
         return {
             "run": self.run,
             "data": self.data,
-            "bench": self.bench,
+            "bench_used": self.bench,
             "units": self.units,
             "readout": self.readout,
             "amplification_basis": self.amplification_basis,
             "headline": self.headline,
-            "points": [{**asdict(p), "leak_sigma": p.leak_sigma} for p in self.points],
-            "curve": asdict(self.curve),
-            "coupling": None if self.coupling is None else asdict(self.coupling),
-            "benefit": None if self.benefit is None else asdict(self.benefit),
+            "points": [p.to_json() for p in self.points],
+            "curve": self.curve.to_json(),
+            "coupling": None if self.coupling is None else self.coupling.to_json(),
+            "benefit": None if self.benefit is None else self.benefit.to_json(),
             "leak_curve": None if self.leak_curve is None else self.leak_curve.to_json(),
             "notes": list(self.notes),
         }

@@ -18,7 +18,7 @@ def test_leak_json_interval(capsys):
 def test_leak_against_bench_gives_verdict(capsys):
     assert main(["leak", "--counts", "20000", "--dwell", "1", "--bench", "demo", "--json"]) == 0
     doc = json.loads(capsys.readouterr().out)
-    assert doc["status"] == "high" and "null has drifted" in doc["verdict"]
+    assert doc["verdict"]["status"] == "high" and "null has drifted" in doc["verdict"]["text"]
 
 
 def test_leak_bad_counts(capsys):

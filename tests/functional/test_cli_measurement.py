@@ -51,7 +51,7 @@ def test_null_write_keeps_the_analyzer_extinction(tmp_path, capsys):
     code = main(["null", str(bench), "--seed", "5", "--write", "--json", "--rounds", "3"])
     doc = json.loads(capsys.readouterr().out)
     assert code in (0, 2)
-    assert {"floor", "effective_extinction_ratio", "attribution"} <= set(doc)
+    assert {"floor", "effective_extinction_ratio", "attribution"} <= set(doc["last_fit"])
     after = load_bench(bench)
     assert after.analyzer.extinction_ratio == before
     assert "analyzer.extinction_ratio" not in doc["written"]

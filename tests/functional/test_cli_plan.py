@@ -22,9 +22,9 @@ def test_plan_json_document() -> None:
     done = aligner("plan", "demo", "--amplification", "40", "--json", "--samples", "2000")
     assert done.returncode == 0, done.stderr
     doc = json.loads(done.stdout)
-    for key in ("settings", "branches", "predict", "sensitivity", "tolerance"):
+    for key in ("readings", "branches", "predict", "sensitivity", "tolerance"):
         assert key in doc
-    assert set(doc["settings"]) == {"analyzer", "pre_qwp"}
+    assert set(doc["readings"]) == {"analyzer", "pre_qwp"}
     assert doc["predict"]["amplification"]["linear"] == pytest.approx(40.0, rel=1e-9)
     assert doc["tolerance"]["samples"] == 2000
     assert doc["tolerance"]["dominant"] in doc["tolerance"]["by_source"]
@@ -32,7 +32,7 @@ def test_plan_json_document() -> None:
     # one branch per optical setting; readings 180 deg apart are listed with it
     assert len(doc["branches"]) == 8
     for branch in doc["branches"]:
-        assert branch["equivalent_readings"][0] == branch["settings"]
+        assert branch["equivalent_readings"][0] == branch["readings"]
         assert len(branch["equivalent_readings"]) == 4
     assert {"derivative_per_deg", "reading_for_1pct_deg"} <= set(doc["sensitivity"]["analyzer"])
 
@@ -134,7 +134,7 @@ def test_write_stores_rounded_readings_and_keeps_comments(bench_file: Path) -> N
     doc = json.loads(done.stdout)
     text = bench_file.read_text()
     assert "# minimal test bench" in text
-    reading = doc["quantized"]["settings"]["ana"]
+    reading = doc["quantized"]["readings"]["ana"]
     assert f"reading_deg = {reading}" in text
     again = aligner("predict", str(bench_file), "--json")
     assert json.loads(again.stdout)["amplification"]["linear"] == pytest.approx(

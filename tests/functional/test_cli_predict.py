@@ -26,7 +26,7 @@ def test_json_block_matches_the_engine(capsys):
     p = predict(load_bench("demo"), {"analyzer": 135.4})
     assert block["angles_deg"]["analyzer"] == pytest.approx(135.4)
     assert block["weak_value"]["re"] == pytest.approx(complex(p.weak_value).real)
-    assert block["leak_rate"] == pytest.approx(float(p.leak_rate))
+    assert block["leak"] == pytest.approx(float(p.leak_rate))
     assert block["amplification"]["exact"] == pytest.approx(float(p.amplification_exact))
     assert block["detector"]["measured_rate"] == pytest.approx(float(p.measured_rate))
     assert block["units"] == "um"
@@ -83,13 +83,11 @@ def test_console_entry_point():
         "angles_deg",
         "imbalance_deg",
         "weak_value",
-        "leak_rate",
+        "leak",
         "amplification",
-        "pointer_shift",
         "units",
         "detector",
         "limit",
-        "snr_per_sqrt_s",
         "pointer",
         "snr",
         "heralded",

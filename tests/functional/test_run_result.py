@@ -153,7 +153,7 @@ def test_log_show_prints_the_pointer_table_and_the_result(run, capsys):
     assert "ideal crossed pair [red]x[/red]" in out  # markup shown as written
     assert main(["log", "show", "1", "--db", str(db), "--json"]) == 0
     doc = json.loads(capsys.readouterr().out)
-    assert doc["result"]["coupling"]["points"] == 12 and doc["result_note"] == ""
+    assert doc["result"]["coupling"]["points_fitted"] == 12 and doc["result_note"] == ""
 
 
 def test_fits_on_a_run_use_its_stored_bench_unless_told(run, capsys):
@@ -163,16 +163,16 @@ def test_fits_on_a_run_use_its_stored_bench_unless_told(run, capsys):
         capsys.readouterr()
         assert main(["fit", "coupling", "1", "--db", str(db), "--json"]) == 0
         stored = json.loads(capsys.readouterr().out)
-        assert stored["bench_strength"] == G and "stored with run 1" in stored["bench"]
+        assert stored["bench_strength"] == G and "stored with run 1" in stored["bench_used"]
         args = ["fit", "coupling", "1", "--db", str(db), "--bench", str(bench), "--json"]
         assert main(args) == 0
         given = json.loads(capsys.readouterr().out)
-        assert given["bench_strength"] == 0.9 and "(--bench)" in given["bench"]
+        assert given["bench_strength"] == 0.9 and "(--bench)" in given["bench_used"]
         # ideal polarizers: the floor is below what the counts can see, so the fit may end
         # at its bound (exit 2); the likelihood still pairs the two ports of the run
         assert main(["fit", "leak", "1", "--db", str(db), "--json"]) in (0, 2)
         leak = json.loads(capsys.readouterr().out)
-        assert "analyzer's other port" in leak["reference"] and leak["points"] == 12
+        assert "analyzer's other port" in leak["reference_text"] and leak["points_fitted"] == 12
         assert main(["fit", "coupling", "1", "--db", str(db), "--write"]) == 2
         assert "--bench" in capsys.readouterr().err
     finally:

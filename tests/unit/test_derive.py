@@ -211,9 +211,9 @@ def test_json_document() -> None:
         "weak_value",
         "numerator",
         "denominator",
-        "leak_rate",
+        "leak",
         "weak_value_series",
-        "leak_rate_series",
+        "leak_series",
         "floor",
     ):
         assert doc["expressions"][key]["text"] and doc["expressions"][key]["latex"]
@@ -273,7 +273,7 @@ def test_pasted_text_parses_back_and_agrees_with_predict(which: str) -> None:
     names = {name: sp.Symbol(name) for name in doc["symbols"]}
     values = {names[k]: v["value"] for k, v in doc["symbols"].items() if v["value"] is not None}
     wv = sp.parse_expr(doc["expressions"]["weak_value"]["text"], local_dict=names)
-    leak = sp.parse_expr(doc["expressions"]["leak_rate"]["text"], local_dict=names)
+    leak = sp.parse_expr(doc["expressions"]["leak"]["text"], local_dict=names)
     rng = np.random.default_rng(7)
     for _ in range(4):
         readings = {m: float(rng.uniform(-90, 90)) for m in doc["angles"]}

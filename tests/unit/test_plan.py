@@ -258,10 +258,10 @@ def test_plan_document_and_message() -> None:
     bench = load_bench("demo")
     p = plan(bench, 40, samples=5000)
     doc = p.to_dict()
-    for key in ("settings", "branches", "predict", "sensitivity", "tolerance"):
+    for key in ("readings", "branches", "predict", "sensitivity", "tolerance"):
         assert key in doc
     assert doc["predict"]["amplification"]["linear"] == pytest.approx(40, rel=1e-9)
-    assert set(doc["settings"]) == {"analyzer", "pre_qwp"}
+    assert set(doc["readings"]) == {"analyzer", "pre_qwp"}
     assert "laser safety officer" in p.message
     assert f"{p.quantized.settings['analyzer']:.6g}" in p.message
 

@@ -389,13 +389,11 @@ def test_prediction_block_keys_and_element_angles():
         "angles_deg",
         "imbalance_deg",
         "weak_value",
-        "leak_rate",
+        "leak",
         "amplification",
-        "pointer_shift",
         "units",
         "detector",
         "limit",
-        "snr_per_sqrt_s",
         "pointer",
         "snr",
         "heralded",
@@ -421,7 +419,9 @@ def test_prediction_block_keys_and_element_angles():
         "dwell_s",
         "measure_s",
     }
-    assert block["snr"]["centroid_per_sqrt_s"] == block["snr_per_sqrt_s"]
+    p = predict(bench, {"analyzer": -134.2})
+    assert block["snr"]["centroid_per_sqrt_s"] == pytest.approx(float(p.snr_per_sqrt_s))
+    assert block["pointer"]["shift"] == pytest.approx(float(p.pointer_shift))
     assert set(block["weak_value"]) == {"re", "im"}
     assert set(block["amplification"]) == {"linear", "exact"}
     assert set(block["detector"]) == {"rate", "measured_rate", "saturated", "over_safe_rate"}

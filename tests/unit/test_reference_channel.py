@@ -134,9 +134,9 @@ def test_aligner_leak_with_a_port_reference_matches_the_prediction(port_bench, c
         )
         doc = json.loads(capsys.readouterr().out)
         assert doc["predicted_leak"] == pytest.approx(per_analyzer, rel=1e-12)
-        assert doc["reference"].startswith("port reference")
-        assert doc["leak_verdict"]["residual_sigma"] == doc["residual_sigma"]
-        residuals.append(doc["residual_sigma"])
+        assert doc["reference_text"].startswith("port reference")
+        assert doc["leak_verdict"] == doc["verdict"]
+        residuals.append(doc["verdict"]["residual_sigma"])
     # eight draws of a standard normal (the verdict's residual): all within 3.5 sigma, and
     # their mean within 3.5 / sqrt(8) of zero (common practice, no source)
     assert max(map(abs, residuals)) < 3.5 and abs(np.mean(residuals)) < 3.5 / math.sqrt(8)
