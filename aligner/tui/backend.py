@@ -50,13 +50,15 @@ POLL_WAIT_S = 0.5
 @dataclass(frozen=True)
 class SweepPreview:
     """A sweep planned but not started: the bench at the desk's readings, the parsed schedule,
-    the planned points and the mounts whose planned readings differ from the desk's by more
-    than one resolution step (``moves``, bench order)."""
+    the planned points, the mounts whose planned readings differ from the desk's by more
+    than one resolution step (``moves``, bench order) and what to tell the operator before
+    it starts (``warnings``: :func:`aligner.run.sweep.plan_warnings`, as the command line)."""
 
     bench: Bench
     schedule: Schedule
     points: tuple[PlannedPoint, ...]
     moves: tuple[str, ...]
+    warnings: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -442,8 +444,10 @@ class DeskBackend:
         )
 
     def preview(self, spec: str, dwell_s: float, readings: Mapping[str, float]) -> SweepPreview:
-        """Parse and plan a sweep without touching any device (bad input: ``InputError``)."""
+        """Parse and plan a sweep without touching any device (bad input: ``InputError``;
+        ``ParameterError`` names ``schedule`` or ``dwell_s``)."""
         from ..run.schedule import parse_schedule, plan_points
+        from ..run.sweep import plan_warnings
 
         bench = self.bench_at(readings)
         schedule = parse_schedule(spec, dwell_s=dwell_s)
@@ -457,7 +461,7 @@ class DeskBackend:
                 if name in p.readings
             )
         )
-        return SweepPreview(bench, schedule, points, moves)
+        return SweepPreview(bench, schedule, points, moves, plan_warnings(bench, schedule))
 
     def request_stop(self, signum: int = 0) -> None:
         """Ask a running sweep, recipe or move to pause and the meter to stop: a count in
