@@ -94,7 +94,7 @@ def _check_range(parameter: str, value: float, bounds: tuple[float, float]) -> N
     low, high = bounds
     if not (math.isfinite(value) and low <= value <= high):
         integer = isinstance(value, int)
-        raise ParameterError(parameter, outside_range(f"{value:g}", low, high, integer=integer))
+        raise ParameterError(parameter, outside_range(f"{value:.12g}", low, high, integer=integer))
 
 
 def _number(spec: str, text: str, what: str) -> float:
