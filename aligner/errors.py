@@ -23,7 +23,8 @@ wrong and what to do; the CLI prints it to stderr and exits with ``exit_code``.
         └── GuardTrip               the detector guard stopped a move or a count
 
     KeyboardInterrupt
-    └── SignalInterrupt             SIGTERM or SIGHUP, handled like Ctrl-C (exit 128 + signal)
+    ├── SignalInterrupt             SIGTERM or SIGHUP, handled like Ctrl-C (exit 128 + signal)
+    └── StopRequested               a stop asked for (the desk's pause or quit) cuts a count short
 
 Drivers convert pyserial and OS errors into ``DeviceError`` subclasses; nothing above the
 driver layer catches ``serial.SerialException`` or ``OSError`` from a device.
@@ -56,9 +57,11 @@ __all__ = [
     "ReadbackMismatch",
     "RecipeError",
     "SignalInterrupt",
+    "StopRequested",
     "StorageError",
     "Unattributable",
     "exit_status",
+    "outside_range",
 ]
 
 #: Exit status of every command, by meaning (the README's table is generated from the same).
@@ -96,6 +99,16 @@ def exit_status(reason: str, signal: int = 0) -> int:
     if reason == "interrupt":
         return 128 + (signal or 2)
     return ENDING_STATUS[reason]
+
+
+def outside_range(shown: str, low: float, high: float, *, integer: bool = False) -> str:
+    """The words for a value (``shown`` as given) outside ``[low, high]``: one wording for a
+    command's option and the desk's field alike (each puts its own name before it)."""
+
+    def bound(x: float) -> str:
+        return str(int(x)) if integer else f"{x:g}"
+
+    return f"{shown} is outside the allowed range (from {bound(low)} to {bound(high)})"
 
 
 class AlignerError(Exception):
@@ -223,3 +236,9 @@ class OutputClosed(SignalInterrupt):
     @property
     def cause(self) -> str:
         return "a closed output pipe"
+
+
+class StopRequested(KeyboardInterrupt):
+    """The operator asked the running operation to stop (the desk's pause or quit,
+    :meth:`aligner.run.station.Station.request_stop`): raised between two gates of a count, it
+    unwinds like Ctrl-C to the run, which pauses with reason ``operator``."""

@@ -10,7 +10,7 @@ import sys
 from collections.abc import Callable, Mapping
 from typing import Any, NoReturn
 
-from ..errors import InputError
+from ..errors import InputError, outside_range
 
 __all__ = [
     "AlignerParser",
@@ -120,7 +120,7 @@ def number(low: float, high: float, *, integer: bool = False) -> Callable[[str],
             raise argparse.ArgumentTypeError(f"{text!r} is not {what} ({bound})") from None
         inside = low <= value <= high
         if not (math.isfinite(value) and inside):
-            raise argparse.ArgumentTypeError(f"{text} is outside the allowed range ({bound})")
+            raise argparse.ArgumentTypeError(outside_range(text, low, high, integer=integer))
         return value
 
     convert.__name__ = "whole number" if integer else "number"

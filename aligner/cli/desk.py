@@ -19,8 +19,9 @@ def register(sub: argparse._SubParsersAction) -> None:
         "run sweeps on the bench's declared devices ('sim' devices for the demo), watch the "
         "count rate while turning a mount (the meter), check every device's kind and state, "
         "and browse the run log. F1 lists the keys of the screen, F2-F8 switch screens, "
-        "Ctrl+Q quits (while a sweep runs it asks first, then pauses the sweep: mounts "
-        "stopped, shutter shut). SIGTERM and SIGHUP end the desk the same way. Works in an "
+        "Ctrl+Q quits (while a sweep runs it asks first, then pauses the sweep: the count in "
+        "progress stops, mounts stopped, shutter shut). SIGTERM, SIGHUP and SIGINT end the "
+        "desk the same way. Works in an "
         "80x24 terminal and uses more room when there is more. Laser safety: follow your "
         "local laser-safety rules and your laser safety officer; never expose a "
         "single-photon detector to a bright beam.",

@@ -6,7 +6,16 @@ import argparse
 import sys
 from typing import Any
 
+from ..run.schedule import DWELL_RANGE_S, REPEATS_RANGE, SETTLE_RANGE_S
 from .common import add_bench_argument, add_device_arguments, add_json_flag, number, run_id
+
+#: The schedule's parameters -> this command's options.
+FLAGS = {
+    "schedule": "--schedule",
+    "dwell_s": "--dwell",
+    "settle_s": "--settle",
+    "repeats": "--repeats",
+}
 
 SAFETY = (
     "Safety: lasers and single-photon detectors can hurt people and equipment. Follow your "
@@ -49,21 +58,21 @@ def register(sub: argparse._SubParsersAction) -> None:
     parser.add_argument(
         "--dwell",
         metavar="S",
-        type=number(1e-3, 3600),
+        type=number(*DWELL_RANGE_S),
         default=1.0,
         help="count time per point, s (default 1; 0.001 to 3600)",
     )
     parser.add_argument(
         "--settle",
         metavar="S",
-        type=number(0, 600),
+        type=number(*SETTLE_RANGE_S),
         default=0.0,
         help="wait after a move before the read-back, s (default 0; at most 600)",
     )
     parser.add_argument(
         "--repeats",
         metavar="N",
-        type=number(1, 1000, integer=True),
+        type=number(*REPEATS_RANGE, integer=True),
         default=1,
         help="run the schedule N times in a row (default 1; at most 1000)",
     )
@@ -120,7 +129,7 @@ def _line(point: Any, done: int, total: int, mount: str) -> str:
 def run(args: argparse.Namespace) -> int:
     """Run (or resume) a sweep."""
     from ..bench import load_bench
-    from ..errors import InputError
+    from ..errors import InputError, ParameterError
     from ..run.log import RunLog
     from ..run.schedule import parse_schedule
     from ..run.station import Station, StationOptions
@@ -140,9 +149,12 @@ def run(args: argparse.Namespace) -> int:
     if args.schedule is not None:
         from ..run.schedule import plan_points
 
-        schedule = parse_schedule(
-            args.schedule, repeats=args.repeats, dwell_s=args.dwell, settle_s=args.settle
-        )
+        try:
+            schedule = parse_schedule(
+                args.schedule, repeats=args.repeats, dwell_s=args.dwell, settle_s=args.settle
+            )
+        except ParameterError as exc:
+            raise InputError(f"{FLAGS.get(exc.parameter, exc.parameter)} {exc.problem}") from None
         planned = plan_points(bench, schedule)  # a target the bench cannot reach stops here
     make_console(stderr=True).print(SAFETY, style="yellow")
     if schedule is not None:

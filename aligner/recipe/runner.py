@@ -29,6 +29,7 @@ from ..errors import (
     InputError,
     RecipeError,
     SignalInterrupt,
+    StopRequested,
     StorageError,
     exit_status,
 )
@@ -317,15 +318,16 @@ class _Walk:
 
     def run(self, start: int) -> RecipeRunResult:
         ctx, st = self.ctx, self.ctx.station
-        st.clear_stop()
         ctx.log.set_status(ctx.run_id, "running")
         failed: list[int] = []
         current: Step | None = None
         try:
             for step in self.steps[start:]:
                 current = step
-                if st.stop_requested:
-                    raise OperatorPause(f"paused before step {step.number}")
+                try:
+                    st.check_stop()  # a signal's request raises SignalInterrupt
+                except StopRequested:
+                    raise OperatorPause(f"paused before step {step.number}") from None
                 outcome = self.step(step)
                 if outcome.state == "failed":
                     failed.append(step.number)
@@ -333,6 +335,8 @@ class _Walk:
                     return self.end(step, outcome, failed)
             current = None
             shut = st.secure()
+        except StopRequested:
+            return self.stop(current, "paused as asked (while counting)", "operator")
         except SignalInterrupt as exc:
             return self.stop(current, f"stopped by signal {exc.signum}", "interrupt", exc.signum)
         except KeyboardInterrupt:
@@ -405,6 +409,7 @@ class _Walk:
 
         ctx = self.ctx
         shut = ctx.station.secure()
+        ctx.station.clear_stop()  # the request, if one stopped the recipe, is answered
         where = f"step {step.number}: " if step else ""
         text = f"{where}{message}; {shutter_words(shut)}"
         kind = "guard" if reason == "guard" else "pause"

@@ -24,9 +24,18 @@ from dataclasses import dataclass
 from typing import Any
 
 from ..bench import Bench
-from ..errors import InputError
+from ..errors import ParameterError, outside_range
 
-__all__ = ["FORMS", "PlannedPoint", "Schedule", "parse_schedule", "plan_points"]
+__all__ = [
+    "DWELL_RANGE_S",
+    "FORMS",
+    "REPEATS_RANGE",
+    "SETTLE_RANGE_S",
+    "PlannedPoint",
+    "Schedule",
+    "parse_schedule",
+    "plan_points",
+]
 
 #: schedule form -> (quantity stepped, help text)
 FORMS: Mapping[str, tuple[str, str]] = {
@@ -40,6 +49,11 @@ MAX_POINTS = 10_000
 #: Allowed size of a schedule's values: amplifications, and imbalances (deg).
 AMPLIFICATION_RANGE = (1e-3, 1e6)
 IMBALANCE_LIMIT_DEG = 90.0
+#: Allowed count time per point (s), wait after a move (s) and passes of one run: the command
+#: line's options and the desk's fields take the same bounds.
+DWELL_RANGE_S = (1e-3, 3600.0)
+SETTLE_RANGE_S = (0.0, 600.0)
+REPEATS_RANGE = (1, 1000)
 
 
 @dataclass(frozen=True)
@@ -71,9 +85,16 @@ class PlannedPoint:
     readings: Mapping[str, float]
 
 
-def _error(spec: str, problem: str) -> InputError:
+def _error(spec: str, problem: str) -> ParameterError:
     forms = "; ".join(text for _, text in FORMS.values())
-    return InputError(f"--schedule {spec!r}: {problem} (forms: {forms})")
+    return ParameterError("schedule", f"{spec!r}: {problem} (forms: {forms})")
+
+
+def _check_range(parameter: str, value: float, bounds: tuple[float, float]) -> None:
+    low, high = bounds
+    if not (math.isfinite(value) and low <= value <= high):
+        integer = isinstance(value, int)
+        raise ParameterError(parameter, outside_range(f"{value:.12g}", low, high, integer=integer))
 
 
 def _number(spec: str, text: str, what: str) -> float:
@@ -103,18 +124,18 @@ def _range(spec: str, fields: list[str]) -> tuple[float, float, int]:
 def parse_schedule(
     spec: str, *, repeats: int = 1, dwell_s: float = 1.0, settle_s: float = 0.0
 ) -> Schedule:
-    """Parse a one-word schedule (see the module docstring); bad input raises ``InputError``."""
+    """Parse a one-word schedule (see the module docstring). Bad input raises
+    ``ParameterError`` naming ``schedule``, ``repeats``, ``dwell_s`` or ``settle_s``
+    (:data:`DWELL_RANGE_S`, :data:`SETTLE_RANGE_S`, :data:`REPEATS_RANGE`); a command or the
+    desk names its own option or field instead."""
     import numpy as np
 
     form, sep, rest = spec.strip().partition(":")
     if not sep or form not in FORMS:
         raise _error(spec, f"unknown form {form!r}")
-    if repeats < 1:
-        raise InputError(f"--repeats must be at least 1, got {repeats}")
-    if not (math.isfinite(dwell_s) and dwell_s > 0):
-        raise InputError(f"--dwell must be a time > 0 s, got {dwell_s:g}")
-    if not (math.isfinite(settle_s) and settle_s >= 0):
-        raise InputError(f"--settle must be a time >= 0 s, got {settle_s:g}")
+    _check_range("repeats", repeats, REPEATS_RANGE)
+    _check_range("dwell_s", dwell_s, DWELL_RANGE_S)
+    _check_range("settle_s", settle_s, SETTLE_RANGE_S)
     if form == "list":
         items = [t for t in rest.split(",") if t.strip()]
         if not items:

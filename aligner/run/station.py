@@ -41,6 +41,8 @@ from ..errors import (
     DeviceRefused,
     DeviceTimeout,
     ReadbackMismatch,
+    SignalInterrupt,
+    StopRequested,
 )
 from .devices import DeviceSet, Provenance, open_devices
 from .guard import DetectorGuard
@@ -147,6 +149,7 @@ class Station:
         self.events: list[Event] = []
         self._positions: dict[str, float | None] = dict.fromkeys(devices.mounts)
         self._stop = threading.Event()
+        self._stop_signal = 0
         self.provenance = Provenance(
             devices.records, __version__, bench_sha256(bench), devices.seed
         )
@@ -217,18 +220,33 @@ class Station:
 
     # -- stopping ------------------------------------------------------------------------------
 
-    def request_stop(self) -> None:
-        """Ask a running operation to stop at its next safe point (thread-safe)."""
+    def request_stop(self, signum: int = 0) -> None:
+        """Ask the running operation to stop (thread-safe): a count stops before its next gate
+        (:meth:`check_stop`; the partial count is discarded), a sweep or a recipe pauses,
+        resumable. ``signum`` is the signal that asks (0: the operator); a signal outranks an
+        operator's request."""
+        self._stop_signal = signum or self._stop_signal
         self._stop.set()
 
     def clear_stop(self) -> None:
-        """Forget an earlier stop request (before a new operation)."""
+        """Forget a stop request (once it is answered, or before a new operation)."""
+        self._stop_signal = 0
         self._stop.clear()
 
     @property
     def stop_requested(self) -> bool:
         """True after :meth:`request_stop` until :meth:`clear_stop`."""
         return self._stop.is_set()
+
+    def check_stop(self) -> None:
+        """Raise the interrupt a stop request stands for: ``SignalInterrupt`` for a signal,
+        ``StopRequested`` for the operator (both end a run as Ctrl-C does: secured,
+        resumable); nothing without a request."""
+        if not self._stop.is_set():
+            return
+        if self._stop_signal:
+            raise SignalInterrupt(self._stop_signal)
+        raise StopRequested("stop asked for")
 
     # -- device operations ---------------------------------------------------------------------
 
@@ -380,14 +398,28 @@ class Station:
 
     def count(self, dwell_s: float, idx: int | None = None) -> tuple[int, int | None]:
         """Count for ``dwell_s`` s in gates, every gate's exposure checked: (post-selected
-        counts, reference counts or None without a reference channel)."""
-        return self.attempt("counting", idx, lambda: self._count(dwell_s))
+        counts, reference counts or None without a reference channel). A stop request ends
+        the count before its next gate (:meth:`check_stop` raises; what was counted is
+        discarded and a note event says so)."""
+        return self.attempt("counting", idx, lambda: self._count(dwell_s, idx))
 
-    def _count(self, dwell_s: float) -> tuple[int, int | None]:
+    def _count(self, dwell_s: float, idx: int | None) -> tuple[int, int | None]:
         counter = self.devices.counter
         post = ref = 0
+        counted_s = 0.0
         for gate in self.gates(dwell_s):
+            if counted_s > 0 and self.stop_requested:
+                self.events.append(
+                    Event(
+                        "note",
+                        f"counting stopped after {counted_s:g} of {dwell_s:g} s; the partial "
+                        "count is discarded",
+                        idx,
+                    )
+                )
+            self.check_stop()
             counts = counter.count(gate)
+            counted_s += gate
             self.guard.check_counts(counts[0], gate)
             if len(counts) > 1:
                 self.guard.check_reference_counts(counts[1], gate)

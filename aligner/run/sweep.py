@@ -30,6 +30,7 @@ from ..errors import (
     GuardTrip,
     InputError,
     SignalInterrupt,
+    StopRequested,
     StorageError,
     exit_status,
 )
@@ -332,6 +333,7 @@ class _Sweep:
         from .station import shutter_words
 
         shut = st.secure()
+        st.clear_stop()  # the request, if one stopped the sweep, is answered
         kind = "guard" if reason == "guard" else "pause"
         # every point logged (the stop came while the last one was being reported): the run
         # is complete, and still says what stopped the command
@@ -359,19 +361,19 @@ class _Sweep:
         todo = [p for p in self.plan if p.index not in finished]
         self.done = len(self.plan) - len(todo)
         st = self.station
-        st.clear_stop()
         try:
             self.log.set_status(self.run_id, "running")
             st.shut()
             for p in todo:
-                if st.stop_requested:
-                    return self.pause("paused by the operator", "operator")
+                st.check_stop()
                 point = self.point(p)
                 self.log.add_point(self.run_id, point, st.take_events())
                 self.done += 1
                 if self.on_point is not None:
                     self.on_point(point, self.done, len(self.plan))
             shut = st.secure()
+        except StopRequested:
+            return self.pause("paused by the operator", "operator")
         except SignalInterrupt as exc:
             return self.pause(f"stopped by {exc.cause}", "interrupt", exc.signum)
         except KeyboardInterrupt:
@@ -408,7 +410,8 @@ def run_sweep(
     """Measure every planned point of run ``run_id`` not yet in the log (so the same call
     resumes an interrupted run), holding the run for this process. ``dwell_s`` and ``settle_s``
     in s. ``on_point(point, done, total)`` is called after each point is committed;
-    :meth:`Station.request_stop` pauses the sweep before the next point. Returns how the
+    :meth:`Station.request_stop` pauses the sweep before the next point, or within one gate
+    when it comes while a point is counted (that point is discarded). Returns how the
     sweep ended (see the module docstring); ``notes`` are carried into the result."""
     with log.claim(run_id):
         return _Sweep(station, log, run_id, plan, dwell_s, settle_s, on_point, notes).run()

@@ -65,9 +65,10 @@ SCREENS = (
 class DeskApp(App[int]):
     """The operator's desk for one bench.
 
-    ``catch_signals`` (the command line sets it) makes SIGTERM and SIGHUP end the desk the
-    way quitting does: a running sweep is paused after its point (mounts stopped, shutter
-    shut) and the meter stops; the app then exits with 128 + the signal number.
+    ``catch_signals`` (the command line sets it) makes SIGTERM, SIGHUP and SIGINT end the desk
+    the way quitting does: a running sweep or recipe pauses, a count in progress stopping
+    before its next gate (mounts stopped, shutter shut, the run resumable) and the meter
+    stops; the app then exits with 128 + the signal number.
     """
 
     CSS_PATH: ClassVar = ["desk.tcss"]
@@ -98,6 +99,7 @@ class DeskApp(App[int]):
         self._catch_signals = catch_signals
         self._previous_handlers: dict[int, Any] = {}
         self._quit_after_sweep = False
+        self._quit_question: Screen[Any] | None = None
         self._asks: set[Future[str | None]] = set()
         self._exit_code = 0
         backend.ask = self.ask_operator
@@ -138,18 +140,17 @@ class DeskApp(App[int]):
             return  # already asking
 
         def answered(yes: bool | None) -> None:
+            self._quit_question = None
             if yes:
-                self.end_after_sweep(0)
+                self.end_after_sweep(0)  # quits at once if the run has ended meanwhile
 
-        self.push_screen(
-            Confirm(
-                "A run is going (a sweep or a recipe). Pause it at its next safe point and quit?",
-                "The mounts stop and the shutter shuts; the run stays resumable.",
-                yes="Pause and quit",
-                no="Keep running",
-            ),
-            answered,
+        self._quit_question = Confirm(
+            "A run is going (a sweep or a recipe). Pause it at its next safe point and quit?",
+            "The mounts stop and the shutter shuts; the run stays resumable.",
+            yes="Pause and quit",
+            no="Keep running",
         )
+        self.push_screen(self._quit_question, answered)
 
     def end_after_sweep(self, code: int) -> None:
         """Ask a running sweep to pause and exit with ``code`` once it has (at once if none)."""
@@ -159,14 +160,39 @@ class DeskApp(App[int]):
             return
         self._quit_after_sweep = True
         self._exit_code = code
-        self.backend.request_stop()
-        self.notify("pausing the sweep before quitting…")
+        self.backend.request_stop(self.signalled or 0)
+        self.notify("pausing the run before quitting: the count in progress stops…")
 
     @on(SweepEnded)
     @on(RecipeEnded)
     def sweep_ended(self) -> None:
         if self._quit_after_sweep:
             self._leave(self._exit_code)
+            return
+        question = self._quit_question
+        if question is not None and self.screen is question:
+            self.ask_quit_after_run(question)
+
+    def ask_quit_after_run(self, question: Screen[Any]) -> None:
+        """The run ended while the quit question asked about pausing it: ask again, about
+        quitting only, so the answer is given to the state as it is now."""
+        from .screens.confirm import Confirm
+
+        self._quit_question = None
+        question.dismiss(None)
+
+        def answered(yes: bool | None) -> None:
+            if yes:
+                self.end_after_sweep(0)
+
+        self.push_screen(
+            Confirm(
+                "The run has ended (see the status line); nothing is running now. Quit?",
+                yes="Quit",
+                no="Stay",
+            ),
+            answered,
+        )
 
     def _leave(self, code: int) -> None:
         """Exit with ``code``. After a hang-up the terminal is gone: the bench is secured and
@@ -187,7 +213,7 @@ class DeskApp(App[int]):
             import signal
 
             loop = asyncio.get_running_loop()
-            for name in ("SIGTERM", "SIGHUP"):
+            for name in ("SIGTERM", "SIGHUP", "SIGINT"):
                 signum = getattr(signal, name, None)
                 if signum is not None:
                     self._previous_handlers[signum] = signal.getsignal(signum)

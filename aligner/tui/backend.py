@@ -50,13 +50,15 @@ POLL_WAIT_S = 0.5
 @dataclass(frozen=True)
 class SweepPreview:
     """A sweep planned but not started: the bench at the desk's readings, the parsed schedule,
-    the planned points and the mounts whose planned readings differ from the desk's by more
-    than one resolution step (``moves``, bench order)."""
+    the planned points, the mounts whose planned readings differ from the desk's by more
+    than one resolution step (``moves``, bench order) and what to tell the operator before
+    it starts (``warnings``: :func:`aligner.run.sweep.plan_warnings`, as the command line)."""
 
     bench: Bench
     schedule: Schedule
     points: tuple[PlannedPoint, ...]
     moves: tuple[str, ...]
+    warnings: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -133,6 +135,9 @@ class DeskBackend:
         #: The signal that is ending the desk, if one is.
         self.signalled: int | None = None
         self._meter: MeterSession | None = None
+        #: A stop asked for while an operation holds the devices (the signal, 0 the operator;
+        #: None: none), kept for a station still being opened.
+        self._stop: int | None = None
 
     @property
     def sweeping(self) -> bool:
@@ -281,7 +286,13 @@ class DeskBackend:
                 raise InputError(
                     f"the devices are busy ({self.busy}); stop that first, then try {what} again"
                 )
-            yield self.station(readings)
+            self._stop = None  # a request from before this operation is not for it
+            if self._station is not None:
+                self._station.clear_stop()
+            station = self.station(readings)
+            if self._stop is not None:  # asked while the devices were being opened
+                station.request_stop(self._stop)
+            yield station
 
     def declared(self) -> tuple[DeviceChoice, ...]:
         """Every device the bench declares (:func:`aligner.run.devices.choose_devices`);
@@ -368,7 +379,6 @@ class DeskBackend:
         shutter, however the moves ended. Blocking: call it from a worker thread. A device
         error is remembered for its mount; the result says where the moves stopped."""
         with self.using_devices("moving the mounts", readings) as station:
-            station.clear_stop()
             moves: list[Move] = []
             error = ""
             for name in (n for n in self.bench.mounts if n in targets):
@@ -434,8 +444,10 @@ class DeskBackend:
         )
 
     def preview(self, spec: str, dwell_s: float, readings: Mapping[str, float]) -> SweepPreview:
-        """Parse and plan a sweep without touching any device (bad input: ``InputError``)."""
+        """Parse and plan a sweep without touching any device (bad input: ``InputError``;
+        ``ParameterError`` names ``schedule`` or ``dwell_s``)."""
         from ..run.schedule import parse_schedule, plan_points
+        from ..run.sweep import plan_warnings
 
         bench = self.bench_at(readings)
         schedule = parse_schedule(spec, dwell_s=dwell_s)
@@ -449,14 +461,18 @@ class DeskBackend:
                 if name in p.readings
             )
         )
-        return SweepPreview(bench, schedule, points, moves)
+        return SweepPreview(bench, schedule, points, moves, plan_warnings(bench, schedule))
 
-    def request_stop(self) -> None:
-        """Ask a running sweep (or move) to pause after the point it is taking, and the meter
-        to stop."""
+    def request_stop(self, signum: int = 0) -> None:
+        """Ask a running sweep, recipe or move to pause and the meter to stop: a count in
+        progress stops before its next gate (:meth:`aligner.run.station.Station.request_stop`;
+        the point being counted is discarded), the shutter shuts, the run stays resumable.
+        ``signum`` is the signal ending the desk (0: the operator asks)."""
         self.stop_meter()
+        if self.busy:
+            self._stop = signum or self._stop or 0
         if self._station is not None:
-            self._station.request_stop()
+            self._station.request_stop(signum)
 
     def sweep(
         self,
@@ -552,7 +568,7 @@ class DeskBackend:
         """However the desk ends (quit, a signal, an error): ask a running sweep to pause and
         the meter to stop, wait up to ``wait_s`` s for them to secure the bench, then shut the
         shutter and close."""
-        self.request_stop()
+        self.request_stop(self.signalled or 0)
         with self._holding("closing the devices", wait_s):
             self.close()
 

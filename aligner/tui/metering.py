@@ -74,6 +74,7 @@ class MeterSession:
         self.gate_s = gate_s
         self._requests: queue.Queue[tuple[str, object]] = queue.Queue()
         self._stop = threading.Event()
+        self._station: Station | None = None  # while the loop holds the devices
 
     # -- asked from the UI thread --------------------------------------------------------------
 
@@ -86,9 +87,12 @@ class MeterSession:
         self._requests.put(("typed", rates))
 
     def stop(self) -> None:
-        """Stop at the end of the gate being counted (the shutter shuts)."""
+        """Stop before the next gate (the shutter shuts)."""
         self._stop.set()
         self._requests.put(("stop", None))
+        station = self._station
+        if station is not None:  # cut a count in progress short
+            station.request_stop()
 
     # -- the loop (worker thread) --------------------------------------------------------------
 
@@ -103,8 +107,13 @@ class MeterSession:
         try:
             with self.backend.using_devices("the meter", readings) as station:
                 typed = _typed_counter(station)
+                self._station = station
+                if self._stop.is_set():  # stopped while the devices were being opened
+                    station.request_stop()
                 try:
                     self._loop(station, typed, on_sample, on_state)
+                    ending = MeterState("stopped", "stopped")
+                except KeyboardInterrupt:  # a stop request or a signal, met while counting
                     ending = MeterState("stopped", "stopped")
                 except GuardTrip as exc:
                     ending = MeterState("stopped", f"STOPPED BY THE DETECTOR GUARD: {exc}", True)
@@ -113,7 +122,9 @@ class MeterSession:
                 except AlignerError as exc:
                     ending = MeterState("stopped", f"stopped: {exc}", True)
                 finally:
+                    self._station = None
                     shutter = station.secure()
+                    station.clear_stop()
                 on_state(replace(ending, shutter=shutter, readings=_read_back(station)))
         except AlignerError as exc:  # the devices could not be opened or are busy
             on_state(MeterState("stopped", f"not started: {exc}", True))

@@ -16,7 +16,7 @@ from textual.binding import BindingType
 from textual.containers import Container, Horizontal, VerticalScroll
 from textual.widgets import Input, Label, ProgressBar, Static
 
-from ...errors import AlignerError
+from ...errors import AlignerError, ParameterError
 from ...run.station import shutter_words
 from .. import keys
 from ..messages import SweepChecked, SweepEnded, SweepProgress, SweepStarted
@@ -42,6 +42,8 @@ PAUSED = {
     "guard": ("STOPPED BY THE DETECTOR GUARD", True),
     "device": ("STOPPED BY A DEVICE FAULT", True),
 }
+#: The engine's parameters -> this screen's fields (errors name the field the operator typed).
+FIELDS = {"schedule": "schedule", "dwell_s": "dwell"}
 #: Readings of the prediction curve, and the margin (share of the span) added either side.
 CURVE_POINTS, CURVE_MARGIN = 240, 0.1
 
@@ -115,6 +117,9 @@ class SweepScreen(DeskScreen):
     ) -> None:
         try:
             message = SweepChecked(start, preview=self.backend.preview(spec, dwell, readings))
+        except ParameterError as exc:
+            field = FIELDS.get(exc.parameter, exc.parameter)
+            message = SweepChecked(start, error=f"{field} {exc.problem}")
         except AlignerError as exc:
             message = SweepChecked(start, error=str(exc))
         self.post_message(message)
@@ -130,10 +135,12 @@ class SweepScreen(DeskScreen):
             self.query_one(EventList).show((), extra=event.error)
             return
         moves = ", ".join(preview.moves) or "none"
+        warned = self.warn(preview.warnings)
         if not event.start:
             self.status(
-                f"checked: {len(preview.points)} points, mounts that move: {moves}. "
-                "Ctrl+S starts the run."
+                f"checked: {len(preview.points)} points, mounts that move: {moves}.{warned} "
+                "Ctrl+S starts the run.",
+                error=bool(warned),
             )
             return
         hardware = self.backend.hardware_mounts()
@@ -157,6 +164,14 @@ class SweepScreen(DeskScreen):
 
         self.app.push_screen(Confirm(question, detail), answered)
 
+    def warn(self, warnings: Sequence[str]) -> str:
+        """Show the plan's ``warnings`` below the form and as a notice (nothing is refused);
+        return a short mention for the status line ("" when there are none)."""
+        self.query_one(EventList).show((), extra="\n".join(f"warning: {w}" for w in warnings))
+        for warning in warnings:
+            self.say(f"warning: {warning}", severity="warning", timeout=10)
+        return " WARNING: targets beyond the bench's limit (below)." if warnings else ""
+
     def action_go_on(self) -> None:
         """Resume the run paused on this screen."""
         if self.running:
@@ -171,12 +186,13 @@ class SweepScreen(DeskScreen):
         self.begin(None, self.paused_run)
 
     def action_pause(self) -> None:
-        """Pause the running sweep after the point being counted."""
+        """Pause the running sweep: a point being counted stops before its next gate and is
+        discarded (mounts stopped, shutter shut, the run resumable)."""
         if not self.running:
             self.status("no sweep is running", error=True)
             return
         self.backend.request_stop()
-        self.status("pausing after the point being counted…")
+        self.status("pausing: the count in progress stops, its point is discarded…")
 
     def begin(self, preview: SweepPreview | None, resume_run: int | None = None) -> None:
         """Run a checked ``preview`` (or resume run ``resume_run``) in a worker thread."""
