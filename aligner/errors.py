@@ -105,10 +105,19 @@ def outside_range(shown: str, low: float, high: float, *, integer: bool = False)
     """The words for a value (``shown`` as given) outside ``[low, high]``: one wording for a
     command's option and the desk's field alike (each puts its own name before it)."""
 
+    return f"{shown} is outside the allowed range ({allowed_range(low, high, integer=integer)})"
+
+
+def allowed_range(low: float, high: float, *, integer: bool = False) -> str:
+    """``from LOW to HIGH`` in words; ``LOW or more`` for whole numbers up to the 64-bit limit
+    (run ids, seeds), whose upper end says nothing to a reader."""
+
     def bound(x: float) -> str:
         return str(int(x)) if integer else f"{x:g}"
 
-    return f"{shown} is outside the allowed range (from {bound(low)} to {bound(high)})"
+    if integer and high >= 2**63 - 1:
+        return f"{bound(low)} or more"
+    return f"from {bound(low)} to {bound(high)}"
 
 
 class AlignerError(Exception):

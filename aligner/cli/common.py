@@ -10,7 +10,7 @@ import sys
 from collections.abc import Callable, Mapping
 from typing import Any, NoReturn
 
-from ..errors import InputError, outside_range
+from ..errors import InputError, allowed_range, outside_range
 
 __all__ = [
     "AlignerParser",
@@ -108,12 +108,9 @@ def number(low: float, high: float, *, integer: bool = False) -> Callable[[str],
     """An argparse ``type`` for a number in ``[low, high]`` (whole numbers with ``integer``);
     the error states the allowed range."""
 
-    def shown(x: float) -> str:
-        return str(int(x)) if integer else f"{x:g}"
-
     def convert(text: str) -> float:
         what = "a whole number" if integer else "a number"
-        bound = f"from {shown(low)} to {shown(high)}"
+        bound = allowed_range(low, high, integer=integer)
         try:
             value: float = int(text) if integer else float(text)
         except ValueError:

@@ -7,7 +7,7 @@ import sys
 from typing import TYPE_CHECKING, Any, TextIO
 
 from ..recipe.steps import Operator
-from .common import add_device_arguments, add_json_flag, laser_safety
+from .common import add_device_arguments, add_json_flag, laser_safety, run_id
 
 if TYPE_CHECKING:
     from ..recipe import Recipe, Step
@@ -28,15 +28,31 @@ def register(sub: argparse._SubParsersAction) -> None:
         epilog=SAFETY,
     )
     actions = parser.add_subparsers(dest="action", metavar="ACTION", required=True)
-    listing = actions.add_parser("list", help="the bundled and local recipes")
+    listing = actions.add_parser(
+        "list",
+        help="the bundled and local recipes",
+        description="List the bundled recipes and the local ones (the user recipe folder and "
+        "every --dir), each with its title and length, or why it does not load.",
+    )
     listing.add_argument(
         "--dir", metavar="DIR", action="append", help="a folder of local recipes (repeatable)"
     )
     add_json_flag(listing)
-    show = actions.add_parser("show", help="a recipe's purpose, cautions and steps")
+    show = actions.add_parser(
+        "show",
+        help="a recipe's purpose, cautions and steps",
+        description="Print a recipe: what it is for, what it needs, its cautions and every "
+        "step, without running anything.",
+    )
     show.add_argument("recipe", metavar="RECIPE", help="recipe name or a .toml file")
     add_json_flag(show)
-    run_p = actions.add_parser("run", help="step through a recipe on a bench", epilog=SAFETY)
+    run_p = actions.add_parser(
+        "run",
+        help="step through a recipe on a bench",
+        description="Run a recipe's steps on the bench's devices, asking the operator where "
+        "the recipe says so; every step is logged, and a stopped run goes on with --resume.",
+        epilog=SAFETY,
+    )
     run_p.add_argument("recipe", metavar="RECIPE", help="recipe name or a .toml file")
     run_p.add_argument("bench", metavar="BENCH", help="bench file (TOML), or 'demo'")
     run_p.add_argument(
@@ -45,7 +61,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         help="answer every confirmation yes and every prompt with its default, printing each "
         "(simulated benches only)",
     )
-    run_p.add_argument("--resume", metavar="RUN", type=int, help="go on with a stopped run")
+    run_p.add_argument("--resume", metavar="RUN", type=run_id, help="go on with a stopped run")
     run_p.add_argument(
         "--from-step",
         metavar="N",

@@ -38,7 +38,8 @@ physics model at the simulated mounts' true angles, on simulated time (no waitin
 --realtime), and the run is labelled SIMULATED everywhere.
 
 Exit status: 0 complete; 2 bad input; 3 paused by a device fault, the detector guard or a
-run log that cannot be written; 130 Ctrl-C; 143 SIGTERM, 129 SIGHUP. A paused run has its
+run log that cannot be written; 130 Ctrl-C; 143 SIGTERM, 129 SIGHUP, 141 a closed output
+pipe. A paused run has its
 shutter shut and resumes with --resume RUN.
 """
 
@@ -59,22 +60,19 @@ def register(sub: argparse._SubParsersAction) -> None:
         "--dwell",
         metavar="S",
         type=number(*DWELL_RANGE_S),
-        default=1.0,
-        help="count time per point, s (default 1; 0.001 to 3600)",
+        help="count time per point, s (default 1; 0.001 to 3600; a new run only)",
     )
     parser.add_argument(
         "--settle",
         metavar="S",
         type=number(*SETTLE_RANGE_S),
-        default=0.0,
-        help="wait after a move before the read-back, s (default 0; at most 600)",
+        help="wait after a move before the read-back, s (default 0; at most 600; a new run only)",
     )
     parser.add_argument(
         "--repeats",
         metavar="N",
         type=number(*REPEATS_RANGE, integer=True),
-        default=1,
-        help="run the schedule N times in a row (default 1; at most 1000)",
+        help="run the schedule N times in a row (default 1; at most 1000; a new run only)",
     )
     parser.add_argument(
         "--db", metavar="FILE", help="run-log file (default: runs.sqlite in the user data folder)"
@@ -141,6 +139,13 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(
             "give --schedule SPEC for a new run, or --resume RUN to continue one (not both)"
         )
+    new_run_only = {"--dwell": args.dwell, "--settle": args.settle, "--repeats": args.repeats}
+    given = [flag for flag, value in new_run_only.items() if value is not None]
+    if args.resume is not None and given:
+        raise InputError(
+            f"{', '.join(given)} cannot change a run being resumed: run {args.resume} keeps the "
+            "schedule, dwell and settle it was logged with (start a new run to change them)"
+        )
     if args.retries < 0:
         raise InputError(f"--retries must be 0 or more, got {args.retries}")
     bench = load_bench(args.bench)
@@ -151,7 +156,10 @@ def run(args: argparse.Namespace) -> int:
 
         try:
             schedule = parse_schedule(
-                args.schedule, repeats=args.repeats, dwell_s=args.dwell, settle_s=args.settle
+                args.schedule,
+                repeats=1 if args.repeats is None else args.repeats,
+                dwell_s=1.0 if args.dwell is None else args.dwell,
+                settle_s=0.0 if args.settle is None else args.settle,
             )
         except ParameterError as exc:
             raise InputError(f"{FLAGS.get(exc.parameter, exc.parameter)} {exc.problem}") from None

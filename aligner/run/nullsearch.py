@@ -182,10 +182,12 @@ def _search(
         error = fit.null_reading_err_deg
         if step <= max(resolution, error if math.isfinite(error) else 0.0):
             converged = True
-            message = (
-                f"converged: last step {step:.4f} deg is below the mount resolution "
-                f"{resolution:g} deg or the statistical error {error:.4f} deg"
+            below = (
+                f"the mount resolution {resolution:g} deg"
+                if step <= resolution
+                else f"the statistical error of the null {error:.4f} deg"
             )
+            message = f"converged: the last step, {step:.4f} deg, is within {below}"
             break
         span = max(4 * error if math.isfinite(error) else span / 4, 5 * resolution, span / 4)
     assert fit is not None

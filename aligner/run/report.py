@@ -94,9 +94,11 @@ def device_lines(record: RunRecord) -> list[str]:
                 else ""
             )
             identity = f", identifies as {d['identity']!r}" if d.get("identity") else ""
+            role, name = d.get("role"), d.get("name")
+            who = name if role == name else f"{role} {name}"  # "counter", "mount analyzer"
             lines.append(
                 clean(
-                    f"{head}{d.get('role')} {d.get('name')}: {d.get('kind')} ({d.get('spec')}, "
+                    f"{head}{who}: {d.get('kind')} ({d.get('spec')}, "
                     f"from {d.get('source')}){profile}{identity}"
                 )
             )

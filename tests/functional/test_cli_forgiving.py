@@ -33,7 +33,7 @@ def test_typos_are_named_with_a_suggestion(capsys, argv, words):
         (["sweep", "demo", "--schedule", "list:1", "--seed", "-1"], "--seed: -1 is outside"),
         (["sweep", "demo", "--schedule", "list:1", "--dwell", "inf"], "(from 0.001 to 3600)"),
         (["sweep", "demo", "--schedule", "list:1", "--settle", "1e10"], "(from 0 to 600)"),
-        (["log", "show", str(2**63)], "(from 1 to 9223372036854775807)"),
+        (["log", "show", str(2**63)], "is outside the allowed range (1 or more)"),
         (["null", "demo", "--points", "1e7"], "--points: '1e7' is not a whole number"),
         (["leak", "--counts", "5", "--dwell", "nan"], "--dwell: nan is outside"),
     ],
@@ -62,3 +62,13 @@ def test_every_help_reads_at_80_columns():
         wide = [line for line in parser.format_help().splitlines() if len(line) > 80]
         assert not wide, (name, wide)
     assert set(COMMANDS) <= seen
+
+
+def test_a_resumed_run_refuses_new_timing(capsys, tmp_path):
+    # A resumed run keeps its logged schedule and timing: a --dwell given with --resume is an
+    # error naming the option, not silently ignored (common practice, no source).
+    db = str(tmp_path / "runs.sqlite")
+    assert main(["sweep", "demo", "--resume", "1", "--dwell", "0.5", "--db", db]) == 2
+    err = capsys.readouterr().err
+    assert "--dwell cannot change a run being resumed" in err
+    assert not (tmp_path / "runs.sqlite").exists()  # refused before the log was opened

@@ -45,7 +45,8 @@ def test_export_csv_has_the_issue_columns(db, tmp_path):
     lines = target.read_text().splitlines()
     comments = [line for line in lines if line.startswith("#")]
     assert comments[0] == "# run 1: SIMULATED"  # the data say what they are
-    assert any("counter counter: simulated (sim" in line for line in comments)
+    assert any(line.startswith("# counter: simulated (sim") for line in comments)
+    assert any(line.startswith("# mount analyzer: simulated") for line in comments)
     rows = list(csv.DictReader(line for line in lines if not line.startswith("#")))
     assert len(rows) == 6
     assert {
