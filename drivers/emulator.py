@@ -323,3 +323,38 @@ class Emulator(Served):
                 self._handle(command)
             self.device.tick()
             self._flush()
+
+
+def main(argv: list[str] | None = None) -> int:
+    """``python -m aligner_drivers.emulator [SHAPE]``: serve one shape until Ctrl-C, printing
+    the port to give ``aligner device show/try`` (no hardware, no light: for trying a profile)."""
+    import argparse
+    import signal
+
+    parser = argparse.ArgumentParser(
+        prog="python -m aligner_drivers.emulator",
+        description="Serve an emulated controller of one protocol shape on a pseudo-terminal "
+        "(or a local TCP socket) until Ctrl-C, to try a profile with 'aligner device' without "
+        "hardware.",
+        allow_abbrev=False,
+    )
+    parser.add_argument(
+        "shape", nargs="?", default="basic", help=f"one of: {', '.join(SHAPES)} (default basic)"
+    )
+    args = parser.parse_args(argv)
+    if args.shape not in SHAPES:
+        parser.error(f"unknown shape {args.shape!r}; allowed: {', '.join(SHAPES)}")
+    stop = threading.Event()
+    signal.signal(signal.SIGTERM, lambda *_: stop.set())
+    with Emulator(args.shape) as emu:
+        print(f"serving the {args.shape} shape on {emu.port} (Ctrl-C stops)", flush=True)
+        try:
+            while not stop.wait(0.2) and not emu.disconnected:
+                pass
+        except KeyboardInterrupt:
+            pass
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

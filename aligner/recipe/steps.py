@@ -472,10 +472,12 @@ def plan(ctx: Context, step: Step) -> StepOutcome:
         "imbalance_deg": Quantity(float(p.imbalance_deg), "deg"),
     }
     where = ", ".join(f"{k} {v:.4f} deg" for k, v in settings.items())
+    side = result.branches[result.chosen].side
     return _outcome(
         step,
-        f"planned (nothing moved): {where}; amplification {float(amp):.4g}, leak rate "
-        f"{float(p.leak_rate):.4g}, imbalance {float(p.imbalance_deg):+.4f} deg",
+        f"planned (nothing moved): {where}; amplification {float(amp):.4g} (the "
+        f"{side}-reading side of the null, the nearer one: the sign says which way the pointer "
+        f"moves), leak rate {float(p.leak_rate):.4g}, imbalance {float(p.imbalance_deg):+.4f} deg",
         quantities=quantities,
         readings=settings,
     )

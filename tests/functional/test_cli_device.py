@@ -128,3 +128,25 @@ def test_a_failed_step_is_reported_and_exits_3(capsys):
         code, out, _ = device(capsys, "try", emu.port, "--profile", "example-mount", "--yes")
     assert code == 3
     assert "FAIL step" in out and "+0.05 deg off" in out and " back " not in out
+
+
+def test_the_emulator_runs_as_a_command_for_a_first_try(capsys):
+    # docs/device-profiles.md: `python -m aligner_drivers.emulator SHAPE` prints the port that
+    # `aligner device show` then reaches through the real transport (common practice, no source)
+    import subprocess
+
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "aligner_drivers.emulator", "hex-addressed-mount"],
+        stdout=subprocess.PIPE,
+        text=True,
+    )
+    try:
+        assert proc.stdout is not None
+        line = proc.stdout.readline()
+        assert line.startswith("serving the hex-addressed-mount shape on ")
+        port = line.split(" on ")[1].split(" ")[0]
+        assert main(["device", "show", port, "--profile", "hex-addressed-mount"]) == 0
+        assert "identity:     hex stepper" in capsys.readouterr().out
+    finally:
+        proc.terminate()
+        assert proc.wait(timeout=10) == 0
