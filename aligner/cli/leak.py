@@ -13,7 +13,6 @@ units, with the difference in standard deviations.
 from __future__ import annotations
 
 import argparse
-from dataclasses import asdict, dataclass
 from typing import Any
 
 from .common import add_json_flag, add_set_argument, number
@@ -345,40 +344,12 @@ def _bench_path(bench: Any, args: argparse.Namespace) -> str | None:
     return None if bench is None else str(bench.path or args.bench)
 
 
-@dataclass(frozen=True)
-class HeraldedLeakResult:
-    """The leak per heralded photon from coincidences among heralds: ``leak`` with its
-    interval ``leak_low``..``leak_high`` at ``level``, the accidental coincidence probability
-    per herald removed, ``|A_w|`` from it, the prediction and the bench file used (None
-    without ``--bench``)."""
-
-    coincidences: int
-    heralds: int
-    accidental_probability: float
-    leak: float
-    leak_low: float
-    leak_high: float
-    level: float
-    predicted_leak: float | None
-    bench_path: str | None
-
-    @property
-    def weak_value_abs(self) -> float:
-        """``|A_w|`` from the leak (pure states, ``A^2 = 1``)."""
-        from ..physics.heralded import weak_value_from_leak
-
-        return float(weak_value_from_leak(self.leak))
-
-    def to_json(self) -> dict[str, Any]:
-        """The JSON document of ``aligner leak --coincidences ... --json`` (docs/json.md)."""
-        return {**asdict(self), "weak_value_abs": self.weak_value_abs}
-
-
 def _heralded(args: argparse.Namespace) -> int:
     """The leak per heralded photon from coincidences among heralds
     (:func:`aligner.physics.heralded.heralded_leak`: Clopper-Pearson on the coincidences per
     herald, the accidental share removed), the weak value it gives, and the prediction."""
     from ..errors import InputError
+    from ..fit.counts import HeraldedLeakResult
     from ..physics.heralded import accidental_probability, heralded_leak
     from .common import emit_json, parse_settings
     from .fit import print_table

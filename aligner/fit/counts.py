@@ -36,7 +36,7 @@ Rates a detector saw above its ``safe_rate`` give a safety warning. Bad argument
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import asdict, dataclass, field
 from typing import Any
 
 import numpy as np
@@ -64,6 +64,7 @@ __all__ = [
     "CountedReference",
     "DarkCounts",
     "Gating",
+    "HeraldedLeakResult",
     "LeakMeasurement",
     "RateReference",
     "Verdict",
@@ -630,3 +631,32 @@ def measure_leak(
         warnings=tuple(w for w in warnings if w),
         **fields,
     )
+
+
+@dataclass(frozen=True)
+class HeraldedLeakResult:
+    """The leak per heralded photon from coincidences among heralds: ``leak`` with its
+    interval ``leak_low``..``leak_high`` at ``level``, the accidental coincidence probability
+    per herald removed, ``|A_w|`` from it, the prediction and the bench file used (None
+    without a bench)."""
+
+    coincidences: int
+    heralds: int
+    accidental_probability: float
+    leak: float
+    leak_low: float
+    leak_high: float
+    level: float
+    predicted_leak: float | None
+    bench_path: str | None
+
+    @property
+    def weak_value_abs(self) -> float:
+        """``|A_w|`` from the leak (pure states, ``A^2 = 1``)."""
+        from ..physics.heralded import weak_value_from_leak
+
+        return float(weak_value_from_leak(self.leak))
+
+    def to_json(self) -> dict[str, Any]:
+        """The JSON document of ``aligner leak --coincidences ... --json`` (docs/json.md)."""
+        return {**asdict(self), "weak_value_abs": self.weak_value_abs}
