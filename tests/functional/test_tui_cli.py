@@ -33,7 +33,7 @@ def test_desk_help_names_the_keys_and_the_safety_rules(capsys):
     text = " ".join(capsys.readouterr().out.split())
     assert "--db FILE" in text and "BENCH" in text
     assert "F1 lists the keys" in text and "F2-F8 switch screens" in text
-    assert "laser safety officer" in text and "SIGTERM and SIGHUP" in text
+    assert "laser safety officer" in text and "SIGTERM, SIGHUP and SIGINT" in text
 
 
 def test_desk_with_a_missing_bench_file_is_one_plain_error(tmp_path):
