@@ -42,6 +42,24 @@ _STEP_DEG = 1e-4  # finite-difference step of the first-order propagation (readi
 _STEP_WAVES = 1e-5  # ... and of the retardance (waves)
 
 
+#: The reported percentiles: median, central 68 % and 95 % ranges (fractions).
+_QUANTILES = np.array([50.0, 15.865, 84.135, 2.275, 97.725]) / 100
+
+
+def _percentiles(ordered: Real) -> Real:
+    """:data:`_QUANTILES` of sorted values as ``numpy.percentile`` computes them by default
+    (linear interpolation between the order statistics around ``(n - 1) q``, with numpy's
+    two-sided formula, so the numbers agree to the last bit). One sort and ten look-ups cost
+    a quarter of numpy's partition around ten order statistics on 1e5 values."""
+    n = ordered.size
+    index = (n - 1) * _QUANTILES
+    below = np.floor(index).astype(np.intp)
+    gamma = index - below
+    a, b = ordered[below], ordered[np.minimum(below + 1, n - 1)]
+    diff = b - a
+    return np.where(gamma >= 0.5, b - diff * (1 - gamma), a + diff * gamma)
+
+
 @dataclass(frozen=True)
 class Spread:
     """Median, central 68 % / 95 % ranges and standard deviation of a sampled quantity."""
@@ -60,9 +78,7 @@ class Spread:
         if v.size == 0:
             nan = float("nan")
             return cls(nan, nan, nan, nan, nan, nan)
-        median, low68, high68, low95, high95 = (
-            float(x) for x in np.percentile(v, [50.0, 15.865, 84.135, 2.275, 97.725])
-        )
+        median, low68, high68, low95, high95 = (float(x) for x in _percentiles(np.sort(v)))
         return cls(median, low68, high68, low95, high95, float(np.std(v)))
 
     @property
@@ -239,7 +255,9 @@ def tolerance_budget(
     rng = np.random.default_rng(seed)
     items = error_items(bench)
     fig, leak = _sample(bench, target, full, items, samples, rng)
-    alone = max(samples // 4, 1000)  # enough to rank the errors
+    # a 68 % half-width from n samples is known to about 1/sqrt(n) of itself (Gaussian
+    # order statistics; from memory): 1e4 rank the errors and give their two digits
+    alone = max(samples // 10, 1000)
     by_source = {
         item[0]: Spread.of(_sample(bench, target, full, [item], alone, rng)[0]).half_width68
         for item in items

@@ -9,6 +9,8 @@ from typing import Any
 
 import numpy as np
 import pytest
+from hypothesis import given
+from hypothesis import strategies as st
 
 import aligner
 from aligner.bench import load_bench, parse_bench
@@ -308,3 +310,15 @@ def test_mount_period_guard() -> None:
         bench, pre=tuple(replace(e, type="mystery") if e.mount == "qwp" else e for e in bench.pre)
     )
     assert mount_period_deg(odd, "qwp") == 360.0
+
+
+@given(
+    st.lists(st.floats(min_value=-1e6, max_value=1e6, allow_nan=False), min_size=1, max_size=300)
+)
+def test_spread_percentiles_are_numpys(values):
+    # The tolerance budget's percentiles from one sort equal numpy.percentile's default
+    # (linear) method bit for bit (reference: numpy.percentile, Hyndman & Fan 1996 type 7).
+    from aligner.planning.tolerance import _QUANTILES, _percentiles
+
+    v = np.asarray(values)
+    assert np.array_equal(_percentiles(np.sort(v)), np.percentile(v, _QUANTILES * 100))
