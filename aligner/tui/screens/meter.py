@@ -41,7 +41,14 @@ class MeterScreen(DeskScreen):
 
     MODE = "meter"
     STATUS = "#meter-status"
-    BINDINGS: ClassVar[list[BindingType]] = [keys.START, keys.PAUSE, keys.NEW_MIN_MAX]
+    BINDINGS: ClassVar[list[BindingType]] = [
+        keys.on_screen(
+            keys.START,
+            "start counting in short gates (the shutter opens only where the guard allows it)",
+        ),
+        keys.on_screen(keys.PAUSE, "stop counting and shut the shutter"),
+        keys.NEW_MIN_MAX,
+    ]
 
     def __init__(self) -> None:
         super().__init__()

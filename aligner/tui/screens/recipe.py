@@ -80,7 +80,22 @@ class RecipeScreen(DeskScreen):
     """Run written recipes on the desk's bench (engine: :mod:`aligner.recipe`)."""
 
     MODE = "recipe"
-    BINDINGS: ClassVar[list[BindingType]] = [keys.START, keys.PAUSE, keys.GO_ON]
+    BINDINGS: ClassVar[list[BindingType]] = [
+        keys.on_screen(keys.START, "start the chosen recipe from its first step"),
+        keys.on_screen(
+            keys.PAUSE,
+            "pause the recipe at its next safe point (shutter shut, the run resumable)",
+        ),
+        keys.on_screen(keys.GO_ON, "go on with the paused recipe run where it stopped"),
+    ]
+    HELP_KEYS: ClassVar = (
+        ("↑ / ↓", "pick a recipe in the list (Tab to the list first; not while one runs)"),
+        (
+            "type, then Enter",
+            "answer the open question in the answer box: yes or no for a confirmation, the "
+            "value (or stop) for a reading",
+        ),
+    )
 
     def __init__(self) -> None:
         super().__init__()

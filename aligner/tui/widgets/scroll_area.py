@@ -16,8 +16,8 @@ class ScrollArea(VerticalScroll):
 
     HELP_KEYS: ClassVar = (
         (
-            "Tab, then ↑ / ↓ / PgUp / PgDn / Home / End",
-            "scroll the part of the screen below the fold (the scroll bar turns bright while "
-            "the keys scroll it)",
+            "↑ / ↓ / PgUp / PgDn",
+            "in a scroll area (Tab to it; its scroll bar turns bright): scroll to what lies "
+            "below the fold; Home / End go to its top / bottom",
         ),
     )
