@@ -68,11 +68,8 @@ class PredictionPanel(Vertical):
             f"ampl. ({axis})",
             f"linear {num(p.amplification_linear, 5)} · exact {num(p.amplification_exact, 5)}",
         )
-        t.row(
-            "ampl. as seen",
-            f"{num(p.amplification_seen, 5)} = exact × {num(p.reading_fraction, 4)}, the share "
-            "carrying the shift (what the limits count)",
-        )
+        t.row("ampl. as seen", f"{num(p.amplification_seen, 5)}, comparable with the limits")
+        t.row("", f"= exact × {num(p.reading_fraction, 4)}, share with the shift")
         seen, unseen = (wv.real, wv.imag) if p.axis == "re" else (wv.imag, wv.real)
         if abs(unseen) > abs(seen):
             other = "imaginary" if p.axis == "re" else "real"

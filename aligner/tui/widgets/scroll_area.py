@@ -17,7 +17,7 @@ class ScrollArea(VerticalScroll):
     HELP_KEYS: ClassVar = (
         (
             "↑ / ↓ / PgUp / PgDn",
-            "in a scroll area (Tab to it; its scroll bar turns bright): scroll to what lies "
-            "below the fold; Home / End go to its top / bottom",
+            "in a scroll area (Tab or Shift+Tab until its scroll bar turns bright): scroll to "
+            "what lies below the fold; Home / End go to its top / bottom",
         ),
     )
