@@ -63,7 +63,7 @@ def run(args: argparse.Namespace) -> int:
         emit_json(block)
         return 0
 
-    diluted = float(prediction.reading_fraction) * block["amplification"]["exact"]
+    diluted = float(prediction.amplification_seen)
     _print_tables(bench, readings, block, diluted, lim, best_snr_imbalance(bench, settings))
     return 0
 

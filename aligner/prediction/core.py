@@ -154,7 +154,8 @@ class Prediction:
     Computed on first access: ``imbalance_deg``; ``pointer_spread`` (rms of one event's
     reading, the exact post-selected spread); ``reading_rate`` and ``reading_fraction`` (the
     events per second the pointer is read from and the share carrying the shift,
-    :func:`.pointer.read_rates`); ``practical_amplification`` (``pointer_shift`` over the
+    :func:`.pointer.read_rates`); ``amplification_seen`` (the exact amplification times that
+    share); ``practical_amplification`` (``pointer_shift`` over the
     standard measurement's shift at the same sensor); ``snr_per_sqrt_s`` (centroid),
     ``information_snr_per_sqrt_s`` (Cramer-Rao, post-selected events),
     ``both_ports_snr_per_sqrt_s`` (Cramer-Rao, post-selected and rejected ports) and
@@ -205,6 +206,13 @@ class Prediction:
     def reading_fraction(self) -> Real:
         """Share of the events the pointer is read from that carry the shift (1 for a camera)."""
         return self._lazy("reading_fraction")
+
+    @cached_property
+    def amplification_seen(self) -> Real:
+        """``amplification_exact`` times ``reading_fraction``: the amplification of the shift
+        as the sensor sees it, diluted by the events that carry none (dark counts); what the
+        limits of amplification (:func:`.limits.limits`) are worked out for."""
+        return self.amplification_exact * self.reading_fraction
 
     @cached_property
     def information_snr_per_sqrt_s(self) -> Real:

@@ -6,9 +6,15 @@ measuring on the sweep screen and on the meter alike). No binding uses a letter 
 multiplexer takes as its prefix (Ctrl+A, Ctrl+B) or one a text field edits with (Ctrl+A, E, D,
 W, U, K, X, C, V); arrows and page keys act on the focused widget only. Every binding is
 ``priority`` so it works while a text field has the focus.
+
+A key keeps its action and short name (the footer's) everywhere; what it does in full (its
+tooltip, which the F1 help lists) is said for each screen with :func:`on_screen` where the
+screens differ (the sweep screen's words are the defaults).
 """
 
 from __future__ import annotations
+
+from dataclasses import replace
 
 from textual.binding import Binding
 
@@ -25,6 +31,7 @@ __all__ = [
     "QUIT",
     "READ_AGAIN",
     "START",
+    "on_screen",
 ]
 
 
@@ -32,10 +39,18 @@ def _key(key: str, action: str, description: str, tooltip: str = "") -> Binding:
     return Binding(key, action, description, priority=True, tooltip=tooltip)
 
 
+def on_screen(binding: Binding, does: str) -> Binding:
+    """``binding`` with what it does on one screen (``does``, the F1 help's and the footer
+    tooltip's words); key, action and short name unchanged."""
+    return replace(binding, tooltip=does)
+
+
 HELP = _key("f1", "app.help", "Help", "every key of this screen")
 QUIT = _key("ctrl+q", "app.quit", "Quit", "quit (asks first while a sweep runs)")
-START = _key("ctrl+s", "start", "Start", "start measuring (a new sweep run, or the meter)")
-PAUSE = _key("ctrl+p", "pause", "Pause", "stop measuring: mounts stopped, shutter shut")
+START = _key("ctrl+s", "start", "Start", "start a new sweep run (asks first when real mounts move)")
+PAUSE = _key(
+    "ctrl+p", "pause", "Pause", "pause after the point being counted: mounts stopped, shutter shut"
+)
 GO_ON = _key("ctrl+g", "go_on", "Go on", "resume the paused sweep run")
 READ_AGAIN = _key("ctrl+r", "read_again", "Read again", "read the run log or the devices again")
 FILE_READINGS = _key(

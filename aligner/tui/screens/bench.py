@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING, ClassVar
 from textual import on, work
 from textual.app import ComposeResult
 from textual.binding import BindingType
-from textual.containers import Container, Vertical, VerticalScroll
+from textual.containers import Container, Vertical
 from textual.widgets import Static
 from textual.worker import get_current_worker
 
@@ -26,6 +26,7 @@ from ..widgets.beam_path import BeamPath
 from ..widgets.limits import LimitsPanel
 from ..widgets.prediction import PredictionPanel
 from ..widgets.readings import ReadingsEditor
+from ..widgets.scroll_area import ScrollArea
 from ..widgets.working_point import Curve, Spot, WorkingPoint, curve_readings
 from .base import DeskScreen
 
@@ -62,7 +63,7 @@ class BenchScreen(DeskScreen):
 
     def compose_body(self) -> ComposeResult:
         bench = self.backend.bench
-        with VerticalScroll(id="bench-body"):
+        with ScrollArea(id="bench-body"):
             with Container(id="bench-top"):
                 with Vertical(id="bench-left"):
                     editor = ReadingsEditor(bench.mounts, self.desk.readings, id="readings")

@@ -18,13 +18,13 @@ from rich.text import Text
 from textual import on, work
 from textual.app import ComposeResult
 from textual.binding import BindingType
-from textual.containers import VerticalScroll
 from textual.widgets import Static
 
 from ...errors import AlignerError
 from .. import keys
 from ..format import literal
 from ..messages import DevicesRead
+from ..widgets.scroll_area import ScrollArea
 from .base import DeskScreen
 from .confirm import Confirm
 
@@ -86,7 +86,7 @@ class DevicesScreen(DeskScreen):
 
     def compose_body(self) -> ComposeResult:
         yield Static("", id="devices-status")
-        with VerticalScroll(id="devices-body"):
+        with ScrollArea(id="devices-body"):
             yield Static("", id="devices")
             yield Static(NOTE, id="devices-note", markup=False)
 

@@ -1,8 +1,9 @@
 """F1: every key of the current screen, in one list.
 
 The list is read from the bindings themselves (the app's, the screen's and those of the
-desk's widgets on the screen, plus the keys a widget documents in ``HELP_KEYS``), so it cannot
-drift from what the keys do.
+desk's widgets on the screen, plus the keys the screen or a widget documents in
+``HELP_KEYS``), so it cannot drift from what the keys do. A binding's tooltip says what it does
+on its screen (:func:`aligner.tui.keys.on_screen`).
 """
 
 from __future__ import annotations
@@ -62,6 +63,7 @@ def screen_keys(screen: Screen[Any]) -> list[tuple[str, str]]:
         else:
             rows.append((key_name(b.key), b.tooltip or b.description))
     rows += [(key_name(b.key), b.tooltip or b.description) for b in _bindings(screen)]
+    rows += list(vars(type(screen)).get("HELP_KEYS", ()))
     seen: set[type] = set()
     for widget in screen.query("*"):
         cls = type(widget)

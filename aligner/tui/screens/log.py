@@ -9,7 +9,7 @@ from rich.text import Text
 from textual import on
 from textual.app import ComposeResult
 from textual.binding import BindingType
-from textual.containers import Container, Vertical, VerticalScroll
+from textual.containers import Container, Vertical
 from textual.widgets import DataTable, Static
 
 from ...errors import AlignerError
@@ -19,6 +19,7 @@ from ..widgets.event_list import EventList
 from ..widgets.leak_plot import LeakPlot
 from ..widgets.points_table import PointsTable
 from ..widgets.run_list import RunList
+from ..widgets.scroll_area import ScrollArea
 from .base import DeskScreen
 
 if TYPE_CHECKING:
@@ -54,7 +55,7 @@ class LogScreen(DeskScreen):
 
     def compose_body(self) -> ComposeResult:
         yield Static("", id="log-file")
-        with VerticalScroll(id="log-body"):
+        with ScrollArea(id="log-body"):
             with Container(id="log-top"):
                 with Vertical(id="log-left"):
                     yield RunList(id="runs")

@@ -17,7 +17,7 @@ from rich.text import Text
 from textual import on, work
 from textual.app import ComposeResult
 from textual.binding import BindingType
-from textual.containers import Container, Horizontal, Vertical, VerticalScroll
+from textual.containers import Container, Horizontal, Vertical
 from textual.widgets import Input, Label, Static
 
 from ...errors import AlignerError
@@ -26,6 +26,7 @@ from ..format import rate
 from ..messages import MeterChanged, MeterRead
 from ..metering import MeterSample, MeterSession, MeterState
 from ..widgets.meter import ChannelMeter, MountStepper
+from ..widgets.scroll_area import ScrollArea
 from .base import DeskScreen
 
 __all__ = ["MeterScreen"]
@@ -40,7 +41,14 @@ class MeterScreen(DeskScreen):
 
     MODE = "meter"
     STATUS = "#meter-status"
-    BINDINGS: ClassVar[list[BindingType]] = [keys.START, keys.PAUSE, keys.NEW_MIN_MAX]
+    BINDINGS: ClassVar[list[BindingType]] = [
+        keys.on_screen(
+            keys.START,
+            "start counting in short gates (the shutter opens only where the guard allows it)",
+        ),
+        keys.on_screen(keys.PAUSE, "stop counting and shut the shutter"),
+        keys.NEW_MIN_MAX,
+    ]
 
     def __init__(self) -> None:
         super().__init__()
@@ -63,7 +71,7 @@ class MeterScreen(DeskScreen):
         # simulated or typed-in numbers never pass as measurements
         kind = {"simulated": " · SIMULATED", "typed": " · TYPED IN"}.get(self.counter_kind, "")
         yield Static(IDLE, id="meter-status")
-        with VerticalScroll(id="meter-body"):
+        with ScrollArea(id="meter-body"):
             if self.typed:
                 with Horizontal(id="meter-typed"):
                     yield Label("typed rates (counts/s)", classes="form-label")

@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING, ClassVar
 from textual import on, work
 from textual.app import ComposeResult
 from textual.binding import BindingType
-from textual.containers import Container, Horizontal, Vertical, VerticalScroll
+from textual.containers import Container, Horizontal, Vertical
 from textual.timer import Timer
 from textual.widgets import Checkbox, DataTable, Input, Label, Select, Static
 from textual.worker import get_current_worker
@@ -24,6 +24,7 @@ from ...errors import AlignerError, InfeasibleTarget
 from .. import keys
 from ..messages import ApplyReadings, MountsMoved, PlanReady, PlanRequest
 from ..widgets.plan_result import BranchTable, PlanResult
+from ..widgets.scroll_area import ScrollArea
 from ..widgets.working_point import Curve, Spot, WorkingPoint, curve_readings
 from .base import DeskScreen
 from .confirm import Confirm
@@ -101,7 +102,7 @@ class PlanScreen(DeskScreen):
         yield Static("", id="plan-status")
         yield Static("", id="plan-warning", markup=False)
         yield Static("", id="plan-moved")
-        with VerticalScroll(id="plan-body"), Container(id="plan-top"):
+        with ScrollArea(id="plan-body"), Container(id="plan-top"):
             with Vertical(id="plan-left"):
                 yield BranchTable(id="branches")
                 yield PlanResult(self.backend.bench, id="plan-result")

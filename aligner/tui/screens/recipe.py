@@ -1,5 +1,9 @@
 """Recipe screen: pick a bundled or local recipe, run it in a worker, answer its questions in
-place, pause and resume it; every step's state and result in words."""
+place, pause and resume it; every step's state and result in words.
+
+Cautions, questions and results are shown whole: they wrap, and the area that holds them
+scrolls (Tab to it, then the arrows or page keys) when they are longer than the space. The
+question stands last, just above a line that says how to answer and the answer box."""
 
 from __future__ import annotations
 
@@ -20,11 +24,20 @@ from ...text import clean, safe_text
 from .. import keys
 from ..messages import RecipeAsks, RecipeEnded, RecipeSaid, RecipeStepState
 from ..widgets.recipe_steps import RecipeSteps
+from ..widgets.scroll_area import ScrollArea
 from .base import DeskScreen
 
 __all__ = ["DeskOperator", "RecipeScreen"]
 
 IDLE = "pick a recipe; Ctrl+S starts it, Ctrl+P pauses it, Ctrl+G goes on with a paused run"
+#: How to answer, by what the recipe waits for ("" when no question is open).
+HOW_TO_ANSWER = {
+    "": "no question open: when a step asks one, answer it in this box",
+    "confirm": "ANSWER BELOW: type yes or no, then Enter",
+    "prompt": "ANSWER BELOW: type the value asked for above (or stop), then Enter",
+}
+#: Lines the recipe said that the screen keeps (the oldest go first).
+KEPT_LINES = 200
 #: What the answer box stands for while the recipe waits for nothing.
 _PAUSE = object()
 
@@ -67,7 +80,22 @@ class RecipeScreen(DeskScreen):
     """Run written recipes on the desk's bench (engine: :mod:`aligner.recipe`)."""
 
     MODE = "recipe"
-    BINDINGS: ClassVar[list[BindingType]] = [keys.START, keys.PAUSE, keys.GO_ON]
+    BINDINGS: ClassVar[list[BindingType]] = [
+        keys.on_screen(keys.START, "start the chosen recipe from its first step"),
+        keys.on_screen(
+            keys.PAUSE,
+            "pause the recipe at its next safe point (shutter shut, the run resumable)",
+        ),
+        keys.on_screen(keys.GO_ON, "go on with the paused recipe run where it stopped"),
+    ]
+    HELP_KEYS: ClassVar = (
+        ("↑ / ↓", "pick a recipe in the list (Tab to the list first; not while one runs)"),
+        (
+            "type, then Enter",
+            "answer the open question in the answer box: yes or no for a confirmation, the "
+            "value (or stop) for a reading",
+        ),
+    )
 
     def __init__(self) -> None:
         super().__init__()
@@ -85,9 +113,12 @@ class RecipeScreen(DeskScreen):
             yield OptionList(id="recipe-list")
             with Vertical(id="recipe-right"):
                 yield RecipeSteps(id="recipe-steps")
-                yield Static("", id="recipe-current")
-                yield Input(id="recipe-answer", placeholder="answers go here when asked")
-                yield Static("", id="recipe-lines")
+                with ScrollArea(id="recipe-talk") as talk:
+                    talk.border_title = "Cautions, questions, results"
+                    yield Static("", id="recipe-lines")
+                    yield Static("", id="recipe-current")
+                yield Static(HOW_TO_ANSWER[""], id="recipe-hint")
+                yield Input(id="recipe-answer", placeholder="yes, no or a value when asked")
         yield Static(IDLE, id="recipe-status")
 
     def on_mount(self) -> None:
@@ -199,7 +230,8 @@ class RecipeScreen(DeskScreen):
                     self.status(safe_text(answer), error=True)
                     return
         box = self.query_one("#recipe-answer", Input)
-        box.value, box.disabled, self.asking = "", True, ""
+        box.value, box.disabled = "", True
+        self.hint("")
         self.operator.answers.put(answer)
         self.status("running…")
 
@@ -207,9 +239,13 @@ class RecipeScreen(DeskScreen):
 
     @on(RecipeSaid)
     def said(self, event: RecipeSaid) -> None:
-        self.lines = [*self.lines, clean(event.text)][-4:]
-        lines = Text("\n".join(self.lines), no_wrap=True, overflow="ellipsis")
-        self.query_one("#recipe-lines", Static).update(lines)
+        self.lines = [*self.lines, clean(event.text)][-KEPT_LINES:]
+        text = Text("\n").join(
+            Text(line, style="bold #ffd166" if line.startswith("caution") else "")
+            for line in self.lines
+        )
+        self.query_one("#recipe-lines", Static).update(text)
+        self.show_latest()
 
     @on(RecipeStepState)
     def step_state(self, event: RecipeStepState) -> None:
@@ -225,9 +261,8 @@ class RecipeScreen(DeskScreen):
 
     @on(RecipeAsks)
     def asks(self, event: RecipeAsks) -> None:
-        self.asking = event.kind
-        how = "type yes or no" if event.kind == "confirm" else "type the value ('stop' stops)"
-        self.current(f"QUESTION: {event.text}\n({how}, then Enter)")
+        self.current(f"QUESTION: {event.text}", style="bold")
+        self.hint(event.kind)
         box = self.query_one("#recipe-answer", Input)
         box.disabled = False
         box.focus()
@@ -235,7 +270,8 @@ class RecipeScreen(DeskScreen):
 
     @on(RecipeEnded)
     def ended(self, event: RecipeEnded) -> None:
-        self.running, self.asking = False, ""
+        self.running = False
+        self.hint("")
         self.query_one("#recipe-answer", Input).disabled = True
         if event.error:
             self.status(f"not started: {safe_text(event.error)}", error=True)
@@ -261,8 +297,25 @@ class RecipeScreen(DeskScreen):
 
     # -- helpers -------------------------------------------------------------------------------
 
-    def current(self, text: str) -> None:
-        self.query_one("#recipe-current", Static).update(Text(clean(text)))
+    def current(self, text: str, style: str = "") -> None:
+        """Show the current step, question or recipe (as written, wrapped) and bring its start
+        into view."""
+        self.query_one("#recipe-current", Static).update(Text(clean(text), style=style))
+        self.show_latest()
+
+    def show_latest(self) -> None:
+        """Once laid out, scroll the talk so that the current text starts in view (the lines
+        before it stay a scroll away)."""
+        talk = self.query_one("#recipe-talk", ScrollArea)
+        current = self.query_one("#recipe-current", Static)
+        self.call_after_refresh(talk.scroll_to_widget, current, animate=False, top=True)
+
+    def hint(self, kind: str) -> None:
+        """Say beside the answer box how to answer a question of ``kind`` ("" for none)."""
+        self.asking = kind
+        line = self.query_one("#recipe-hint", Static)
+        line.update(HOW_TO_ANSWER[kind])
+        line.set_class(bool(kind), "-asking")
 
     def status(self, text: str, *, error: bool = False) -> None:
         line = self.query_one("#recipe-status", Static)

@@ -5,7 +5,8 @@ from __future__ import annotations
 from collections.abc import Mapping
 from typing import TYPE_CHECKING, Any
 
-from textual.widgets import DataTable
+from rich.table import Table
+from textual.widgets import Static
 
 from ...bench import Bench
 from ..format import deg, literal, num
@@ -15,31 +16,33 @@ if TYPE_CHECKING:
 
 __all__ = ["BeamPath"]
 
-#: Width of the reading and angle columns (``-170.000°``), fixed so a new reading repaints
-#: the cells without a new layout.
+#: Width of the reading and angle columns (``-170.000°``), fixed so a new reading wraps no
+#: row differently and repaints without a new layout.
 READING_WIDTH = 9
 
 _KIND = {
-    "hwp": "half-wave",
-    "qwp": "quarter-wave",
+    "hwp": "HWP",
+    "qwp": "QWP",
     "retarder": "retarder",
     "rotator": "rotator",
     "polarizer": "polarizer",
 }
 
 
-def _element_rows(bench: Bench) -> list[tuple[str, str | None, float | None, str]]:
-    """(label, mount or None, fixed angle deg or None, detail) in beam order, source to analyzer."""
+def _element_rows(bench: Bench) -> list[tuple[str, str, str | None, float | None]]:
+    """(label, detail, mount or None, fixed angle deg or None) in beam order, source to
+    analyzer, then the detector."""
     s, c, a = bench.source, bench.coupling, bench.analyzer
-    rows: list[tuple[str, str | None, float | None, str]] = [
-        ("source polarizer", s.mount, s.angle_deg, f"ER {num(s.extinction_ratio, 2)}")
+    rows: list[tuple[str, str, str | None, float | None]] = [
+        ("source polarizer", f"ER {num(s.extinction_ratio, 2)}", s.mount, s.angle_deg)
     ]
     for e in bench.pre:
-        rows.append((f"{_KIND.get(e.type, e.type)} {e.key}", e.mount, e.angle_deg, _detail(e)))
-    rows.append((f"coupling ({c.observable})", None, None, f"{c.readout}"))
+        rows.append((f"{_KIND.get(e.type, e.type)} {e.key}", _detail(e), e.mount, e.angle_deg))
+    rows.append((f"coupling ({c.observable})", c.readout, None, None))
     for e in bench.post:
-        rows.append((f"{_KIND.get(e.type, e.type)} {e.key}", e.mount, e.angle_deg, _detail(e)))
-    rows.append(("analyzer", a.mount, a.angle_deg, f"ER {num(a.extinction_ratio, 2)}"))
+        rows.append((f"{_KIND.get(e.type, e.type)} {e.key}", _detail(e), e.mount, e.angle_deg))
+    rows.append(("analyzer", f"ER {num(a.extinction_ratio, 2)}", a.mount, a.angle_deg))
+    rows.append(("detector", f"η {num(bench.detector.efficiency, 2)}", None, None))
     return rows
 
 
@@ -51,36 +54,40 @@ def _detail(element: Element) -> str:
     return ""
 
 
-class BeamPath(DataTable):
-    """Elements in beam order: mount, reading (deg) and element angle (deg) at the readings
-    (only the reading and angle cells change as the readings do)."""
+class BeamPath(Static):
+    """Elements in beam order: what each is (retardance in waves, extinction ratio ER,
+    detector efficiency η), its mount, reading (deg) and element angle (deg) at the readings.
 
-    can_focus = False
+    Names wrap within their column when the panel is narrow; numbers are never cut (their
+    columns do not wrap, and a value wider than its column folds onto the next line)."""
 
     def __init__(self, bench: Bench, **kwargs: Any) -> None:
-        super().__init__(cursor_type="none", zebra_stripes=True, **kwargs)
+        super().__init__("", **kwargs)
         self.bench = bench
         self.rows_spec = _element_rows(bench)
+        self._shown = False
 
     def on_mount(self) -> None:
-        self.add_column("element", key="element")
-        self.add_column("mount", key="mount")
-        self.add_column("reading", key="reading", width=READING_WIDTH)
-        self.add_column("angle", key="angle", width=READING_WIDTH)
-        self.add_column("", key="detail")
-        for n, (label, mount, fixed, detail) in enumerate(self.rows_spec):
-            fixed_cells = ("", "") if fixed is None else ("fixed", deg(fixed, 2))
-            reading, angle = fixed_cells if mount is None else ("", "")
-            self.add_row(
-                literal(label), literal(mount or ""), reading, angle, literal(detail), key=str(n)
-            )
-        d = self.bench.detector
-        self.add_row("detector", "", "", "", f"η {num(d.efficiency, 2)}")
         self.show(self.bench.readings(), {})
 
     def show(self, readings: Mapping[str, float], angles_deg: Mapping[str, Any]) -> None:
         """Refresh with mount ``readings`` and element ``angles_deg`` (both deg, by mount)."""
-        for n, (_label, mount, _fixed, _detail) in enumerate(self.rows_spec):
+        table = Table(
+            box=None, padding=(0, 1), show_edge=False, pad_edge=False, header_style="bold"
+        )
+        table.add_column("element", overflow="fold")  # the only column that wraps
+        table.add_column("", no_wrap=True, overflow="fold")
+        table.add_column("mount", no_wrap=True, overflow="fold")
+        for name in ("reading", "angle"):
+            table.add_column(
+                name, justify="right", min_width=READING_WIDTH, no_wrap=True, overflow="fold"
+            )
+        for label, detail, mount, fixed in self.rows_spec:
             if mount is not None:
-                self.update_cell(str(n), "reading", deg(readings[mount]))
-                self.update_cell(str(n), "angle", deg(angles_deg.get(mount)))
+                reading, angle = deg(readings.get(mount)), deg(angles_deg.get(mount))
+            else:
+                reading, angle = ("", "") if fixed is None else ("fixed", deg(fixed, 2))
+            table.add_row(literal(label), literal(detail), literal(mount or ""), reading, angle)
+        # the rows wrap the same way whatever the readings: a new layout only the first time
+        self.update(table, layout=not self._shown)
+        self._shown = True

@@ -44,7 +44,10 @@ class LimitsPanel(Static):
         head.add_column(style="bold", no_wrap=True)
         head.add_column()
         for label, value in (
-            ("largest amplification", f"{num(lim.max_amplification, 4)} (axis {lim.axis})"),
+            (
+                "largest amplification",
+                f"{num(lim.max_amplification, 4)} as seen (axis {lim.axis})",
+            ),
             ("at imbalance", f"{lim.at_imbalance_deg:+.4f}° (reading {lim.at_reading_deg:.4f}°)"),
             ("null at", f"{lim.null_reading_deg:.4f}° ({self.mount_name})"),
             ("limited by", lim.limited_by),

@@ -41,8 +41,10 @@ class _Grid:
 
 
 class PredictionPanel(Vertical):
-    """Weak value, leak rate, amplification (linear and exact), pointer shift, SNR, and the
-    detector rate against the bench's safe rate (class ``danger`` when over it or saturated)."""
+    """Weak value, leak rate, amplification (linear, exact, and as seen: exact diluted by the
+    events that carry no shift, the figure the limits are worked out for), pointer shift, SNR,
+    and the detector rate against the bench's safe rate (class ``danger`` when over it or
+    saturated)."""
 
     def __init__(self, bench: Bench, **kwargs: Any) -> None:
         super().__init__(**kwargs)
@@ -66,6 +68,8 @@ class PredictionPanel(Vertical):
             f"ampl. ({axis})",
             f"linear {num(p.amplification_linear, 5)} · exact {num(p.amplification_exact, 5)}",
         )
+        t.row("ampl. as seen", f"{num(p.amplification_seen, 5)}, comparable with the limits")
+        t.row("", f"= exact × {num(p.reading_fraction, 4)}, share with the shift")
         seen, unseen = (wv.real, wv.imag) if p.axis == "re" else (wv.imag, wv.real)
         if abs(unseen) > abs(seen):
             other = "imaginary" if p.axis == "re" else "real"

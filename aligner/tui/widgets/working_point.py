@@ -289,14 +289,14 @@ class WorkingPoint(Container):
         for s, marker, _color, label in _spots(self):
             text.append(f"{marker} {label}: ", style="bold")
             text.append(
-                f"imbalance {s.imbalance:+.4f}°, amplification {num(s.amplification, 4)}, "
+                f"imbalance {s.imbalance:+.4f}°, exact amplification {num(s.amplification, 4)}, "
                 f"leak rate {sci(s.leak)}\n"
             )
         lim = self.limits
         if lim is not None:
             text.append("| limits: ", style="bold")
             text.append(
-                f"largest amplification {num(lim.max_amplification, 4)} at "
+                f"largest amplification {num(lim.max_amplification, 4)} as seen at "
                 f"{lim.at_imbalance_deg:+.4f}°, limited by {lim.limited_by}; each alone: "
                 + ", ".join(
                     f"{name} {m.at_imbalance_deg:+.3f}°" for name, m in lim.mechanisms.items()
