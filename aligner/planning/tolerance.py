@@ -11,7 +11,7 @@ Error sources (each drawn independently per sample, vectorized over all samples 
   ``±retardance_tol_waves`` (a manufacturer's tolerance is a bound, not an rms).
 
 The spread is reported as the median and the central 68 % and 95 % ranges of the Monte Carlo
-samples; each error is also run alone (on a quarter of the samples), and the one with the
+samples; each error is also run alone (on a tenth of the samples), and the one with the
 widest 68 % range dominates. The
 first-order (linear) propagation through the sensitivities is given beside it: for small
 errors the two agree.
