@@ -26,7 +26,7 @@ train after its pivot (``ray_matrix(train)[0, 1]`` of :mod:`aligner.physics.prop
 focal length in a focal plane): :meth:`NoiseSpectrum.scaled`. Independent noises add.
 Technical noise is not amplified by post-selection, so an amplified shift beats it: in the
 technical-noise limit the post-selected SNR over the standard one is the amplification, in the
-shot-noise limit at most ``cos(eps)`` (Jordan, Martinez-Rincon, Howell, PRX 4, 011031 (2014)).
+shot-noise limit at most ``cos(eps)`` (Jordan et al., PRX 4, 011031 (2014)).
 """
 
 from __future__ import annotations

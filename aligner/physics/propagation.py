@@ -183,7 +183,7 @@ def practical_amplification(
     eigenvalue: float = 1.0,
 ) -> Real:
     """Post-selected displacement at the detector over the standard one through the same
-    train (the amplification a deflection experiment reports; Dixon, Starling, Jordan, Howell,
+    train (the amplification a deflection experiment reports; Dixon et al.,
     PRL 102, 173601 (2009)). Infinite when the standard displacement vanishes (a kick read at
     the coupling plane, a shift read in a focal plane)."""
     standard = standard_shift(strength, wavelength, coupling, train, eigenvalue)

@@ -233,7 +233,7 @@ class Prediction:
     @cached_property
     def practical_amplification(self) -> Real:
         """``pointer_shift`` over the standard measurement's mean shift at the same sensor
-        (Dixon, Starling, Jordan, Howell, PRL 102, 173601 (2009)); inf where that vanishes
+        (Dixon et al., PRL 102, 173601 (2009)); inf where that vanishes
         (a shift read in a focal plane, a kick read at the coupling plane)."""
         standard = standard_shift(self._evaluation.bench)
         with np.errstate(divide="ignore", invalid="ignore"):

@@ -24,7 +24,7 @@ Two figures per root second of counting, both at the sensor that reads the point
 Under shot noise alone post-selection does not beat the standard measurement: with ideal optics
 in the linear regime the post-selected events reach ``cos(imbalance)`` of its SNR (Ferrie &
 Combes, PRL 112, 040406 (2014)); any gain comes from technical noise, which is not amplified
-(Jordan, Martinez-Rincon, Howell, PRX 4, 011031 (2014)), or from detector limits.
+(Jordan et al., PRX 4, 011031 (2014)), or from detector limits.
 
 The standard measurement: no analyzer, the same photons, pointer, readout and sensor, the input
 in the eigenstate of ``A`` with the larger ``|eigenvalue|``.

@@ -23,9 +23,9 @@ at each point's read-back readings, so a later edit of the bench file changes no
   :func:`aligner.physics.branches.moments`) and the jitter; which of them dominated, and what
   capped the amplification (:func:`aligner.prediction.limits.limits`), is the limiting
   mechanism. In the shot-noise limit post-selection cannot beat the standard measurement
-  (Ferrie & Combes, PRL 112, 040406 (2014)); against technical noise it can (Jordan,
-  Martinez-Rincon, Howell, PRX 4, 011031 (2014)). Cramer-Rao bounds of both, from the Fisher
-  information of the detected events, are given for reference.
+  (Ferrie & Combes, PRL 112, 040406 (2014)); against technical noise it can (Jordan et al.,
+  PRX 4, 011031 (2014)). Cramer-Rao bounds of both, from the Fisher information of the
+  detected events, are given for reference.
 * The dense predicted curve over the imbalance mount's range (other mounts at their median
   read-back), for plots.
 

@@ -1,6 +1,6 @@
 """Device profiles: the validated model the line drivers use (format: docs/device-profiles.md).
 
-A profile is a TOML file of our own format that tells the generic line drivers how to talk to
+A profile is a TOML file of our own format that tells the generic line drivers how to speak with
 one kind of controller: how messages are framed (``[link]``), one entry per quantity or action
 (``[entry.NAME]``: read and write templates, codec, scale, limits, state map), and the settings
 of the role it plays (``[axis]``, ``[counter]``, ``[pointer]``). It says nothing about the

@@ -57,11 +57,11 @@ async def _check_question_and_cautions(pilot, app, recipe, question: str) -> Non
     assert " ".join(question.split()[-4:]) in shown
     # Shift+Tab from the answer box reaches the cautions; Home scrolls back to them
     await pilot.press("shift+tab")
-    talk = app.screen.query_one("#recipe-talk")
-    assert app.focused is talk
+    dialogue = app.screen.query_one("#recipe-dialogue")
+    assert app.focused is dialogue
     await pilot.press("home")
     await pilot.pause()
-    assert talk.scroll_y == 0
+    assert dialogue.scroll_y == 0
     top = on_screen(app)  # words of one line (the recipe list shares the screen's rows)
     assert (
         "cautions before you start:" in top and f"caution: {recipe.cautions[0].split()[0]}" in top

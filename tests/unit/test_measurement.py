@@ -338,7 +338,7 @@ def test_kick_read_in_a_focal_plane_reads_the_momentum_exactly():
 
 
 def test_kick_at_the_waist_read_after_free_space_is_dixons_factor():
-    # physics.md (derived; Dixon, Starling, Jordan, Howell, PRL 102, 173601 (2009)): a kick at
+    # physics.md (derived; Dixon et al., PRL 102, 173601 (2009)): a kick at
     # the waist read after z of free space gives d<x> = -2 k sigma^2 Im A_w + (z/k0) k Re A_w,
     # against (z/k0) k without post-selection.
     z_mm = 1500.0

@@ -127,7 +127,7 @@ def worked_case(eps):
 
 
 def test_technical_advantage_of_post_selection():
-    # Jordan, Martinez-Rincon, Howell, PRX 4, 011031 (2014): technical noise is not amplified,
+    # Jordan et al., PRX 4, 011031 (2014): technical noise is not amplified,
     # so in its limit the post-selected SNR exceeds the standard one by the amplification; with
     # shot noise only the post-selected SNR is at most cos(eps) of it (Ferrie & Combes, PRL 112,
     # 040406 (2014)).

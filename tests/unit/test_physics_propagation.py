@@ -142,7 +142,7 @@ def test_focal_plane_reads_momentum_exactly():
 
 
 def test_dixon_amplification_factor():
-    # Dixon, Starling, Jordan, Howell, PRL 102, 173601 (2009) (from memory): kick at the waist,
+    # Dixon et al., PRL 102, 173601 (2009) (from memory): kick at the waist,
     # A_w = -i cot(phi/2); a detector l_md away sees <x> = 2 k sigma^2 cot(phi/2) against the
     # deflection k l_md / k0 of the beam without post-selection: A = 2 k0 sigma^2 cot(phi/2)/l_md.
     phi = np.array([0.02, 0.05, 0.1])

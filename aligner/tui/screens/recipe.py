@@ -113,8 +113,8 @@ class RecipeScreen(DeskScreen):
             yield OptionList(id="recipe-list")
             with Vertical(id="recipe-right"):
                 yield RecipeSteps(id="recipe-steps")
-                with ScrollArea(id="recipe-talk") as talk:
-                    talk.border_title = "Cautions, questions, results"
+                with ScrollArea(id="recipe-dialogue") as dialogue:
+                    dialogue.border_title = "Cautions, questions, results"
                     yield Static("", id="recipe-lines")
                     yield Static("", id="recipe-current")
                 yield Static(HOW_TO_ANSWER[""], id="recipe-hint")
@@ -304,11 +304,11 @@ class RecipeScreen(DeskScreen):
         self.show_latest()
 
     def show_latest(self) -> None:
-        """Once laid out, scroll the talk so that the current text starts in view (the lines
+        """Once laid out, scroll the dialogue so that the current text starts in view (the lines
         before it stay a scroll away)."""
-        talk = self.query_one("#recipe-talk", ScrollArea)
+        dialogue = self.query_one("#recipe-dialogue", ScrollArea)
         current = self.query_one("#recipe-current", Static)
-        self.call_after_refresh(talk.scroll_to_widget, current, animate=False, top=True)
+        self.call_after_refresh(dialogue.scroll_to_widget, current, animate=False, top=True)
 
     def hint(self, kind: str) -> None:
         """Say beside the answer box how to answer a question of ``kind`` ("" for none)."""
