@@ -139,12 +139,13 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(
             "give --schedule SPEC for a new run, or --resume RUN to continue one (not both)"
         )
-    new_run_only = {"--dwell": args.dwell, "--settle": args.settle, "--repeats": args.repeats}
-    given = [flag for flag, value in new_run_only.items() if value is not None]
-    if args.resume is not None and given:
+    asked = {"dwell_s": args.dwell, "settle_s": args.settle, "repeats": args.repeats}
+    timing = {name: value for name, value in asked.items() if value is not None}
+    if args.resume is not None and timing:
         raise InputError(
-            f"{', '.join(given)} cannot change a run being resumed: run {args.resume} keeps the "
-            "schedule, dwell and settle it was logged with (start a new run to change them)"
+            f"{', '.join(FLAGS[name] for name in timing)} cannot change a run being resumed: "
+            f"run {args.resume} keeps the schedule, dwell and settle it was logged with (start a "
+            "new run to change them)"
         )
     if args.retries < 0:
         raise InputError(f"--retries must be 0 or more, got {args.retries}")
@@ -155,12 +156,7 @@ def run(args: argparse.Namespace) -> int:
         from ..run.schedule import plan_points
 
         try:
-            schedule = parse_schedule(
-                args.schedule,
-                repeats=1 if args.repeats is None else args.repeats,
-                dwell_s=1.0 if args.dwell is None else args.dwell,
-                settle_s=0.0 if args.settle is None else args.settle,
-            )
+            schedule = parse_schedule(args.schedule, **timing)  # its defaults for the rest
         except ParameterError as exc:
             raise InputError(f"{FLAGS.get(exc.parameter, exc.parameter)} {exc.problem}") from None
         planned = plan_points(bench, schedule)  # a target the bench cannot reach stops here
